@@ -1,0 +1,5 @@
+import sys
+
+from nutricap.cli import main
+
+sys.exit(main())

@@ -1,0 +1,169 @@
+"""Command line: ``nutricap demo | estimate | check | trend``.
+
+A thin layer over :mod:`nutricap.workflow`. A user's mistake
+(:class:`~nutricap.errors.InputError`) is printed as one message and exits
+with code 2; no traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import shutil
+import sys
+import time
+from collections.abc import Sequence
+from pathlib import Path
+
+from nutricap import __version__
+from nutricap.cautions import CAUTION
+from nutricap.errors import InputError
+
+EXIT_OK = 0
+EXIT_BAD_INPUT = 2
+
+DESCRIPTION = (
+    "Nutritional carrying capacity (NCC) of ungulate range per management unit, beside the "
+    "forage-quantity ceiling (ECC) and the capacity at allowable use."
+)
+EPILOG = f"CAUTION: {CAUTION}"
+
+
+class StepPrinter:
+    """Prints numbered steps with elapsed seconds to stderr (the progress of a run)."""
+
+    def __init__(self, quiet: bool = False) -> None:
+        self.quiet = quiet
+        self.start = time.perf_counter()
+        self.count = 0
+
+    def __call__(self, message: str) -> None:
+        self.count += 1
+        if not self.quiet:
+            elapsed = time.perf_counter() - self.start
+            print(f"[{self.count}] {elapsed:6.1f} s  {message}", file=sys.stderr, flush=True)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser with every subcommand."""
+    parser = argparse.ArgumentParser(
+        prog="nutricap", description=DESCRIPTION, epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    parser.add_argument("--version", action="version", version=f"nutricap {__version__}")
+    commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    _add_demo(commands)
+    _add_estimate(commands)
+    _add_check(commands)
+    _add_trend(commands)
+    return parser
+
+
+def _subparser(commands, name: str, summary: str) -> argparse.ArgumentParser:
+    return commands.add_parser(
+        name, help=summary, description=summary, epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+
+
+def _add_demo(commands) -> None:
+    parser = _subparser(commands, "demo", "Write the invented example landscape and estimate it.")
+    parser.add_argument("--out", type=Path, default=Path("nutricap_demo"),
+                        help="folder for the example inputs and results (default: nutricap_demo)")
+    parser.add_argument("--overwrite", action="store_true", help="replace an existing folder")
+    parser.add_argument("--quiet", action="store_true", help="no progress messages")
+    parser.set_defaults(handler=run_demo)
+
+
+def _add_estimate(commands) -> None:
+    parser = _subparser(commands, "estimate", "Estimate capacity per unit for a project file.")
+    parser.add_argument("project", type=Path, help="project file (TOML)")
+    parser.add_argument("--out", type=Path, required=True, help="output folder (not an input folder)")
+    parser.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
+    parser.add_argument("--quiet", action="store_true", help="no progress messages")
+    parser.set_defaults(handler=run_estimate_command)
+
+
+def _add_check(commands) -> None:
+    parser = _subparser(commands, "check", "Validate a project and its inputs; write nothing.")
+    parser.add_argument("project", type=Path, help="project file (TOML)")
+    parser.add_argument("--quiet", action="store_true", help="no progress messages")
+    parser.set_defaults(handler=run_check)
+
+
+def _add_trend(commands) -> None:
+    from nutricap import trend
+
+    parser = _subparser(commands, "trend", "Population trend (λ, r, logistic K, MSY) from yearly counts.")
+    trend.add_arguments(parser)
+    parser.set_defaults(handler=trend.run)
+
+
+def run_estimate_command(args: argparse.Namespace) -> int:
+    from nutricap.project import load_project
+    from nutricap.workflow import run_estimate
+
+    progress = StepPrinter(args.quiet)
+    project = load_project(args.project)
+    result = run_estimate(project, args.out, overwrite=args.overwrite, progress=progress)
+    _print_summary(result, args.out)
+    return EXIT_OK
+
+
+def run_check(args: argparse.Namespace) -> int:
+    from nutricap.project import load_project
+    from nutricap.workflow import estimate
+
+    project = load_project(args.project)
+    result = estimate(project, StepPrinter(args.quiet))
+    units = len(result.by_unit)
+    strata = len(result.supply.strata)
+    plots = int(result.supply.n_plots.sum())
+    print(f"{project.path}: OK — {units} units, {strata} strata, {plots} plots; nothing written.")
+    for note in result.notes:
+        print(f"note: {note}")
+    return EXIT_OK
+
+
+def run_demo(args: argparse.Namespace) -> int:
+    from nutricap.example import write_example_landscape
+    from nutricap.outputs import check_output_folder
+    from nutricap.project import load_project
+    from nutricap.workflow import run_estimate
+
+    progress = StepPrinter(args.quiet)
+    out = check_output_folder(args.out, [], overwrite=args.overwrite)
+    inputs = out / "example_landscape"
+    results = out / "results"
+    progress(f"writing the invented example landscape to {inputs}")
+    if inputs.exists():
+        shutil.rmtree(inputs)
+    project_file = write_example_landscape(inputs)
+    result = run_estimate(load_project(project_file), results, overwrite=True, progress=progress)
+    _print_summary(result, results)
+    return EXIT_OK
+
+
+def _print_summary(result, out: Path) -> None:
+    table = result.by_unit
+    print(f"Capacity by unit ({result.season_days:g}-day season), table: {Path(out) / 'capacity_by_unit.csv'}")
+    shown = table[["unit_id", "ncc_animals", "ecc_animals", "allowable_use_animals", "limiting_factor"]]
+    print(shown.to_string(index=False, float_format=lambda v: f"{v:,.0f}"))
+    print(f"Total NCC {table['ncc_animals'].sum():,.0f} animals; ECC {table['ecc_animals'].sum():,.0f}.")
+    for note in result.notes:
+        print(f"note: {note}")
+    print(f"CAUTION: {CAUTION}")
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point; returns the exit code."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return args.handler(args)
+    except InputError as exc:
+        print(f"nutricap: error: {exc.formatted()}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,208 @@
+"""The three CSV tables of a project: forage classes, clip plots, animal classes.
+
+Each reader declares its columns (see :mod:`nutricap.tables`) and checks the
+relations inside the table (unique ids, one of two alternative columns).
+Relations between tables (a plot's forage class must be in the forage-class
+table) are checked in :mod:`nutricap.landscape.plots`.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from nutricap.errors import TableError
+from nutricap.science.forage_quality import (
+    GROSS_ENERGY_KCAL_PER_G_DEFAULT,
+    digestible_energy_kcal_per_g,
+    digestible_protein_pct,
+)
+from nutricap.science.supply import biomass_kg_per_ha
+from nutricap.tables import Column, check_unique, read_csv_table, spreadsheet_row
+
+FORAGE_CLASS_COLUMNS = [
+    Column("forage_class", "text", meaning="name of the forage class"),
+    Column("growth_form", "text", required=False, allow_blank=True),
+    Column("de_kcal_per_g", required=False, allow_blank=True, above=0, maximum=5,
+           meaning="digestible energy, kcal per g dry matter"),
+    Column("dmd_pct", required=False, allow_blank=True, above=0, maximum=100,
+           meaning="dry-matter digestibility, percent"),
+    Column("gross_energy_kcal_per_g", required=False, allow_blank=True, above=3, maximum=6,
+           meaning="gross energy, kcal per g dry matter"),
+    Column("cp_pct", minimum=0, maximum=60, allow_blank=True,
+           meaning="crude protein, percent of dry matter"),
+    Column("allowable_use", minimum=0, maximum=1,
+           meaning="fraction of current growth that may be used, 0 to 1"),
+    Column("key", "flag", required=False, allow_blank=True),
+    Column("height_cm", required=False, allow_blank=True, minimum=0, maximum=3000,
+           meaning="forage height, cm"),
+    Column("tannin", required=False, allow_blank=True, minimum=0, maximum=1,
+           meaning="tannin protein precipitation, mg BSA per mg forage"),
+    Column("stratum", "text", required=False, allow_blank=True),
+]
+
+PLOT_COLUMNS = [
+    Column("plot_id", "text", meaning="plot identifier"),
+    Column("stratum", "text", meaning="vegetation stratum of the plot"),
+    Column("forage_class", "text", meaning="forage class clipped"),
+    Column("dry_mass_g", required=False, allow_blank=True, minimum=0, maximum=100_000,
+           meaning="oven-dry mass in the frame, g"),
+    Column("frame_area_m2", required=False, allow_blank=True, above=0, maximum=10_000,
+           meaning="frame area, m²"),
+    Column("biomass_kg_per_ha", required=False, allow_blank=True, minimum=0, maximum=100_000,
+           meaning="dry biomass, kg/ha"),
+]
+
+ANIMAL_CLASS_COLUMNS = [
+    Column("animal_class", "text", meaning="name of the animal class"),
+    Column("body_mass_kg", above=0, maximum=2000, meaning="live body mass, kg"),
+    Column("share", minimum=0, maximum=1, meaning="share of the herd, 0 to 1"),
+    Column("state", "text", meaning="reproductive state, e.g. maintenance, gestation, lactation"),
+    Column("intake_kg_per_day", required=False, allow_blank=True, above=0, maximum=60,
+           meaning="dry-matter intake override, kg per animal per day"),
+]
+
+
+def read_forage_classes(path: Path) -> pd.DataFrame:
+    """Read the forage-class table and derive DE [kcal/g] and DP [%] for every row.
+
+    Rows with a blank ``stratum`` hold a class's values; rows with a stratum
+    override them for that stratum. ``de_kcal_per_g`` is taken as given, or
+    computed from ``dmd_pct`` × gross energy when only ``dmd_pct`` is given.
+    """
+    table = read_csv_table(path, FORAGE_CLASS_COLUMNS, what="forage-class table")
+    for name in ("de_kcal_per_g", "dmd_pct", "tannin", "height_cm", "gross_energy_kcal_per_g"):
+        if name not in table.columns:
+            table[name] = np.nan
+    if "stratum" not in table.columns:
+        table["stratum"] = ""
+    if "key" not in table.columns:
+        table["key"] = False
+    check_unique(table, ["forage_class", "stratum"], path)
+    _require_energy(table, path)
+    gross = table["gross_energy_kcal_per_g"].fillna(GROSS_ENERGY_KCAL_PER_G_DEFAULT)
+    from_dmd = digestible_energy_kcal_per_g(table["dmd_pct"].to_numpy(), gross.to_numpy())
+    table["de_kcal_per_g"] = table["de_kcal_per_g"].fillna(pd.Series(from_dmd, index=table.index))
+    table["dp_pct"] = digestible_protein_pct(
+        table["cp_pct"].fillna(0.0).to_numpy(), table["tannin"].fillna(0.0).to_numpy()
+    )
+    _require_class_rows(table, path)
+    return table
+
+
+def _require_energy(table: pd.DataFrame, path: Path) -> None:
+    missing = table["de_kcal_per_g"].isna() & table["dmd_pct"].isna()
+    if missing.any():
+        index = int(np.flatnonzero(missing.to_numpy())[0])
+        raise TableError(
+            "no energy value",
+            source=path,
+            location=f"row {spreadsheet_row(index)}, columns 'de_kcal_per_g'/'dmd_pct'",
+            expected="de_kcal_per_g, or dmd_pct to compute it from",
+            found="both empty",
+        )
+
+
+def _require_class_rows(table: pd.DataFrame, path: Path) -> None:
+    classes = set(table.loc[table["stratum"] == "", "forage_class"])
+    overrides = table[table["stratum"] != ""]
+    orphans = ~overrides["forage_class"].isin(classes)
+    if orphans.any():
+        index = overrides.index[orphans.to_numpy()][0]
+        raise TableError(
+            "stratum-specific row for a class without a general row",
+            source=path,
+            location=f"row {spreadsheet_row(index)}, column 'forage_class'",
+            expected="a row with the same forage_class and an empty stratum",
+            found=repr(table.at[index, "forage_class"]),
+        )
+
+
+def read_plots(path: Path) -> pd.DataFrame:
+    """Read the clip-plot table; return it with a ``biomass_kg_per_ha`` column."""
+    table = read_csv_table(path, PLOT_COLUMNS, what="plots table")
+    has_frame = {"dry_mass_g", "frame_area_m2"} <= set(table.columns)
+    has_direct = "biomass_kg_per_ha" in table.columns
+    if not has_frame and not has_direct:
+        raise TableError(
+            "no biomass columns",
+            source=path,
+            location="row 1 (header)",
+            expected="dry_mass_g and frame_area_m2, or biomass_kg_per_ha",
+            found="columns " + ", ".join(repr(name) for name in table.columns),
+        )
+    direct = table["biomass_kg_per_ha"] if has_direct else pd.Series(np.nan, index=table.index)
+    if has_frame:
+        _require_pairs(table, path)
+        framed = biomass_kg_per_ha(table["dry_mass_g"].to_numpy(), table["frame_area_m2"].to_numpy())
+        direct = direct.fillna(pd.Series(framed, index=table.index))
+    missing = direct.isna()
+    if missing.any():
+        index = int(np.flatnonzero(missing.to_numpy())[0])
+        raise TableError(
+            "no biomass value",
+            source=path,
+            location=f"row {spreadsheet_row(index)}",
+            expected="dry_mass_g with frame_area_m2, or biomass_kg_per_ha",
+            found="empty cells",
+        )
+    table["biomass_kg_per_ha"] = direct
+    check_unique(table, ["plot_id", "forage_class"], path)
+    _require_one_stratum_per_plot(table, path)
+    return table
+
+
+def _require_pairs(table: pd.DataFrame, path: Path) -> None:
+    mass, area = table["dry_mass_g"], table["frame_area_m2"]
+    lonely = mass.notna() & area.isna()
+    if lonely.any():
+        index = int(np.flatnonzero(lonely.to_numpy())[0])
+        raise TableError(
+            "dry mass without a frame area",
+            source=path,
+            location=f"row {spreadsheet_row(index)}, column 'frame_area_m2'",
+            expected="the frame area in m² (greater than 0)",
+            found="an empty cell",
+        )
+
+
+def _require_one_stratum_per_plot(table: pd.DataFrame, path: Path) -> None:
+    first = table.groupby("plot_id")["stratum"].transform("first")
+    conflict = (table["stratum"] != first).to_numpy()
+    if conflict.any():
+        index = int(np.flatnonzero(conflict)[0])
+        raise TableError(
+            "plot recorded in two strata",
+            source=path,
+            location=f"row {spreadsheet_row(index)}, column 'stratum'",
+            expected=f"stratum {first.iloc[index]!r} as in the plot's first row",
+            found=repr(table["stratum"].iloc[index]),
+        )
+
+
+def read_animal_classes(path: Path) -> pd.DataFrame:
+    """Read the animal-class table (herd composition)."""
+    table = read_csv_table(path, ANIMAL_CLASS_COLUMNS, what="animal-class table")
+    if "intake_kg_per_day" not in table.columns:
+        table["intake_kg_per_day"] = np.nan
+    check_unique(table, ["animal_class"], path)
+    if table.empty or table["share"].sum() <= 0:
+        raise TableError(
+            "herd shares add up to zero",
+            source=path,
+            location="column 'share'",
+            expected="shares of the herd that add up to 1",
+            found=f"sum {table['share'].sum():g}",
+        )
+    total = table["share"].sum()
+    if abs(total - 1.0) > 0.01:
+        raise TableError(
+            "herd shares do not add up to 1",
+            source=path,
+            location="column 'share'",
+            expected="a sum of 1 (within 0.01)",
+            found=f"sum {total:g}",
+        )
+    return table

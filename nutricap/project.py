@@ -1,0 +1,220 @@
+"""The project file: schema, validation and loading.
+
+A project file is TOML (data only; nothing in it is ever evaluated). Paths in
+``[inputs]`` are relative to the file. Validation uses pydantic and reports
+every problem at once, each with its key and what was expected.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import difflib
+import tomllib
+from pathlib import Path
+from typing import Literal
+
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+
+from nutricap.errors import ProjectFileError
+
+
+class _Section(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+
+class ProjectSection(_Section):
+    """``[project]``: what is being estimated and for how long."""
+
+    name: str = Field(min_length=1)
+    species: str = Field(min_length=1)
+    season: Literal["any", "winter", "summer"] = "any"
+    season_days: float | None = Field(default=None, gt=0, le=366)
+    season_start: dt.date | None = None
+    season_end: dt.date | None = None
+
+    @model_validator(mode="after")
+    def _one_season_length(self) -> ProjectSection:
+        has_dates = self.season_start is not None or self.season_end is not None
+        if self.season_days is not None and has_dates:
+            raise ValueError("give season_days or season_start/season_end, not both")
+        if self.season_days is None and not has_dates:
+            raise ValueError("give season_days, or season_start and season_end")
+        if has_dates and (self.season_start is None or self.season_end is None):
+            raise ValueError("season_start and season_end go together")
+        if has_dates and self.season_end < self.season_start:
+            raise ValueError("season_end is before season_start")
+        return self
+
+    @property
+    def days(self) -> float:
+        """Season length [days]; with dates, both ends are counted."""
+        if self.season_days is not None:
+            return float(self.season_days)
+        return float((self.season_end - self.season_start).days + 1)
+
+
+class InputsSection(_Section):
+    """``[inputs]``: paths to the input files, relative to the project file."""
+
+    forage_classes: Path
+    plots: Path
+    animal_classes: Path
+    units: Path
+    strata: Path
+    units_layer: str | None = None
+    strata_layer: str | None = None
+    counts: Path | None = None
+
+
+class TargetSection(_Section):
+    """``[target]``: the nutritional state the NCC is computed for."""
+
+    animal_class: str | None = None
+    state: str | None = None
+    protein: bool = False
+    diet_de_min_kcal_per_g: float | None = Field(default=None, gt=0, le=5)
+    diet_dp_min_pct: float | None = Field(default=None, ge=0, le=40)
+
+    @model_validator(mode="after")
+    def _threshold_defined(self) -> TargetSection:
+        if self.diet_de_min_kcal_per_g is None and (self.animal_class is None or self.state is None):
+            raise ValueError(
+                "give animal_class and state, or an explicit diet_de_min_kcal_per_g"
+            )
+        return self
+
+
+class ForageUseSection(_Section):
+    """``[forage_use]``: whether NCC respects each class's allowable use."""
+
+    cap_at_allowable_use: bool = True
+
+
+class SupplySection(_Section):
+    """``[supply]``: how forage supply is built from plots and maps."""
+
+    strata_without_forage: list[str] = Field(default_factory=list)
+
+
+class PoolingSection(_Section):
+    """``[pooling]``: how forage is pooled before the diet constraint is applied."""
+
+    mode: Literal["unit", "patch"] = "unit"
+
+
+class ProjectConfig(_Section):
+    """The whole project file."""
+
+    project: ProjectSection
+    inputs: InputsSection
+    target: TargetSection
+    supply: SupplySection = SupplySection()
+    forage_use: ForageUseSection = ForageUseSection()
+    pooling: PoolingSection = PoolingSection()
+
+
+class Project:
+    """A validated project: its configuration and its file's folder.
+
+    Attributes
+    ----------
+    path : Path
+        The project file, absolute.
+    config : ProjectConfig
+        The validated contents.
+    """
+
+    def __init__(self, path: Path, config: ProjectConfig) -> None:
+        self.path = path
+        self.config = config
+
+    @property
+    def folder(self) -> Path:
+        return self.path.parent
+
+    def input_path(self, name: str) -> Path | None:
+        """Absolute path of input ``name`` (``"plots"``, ...), or None when not given."""
+        relative = getattr(self.config.inputs, name)
+        if relative is None:
+            return None
+        return (self.folder / relative).resolve()
+
+    def input_paths(self) -> dict[str, Path]:
+        """Every input file given, by key."""
+        names = ("forage_classes", "plots", "animal_classes", "units", "strata", "counts")
+        return {name: path for name in names if (path := self.input_path(name)) is not None}
+
+
+def load_project(path: str | Path) -> Project:
+    """Read and validate a project file; raise :class:`ProjectFileError` on any problem."""
+    path = Path(path).resolve()
+    raw = _read_toml(path)
+    try:
+        config = ProjectConfig.model_validate(raw)
+    except ValidationError as exc:
+        raise ProjectFileError(_describe_problems(exc, raw), source=path) from None
+    project = Project(path, config)
+    _check_inputs_exist(project)
+    return project
+
+
+def _read_toml(path: Path) -> dict:
+    if not path.is_file():
+        raise ProjectFileError("project file not found", source=path, expected="a TOML file")
+    try:
+        return tomllib.loads(path.read_text(encoding="utf-8"))
+    except UnicodeDecodeError:
+        raise ProjectFileError("project file is not UTF-8 text", source=path) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ProjectFileError(f"TOML syntax error: {exc}", source=path) from None
+
+
+def _describe_problems(exc: ValidationError, raw: dict) -> str:
+    problems = [_describe_one(error, raw) for error in exc.errors()]
+    count = len(problems)
+    head = "1 problem" if count == 1 else f"{count} problems"
+    return f"{head}: " + "; ".join(problems)
+
+
+def _describe_one(error: dict, raw: dict) -> str:
+    location = [str(part) for part in error["loc"]]
+    key = ".".join(location) or "(top level)"
+    if error["type"] == "extra_forbidden":
+        return f"unknown key {key!r}{_did_you_mean(location)}"
+    if error["type"] == "missing":
+        return f"missing key {key!r}"
+    message = error["msg"].removeprefix("Value error, ")
+    found = _lookup(raw, location)
+    found_words = f" (found {found!r})" if found is not None and not isinstance(found, dict) else ""
+    return f"key {key!r}: {message}{found_words}"
+
+
+def _did_you_mean(location: list[str]) -> str:
+    model: type[BaseModel] = ProjectConfig
+    for part in location[:-1]:
+        field = model.model_fields.get(part)
+        if field is None or not isinstance(field.annotation, type):
+            return ""
+        model = field.annotation
+    close = difflib.get_close_matches(location[-1], list(model.model_fields), n=1)
+    return f"; did you mean {close[0]!r}?" if close else ""
+
+
+def _lookup(raw: dict, location: list[str]) -> object:
+    value: object = raw
+    for part in location:
+        if not isinstance(value, dict) or part not in value:
+            return None
+        value = value[part]
+    return value
+
+
+def _check_inputs_exist(project: Project) -> None:
+    for name, path in project.input_paths().items():
+        if not path.exists():
+            raise ProjectFileError(
+                f"input file for key 'inputs.{name}' does not exist",
+                source=project.path,
+                expected="a path relative to the project file",
+                found=str(path),
+            )

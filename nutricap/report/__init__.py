@@ -1,0 +1,1 @@
+"""Reporting: formats results it is handed; computes nothing."""

@@ -1,0 +1,399 @@
+"""The estimate pipeline, in one straight line.
+
+supply (plots × strata map) → availability (accessible hectares) → pool by
+unit → solve (NCC, ECC, allowable use) → assemble the per-unit table.
+Writing files is left to :mod:`nutricap.report.tables`.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+
+from nutricap.errors import InputError, ProjectFileError, TableError
+from nutricap.forage_items import ForageItems, available_forage_kg, build_forage_items
+from nutricap.inputs import read_animal_classes, read_forage_classes, read_plots
+from nutricap.landscape.plots import StratumSupply, stratum_supply
+from nutricap.landscape.vectors import StratumAreas, overlay_strata_on_units, read_strata, read_units
+from nutricap.manifest import build_manifest
+from nutricap.outputs import check_output_folder, staged_folder
+from nutricap.project import Project
+from nutricap.report.tables import markdown_table, write_csv, write_geopackage, write_json
+from nutricap.science import energetics
+from nutricap.science.capacity import (
+    NutritionalCapacity,
+    allowable_use_capacity,
+    ecological_capacity,
+    nutritional_capacity,
+)
+from nutricap.science.forage_quality import mixed_diet_quality
+from nutricap.tables import spreadsheet_row
+
+Progress = Callable[[str], None]
+
+
+@dataclass(frozen=True)
+class DietTarget:
+    """The minimum diet quality of the target nutritional state.
+
+    Attributes
+    ----------
+    de_min_kcal_per_g : float
+        Minimum digestible energy of the diet [kcal/g DM].
+    dp_min_pct : float or None
+        Minimum digestible protein of the diet [% DM], None when protein is not required.
+    derivation : str
+        How the thresholds were obtained, in words (for the report and manifest).
+    """
+
+    de_min_kcal_per_g: float
+    dp_min_pct: float | None
+    derivation: str
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """Everything the estimate computed; reporting only formats it."""
+
+    by_unit: pd.DataFrame
+    by_unit_class: pd.DataFrame
+    units: gpd.GeoDataFrame
+    supply: StratumSupply
+    areas: StratumAreas
+    herd: energetics.HerdRequirement
+    target: DietTarget
+    season_days: float
+    notes: list[str] = field(default_factory=list)
+
+
+def estimate(project: Project, progress: Progress | None = None) -> Estimate:
+    """Run the whole estimate for ``project`` and return the results (nothing is written)."""
+    say = progress or (lambda message: None)
+    config = project.config
+    say("reading tables")
+    forage_classes = read_forage_classes(project.input_path("forage_classes"))
+    plots = read_plots(project.input_path("plots"))
+    animals = read_animal_classes(project.input_path("animal_classes"))
+    say("reading layers and overlaying strata on units")
+    units = read_units(project.input_path("units"), config.inputs.units_layer)
+    strata = read_strata(project.input_path("strata"), config.inputs.strata_layer)
+    areas = overlay_strata_on_units(
+        units, strata, units_path=project.input_path("units"), strata_path=project.input_path("strata")
+    )
+    _require_units_on_map(areas, project)
+    say("summarising clip plots by stratum")
+    classes = sorted(forage_classes.loc[forage_classes["stratum"] == "", "forage_class"])
+    supply = stratum_supply(
+        plots, classes, sorted(strata["stratum"].unique()),
+        plots_path=project.input_path("plots"), strata_path=project.input_path("strata"),
+        strata_without_forage=config.supply.strata_without_forage,
+    )
+    items = build_forage_items(supply, forage_classes)
+    say("computing the herd's requirements")
+    herd = herd_requirement(animals, project)
+    target = diet_target(animals, project)
+    say("solving capacity per unit")
+    by_unit, by_unit_class = solve_units(areas, supply, items, herd, target, project)
+    notes = _supply_notes(supply, plots)
+    return Estimate(
+        by_unit, by_unit_class, areas.units, supply, areas, herd, target, config.project.days, notes
+    )
+
+
+def _require_units_on_map(areas: StratumAreas, project: Project) -> None:
+    mapped = set(areas.by_unit_stratum["unit_id"])
+    unmapped = [unit for unit in areas.units["unit_id"] if unit not in mapped]
+    if unmapped:
+        raise InputError(
+            f"unit {unmapped[0]!r} does not overlap any vegetation stratum",
+            source=project.input_path("units"),
+            location="attribute 'unit_id'",
+            expected="every unit at least partly covered by the strata layer "
+            f"({project.input_path('strata')})",
+            found=f"{len(unmapped)} unit(s) outside the map: " + ", ".join(map(repr, unmapped)),
+        )
+
+
+def _check_states(animals: pd.DataFrame, project: Project) -> None:
+    season = project.config.project.season
+    for index, state in animals["state"].items():
+        try:
+            energetics.state_parameters(state, season)
+        except InputError as exc:
+            raise TableError(
+                exc.message,
+                source=project.input_path("animal_classes"),
+                location=f"row {spreadsheet_row(index)}, column 'state'",
+                expected=exc.expected,
+                found=repr(state),
+            ) from None
+
+
+def herd_requirement(animals: pd.DataFrame, project: Project) -> energetics.HerdRequirement:
+    """The average animal of the herd; a class's ``intake_kg_per_day`` overrides the model."""
+    _check_states(animals, project)
+    season = project.config.project.season
+    mass = animals["body_mass_kg"].to_numpy()
+    herd = energetics.herd_requirement(mass, animals["share"].to_numpy(), animals["state"].tolist(), season)
+    override = animals["intake_kg_per_day"].to_numpy(dtype=float)
+    if np.isnan(override).all():
+        return herd
+    modelled = np.array(
+        [energetics.max_dry_matter_intake_kg_per_day(m, s, season) for m, s in zip(mass, animals["state"])]
+    )
+    intake = np.where(np.isnan(override), modelled, override)
+    shares = animals["share"].to_numpy() / animals["share"].sum()
+    return energetics.HerdRequirement(
+        de_kcal_per_day=herd.de_kcal_per_day,
+        maintenance_de_kcal_per_day=herd.maintenance_de_kcal_per_day,
+        intake_kg_per_day=float(np.sum(shares * intake)),
+        dp_g_per_day=herd.dp_g_per_day,
+        animal_unit_equivalent=herd.animal_unit_equivalent,
+    )
+
+
+def diet_target(animals: pd.DataFrame, project: Project) -> DietTarget:
+    """Minimum diet DE (and DP) of the target state: given, or requirement ÷ intake.
+
+    Hobbs & Swift (1985): the diet must supply the daily requirement within
+    the daily dry-matter intake, so its minimum quality is requirement ÷ intake.
+    """
+    target = project.config.target
+    given_de, given_dp = target.diet_de_min_kcal_per_g, target.diet_dp_min_pct
+    derive_dp = target.protein and given_dp is None
+    if given_de is not None and not derive_dp:
+        return DietTarget(given_de, given_dp, "diet thresholds given in the project file")
+    if target.animal_class is None or target.state is None:
+        raise ProjectFileError(
+            "protein = true needs animal_class and state, or an explicit diet_dp_min_pct",
+            source=project.path, location="section [target]",
+        )
+    row = _target_class(animals, project)
+    season = project.config.project.season
+    mass = float(row["body_mass_kg"])
+    intake = float(row["intake_kg_per_day"])
+    if np.isnan(intake):
+        intake = float(energetics.max_dry_matter_intake_kg_per_day(mass, target.state, season))
+    de_requirement = float(energetics.daily_de_requirement_kcal_per_day(mass, target.state, season))
+    de_min = given_de or float(energetics.required_diet_de_kcal_per_g(de_requirement, intake))
+    dp_min = given_dp
+    if derive_dp:
+        dp_requirement = energetics.daily_dp_requirement_g_per_day(mass, target.state, season)
+        dp_min = float(energetics.required_diet_dp_pct(dp_requirement, intake))
+    derivation = (
+        f"{target.animal_class} ({mass:g} kg) in state {target.state!r}, season {season!r}: "
+        f"DE requirement {de_requirement:,.0f} kcal/day over intake {intake:.3g} kg DM/day"
+    )
+    return DietTarget(de_min, dp_min, derivation)
+
+
+def _target_class(animals: pd.DataFrame, project: Project) -> pd.Series:
+    name = project.config.target.animal_class
+    matches = animals[animals["animal_class"] == name]
+    if matches.empty:
+        raise ProjectFileError(
+            f"target animal class {name!r} is not in the animal-class table",
+            source=project.path, location="key 'target.animal_class'",
+            expected="one of " + ", ".join(map(repr, animals["animal_class"])),
+            found=repr(name),
+        )
+    return matches.iloc[0]
+
+
+def solve_units(
+    areas: StratumAreas,
+    supply: StratumSupply,
+    items: ForageItems,
+    herd: energetics.HerdRequirement,
+    target: DietTarget,
+    project: Project,
+) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Solve NCC, ECC and allowable-use capacity per unit; return (by_unit, by_unit_class)."""
+    unit_ids = areas.units["unit_id"].to_numpy()
+    row_unit, hectares = _problem_rows(areas, supply, unit_ids, project.config.pooling.mode)
+    available = available_forage_kg(items, hectares, supply.strata)
+    use_cap = items.allowable_use if project.config.forage_use.cap_at_allowable_use else None
+    protein = target.dp_min_pct is not None
+    ncc = nutritional_capacity(
+        available, items.de_kcal_per_g, herd.intake_kg_per_day, target.de_min_kcal_per_g,
+        dp_pct=items.dp_pct if protein else None, dp_min_pct=target.dp_min_pct, use_cap=use_cap,
+    )
+    ecc = ecological_capacity(available, items.de_kcal_per_g, herd.maintenance_de_kcal_per_day)
+    allowable = allowable_use_capacity(available, items.allowable_use, herd.intake_kg_per_day)
+    by_unit = _unit_table(areas, unit_ids, row_unit, available, ncc, ecc, allowable, items, herd, project)
+    by_unit_class = _unit_class_table(unit_ids, row_unit, available, ncc.eaten_kg, items)
+    return by_unit, by_unit_class
+
+
+def _problem_rows(
+    areas: StratumAreas, supply: StratumSupply, unit_ids: np.ndarray, mode: str
+) -> tuple[np.ndarray, np.ndarray]:
+    """Rows of the capacity problem: their unit index and accessible ha per stratum.
+
+    ``mode="unit"``: one row per unit. ``mode="patch"``: one row per unit × stratum.
+    """
+    table = areas.by_unit_stratum
+    unit_index = pd.Index(unit_ids).get_indexer(table["unit_id"])
+    stratum_index = pd.Index(supply.strata).get_indexer(table["stratum"])
+    accessible = table["accessible_ha"].to_numpy()
+    if mode == "unit":
+        hectares = np.zeros((unit_ids.size, len(supply.strata)))
+        np.add.at(hectares, (unit_index, stratum_index), accessible)
+        return np.arange(unit_ids.size), hectares
+    hectares = np.zeros((len(table), len(supply.strata)))
+    hectares[np.arange(len(table)), stratum_index] = accessible
+    return unit_index, hectares
+
+
+def _sum_rows_by_unit(values: np.ndarray, row_unit: np.ndarray, n_units: int) -> np.ndarray:
+    """Sum the rows of ``values`` (rows, ...) into units (n_units, ...)."""
+    totals = np.zeros((n_units, *values.shape[1:]))
+    np.add.at(totals, row_unit, values)
+    return totals
+
+
+def _unit_table(
+    areas: StratumAreas,
+    unit_ids: np.ndarray,
+    row_unit: np.ndarray,
+    available: np.ndarray,
+    ncc: NutritionalCapacity,
+    ecc: np.ndarray,
+    allowable: np.ndarray,
+    items: ForageItems,
+    herd: energetics.HerdRequirement,
+    project: Project,
+) -> pd.DataFrame:
+    days = project.config.project.days
+    n = unit_ids.size
+    area_ha = areas.units["area_ha"].to_numpy()
+    stratum_ha = areas.by_unit_stratum.groupby("unit_id")[["area_ha", "accessible_ha"]].sum()
+    ncc_days = _sum_rows_by_unit(ncc.animal_days, row_unit, n)
+    eaten = _sum_rows_by_unit(ncc.eaten_kg, row_unit, n)
+    deciding_row = _deciding_rows(available.sum(axis=1), row_unit, n)
+    table = pd.DataFrame(
+        {
+            "unit_id": unit_ids,
+            "area_ha": area_ha,
+            "mapped_ha": stratum_ha["area_ha"].reindex(unit_ids).to_numpy(),
+            "accessible_ha": stratum_ha["accessible_ha"].reindex(unit_ids).to_numpy(),
+            "available_forage_kg": _sum_rows_by_unit(available.sum(axis=1), row_unit, n),
+            "ncc_animal_days": ncc_days,
+            "ncc_animals": ncc_days / days,
+            "ecc_animal_days": _sum_rows_by_unit(ecc, row_unit, n),
+            "allowable_use_animal_days": _sum_rows_by_unit(allowable, row_unit, n),
+        }
+    )
+    table["ecc_animals"] = table["ecc_animal_days"] / days
+    table["allowable_use_animals"] = table["allowable_use_animal_days"] / days
+    table["limiting_factor"] = ncc.limiting_factor[deciding_row]
+    marginal = ncc.marginal_item[deciding_row]
+    table["marginal_forage_class"] = np.where(marginal >= 0, items.forage_class[marginal], "")
+    table["diet_de_kcal_per_g"] = mixed_diet_quality(eaten, items.de_kcal_per_g)
+    table["diet_dp_pct"] = mixed_diet_quality(eaten, items.dp_pct)
+    table["ncc_per_km2"] = table["ncc_animals"] / (table["area_ha"] / 100.0)
+    table["ecc_per_km2"] = table["ecc_animals"] / (table["area_ha"] / 100.0)
+    table["ncc_aum"] = energetics.animal_unit_months(ncc_days, herd.animal_unit_equivalent)
+    if "current_animals" in areas.units.columns:
+        table["current_animals"] = areas.units["current_animals"].to_numpy()
+    return table
+
+
+def _deciding_rows(row_forage_kg: np.ndarray, row_unit: np.ndarray, n_units: int) -> np.ndarray:
+    """For each unit, the problem row holding most of its forage (the row itself in unit mode)."""
+    order = np.lexsort((-row_forage_kg, row_unit))
+    first = np.unique(row_unit[order], return_index=True)[1]
+    deciding = np.zeros(n_units, dtype=int)
+    deciding[row_unit[order][first]] = order[first]
+    return deciding
+
+
+def _unit_class_table(
+    unit_ids: np.ndarray,
+    row_unit: np.ndarray,
+    available: np.ndarray,
+    eaten: np.ndarray,
+    items: ForageItems,
+) -> pd.DataFrame:
+    """Available and NCC-eaten forage per unit and forage class [kg]."""
+    n = unit_ids.size
+    frame = pd.DataFrame(
+        {
+            "unit_id": np.repeat(unit_ids, items.size),
+            "forage_class": np.tile(items.forage_class, n),
+            "available_kg": _sum_rows_by_unit(available, row_unit, n).ravel(),
+            "ncc_eaten_kg": _sum_rows_by_unit(eaten, row_unit, n).ravel(),
+        }
+    )
+    return frame.groupby(["unit_id", "forage_class"], as_index=False, sort=False).sum()
+
+
+def _supply_notes(supply: StratumSupply, plots: pd.DataFrame) -> list[str]:
+    """Things the user should know that are not errors."""
+    notes = []
+    never = sorted(set(supply.classes) - set(plots["forage_class"]))
+    if never:
+        notes.append(
+            "forage classes in the forage-class table never recorded on a plot (supply 0): "
+            + ", ".join(never)
+        )
+    single = [s for s, n in zip(supply.strata, supply.n_plots) if n == 1]
+    if single:
+        notes.append("strata with a single plot (no standard error): " + ", ".join(single))
+    return notes
+
+
+def run_estimate(
+    project: Project, out: Path, *, overwrite: bool = False, progress: Progress | None = None
+) -> Estimate:
+    """Estimate ``project`` and write every output into ``out`` atomically."""
+    say = progress or (lambda message: None)
+    out = check_output_folder(out, [project.path, *project.input_paths().values()], overwrite=overwrite)
+    result = estimate(project, progress)
+    say(f"writing outputs to {out}")
+    with staged_folder(out) as staging:
+        write_estimate(result, project, staging)
+    return result
+
+
+def write_estimate(result: Estimate, project: Project, folder: Path) -> None:
+    """Write the tables and the manifest of ``result`` into ``folder``."""
+    config = project.config
+    write_csv(result.by_unit, folder / "capacity_by_unit.csv")
+    write_csv(result.by_unit_class, folder / "capacity_by_unit_class.csv")
+    write_csv(result.supply.table(), folder / "supply_by_stratum.csv")
+    write_geopackage(result.by_unit, result.units, folder / "capacity_by_unit.gpkg")
+    context = [
+        f"{config.project.species}, {config.project.name}; season of {result.season_days:g} days.",
+        f"Target diet: DE ≥ {result.target.de_min_kcal_per_g:.3f} kcal/g DM"
+        + (f", DP ≥ {result.target.dp_min_pct:.2f} %" if result.target.dp_min_pct is not None else "")
+        + f" ({result.target.derivation}).",
+    ]
+    markdown = markdown_table(result.by_unit, title="Capacity by unit", context_lines=context)
+    (folder / "capacity_by_unit.md").write_text(markdown, encoding="utf-8")
+    manifest = build_manifest(
+        command="estimate",
+        project_path=project.path,
+        input_paths=project.input_paths(),
+        settings=config.model_dump(mode="json"),
+        derived=_derived_values(result),
+    )
+    write_json(manifest, folder / "run.json")
+
+
+def _derived_values(result: Estimate) -> dict:
+    return {
+        "diet_de_min_kcal_per_g": result.target.de_min_kcal_per_g,
+        "diet_dp_min_pct": result.target.dp_min_pct,
+        "target_derivation": result.target.derivation,
+        "herd": asdict(result.herd),
+        "season_days": result.season_days,
+        "area_crs": result.areas.area_crs.to_string(),
+        "area_crs_reason": result.areas.area_crs_reason,
+        "notes": result.notes,
+    }
