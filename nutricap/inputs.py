@@ -82,9 +82,12 @@ def read_forage_classes(path: Path) -> pd.DataFrame:
         table["key"] = False
     check_unique(table, ["forage_class", "stratum"], path)
     _require_energy(table, path)
-    gross = table["gross_energy_kcal_per_g"].fillna(GROSS_ENERGY_KCAL_PER_G_DEFAULT)
-    from_dmd = digestible_energy_kcal_per_g(table["dmd_pct"].to_numpy(), gross.to_numpy())
-    table["de_kcal_per_g"] = table["de_kcal_per_g"].fillna(pd.Series(from_dmd, index=table.index))
+    derive = table["de_kcal_per_g"].isna()
+    if derive.any():
+        gross = table.loc[derive, "gross_energy_kcal_per_g"].fillna(GROSS_ENERGY_KCAL_PER_G_DEFAULT)
+        table.loc[derive, "de_kcal_per_g"] = digestible_energy_kcal_per_g(
+            table.loc[derive, "dmd_pct"].to_numpy(), gross.to_numpy()
+        )
     table["dp_pct"] = digestible_protein_pct(
         table["cp_pct"].fillna(0.0).to_numpy(), table["tannin"].fillna(0.0).to_numpy()
     )

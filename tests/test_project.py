@@ -1,0 +1,87 @@
+"""Tests of nutricap.project: TOML validation reports every problem with its key."""
+
+import pytest
+
+from nutricap.errors import ProjectFileError
+from nutricap.project import load_project
+
+GOOD = """
+[project]
+name = "Test range"
+species = "deer"
+season = "winter"
+season_days = 90
+
+[inputs]
+forage_classes = "f.csv"
+plots = "p.csv"
+animal_classes = "a.csv"
+units = "u.gpkg"
+strata = "s.gpkg"
+
+[target]
+animal_class = "doe"
+state = "gestation"
+"""
+
+
+@pytest.fixture()
+def folder(tmp_path):
+    for name in ("f.csv", "p.csv", "a.csv", "u.gpkg", "s.gpkg"):
+        (tmp_path / name).write_text("x")
+    return tmp_path
+
+
+def _project(folder, text):
+    path = folder / "project.toml"
+    path.write_text(text)
+    return path
+
+
+def test_good_project_resolves_paths_relative_to_file(folder):
+    project = load_project(_project(folder, GOOD))
+    assert project.input_path("plots") == (folder / "p.csv").resolve()
+    assert project.config.project.days == 90
+    assert project.config.pooling.mode == "unit"
+
+
+def test_season_from_dates_counts_both_ends(folder):
+    text = GOOD.replace("season_days = 90", "season_start = 2026-12-01\nseason_end = 2027-03-31")
+    # 1 Dec 2026 to 31 Mar 2027 inclusive: 31 + 31 + 28 + 31 = 121 days (calendar).
+    assert load_project(_project(folder, text)).config.project.days == 121
+
+
+def test_unknown_key_suggests_the_right_one(folder):
+    text = GOOD.replace("season_days", "season_dayz")
+    with pytest.raises(ProjectFileError, match="unknown key 'project.season_dayz'; did you mean 'season_days'"):
+        load_project(_project(folder, text))
+
+
+def test_every_problem_reported_at_once(folder):
+    text = GOOD.replace('season = "winter"', 'season = "monsoon"').replace(
+        'strata = "s.gpkg"', ""
+    ).replace("[target]", "[target]\ndiet_de_min_kcal_per_g = -1")
+    with pytest.raises(ProjectFileError) as info:
+        load_project(_project(folder, text))
+    message = str(info.value)
+    assert "3 problems" in message
+    assert "project.season" in message and "inputs.strata" in message
+    assert "target.diet_de_min_kcal_per_g" in message
+
+
+def test_toml_syntax_error(folder):
+    with pytest.raises(ProjectFileError, match="TOML syntax error"):
+        load_project(_project(folder, GOOD + "\nname = = 3\n"))
+
+
+def test_missing_input_file_reported_in_full(folder):
+    (folder / "p.csv").unlink()
+    with pytest.raises(ProjectFileError, match=r"inputs\.plots.*p\.csv"):
+        load_project(_project(folder, GOOD))
+
+
+def test_project_file_is_data_not_code(folder):
+    # A TOML string that looks like code stays a string; nothing is evaluated.
+    text = GOOD.replace('name = "Test range"', 'name = "__import__(\'os\').system(\'false\')"')
+    project = load_project(_project(folder, text))
+    assert project.config.project.name.startswith("__import__")

@@ -1,0 +1,127 @@
+"""Tests of nutricap.landscape.vectors: reading layers, the area CRS, the overlay.
+
+Areas are checked against independent computations: shapely areas in the
+same CRS and pyproj's geodesic area on the WGS84 ellipsoid (Karney 2013
+algorithm as implemented in pyproj.Geod).
+"""
+
+import geopandas as gpd
+import numpy as np
+import pytest
+from pyproj import Geod
+from shapely.geometry import Polygon, box
+from shapely.ops import unary_union
+
+from nutricap.errors import SpatialError
+from nutricap.landscape.vectors import overlay_strata_on_units, read_strata, read_units
+
+UTM = "EPSG:32612"
+X0, Y0 = 500_000.0, 4_500_000.0
+
+
+def _write(frame: gpd.GeoDataFrame, path, layer: str):
+    frame.to_file(path, layer=layer, driver="GPKG")
+    return path
+
+
+@pytest.fixture()
+def layers(tmp_path):
+    units = gpd.GeoDataFrame(
+        {"unit_id": ["north", "south"]},
+        geometry=[box(X0, Y0 + 2000, X0 + 3000, Y0 + 4000), box(X0, Y0, X0 + 3000, Y0 + 2000)],
+        crs=UTM,
+    )
+    strata_utm = gpd.GeoDataFrame(
+        {"stratum": ["shrub", "grass", "shrub"], "accessible_fraction": [1.0, 0.5, 0.8]},
+        geometry=[
+            Polygon([(X0 - 500, Y0 - 500), (X0 + 1800, Y0 - 500), (X0 + 1200, Y0 + 4500),
+                     (X0 - 500, Y0 + 4500)]),
+            Polygon([(X0 + 1800, Y0 - 500), (X0 + 3500, Y0 - 500), (X0 + 3500, Y0 + 2500),
+                     (X0 + 1500, Y0 + 2500)]),
+            Polygon([(X0 + 1500, Y0 + 2500), (X0 + 3500, Y0 + 2500), (X0 + 3500, Y0 + 3500),
+                     (X0 + 1320, Y0 + 3500)]),
+        ],
+        crs=UTM,
+    )
+    # The strata layer is stored in geographic coordinates to exercise reprojection.
+    units_path = _write(units, tmp_path / "units.gpkg", "units")
+    strata_path = _write(strata_utm.to_crs("EPSG:4326"), tmp_path / "strata.gpkg", "strata")
+    return units, strata_utm, units_path, strata_path
+
+
+def _overlay(units_path, strata_path):
+    units = read_units(units_path, None)
+    strata = read_strata(strata_path, None)
+    return overlay_strata_on_units(units, strata, units_path=units_path, strata_path=strata_path)
+
+
+def test_unit_areas_agree_with_shapely_and_geodesic(layers):
+    units, _, units_path, strata_path = layers
+    result = _overlay(units_path, strata_path)
+    # shapely planar area in the same projected CRS: 3 km × 2 km = 600 ha each.
+    np.testing.assert_allclose(result.units["area_ha"], units.area / 1e4, rtol=1e-12)
+    geod = Geod(ellps="WGS84")
+    for geometry, area_ha in zip(units.to_crs("EPSG:4326").geometry, result.units["area_ha"]):
+        geodesic_m2 = abs(geod.geometry_area_perimeter(geometry)[0])
+        # UTM scale factor 0.9996 near the central meridian: planar area ≈ 0.9992 × true
+        # area (standard UTM definition); 0.2 % tolerance covers it.
+        assert area_ha == pytest.approx(geodesic_m2 / 1e4, rel=2e-3)
+
+
+def test_overlay_conserves_area(layers):
+    units, strata_utm, units_path, strata_path = layers
+    result = _overlay(units_path, strata_path)
+    inside = unary_union(units.geometry).intersection(unary_union(strata_utm.geometry)).area
+    # Reprojection UTM → geographic → UTM moves vertices by far less than a millimetre.
+    assert result.by_unit_stratum["area_ha"].sum() == pytest.approx(inside / 1e4, rel=1e-6)
+    by_pair = result.by_unit_stratum.set_index(["unit_id", "stratum"])
+    for (unit_id, stratum), row in by_pair.iterrows():
+        unit = units.loc[units["unit_id"] == unit_id].geometry.iloc[0]
+        pieces = strata_utm[strata_utm["stratum"] == stratum]
+        expected_ha = sum(unit.intersection(g).area for g in pieces.geometry) / 1e4
+        expected_accessible = sum(
+            unit.intersection(g).area * f
+            for g, f in zip(pieces.geometry, pieces["accessible_fraction"])
+        ) / 1e4
+        assert row["area_ha"] == pytest.approx(expected_ha, rel=1e-6)
+        assert row["accessible_ha"] == pytest.approx(expected_accessible, rel=1e-6)
+
+
+def test_overlapping_units_are_refused(tmp_path):
+    units = gpd.GeoDataFrame(
+        {"unit_id": ["a", "b"]},
+        geometry=[box(X0, Y0, X0 + 1000, Y0 + 1000), box(X0 + 500, Y0, X0 + 1500, Y0 + 1000)],
+        crs=UTM,
+    )
+    strata = gpd.GeoDataFrame({"stratum": ["s"]}, geometry=[box(X0, Y0, X0 + 2000, Y0 + 1000)], crs=UTM)
+    units_path = _write(units, tmp_path / "u.gpkg", "u")
+    strata_path = _write(strata, tmp_path / "s.gpkg", "s")
+    with pytest.raises(SpatialError, match="overlap.*'a' and 'b'"):
+        _overlay(units_path, strata_path)
+
+
+def test_geographic_units_use_equal_area_projection(tmp_path, layers):
+    units, _, _, strata_path = layers
+    units_path = _write(units.to_crs("EPSG:4326"), tmp_path / "geo_units.gpkg", "units")
+    result = _overlay(units_path, strata_path)
+    assert "equal-area" in result.area_crs_reason
+    geod = Geod(ellps="WGS84")
+    for geometry, area_ha in zip(units.to_crs("EPSG:4326").geometry, result.units["area_ha"]):
+        # An equal-area projection keeps true (geodesic) areas, up to edge densification.
+        geodesic_ha = abs(geod.geometry_area_perimeter(geometry)[0]) / 1e4
+        assert area_ha == pytest.approx(geodesic_ha, rel=1e-4)
+
+
+def test_missing_crs_is_refused(tmp_path):
+    frame = gpd.GeoDataFrame({"unit_id": ["a"]}, geometry=[box(0, 0, 1, 1)])
+    path = _write(frame, tmp_path / "nocrs.gpkg", "u")
+    with pytest.raises(SpatialError, match="no coordinate reference system"):
+        read_units(path, None)
+
+
+def test_invalid_geometry_is_refused_with_feature_number(tmp_path):
+    bowtie = Polygon([(0, 0), (10, 10), (10, 0), (0, 10)])
+    frame = gpd.GeoDataFrame({"stratum": ["ok", "bad"]}, geometry=[box(0, 0, 1, 1), bowtie], crs=UTM)
+    path = _write(frame, tmp_path / "bad.gpkg", "s")
+    with pytest.raises(SpatialError, match="feature 2 \\(of 2\\)"):
+        read_strata(path, None)
