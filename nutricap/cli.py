@@ -46,7 +46,9 @@ class StepPrinter:
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every subcommand."""
     parser = argparse.ArgumentParser(
-        prog="nutricap", description=DESCRIPTION, epilog=EPILOG,
+        prog="nutricap",
+        description=DESCRIPTION,
+        epilog=EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     parser.add_argument("--version", action="version", version=f"nutricap {__version__}")
@@ -60,15 +62,22 @@ def build_parser() -> argparse.ArgumentParser:
 
 def _subparser(commands, name: str, summary: str) -> argparse.ArgumentParser:
     return commands.add_parser(
-        name, help=summary, description=summary, epilog=EPILOG,
+        name,
+        help=summary,
+        description=summary,
+        epilog=EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
 
 
 def _add_demo(commands) -> None:
     parser = _subparser(commands, "demo", "Write the invented example landscape and estimate it.")
-    parser.add_argument("--out", type=Path, default=Path("nutricap_demo"),
-                        help="folder for the example inputs and results (default: nutricap_demo)")
+    parser.add_argument(
+        "--out",
+        type=Path,
+        default=Path("nutricap_demo"),
+        help="folder for the example inputs and results (default: nutricap_demo)",
+    )
     parser.add_argument("--overwrite", action="store_true", help="replace an existing folder")
     parser.add_argument("--quiet", action="store_true", help="no progress messages")
     parser.set_defaults(handler=run_demo)
@@ -77,8 +86,12 @@ def _add_demo(commands) -> None:
 def _add_estimate(commands) -> None:
     parser = _subparser(commands, "estimate", "Estimate capacity per unit for a project file.")
     parser.add_argument("project", type=Path, help="project file (TOML)")
-    parser.add_argument("--out", type=Path, required=True, help="output folder (not an input folder)")
-    parser.add_argument("--overwrite", action="store_true", help="replace an existing output folder")
+    parser.add_argument(
+        "--out", type=Path, required=True, help="output folder (not an input folder)"
+    )
+    parser.add_argument(
+        "--overwrite", action="store_true", help="replace an existing output folder"
+    )
     parser.add_argument("--quiet", action="store_true", help="no progress messages")
     parser.set_defaults(handler=run_estimate_command)
 
@@ -93,7 +106,9 @@ def _add_check(commands) -> None:
 def _add_trend(commands) -> None:
     from nutricap import trend
 
-    parser = _subparser(commands, "trend", "Population trend (λ, r, logistic K, MSY) from yearly counts.")
+    parser = _subparser(
+        commands, "trend", "Population trend (λ, r, logistic K, MSY) from yearly counts."
+    )
     trend.add_arguments(parser)
     parser.set_defaults(handler=trend.run)
 
@@ -145,10 +160,14 @@ def run_demo(args: argparse.Namespace) -> int:
 
 def _print_summary(result, out: Path) -> None:
     table = result.by_unit
-    print(f"Capacity by unit ({result.season_days:g}-day season), table: {Path(out) / 'capacity_by_unit.csv'}")
-    shown = table[["unit_id", "ncc_animals", "ecc_animals", "allowable_use_animals", "limiting_factor"]]
+    table_path = Path(out) / "capacity_by_unit.csv"
+    print(f"Capacity by unit ({result.season_days:g}-day season), table: {table_path}")
+    shown = table[
+        ["unit_id", "ncc_animals", "ecc_animals", "allowable_use_animals", "limiting_factor"]
+    ]
     print(shown.to_string(index=False, float_format=lambda v: f"{v:,.0f}"))
-    print(f"Total NCC {table['ncc_animals'].sum():,.0f} animals; ECC {table['ecc_animals'].sum():,.0f}.")
+    ncc, ecc = table["ncc_animals"].sum(), table["ecc_animals"].sum()
+    print(f"Total NCC {ncc:,.0f} animals; ECC {ecc:,.0f}.")
     for note in result.notes:
         print(f"note: {note}")
     print(f"CAUTION: {CAUTION}")

@@ -38,7 +38,9 @@ def build_forage_items(supply: StratumSupply, forage_classes: pd.DataFrame) -> F
     strata = np.repeat(supply.strata, len(supply.classes))
     classes = np.tile(supply.classes, len(supply.strata))
     general = forage_classes[forage_classes["stratum"] == ""].set_index("forage_class")
-    specific = forage_classes[forage_classes["stratum"] != ""].set_index(["forage_class", "stratum"])
+    specific = forage_classes[forage_classes["stratum"] != ""].set_index(
+        ["forage_class", "stratum"]
+    )
     attributes = general.loc[classes, ["de_kcal_per_g", "dp_pct", "allowable_use", "key"]]
     attributes = attributes.reset_index(drop=True)
     pairs = pd.MultiIndex.from_arrays([classes, strata])

@@ -25,21 +25,60 @@ from nutricap.tables import Column, check_unique, read_csv_table, spreadsheet_ro
 FORAGE_CLASS_COLUMNS = [
     Column("forage_class", "text", meaning="name of the forage class"),
     Column("growth_form", "text", required=False, allow_blank=True),
-    Column("de_kcal_per_g", required=False, allow_blank=True, above=0, maximum=5,
-           meaning="digestible energy, kcal per g dry matter"),
-    Column("dmd_pct", required=False, allow_blank=True, above=0, maximum=100,
-           meaning="dry-matter digestibility, percent"),
-    Column("gross_energy_kcal_per_g", required=False, allow_blank=True, above=3, maximum=6,
-           meaning="gross energy, kcal per g dry matter"),
-    Column("cp_pct", minimum=0, maximum=60, allow_blank=True,
-           meaning="crude protein, percent of dry matter"),
-    Column("allowable_use", minimum=0, maximum=1,
-           meaning="fraction of current growth that may be used, 0 to 1"),
+    Column(
+        "de_kcal_per_g",
+        required=False,
+        allow_blank=True,
+        above=0,
+        maximum=5,
+        meaning="digestible energy, kcal per g dry matter",
+    ),
+    Column(
+        "dmd_pct",
+        required=False,
+        allow_blank=True,
+        above=0,
+        maximum=100,
+        meaning="dry-matter digestibility, percent",
+    ),
+    Column(
+        "gross_energy_kcal_per_g",
+        required=False,
+        allow_blank=True,
+        above=3,
+        maximum=6,
+        meaning="gross energy, kcal per g dry matter",
+    ),
+    Column(
+        "cp_pct",
+        minimum=0,
+        maximum=60,
+        allow_blank=True,
+        meaning="crude protein, percent of dry matter",
+    ),
+    Column(
+        "allowable_use",
+        minimum=0,
+        maximum=1,
+        meaning="fraction of current growth that may be used, 0 to 1",
+    ),
     Column("key", "flag", required=False, allow_blank=True),
-    Column("height_cm", required=False, allow_blank=True, minimum=0, maximum=3000,
-           meaning="forage height, cm"),
-    Column("tannin", required=False, allow_blank=True, minimum=0, maximum=1,
-           meaning="tannin protein precipitation, mg BSA per mg forage"),
+    Column(
+        "height_cm",
+        required=False,
+        allow_blank=True,
+        minimum=0,
+        maximum=3000,
+        meaning="forage height, cm",
+    ),
+    Column(
+        "tannin",
+        required=False,
+        allow_blank=True,
+        minimum=0,
+        maximum=1,
+        meaning="tannin protein precipitation, mg BSA per mg forage",
+    ),
     Column("stratum", "text", required=False, allow_blank=True),
 ]
 
@@ -47,12 +86,30 @@ PLOT_COLUMNS = [
     Column("plot_id", "text", meaning="plot identifier"),
     Column("stratum", "text", meaning="vegetation stratum of the plot"),
     Column("forage_class", "text", meaning="forage class clipped"),
-    Column("dry_mass_g", required=False, allow_blank=True, minimum=0, maximum=100_000,
-           meaning="oven-dry mass in the frame, g"),
-    Column("frame_area_m2", required=False, allow_blank=True, above=0, maximum=10_000,
-           meaning="frame area, m²"),
-    Column("biomass_kg_per_ha", required=False, allow_blank=True, minimum=0, maximum=100_000,
-           meaning="dry biomass, kg/ha"),
+    Column(
+        "dry_mass_g",
+        required=False,
+        allow_blank=True,
+        minimum=0,
+        maximum=100_000,
+        meaning="oven-dry mass in the frame, g",
+    ),
+    Column(
+        "frame_area_m2",
+        required=False,
+        allow_blank=True,
+        above=0,
+        maximum=10_000,
+        meaning="frame area, m²",
+    ),
+    Column(
+        "biomass_kg_per_ha",
+        required=False,
+        allow_blank=True,
+        minimum=0,
+        maximum=100_000,
+        meaning="dry biomass, kg/ha",
+    ),
 ]
 
 ANIMAL_CLASS_COLUMNS = [
@@ -60,8 +117,14 @@ ANIMAL_CLASS_COLUMNS = [
     Column("body_mass_kg", above=0, maximum=2000, meaning="live body mass, kg"),
     Column("share", minimum=0, maximum=1, meaning="share of the herd, 0 to 1"),
     Column("state", "text", meaning="reproductive state, e.g. maintenance, gestation, lactation"),
-    Column("intake_kg_per_day", required=False, allow_blank=True, above=0, maximum=60,
-           meaning="dry-matter intake override, kg per animal per day"),
+    Column(
+        "intake_kg_per_day",
+        required=False,
+        allow_blank=True,
+        above=0,
+        maximum=60,
+        meaning="dry-matter intake override, kg per animal per day",
+    ),
 ]
 
 
@@ -139,7 +202,9 @@ def read_plots(path: Path) -> pd.DataFrame:
     direct = table["biomass_kg_per_ha"] if has_direct else pd.Series(np.nan, index=table.index)
     if has_frame:
         _require_pairs(table, path)
-        framed = biomass_kg_per_ha(table["dry_mass_g"].to_numpy(), table["frame_area_m2"].to_numpy())
+        framed = biomass_kg_per_ha(
+            table["dry_mass_g"].to_numpy(), table["frame_area_m2"].to_numpy()
+        )
         direct = direct.fillna(pd.Series(framed, index=table.index))
     missing = direct.isna()
     if missing.any():

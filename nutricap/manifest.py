@@ -14,8 +14,18 @@ from pathlib import Path
 
 from nutricap.cautions import CAUTION
 
-PACKAGES = ("nutricap", "numpy", "pandas", "scipy", "geopandas", "shapely", "pyproj", "pyogrio",
-            "rasterio", "pydantic")
+PACKAGES = (
+    "nutricap",
+    "numpy",
+    "pandas",
+    "scipy",
+    "geopandas",
+    "shapely",
+    "pyproj",
+    "pyogrio",
+    "rasterio",
+    "pydantic",
+)
 CHUNK_BYTES = 1 << 20
 
 
@@ -58,4 +68,3 @@ def build_manifest(
         "versions": package_versions(),
         "caution": CAUTION,
     }
-

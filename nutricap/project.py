@@ -77,10 +77,10 @@ class TargetSection(_Section):
 
     @model_validator(mode="after")
     def _threshold_defined(self) -> TargetSection:
-        if self.diet_de_min_kcal_per_g is None and (self.animal_class is None or self.state is None):
-            raise ValueError(
-                "give animal_class and state, or an explicit diet_de_min_kcal_per_g"
-            )
+        if self.diet_de_min_kcal_per_g is None and (
+            self.animal_class is None or self.state is None
+        ):
+            raise ValueError("give animal_class and state, or an explicit diet_de_min_kcal_per_g")
         return self
 
 

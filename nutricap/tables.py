@@ -118,7 +118,8 @@ def _check_columns(frame: pd.DataFrame, columns: list[Column], path: Path) -> No
                 f"missing column {column.name!r}{hint}",
                 source=path,
                 location="row 1 (header)",
-                expected=f"column {column.name!r}" + (f" ({column.meaning})" if column.meaning else ""),
+                expected=f"column {column.name!r}"
+                + (f" ({column.meaning})" if column.meaning else ""),
                 found="columns " + ", ".join(repr(name) for name in present),
             )
 

@@ -19,7 +19,12 @@ from nutricap.errors import InputError, ProjectFileError, TableError
 from nutricap.forage_items import ForageItems, available_forage_kg, build_forage_items
 from nutricap.inputs import read_animal_classes, read_forage_classes, read_plots
 from nutricap.landscape.plots import StratumSupply, stratum_supply
-from nutricap.landscape.vectors import StratumAreas, overlay_strata_on_units, read_strata, read_units
+from nutricap.landscape.vectors import (
+    StratumAreas,
+    overlay_strata_on_units,
+    read_strata,
+    read_units,
+)
 from nutricap.manifest import build_manifest
 from nutricap.outputs import check_output_folder, staged_folder
 from nutricap.project import Project
@@ -83,14 +88,20 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     units = read_units(project.input_path("units"), config.inputs.units_layer)
     strata = read_strata(project.input_path("strata"), config.inputs.strata_layer)
     areas = overlay_strata_on_units(
-        units, strata, units_path=project.input_path("units"), strata_path=project.input_path("strata")
+        units,
+        strata,
+        units_path=project.input_path("units"),
+        strata_path=project.input_path("strata"),
     )
     _require_units_on_map(areas, project)
     say("summarising clip plots by stratum")
     classes = sorted(forage_classes.loc[forage_classes["stratum"] == "", "forage_class"])
     supply = stratum_supply(
-        plots, classes, sorted(strata["stratum"].unique()),
-        plots_path=project.input_path("plots"), strata_path=project.input_path("strata"),
+        plots,
+        classes,
+        sorted(strata["stratum"].unique()),
+        plots_path=project.input_path("plots"),
+        strata_path=project.input_path("strata"),
         strata_without_forage=config.supply.strata_without_forage,
     )
     items = build_forage_items(supply, forage_classes)
@@ -139,12 +150,17 @@ def herd_requirement(animals: pd.DataFrame, project: Project) -> energetics.Herd
     _check_states(animals, project)
     season = project.config.project.season
     mass = animals["body_mass_kg"].to_numpy()
-    herd = energetics.herd_requirement(mass, animals["share"].to_numpy(), animals["state"].tolist(), season)
+    herd = energetics.herd_requirement(
+        mass, animals["share"].to_numpy(), animals["state"].tolist(), season
+    )
     override = animals["intake_kg_per_day"].to_numpy(dtype=float)
     if np.isnan(override).all():
         return herd
     modelled = np.array(
-        [energetics.max_dry_matter_intake_kg_per_day(m, s, season) for m, s in zip(mass, animals["state"])]
+        [
+            energetics.max_dry_matter_intake_kg_per_day(m, s, season)
+            for m, s in zip(mass, animals["state"])
+        ]
     )
     intake = np.where(np.isnan(override), modelled, override)
     shares = animals["share"].to_numpy() / animals["share"].sum()
@@ -171,7 +187,8 @@ def diet_target(animals: pd.DataFrame, project: Project) -> DietTarget:
     if target.animal_class is None or target.state is None:
         raise ProjectFileError(
             "protein = true needs animal_class and state, or an explicit diet_dp_min_pct",
-            source=project.path, location="section [target]",
+            source=project.path,
+            location="section [target]",
         )
     row = _target_class(animals, project)
     season = project.config.project.season
@@ -198,7 +215,8 @@ def _target_class(animals: pd.DataFrame, project: Project) -> pd.Series:
     if matches.empty:
         raise ProjectFileError(
             f"target animal class {name!r} is not in the animal-class table",
-            source=project.path, location="key 'target.animal_class'",
+            source=project.path,
+            location="key 'target.animal_class'",
             expected="one of " + ", ".join(map(repr, animals["animal_class"])),
             found=repr(name),
         )
@@ -220,12 +238,19 @@ def solve_units(
     use_cap = items.allowable_use if project.config.forage_use.cap_at_allowable_use else None
     protein = target.dp_min_pct is not None
     ncc = nutritional_capacity(
-        available, items.de_kcal_per_g, herd.intake_kg_per_day, target.de_min_kcal_per_g,
-        dp_pct=items.dp_pct if protein else None, dp_min_pct=target.dp_min_pct, use_cap=use_cap,
+        available,
+        items.de_kcal_per_g,
+        herd.intake_kg_per_day,
+        target.de_min_kcal_per_g,
+        dp_pct=items.dp_pct if protein else None,
+        dp_min_pct=target.dp_min_pct,
+        use_cap=use_cap,
     )
     ecc = ecological_capacity(available, items.de_kcal_per_g, herd.maintenance_de_kcal_per_day)
     allowable = allowable_use_capacity(available, items.allowable_use, herd.intake_kg_per_day)
-    by_unit = _unit_table(areas, unit_ids, row_unit, available, ncc, ecc, allowable, items, herd, project)
+    by_unit = _unit_table(
+        areas, unit_ids, row_unit, available, ncc, ecc, allowable, items, herd, project
+    )
     by_unit_class = _unit_class_table(unit_ids, row_unit, available, ncc.eaten_kg, items)
     return by_unit, by_unit_class
 
@@ -353,7 +378,9 @@ def run_estimate(
 ) -> Estimate:
     """Estimate ``project`` and write every output into ``out`` atomically."""
     say = progress or (lambda message: None)
-    out = check_output_folder(out, [project.path, *project.input_paths().values()], overwrite=overwrite)
+    out = check_output_folder(
+        out, [project.path, *project.input_paths().values()], overwrite=overwrite
+    )
     result = estimate(project, progress)
     say(f"writing outputs to {out}")
     with staged_folder(out) as staging:
@@ -371,7 +398,11 @@ def write_estimate(result: Estimate, project: Project, folder: Path) -> None:
     context = [
         f"{config.project.species}, {config.project.name}; season of {result.season_days:g} days.",
         f"Target diet: DE ≥ {result.target.de_min_kcal_per_g:.3f} kcal/g DM"
-        + (f", DP ≥ {result.target.dp_min_pct:.2f} %" if result.target.dp_min_pct is not None else "")
+        + (
+            f", DP ≥ {result.target.dp_min_pct:.2f} %"
+            if result.target.dp_min_pct is not None
+            else ""
+        )
         + f" ({result.target.derivation}).",
     ]
     markdown = markdown_table(result.by_unit, title="Capacity by unit", context_lines=context)

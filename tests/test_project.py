@@ -53,14 +53,18 @@ def test_season_from_dates_counts_both_ends(folder):
 
 def test_unknown_key_suggests_the_right_one(folder):
     text = GOOD.replace("season_days", "season_dayz")
-    with pytest.raises(ProjectFileError, match="unknown key 'project.season_dayz'; did you mean 'season_days'"):
+    with pytest.raises(
+        ProjectFileError, match="unknown key 'project.season_dayz'; did you mean 'season_days'"
+    ):
         load_project(_project(folder, text))
 
 
 def test_every_problem_reported_at_once(folder):
-    text = GOOD.replace('season = "winter"', 'season = "monsoon"').replace(
-        'strata = "s.gpkg"', ""
-    ).replace("[target]", "[target]\ndiet_de_min_kcal_per_g = -1")
+    text = (
+        GOOD.replace('season = "winter"', 'season = "monsoon"')
+        .replace('strata = "s.gpkg"', "")
+        .replace("[target]", "[target]\ndiet_de_min_kcal_per_g = -1")
+    )
     with pytest.raises(ProjectFileError) as info:
         load_project(_project(folder, text))
     message = str(info.value)
@@ -82,6 +86,6 @@ def test_missing_input_file_reported_in_full(folder):
 
 def test_project_file_is_data_not_code(folder):
     # A TOML string that looks like code stays a string; nothing is evaluated.
-    text = GOOD.replace('name = "Test range"', 'name = "__import__(\'os\').system(\'false\')"')
+    text = GOOD.replace('name = "Test range"', "name = \"__import__('os').system('false')\"")
     project = load_project(_project(folder, text))
     assert project.config.project.name.startswith("__import__")

@@ -13,8 +13,11 @@ def _csv(tmp_path, name, text, encoding="utf-8"):
 
 
 def test_frame_mass_converted_and_blank_class_means_zero_is_left_to_supply(tmp_path):
-    path = _csv(tmp_path, "plots.csv",
-                "plot_id,stratum,forage_class,dry_mass_g,frame_area_m2\np1,s,grass,12.5,0.25\n")
+    path = _csv(
+        tmp_path,
+        "plots.csv",
+        "plot_id,stratum,forage_class,dry_mass_g,frame_area_m2\np1,s,grass,12.5,0.25\n",
+    )
     table = read_plots(path)
     # 12.5 g / 0.25 m² = 50 g/m² = 500 kg/ha (SI definitions).
     assert table["biomass_kg_per_ha"].tolist() == [500.0]
@@ -29,60 +32,84 @@ def test_missing_column_names_file_and_suggests(tmp_path):
 
 
 def test_negative_mass_names_row_and_column(tmp_path):
-    path = _csv(tmp_path, "plots.csv",
-                "plot_id,stratum,forage_class,dry_mass_g,frame_area_m2\n"
-                "p1,s,grass,1,0.25\np2,s,grass,-3,0.25\n")
+    path = _csv(
+        tmp_path,
+        "plots.csv",
+        "plot_id,stratum,forage_class,dry_mass_g,frame_area_m2\n"
+        "p1,s,grass,1,0.25\np2,s,grass,-3,0.25\n",
+    )
     with pytest.raises(TableError, match=r"row 3, column 'dry_mass_g'.*found -3"):
         read_plots(path)
 
 
 def test_zero_frame_area_refused(tmp_path):
-    path = _csv(tmp_path, "plots.csv",
-                "plot_id,stratum,forage_class,dry_mass_g,frame_area_m2\np1,s,grass,1,0\n")
+    path = _csv(
+        tmp_path,
+        "plots.csv",
+        "plot_id,stratum,forage_class,dry_mass_g,frame_area_m2\np1,s,grass,1,0\n",
+    )
     with pytest.raises(TableError, match=r"row 2, column 'frame_area_m2'.*> 0"):
         read_plots(path)
 
 
 def test_duplicate_plot_class_refused(tmp_path):
-    path = _csv(tmp_path, "plots.csv",
-                "plot_id,stratum,forage_class,biomass_kg_per_ha\np1,s,grass,5\np1,s,grass,6\n")
+    path = _csv(
+        tmp_path,
+        "plots.csv",
+        "plot_id,stratum,forage_class,biomass_kg_per_ha\np1,s,grass,5\np1,s,grass,6\n",
+    )
     with pytest.raises(TableError, match="duplicate entry"):
         read_plots(path)
 
 
 def test_semicolon_file_refused_clearly(tmp_path):
-    path = _csv(tmp_path, "plots.csv", "plot_id;stratum;forage_class;biomass_kg_per_ha\np1;s;g;5,5\n")
+    path = _csv(
+        tmp_path, "plots.csv", "plot_id;stratum;forage_class;biomass_kg_per_ha\np1;s;g;5,5\n"
+    )
     with pytest.raises(TableError, match="semicolons"):
         read_plots(path)
 
 
 def test_non_utf8_refused_clearly(tmp_path):
-    path = _csv(tmp_path, "animals.csv",
-                "animal_class,body_mass_kg,share,state\nbiche_âgée,60,1,maintenance\n", "latin-1")
+    path = _csv(
+        tmp_path,
+        "animals.csv",
+        "animal_class,body_mass_kg,share,state\nbiche_âgée,60,1,maintenance\n",
+        "latin-1",
+    )
     with pytest.raises(TableError, match="not UTF-8"):
         read_animal_classes(path)
 
 
 def test_absurd_digestible_energy_refused(tmp_path):
-    path = _csv(tmp_path, "forage.csv",
-                "forage_class,growth_form,de_kcal_per_g,cp_pct,allowable_use,key,height_cm\n"
-                "grass,graminoid,7.5,8,0.5,false,30\n")
+    path = _csv(
+        tmp_path,
+        "forage.csv",
+        "forage_class,growth_form,de_kcal_per_g,cp_pct,allowable_use,key,height_cm\n"
+        "grass,graminoid,7.5,8,0.5,false,30\n",
+    )
     with pytest.raises(TableError, match=r"column 'de_kcal_per_g'.*<= 5"):
         read_forage_classes(path)
 
 
 def test_allowable_use_above_one_refused(tmp_path):
-    path = _csv(tmp_path, "forage.csv",
-                "forage_class,growth_form,de_kcal_per_g,cp_pct,allowable_use,key,height_cm\n"
-                "grass,graminoid,2.5,8,50,false,30\n")
+    path = _csv(
+        tmp_path,
+        "forage.csv",
+        "forage_class,growth_form,de_kcal_per_g,cp_pct,allowable_use,key,height_cm\n"
+        "grass,graminoid,2.5,8,50,false,30\n",
+    )
     with pytest.raises(TableError, match="allowable_use"):
         read_forage_classes(path)
 
 
 def test_energy_from_digestibility_when_de_blank(tmp_path):
-    path = _csv(tmp_path, "forage.csv",
-                "forage_class,growth_form,de_kcal_per_g,dmd_pct,cp_pct,allowable_use,key,height_cm\n"
-                "grass,graminoid,,50,8,0.5,false,30\n")
+    path = _csv(
+        tmp_path,
+        "forage.csv",
+        "forage_class,growth_form,de_kcal_per_g,dmd_pct,cp_pct,allowable_use,key,height_cm\n"
+        "grass,graminoid,,50,8,0.5,false,30\n",
+    )
     table = read_forage_classes(path)
     # DE = GE × DMD: 4.4 kcal/g default gross energy × 0.50 (see forage_quality).
     from nutricap.science.forage_quality import GROSS_ENERGY_KCAL_PER_G_DEFAULT
@@ -91,13 +118,18 @@ def test_energy_from_digestibility_when_de_blank(tmp_path):
 
 
 def test_shares_must_add_to_one(tmp_path):
-    path = _csv(tmp_path, "animals.csv",
-                "animal_class,body_mass_kg,share,state\ndoe,60,0.5,maintenance\nfawn,30,0.2,growth\n")
+    path = _csv(
+        tmp_path,
+        "animals.csv",
+        "animal_class,body_mass_kg,share,state\ndoe,60,0.5,maintenance\nfawn,30,0.2,growth\n",
+    )
     with pytest.raises(TableError, match="add up to 1"):
         read_animal_classes(path)
 
 
 def test_zero_body_mass_refused(tmp_path):
-    path = _csv(tmp_path, "animals.csv", "animal_class,body_mass_kg,share,state\ndoe,0,1,maintenance\n")
+    path = _csv(
+        tmp_path, "animals.csv", "animal_class,body_mass_kg,share,state\ndoe,0,1,maintenance\n"
+    )
     with pytest.raises(TableError, match="body_mass_kg"):
         read_animal_classes(path)

@@ -34,12 +34,30 @@ def layers(tmp_path):
     strata_utm = gpd.GeoDataFrame(
         {"stratum": ["shrub", "grass", "shrub"], "accessible_fraction": [1.0, 0.5, 0.8]},
         geometry=[
-            Polygon([(X0 - 500, Y0 - 500), (X0 + 1800, Y0 - 500), (X0 + 1200, Y0 + 4500),
-                     (X0 - 500, Y0 + 4500)]),
-            Polygon([(X0 + 1800, Y0 - 500), (X0 + 3500, Y0 - 500), (X0 + 3500, Y0 + 2500),
-                     (X0 + 1500, Y0 + 2500)]),
-            Polygon([(X0 + 1500, Y0 + 2500), (X0 + 3500, Y0 + 2500), (X0 + 3500, Y0 + 3500),
-                     (X0 + 1320, Y0 + 3500)]),
+            Polygon(
+                [
+                    (X0 - 500, Y0 - 500),
+                    (X0 + 1800, Y0 - 500),
+                    (X0 + 1200, Y0 + 4500),
+                    (X0 - 500, Y0 + 4500),
+                ]
+            ),
+            Polygon(
+                [
+                    (X0 + 1800, Y0 - 500),
+                    (X0 + 3500, Y0 - 500),
+                    (X0 + 3500, Y0 + 2500),
+                    (X0 + 1500, Y0 + 2500),
+                ]
+            ),
+            Polygon(
+                [
+                    (X0 + 1500, Y0 + 2500),
+                    (X0 + 3500, Y0 + 2500),
+                    (X0 + 3500, Y0 + 3500),
+                    (X0 + 1320, Y0 + 3500),
+                ]
+            ),
         ],
         crs=UTM,
     )
@@ -79,10 +97,13 @@ def test_overlay_conserves_area(layers):
         unit = units.loc[units["unit_id"] == unit_id].geometry.iloc[0]
         pieces = strata_utm[strata_utm["stratum"] == stratum]
         expected_ha = sum(unit.intersection(g).area for g in pieces.geometry) / 1e4
-        expected_accessible = sum(
-            unit.intersection(g).area * f
-            for g, f in zip(pieces.geometry, pieces["accessible_fraction"])
-        ) / 1e4
+        expected_accessible = (
+            sum(
+                unit.intersection(g).area * f
+                for g, f in zip(pieces.geometry, pieces["accessible_fraction"])
+            )
+            / 1e4
+        )
         assert row["area_ha"] == pytest.approx(expected_ha, rel=1e-6)
         assert row["accessible_ha"] == pytest.approx(expected_accessible, rel=1e-6)
 
@@ -93,7 +114,9 @@ def test_overlapping_units_are_refused(tmp_path):
         geometry=[box(X0, Y0, X0 + 1000, Y0 + 1000), box(X0 + 500, Y0, X0 + 1500, Y0 + 1000)],
         crs=UTM,
     )
-    strata = gpd.GeoDataFrame({"stratum": ["s"]}, geometry=[box(X0, Y0, X0 + 2000, Y0 + 1000)], crs=UTM)
+    strata = gpd.GeoDataFrame(
+        {"stratum": ["s"]}, geometry=[box(X0, Y0, X0 + 2000, Y0 + 1000)], crs=UTM
+    )
     units_path = _write(units, tmp_path / "u.gpkg", "u")
     strata_path = _write(strata, tmp_path / "s.gpkg", "s")
     with pytest.raises(SpatialError, match="overlap.*'a' and 'b'"):
@@ -121,7 +144,9 @@ def test_missing_crs_is_refused(tmp_path):
 
 def test_invalid_geometry_is_refused_with_feature_number(tmp_path):
     bowtie = Polygon([(0, 0), (10, 10), (10, 0), (0, 10)])
-    frame = gpd.GeoDataFrame({"stratum": ["ok", "bad"]}, geometry=[box(0, 0, 1, 1), bowtie], crs=UTM)
+    frame = gpd.GeoDataFrame(
+        {"stratum": ["ok", "bad"]}, geometry=[box(0, 0, 1, 1), bowtie], crs=UTM
+    )
     path = _write(frame, tmp_path / "bad.gpkg", "s")
     with pytest.raises(SpatialError, match="feature 2 \\(of 2\\)"):
         read_strata(path, None)

@@ -60,8 +60,11 @@ def plot_biomass_matrix(plots: pd.DataFrame, classes: list[str]) -> pd.DataFrame
     The index is ``plot_id``; a ``stratum`` column comes first.
     """
     wide = plots.pivot_table(
-        index="plot_id", columns="forage_class", values="biomass_kg_per_ha",
-        aggfunc="sum", fill_value=0.0,
+        index="plot_id",
+        columns="forage_class",
+        values="biomass_kg_per_ha",
+        aggfunc="sum",
+        fill_value=0.0,
     ).reindex(columns=classes, fill_value=0.0)
     strata = plots.groupby("plot_id")["stratum"].first()
     wide.insert(0, "stratum", strata.reindex(wide.index))
@@ -83,7 +86,9 @@ def stratum_supply(
     a plot stratum not on the map, and a mapped stratum with no plots that is
     not declared in ``strata_without_forage``.
     """
-    check_known(plots, "forage_class", set(classes), plots_path, known_from="the forage-class table")
+    check_known(
+        plots, "forage_class", set(classes), plots_path, known_from="the forage-class table"
+    )
     check_known(plots, "stratum", set(map_strata), plots_path, known_from="the strata layer")
     _require_plots_everywhere(plots, map_strata, strata_path, strata_without_forage)
     wide = plot_biomass_matrix(plots, classes)

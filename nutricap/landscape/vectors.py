@@ -75,14 +75,20 @@ def read_layer(path: Path, *, layer: str | None, columns: list[str], what: str) 
 
 
 def read_units(path: Path, layer: str | None) -> gpd.GeoDataFrame:
-    """Read the management units: ``unit_id`` unique and filled; ``current_animals`` >= 0 if present."""
+    """Read the management units.
+
+    ``unit_id`` must be filled and unique; ``current_animals``, when present, >= 0.
+    """
     units = read_layer(path, layer=layer, columns=["unit_id"], what="units layer")
     _require_filled_text(units, "unit_id", path, "units layer")
     duplicated = units["unit_id"].duplicated().to_numpy()
     if duplicated.any():
         raise SpatialError(
-            "duplicate unit_id", source=path, location=_feature(units, duplicated),
-            expected="each unit_id once", found=repr(units["unit_id"][duplicated].iloc[0]),
+            "duplicate unit_id",
+            source=path,
+            location=_feature(units, duplicated),
+            expected="each unit_id once",
+            found=repr(units["unit_id"][duplicated].iloc[0]),
         )
     if "current_animals" in units.columns:
         _require_numbers(units, "current_animals", path, "units layer", low=0.0, high=None)
@@ -90,7 +96,10 @@ def read_units(path: Path, layer: str | None) -> gpd.GeoDataFrame:
 
 
 def read_strata(path: Path, layer: str | None) -> gpd.GeoDataFrame:
-    """Read the vegetation strata: ``stratum`` filled; ``accessible_fraction`` in [0, 1] (default 1)."""
+    """Read the vegetation strata.
+
+    ``stratum`` must be filled; ``accessible_fraction`` lies in [0, 1] (default 1).
+    """
     strata = read_layer(path, layer=layer, columns=["stratum"], what="strata layer")
     _require_filled_text(strata, "stratum", path, "strata layer")
     if "accessible_fraction" in strata.columns:
@@ -105,8 +114,11 @@ def _require_filled_text(frame: gpd.GeoDataFrame, column: str, path: Path, what:
     blank = (text.isna() | (text == "")).to_numpy()
     if blank.any():
         raise SpatialError(
-            f"{what} has an empty {column}", source=path, location=_feature(frame, blank),
-            expected=f"a {column} for every feature", found="an empty value",
+            f"{what} has an empty {column}",
+            source=path,
+            location=_feature(frame, blank),
+            expected=f"a {column} for every feature",
+            found="an empty value",
         )
     frame[column] = text.astype(str)
 
@@ -121,8 +133,11 @@ def _require_numbers(
     if bad.any():
         bounds = f"between {low:g} and {high:g}" if high is not None else f"at least {low:g}"
         raise SpatialError(
-            f"{what} has a bad {column}", source=path, location=_feature(frame, bad),
-            expected=f"a number {bounds}", found=repr(frame[column][bad].iloc[0]),
+            f"{what} has a bad {column}",
+            source=path,
+            location=_feature(frame, bad),
+            expected=f"a number {bounds}",
+            found=repr(frame[column][bad].iloc[0]),
         )
     frame[column] = values
 
@@ -132,22 +147,30 @@ def _check_geometries(frame: gpd.GeoDataFrame, path: Path, what: str) -> None:
     empty = (geometry.isna() | geometry.is_empty).to_numpy()
     if empty.any():
         raise SpatialError(
-            f"{what} has an empty geometry", source=path, location=_feature(frame, empty),
-            expected="a polygon", found="no geometry",
+            f"{what} has an empty geometry",
+            source=path,
+            location=_feature(frame, empty),
+            expected="a polygon",
+            found="no geometry",
         )
     polygonal = geometry.geom_type.isin(["Polygon", "MultiPolygon"]).to_numpy()
     if not polygonal.all():
         bad = ~polygonal
         raise SpatialError(
-            f"{what} has a non-polygon geometry", source=path, location=_feature(frame, bad),
-            expected="Polygon or MultiPolygon", found=str(geometry[bad].iloc[0].geom_type),
+            f"{what} has a non-polygon geometry",
+            source=path,
+            location=_feature(frame, bad),
+            expected="Polygon or MultiPolygon",
+            found=str(geometry[bad].iloc[0].geom_type),
         )
     invalid = ~geometry.is_valid.to_numpy()
     if invalid.any():
         reason = explain_validity(geometry[invalid].iloc[0])
         raise SpatialError(
-            f"{what} has an invalid geometry ({reason})", source=path,
-            location=_feature(frame, invalid), expected="a valid polygon",
+            f"{what} has an invalid geometry ({reason})",
+            source=path,
+            location=_feature(frame, invalid),
+            expected="a valid polygon",
             found="an invalid polygon; repair it in a GIS (e.g. make valid)",
         )
 
@@ -183,9 +206,12 @@ def check_no_overlaps(frame: gpd.GeoDataFrame, id_column: str, path: Path, what:
     left, right = left[pairs], right[pairs]
     if left.size == 0:
         return
-    shared = frame.geometry.iloc[left].reset_index(drop=True).intersection(
-        frame.geometry.iloc[right].reset_index(drop=True)
-    ).area.to_numpy()
+    shared = (
+        frame.geometry.iloc[left]
+        .reset_index(drop=True)
+        .intersection(frame.geometry.iloc[right].reset_index(drop=True))
+        .area.to_numpy()
+    )
     overlapping = np.flatnonzero(shared > OVERLAP_TOLERANCE_M2)
     if overlapping.size:
         first = overlapping[0]
@@ -222,10 +248,9 @@ def overlay_strata_on_units(
     )
     pieces["area_ha"] = pieces.geometry.area / M2_PER_HA
     pieces["accessible_ha"] = pieces["area_ha"] * pieces["accessible_fraction"]
-    table = (
-        pieces.groupby(["unit_id", "stratum"], as_index=False, sort=True)[["area_ha", "accessible_ha"]]
-        .sum()
-    )
+    table = pieces.groupby(["unit_id", "stratum"], as_index=False, sort=True)[
+        ["area_ha", "accessible_ha"]
+    ].sum()
     return StratumAreas(units, table, area_crs, reason)
 
 

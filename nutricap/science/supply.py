@@ -37,8 +37,10 @@ def biomass_kg_per_ha(dry_mass_g, frame_area_m2):
     >>> float(biomass_kg_per_ha(12.5, 0.25))
     500.0
     """
-    return KG_PER_HA_PER_G_PER_M2 * np.asarray(dry_mass_g, dtype=float) / np.asarray(
-        frame_area_m2, dtype=float
+    return (
+        KG_PER_HA_PER_G_PER_M2
+        * np.asarray(dry_mass_g, dtype=float)
+        / np.asarray(frame_area_m2, dtype=float)
     )
 
 

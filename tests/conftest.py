@@ -1,0 +1,23 @@
+"""Shared fixtures: the invented example landscape, written once per test session."""
+
+from pathlib import Path
+
+import pytest
+
+from nutricap.example import write_example_landscape
+
+
+@pytest.fixture(scope="session")
+def example_project(tmp_path_factory) -> Path:
+    """Path of the example project file (inputs invented for the example)."""
+    folder = tmp_path_factory.mktemp("example") / "landscape"
+    return write_example_landscape(folder)
+
+
+@pytest.fixture(scope="session")
+def example_estimate(example_project):
+    """The estimate of the example project (computed once)."""
+    from nutricap.project import load_project
+    from nutricap.workflow import estimate
+
+    return estimate(load_project(example_project))

@@ -1,0 +1,142 @@
+"""Tests of the command line: exit codes, one-line messages, nothing written on error."""
+
+import re
+import shutil
+
+import geopandas as gpd
+import pandas as pd
+import pytest
+from shapely.affinity import translate
+
+from nutricap.cli import main
+
+
+@pytest.fixture()
+def project(example_project, tmp_path):
+    """A private copy of the example project (inputs invented for the example)."""
+    folder = tmp_path / "inputs"
+    shutil.copytree(example_project.parent, folder)
+    return folder / example_project.name
+
+
+def _run(capsys, *argv):
+    code = main([str(a) for a in argv])
+    captured = capsys.readouterr()
+    return code, captured.out, captured.err
+
+
+def test_help_shows_caution(capsys):
+    with pytest.raises(SystemExit) as info:
+        main(["--help"])
+    assert info.value.code == 0
+    assert "never replace" in capsys.readouterr().out
+
+
+def test_estimate_succeeds(project, tmp_path, capsys):
+    code, out, _ = _run(capsys, "estimate", project, "--out", tmp_path / "results", "--quiet")
+    assert code == 0
+    assert "capacity_by_unit.csv" in out and "CAUTION" in out
+
+
+def test_check_writes_nothing(project, capsys):
+    before = sorted(p.name for p in project.parent.iterdir())
+    code, out, _ = _run(capsys, "check", project, "--quiet")
+    assert code == 0 and "OK" in out
+    assert sorted(p.name for p in project.parent.iterdir()) == before
+
+
+def test_demo_runs(tmp_path, capsys):
+    code, out, _ = _run(capsys, "demo", "--out", tmp_path / "demo", "--quiet")
+    assert code == 0
+    assert (tmp_path / "demo" / "results" / "capacity_by_unit.csv").is_file()
+
+
+def _mutate_csv(path, change):
+    table = pd.read_csv(path, dtype=str, keep_default_na=False)
+    change(table).to_csv(path, index=False)
+
+
+def _set_cell(column, row, value):
+    def change(table):
+        table.loc[row, column] = value
+        return table
+
+    return change
+
+
+BROKEN = {
+    "missing column": (
+        "plots.csv",
+        lambda t: t.drop(columns=["forage_class"]),
+        r"plots\.csv.*missing column 'forage_class'",
+    ),
+    "unknown forage class": (
+        "plots.csv",
+        _set_cell("forage_class", 4, "sagebrsh"),
+        r"plots\.csv: row 6, column 'forage_class'.*unknown forage_class",
+    ),
+    "negative mass": (
+        "plots.csv",
+        _set_cell("dry_mass_g", 0, "-2"),
+        r"plots\.csv: row 2, column 'dry_mass_g'.*out of range",
+    ),
+    "unknown state": (
+        "animal_classes.csv",
+        _set_cell("state", 1, "hibernation"),
+        r"animal_classes\.csv: row 3, column 'state'",
+    ),
+}
+
+
+@pytest.mark.parametrize("case", sorted(BROKEN))
+def test_broken_table_exits_2_with_one_message_and_writes_nothing(case, project, tmp_path, capsys):
+    name, change, pattern = BROKEN[case]
+    _mutate_csv(project.parent / name, change)
+    out = tmp_path / "results"
+    for argv in (("check", project, "--quiet"), ("estimate", project, "--out", out, "--quiet")):
+        code, _, err = _run(capsys, *argv)
+        assert code == 2
+        lines = err.strip().splitlines()
+        assert len(lines) == 1 and "Traceback" not in err
+        assert re.search(pattern, lines[0]), lines[0]
+    assert not out.exists()
+
+
+def test_stratum_without_plots(project, tmp_path, capsys):
+    plots = pd.read_csv(project.parent / "plots.csv")
+    plots[plots["stratum"] != "aspen"].to_csv(project.parent / "plots.csv", index=False)
+    code, _, err = _run(capsys, "estimate", project, "--out", tmp_path / "r", "--quiet")
+    assert code == 2 and "stratum 'aspen' is on the map but has no plots" in err
+    assert not (tmp_path / "r").exists()
+
+
+def test_unit_outside_the_map(project, tmp_path, capsys):
+    units = gpd.read_file(project.parent / "units.gpkg")
+    units.loc[0, "geometry"] = translate(units.geometry.iloc[0], xoff=100_000)
+    units.to_file(project.parent / "units.gpkg", layer="units", driver="GPKG")
+    code, _, err = _run(capsys, "estimate", project, "--out", tmp_path / "r", "--quiet")
+    assert code == 2 and "does not overlap any vegetation stratum" in err
+
+
+def test_unreadable_layer(project, tmp_path, capsys):
+    (project.parent / "strata.gpkg").write_bytes(b"this is not a geopackage")
+    code, _, err = _run(capsys, "estimate", project, "--out", tmp_path / "r", "--quiet")
+    assert code == 2 and "strata.gpkg" in err and "cannot read" in err
+
+
+def test_out_inside_input_folder_refused(project, capsys):
+    code, _, err = _run(capsys, "estimate", project, "--out", project.parent / "results", "--quiet")
+    assert code == 2 and "input folder" in err
+    assert not (project.parent / "results").exists()
+
+
+def test_existing_output_needs_overwrite_and_survives_failure(project, tmp_path, capsys):
+    out = tmp_path / "results"
+    assert _run(capsys, "estimate", project, "--out", out, "--quiet")[0] == 0
+    first = (out / "capacity_by_unit.csv").read_bytes()
+    code, _, err = _run(capsys, "estimate", project, "--out", out, "--quiet")
+    assert code == 2 and "--overwrite" in err
+    _mutate_csv(project.parent / "plots.csv", _set_cell("dry_mass_g", 0, "-2"))
+    code, _, _ = _run(capsys, "estimate", project, "--out", out, "--overwrite", "--quiet")
+    assert code == 2
+    assert (out / "capacity_by_unit.csv").read_bytes() == first

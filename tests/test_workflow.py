@@ -1,0 +1,122 @@
+"""Tests of nutricap.workflow on the invented example landscape and on small projects.
+
+The example's numbers are invented for the example: these tests check
+consistency (every unit present, NCC ≤ ECC, density arithmetic, conservation),
+never the values themselves.
+"""
+
+import hashlib
+import json
+import shutil
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pytest
+
+from nutricap.project import load_project
+from nutricap.workflow import estimate, run_estimate
+
+
+def test_every_unit_present(example_estimate, example_project):
+    units = gpd.read_file(example_project.parent / "units.gpkg")
+    assert sorted(example_estimate.by_unit["unit_id"]) == sorted(units["unit_id"])
+
+
+def test_ncc_never_exceeds_ecc(example_estimate):
+    table = example_estimate.by_unit
+    assert (table["ncc_animals"] <= table["ecc_animals"] + 1e-9).all()
+    assert (table["ncc_animals"] > 0).all()
+
+
+def test_density_consistent_with_animals_and_area(example_estimate):
+    table = example_estimate.by_unit
+    # 1 km² = 100 ha (SI definitions).
+    np.testing.assert_allclose(
+        table["ncc_per_km2"], table["ncc_animals"] / (table["area_ha"] / 100)
+    )
+    days = example_estimate.season_days
+    np.testing.assert_allclose(table["ncc_animals"] * days, table["ncc_animal_days"])
+
+
+def test_available_forage_conserved(example_estimate):
+    # Σ over units of available forage = Σ over (unit, stratum) pieces of accessible ha × mean.
+    supply = example_estimate.supply.table().groupby("stratum")["mean_kg_per_ha"].sum()
+    pieces = example_estimate.areas.by_unit_stratum
+    expected = (pieces["accessible_ha"] * pieces["stratum"].map(supply)).sum()
+    assert example_estimate.by_unit["available_forage_kg"].sum() == pytest.approx(
+        expected, rel=1e-12
+    )
+    by_class = example_estimate.by_unit_class["available_kg"].sum()
+    assert by_class == pytest.approx(expected, rel=1e-12)
+
+
+def test_eaten_respects_allowable_use(example_estimate):
+    table = example_estimate.by_unit_class
+    # With cap_at_allowable_use the NCC diet never takes more than allowable use × available.
+    # (Per class, the cap applies per stratum item, so the sum obeys it too.)
+    assert (table["ncc_eaten_kg"] <= table["available_kg"] + 1e-6).all()
+
+
+def _copy_example(example_project, tmp_path):
+    folder = tmp_path / "inputs"
+    shutil.copytree(example_project.parent, folder)
+    return folder / example_project.name
+
+
+def test_patch_pooling_never_exceeds_unit_pooling(example_project, tmp_path):
+    project_file = _copy_example(example_project, tmp_path)
+    unit = estimate(load_project(project_file)).by_unit.set_index("unit_id")
+    text = project_file.read_text().replace('mode = "unit"', 'mode = "patch"')
+    project_file.write_text(text)
+    patch = estimate(load_project(project_file)).by_unit.set_index("unit_id")
+    # Each patch meeting the diet alone is a restriction of the pooled problem (Hobbs & Swift
+    # 1985 LP: the patch solutions together are feasible for the pooled LP).
+    assert (patch["ncc_animal_days"] <= unit["ncc_animal_days"] * (1 + 1e-9)).all()
+    pd.testing.assert_series_equal(patch["ecc_animal_days"], unit["ecc_animal_days"], rtol=1e-9)
+
+
+def test_row_order_of_plots_does_not_matter(example_project, tmp_path):
+    project_file = _copy_example(example_project, tmp_path)
+    before = estimate(load_project(project_file)).by_unit
+    plots = pd.read_csv(project_file.parent / "plots.csv")
+    plots.sample(frac=1.0, random_state=3).to_csv(project_file.parent / "plots.csv", index=False)
+    after = estimate(load_project(project_file)).by_unit
+    pd.testing.assert_frame_equal(before, after, rtol=1e-10)
+
+
+def test_outputs_written_and_manifest_hashes_inputs(example_project, tmp_path):
+    out = tmp_path / "results"
+    run_estimate(load_project(example_project), out)
+    names = {p.name for p in out.iterdir()}
+    assert {
+        "capacity_by_unit.csv",
+        "capacity_by_unit.gpkg",
+        "capacity_by_unit.md",
+        "run.json",
+    } <= names
+    manifest = json.loads((out / "run.json").read_text())
+    plots = example_project.parent / "plots.csv"
+    # Independent hash of the same bytes with hashlib.
+    assert (
+        manifest["inputs"][str(plots)]["sha256"] == hashlib.sha256(plots.read_bytes()).hexdigest()
+    )
+    table = pd.read_csv(out / "capacity_by_unit.csv")
+    contract = [
+        "unit_id",
+        "area_ha",
+        "available_forage_kg",
+        "ncc_animal_days",
+        "ncc_animals",
+        "ecc_animal_days",
+        "ecc_animals",
+        "allowable_use_animals",
+        "limiting_factor",
+        "ncc_per_km2",
+    ]
+    assert set(contract) <= set(table.columns)
+    layer = gpd.read_file(out / "capacity_by_unit.gpkg", layer="capacity_by_unit")
+    assert len(layer) == len(table)
+    assert "Caution" in (out / "capacity_by_unit.md").read_text()
+    leftovers = [p.name for p in tmp_path.iterdir() if p.name.startswith(".")]
+    assert leftovers == []
