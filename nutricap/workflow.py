@@ -16,7 +16,6 @@ import numpy as np
 import pandas as pd
 
 from nutricap.errors import InputError, ProjectFileError, TableError
-from nutricap.forage_items import ForageItems, available_forage_kg, build_forage_items
 from nutricap.inputs import read_animal_classes, read_forage_classes, read_plots
 from nutricap.landscape.plots import StratumSupply, stratum_supply
 from nutricap.landscape.vectors import (
@@ -27,19 +26,21 @@ from nutricap.landscape.vectors import (
 )
 from nutricap.manifest import build_manifest
 from nutricap.outputs import check_output_folder, staged_folder
+from nutricap.problem import (
+    CapacityProblem,
+    Solution,
+    build_forage_items,
+    build_problem,
+    solve_problem,
+)
 from nutricap.project import Project
 from nutricap.report.tables import markdown_table, write_csv, write_geopackage, write_json
 from nutricap.science import energetics
-from nutricap.science.capacity import (
-    NutritionalCapacity,
-    allowable_use_capacity,
-    ecological_capacity,
-    nutritional_capacity,
-)
 from nutricap.science.forage_quality import mixed_diet_quality
 from nutricap.tables import spreadsheet_row
 
 Progress = Callable[[str], None]
+HA_PER_KM2 = 100.0
 
 
 @dataclass(frozen=True)
@@ -70,6 +71,8 @@ class Estimate:
     units: gpd.GeoDataFrame
     supply: StratumSupply
     areas: StratumAreas
+    problem: CapacityProblem
+    solution: Solution
     herd: energetics.HerdRequirement
     target: DietTarget
     season_days: float
@@ -105,14 +108,41 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
         strata_without_forage=config.supply.strata_without_forage,
     )
     items = build_forage_items(supply, forage_classes)
+    problem = build_problem(areas, supply, items, config.pooling.mode)
     say("computing the herd's requirements")
     herd = herd_requirement(animals, project)
     target = diet_target(animals, project)
     say("solving capacity per unit")
-    by_unit, by_unit_class = solve_units(areas, supply, items, herd, target, project)
-    notes = _supply_notes(supply, plots)
+    solution = solve(problem, herd, target, project)
     return Estimate(
-        by_unit, by_unit_class, areas.units, supply, areas, herd, target, config.project.days, notes
+        by_unit=unit_table(problem, solution, areas, herd, config.project.days),
+        by_unit_class=unit_class_table(problem, solution),
+        units=areas.units,
+        supply=supply,
+        areas=areas,
+        problem=problem,
+        solution=solution,
+        herd=herd,
+        target=target,
+        season_days=config.project.days,
+        notes=_supply_notes(supply, plots),
+    )
+
+
+def solve(
+    problem: CapacityProblem,
+    herd: energetics.HerdRequirement,
+    target: DietTarget,
+    project: Project,
+) -> Solution:
+    """Solve ``problem`` for this herd, target and project settings."""
+    return solve_problem(
+        problem,
+        intake_kg_per_day=herd.intake_kg_per_day,
+        maintenance_de_kcal_per_day=herd.maintenance_de_kcal_per_day,
+        de_min_kcal_per_g=target.de_min_kcal_per_g,
+        dp_min_pct=target.dp_min_pct,
+        cap_at_allowable_use=project.config.forage_use.cap_at_allowable_use,
     )
 
 
@@ -223,107 +253,48 @@ def _target_class(animals: pd.DataFrame, project: Project) -> pd.Series:
     return matches.iloc[0]
 
 
-def solve_units(
+def unit_table(
+    problem: CapacityProblem,
+    solution: Solution,
     areas: StratumAreas,
-    supply: StratumSupply,
-    items: ForageItems,
     herd: energetics.HerdRequirement,
-    target: DietTarget,
-    project: Project,
-) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """Solve NCC, ECC and allowable-use capacity per unit; return (by_unit, by_unit_class)."""
-    unit_ids = areas.units["unit_id"].to_numpy()
-    row_unit, hectares = _problem_rows(areas, supply, unit_ids, project.config.pooling.mode)
-    available = available_forage_kg(items, hectares, supply.strata)
-    use_cap = items.allowable_use if project.config.forage_use.cap_at_allowable_use else None
-    protein = target.dp_min_pct is not None
-    ncc = nutritional_capacity(
-        available,
-        items.de_kcal_per_g,
-        herd.intake_kg_per_day,
-        target.de_min_kcal_per_g,
-        dp_pct=items.dp_pct if protein else None,
-        dp_min_pct=target.dp_min_pct,
-        use_cap=use_cap,
-    )
-    ecc = ecological_capacity(available, items.de_kcal_per_g, herd.maintenance_de_kcal_per_day)
-    allowable = allowable_use_capacity(available, items.allowable_use, herd.intake_kg_per_day)
-    by_unit = _unit_table(
-        areas, unit_ids, row_unit, available, ncc, ecc, allowable, items, herd, project
-    )
-    by_unit_class = _unit_class_table(unit_ids, row_unit, available, ncc.eaten_kg, items)
-    return by_unit, by_unit_class
-
-
-def _problem_rows(
-    areas: StratumAreas, supply: StratumSupply, unit_ids: np.ndarray, mode: str
-) -> tuple[np.ndarray, np.ndarray]:
-    """Rows of the capacity problem: their unit index and accessible ha per stratum.
-
-    ``mode="unit"``: one row per unit. ``mode="patch"``: one row per unit × stratum.
-    """
-    table = areas.by_unit_stratum
-    unit_index = pd.Index(unit_ids).get_indexer(table["unit_id"])
-    stratum_index = pd.Index(supply.strata).get_indexer(table["stratum"])
-    accessible = table["accessible_ha"].to_numpy()
-    if mode == "unit":
-        hectares = np.zeros((unit_ids.size, len(supply.strata)))
-        np.add.at(hectares, (unit_index, stratum_index), accessible)
-        return np.arange(unit_ids.size), hectares
-    hectares = np.zeros((len(table), len(supply.strata)))
-    hectares[np.arange(len(table)), stratum_index] = accessible
-    return unit_index, hectares
-
-
-def _sum_rows_by_unit(values: np.ndarray, row_unit: np.ndarray, n_units: int) -> np.ndarray:
-    """Sum the rows of ``values`` (rows, ...) into units (n_units, ...)."""
-    totals = np.zeros((n_units, *values.shape[1:]))
-    np.add.at(totals, row_unit, values)
-    return totals
-
-
-def _unit_table(
-    areas: StratumAreas,
-    unit_ids: np.ndarray,
-    row_unit: np.ndarray,
-    available: np.ndarray,
-    ncc: NutritionalCapacity,
-    ecc: np.ndarray,
-    allowable: np.ndarray,
-    items: ForageItems,
-    herd: energetics.HerdRequirement,
-    project: Project,
+    season_days: float,
 ) -> pd.DataFrame:
-    days = project.config.project.days
-    n = unit_ids.size
+    """The per-unit capacity table (the contract columns first)."""
+    ncc = solution.ncc
+    unit_ids = problem.unit_ids
     area_ha = areas.units["area_ha"].to_numpy()
     stratum_ha = areas.by_unit_stratum.groupby("unit_id")[["area_ha", "accessible_ha"]].sum()
-    ncc_days = _sum_rows_by_unit(ncc.animal_days, row_unit, n)
-    eaten = _sum_rows_by_unit(ncc.eaten_kg, row_unit, n)
-    deciding_row = _deciding_rows(available.sum(axis=1), row_unit, n)
+    row_forage_kg = problem.available_kg.sum(axis=1)
+    ncc_days = problem.sum_by_unit(ncc.animal_days)
+    ecc_days = problem.sum_by_unit(solution.ecc_animal_days)
+    eaten = problem.sum_by_unit(ncc.eaten_kg)
+    deciding = _deciding_rows(row_forage_kg, problem.row_unit, unit_ids.size)
+    marginal = ncc.marginal_item[deciding]
     table = pd.DataFrame(
         {
             "unit_id": unit_ids,
             "area_ha": area_ha,
+            "available_forage_kg": problem.sum_by_unit(row_forage_kg),
+            "ncc_animal_days": ncc_days,
+            "ncc_animals": ncc_days / season_days,
+            "ecc_animal_days": ecc_days,
+            "ecc_animals": ecc_days / season_days,
+            "allowable_use_animals": problem.sum_by_unit(solution.allowable_use_animal_days)
+            / season_days,
+            "limiting_factor": ncc.limiting_factor[deciding],
+            "ncc_per_km2": ncc_days / season_days / (area_ha / HA_PER_KM2),
             "mapped_ha": stratum_ha["area_ha"].reindex(unit_ids).to_numpy(),
             "accessible_ha": stratum_ha["accessible_ha"].reindex(unit_ids).to_numpy(),
-            "available_forage_kg": _sum_rows_by_unit(available.sum(axis=1), row_unit, n),
-            "ncc_animal_days": ncc_days,
-            "ncc_animals": ncc_days / days,
-            "ecc_animal_days": _sum_rows_by_unit(ecc, row_unit, n),
-            "allowable_use_animal_days": _sum_rows_by_unit(allowable, row_unit, n),
+            "marginal_forage_class": np.where(
+                marginal >= 0, problem.items.forage_class[np.maximum(marginal, 0)], ""
+            ),
+            "diet_de_kcal_per_g": mixed_diet_quality(eaten, problem.items.de_kcal_per_g),
+            "diet_dp_pct": mixed_diet_quality(eaten, problem.items.dp_pct),
+            "ecc_per_km2": ecc_days / season_days / (area_ha / HA_PER_KM2),
+            "ncc_aum": energetics.animal_unit_months(ncc_days, herd.animal_unit_equivalent),
         }
     )
-    table["ecc_animals"] = table["ecc_animal_days"] / days
-    table["allowable_use_animals"] = table["allowable_use_animal_days"] / days
-    table["limiting_factor"] = ncc.limiting_factor[deciding_row]
-    marginal = ncc.marginal_item[deciding_row]
-    table["marginal_forage_class"] = np.where(marginal >= 0, items.forage_class[marginal], "")
-    table["diet_de_kcal_per_g"] = mixed_diet_quality(eaten, items.de_kcal_per_g)
-    table["diet_dp_pct"] = mixed_diet_quality(eaten, items.dp_pct)
-    table["ncc_per_km2"] = table["ncc_animals"] / (table["area_ha"] / 100.0)
-    table["ecc_per_km2"] = table["ecc_animals"] / (table["area_ha"] / 100.0)
-    table["ncc_aum"] = energetics.animal_unit_months(ncc_days, herd.animal_unit_equivalent)
     if "current_animals" in areas.units.columns:
         table["current_animals"] = areas.units["current_animals"].to_numpy()
     return table
@@ -338,21 +309,15 @@ def _deciding_rows(row_forage_kg: np.ndarray, row_unit: np.ndarray, n_units: int
     return deciding
 
 
-def _unit_class_table(
-    unit_ids: np.ndarray,
-    row_unit: np.ndarray,
-    available: np.ndarray,
-    eaten: np.ndarray,
-    items: ForageItems,
-) -> pd.DataFrame:
+def unit_class_table(problem: CapacityProblem, solution: Solution) -> pd.DataFrame:
     """Available and NCC-eaten forage per unit and forage class [kg]."""
-    n = unit_ids.size
+    n_items = problem.items.size
     frame = pd.DataFrame(
         {
-            "unit_id": np.repeat(unit_ids, items.size),
-            "forage_class": np.tile(items.forage_class, n),
-            "available_kg": _sum_rows_by_unit(available, row_unit, n).ravel(),
-            "ncc_eaten_kg": _sum_rows_by_unit(eaten, row_unit, n).ravel(),
+            "unit_id": np.repeat(problem.unit_ids, n_items),
+            "forage_class": np.tile(problem.items.forage_class, problem.unit_ids.size),
+            "available_kg": problem.sum_by_unit(problem.available_kg).ravel(),
+            "ncc_eaten_kg": problem.sum_by_unit(solution.ncc.eaten_kg).ravel(),
         }
     )
     return frame.groupby(["unit_id", "forage_class"], as_index=False, sort=False).sum()
