@@ -182,6 +182,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     except InputError as exc:
         print(f"nutricap: error: {exc.formatted()}", file=sys.stderr)
         return EXIT_BAD_INPUT
+    except BrokenPipeError:
+        # The reader (e.g. `| head`) closed the pipe: stop quietly, as Unix tools do.
+        sys.stderr.close()
+        return EXIT_OK
 
 
 if __name__ == "__main__":

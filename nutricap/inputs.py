@@ -79,6 +79,14 @@ FORAGE_CLASS_COLUMNS = [
         maximum=1,
         meaning="tannin protein precipitation, mg BSA per mg forage",
     ),
+    Column(
+        "preference",
+        required=False,
+        allow_blank=True,
+        above=0,
+        maximum=1000,
+        meaning="relative preference weight for allocating current use, > 0 (default 1)",
+    ),
     Column("stratum", "text", required=False, allow_blank=True),
 ]
 
@@ -139,6 +147,7 @@ def read_forage_classes(path: Path) -> pd.DataFrame:
     for name in ("de_kcal_per_g", "dmd_pct", "tannin", "height_cm", "gross_energy_kcal_per_g"):
         if name not in table.columns:
             table[name] = np.nan
+    table["preference"] = table.get("preference", pd.Series(np.nan, index=table.index)).fillna(1.0)
     if "stratum" not in table.columns:
         table["stratum"] = ""
     if "key" not in table.columns:

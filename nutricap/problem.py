@@ -36,6 +36,7 @@ class ForageItems:
     allowable_use: np.ndarray
     key: np.ndarray
     biomass_kg_per_ha: np.ndarray
+    preference: np.ndarray
 
     @property
     def size(self) -> int:
@@ -50,7 +51,9 @@ def build_forage_items(supply: StratumSupply, forage_classes: pd.DataFrame) -> F
     specific = forage_classes[forage_classes["stratum"] != ""].set_index(
         ["forage_class", "stratum"]
     )
-    attributes = general.loc[classes, ["de_kcal_per_g", "dp_pct", "allowable_use", "key"]]
+    attributes = general.loc[
+        classes, ["de_kcal_per_g", "dp_pct", "allowable_use", "key", "preference"]
+    ]
     attributes = attributes.reset_index(drop=True)
     pairs = pd.MultiIndex.from_arrays([classes, strata])
     overridden = pairs.isin(specific.index)
@@ -65,6 +68,7 @@ def build_forage_items(supply: StratumSupply, forage_classes: pd.DataFrame) -> F
         allowable_use=attributes["allowable_use"].to_numpy(dtype=float),
         key=attributes["key"].to_numpy(dtype=bool),
         biomass_kg_per_ha=supply.mean_kg_per_ha.ravel(),
+        preference=attributes["preference"].to_numpy(dtype=float),
     )
 
 

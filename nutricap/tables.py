@@ -219,7 +219,7 @@ def check_unique(frame: pd.DataFrame, keys: list[str], path: Path) -> None:
     duplicated = frame.duplicated(subset=keys, keep="first").to_numpy()
     if duplicated.any():
         index = int(np.flatnonzero(duplicated)[0])
-        values = ", ".join(f"{key}={frame[key].iloc[index]!r}" for key in keys)
+        values = ", ".join(f"{key}={_plain(frame[key].iloc[index])!r}" for key in keys)
         raise TableError(
             "duplicate entry",
             source=path,
@@ -227,6 +227,11 @@ def check_unique(frame: pd.DataFrame, keys: list[str], path: Path) -> None:
             expected="each combination once",
             found=f"{values} again",
         )
+
+
+def _plain(value: object) -> object:
+    """A numpy scalar as the Python value it holds (for readable messages)."""
+    return value.item() if isinstance(value, np.generic) else value
 
 
 def check_known(

@@ -15,6 +15,7 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 
+from nutricap.assess import assess_use, current_animals_from_counts
 from nutricap.errors import InputError, ProjectFileError, TableError
 from nutricap.inputs import read_animal_classes, read_forage_classes, read_plots
 from nutricap.landscape.plots import StratumSupply, stratum_supply
@@ -38,6 +39,7 @@ from nutricap.report.tables import markdown_table, write_csv, write_geopackage, 
 from nutricap.science import energetics
 from nutricap.science.forage_quality import mixed_diet_quality
 from nutricap.tables import spreadsheet_row
+from nutricap.trend import read_counts
 
 Progress = Callable[[str], None]
 HA_PER_KM2 = 100.0
@@ -67,6 +69,7 @@ class Estimate:
     """Everything the estimate computed; reporting only formats it."""
 
     by_unit: pd.DataFrame
+    use_by_class: pd.DataFrame | None
     by_unit_class: pd.DataFrame
     units: gpd.GeoDataFrame
     supply: StratumSupply
@@ -114,8 +117,22 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     target = diet_target(animals, project)
     say("solving capacity per unit")
     solution = solve(problem, herd, target, project)
+    by_unit = unit_table(problem, solution, areas, herd, config.project.days)
+    current = current_animals(project, areas)
+    use_by_class = None
+    if current is not None:
+        say("assessing current use")
+        by_unit, use_by_class = assess_use(
+            problem,
+            by_unit,
+            current,
+            intake_kg_per_day=herd.intake_kg_per_day,
+            season_days=config.project.days,
+            preference=problem.items.preference,
+        )
     return Estimate(
-        by_unit=unit_table(problem, solution, areas, herd, config.project.days),
+        by_unit=by_unit,
+        use_by_class=use_by_class,
         by_unit_class=unit_class_table(problem, solution),
         units=areas.units,
         supply=supply,
@@ -127,6 +144,31 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
         season_days=config.project.days,
         notes=_supply_notes(supply, plots),
     )
+
+
+def current_animals(project: Project, areas: StratumAreas) -> np.ndarray | None:
+    """Current animals per unit: the units layer's column, else the latest count, else None."""
+    if "current_animals" in areas.units.columns:
+        return areas.units["current_animals"].to_numpy(dtype=float)
+    counts_path = project.input_path("counts")
+    if counts_path is None:
+        return None
+    latest = current_animals_from_counts(
+        read_counts(counts_path), areas.units["unit_id"].to_numpy()
+    )
+    missing = np.isnan(latest)
+    if missing.all():
+        return None
+    if missing.any():
+        unit = areas.units["unit_id"].to_numpy()[missing][0]
+        raise TableError(
+            f"no count for unit {unit!r}",
+            source=counts_path,
+            location="column 'unit_id'",
+            expected="counts for every unit, or a current_animals column in the units layer",
+            found=f"{int(missing.sum())} unit(s) without counts",
+        )
+    return latest
 
 
 def solve(
@@ -295,8 +337,6 @@ def unit_table(
             "ncc_aum": energetics.animal_unit_months(ncc_days, herd.animal_unit_equivalent),
         }
     )
-    if "current_animals" in areas.units.columns:
-        table["current_animals"] = areas.units["current_animals"].to_numpy()
     return table
 
 

@@ -5,12 +5,12 @@ from pathlib import Path
 import pytest
 from hypothesis import settings
 
+from nutricap.example import write_example_landscape
+
 # No per-example deadline: CI machines are shared and timing is not what these tests check.
 # Derandomised so that a CI run is reproducible.
 settings.register_profile("nutricap", deadline=None, derandomize=True)
 settings.load_profile("nutricap")
-
-from nutricap.example import write_example_landscape
 
 
 @pytest.fixture(scope="session")

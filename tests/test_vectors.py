@@ -135,6 +135,7 @@ def test_geographic_units_use_equal_area_projection(tmp_path, layers):
         assert area_ha == pytest.approx(geodesic_ha, rel=1e-4)
 
 
+@pytest.mark.filterwarnings("ignore:'crs' was not provided")
 def test_missing_crs_is_refused(tmp_path):
     frame = gpd.GeoDataFrame({"unit_id": ["a"]}, geometry=[box(0, 0, 1, 1)])
     path = _write(frame, tmp_path / "nocrs.gpkg", "u")

@@ -1,0 +1,135 @@
+"""Assess current use: demand of the animals there now, utilization, overuse flags.
+
+Builds on a solved :class:`~nutricap.problem.CapacityProblem`. Current numbers
+come from the units layer's ``current_animals`` column or, when it is absent,
+from the latest year of the counts table for each unit.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from nutricap.problem import CapacityProblem
+from nutricap.science.use import (
+    allocate_demand_kg,
+    animals_at_use_limit,
+    seasonal_demand_kg,
+    utilization_fraction,
+)
+
+USE_TOLERANCE = 1e-9
+"""Use may exceed allowable use by this much (rounding) before a flag is raised [-]."""
+
+
+def current_animals_from_counts(counts: pd.DataFrame, unit_ids: np.ndarray) -> np.ndarray:
+    """Latest year's count for each unit (NaN where a unit has no count)."""
+    if "unit_id" not in counts.columns:
+        return np.full(unit_ids.size, np.nan)
+    latest = counts.sort_values("year").groupby("unit_id")["count"].last()
+    return latest.reindex(unit_ids).to_numpy(dtype=float)
+
+
+def class_matrix(problem: CapacityProblem, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Sum per-row, per-item ``values`` into (units, classes); return (classes, matrix)."""
+    classes, item_class = np.unique(problem.items.forage_class, return_inverse=True)
+    by_unit = problem.sum_by_unit(values)
+    matrix = np.zeros((by_unit.shape[0], classes.size))
+    np.add.at(matrix.T, item_class, by_unit.T)
+    return classes, matrix
+
+
+def assess_use(
+    problem: CapacityProblem,
+    by_unit: pd.DataFrame,
+    current_animals: np.ndarray,
+    *,
+    intake_kg_per_day: float,
+    season_days: float,
+    preference: np.ndarray | None = None,
+) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Add current use and overuse columns to ``by_unit``; return it and the per-class use.
+
+    Parameters
+    ----------
+    preference : array, shape (items,), optional
+        Relative preference of each item's class (default equal).
+
+    Returns
+    -------
+    by_unit : DataFrame
+        With ``current_animals, demand_kg, key_use_fraction, key_class,
+        key_allowable_use, overuse, above_ncc, reduction_for_key_use_animals,
+        reduction_for_ncc_animals``.
+    use_by_class : DataFrame
+        ``unit_id, forage_class, key, use_fraction, allowable_use``.
+    """
+    items = problem.items
+    row_current = current_animals[problem.row_unit] * _row_share(problem)
+    demand = seasonal_demand_kg(row_current, intake_kg_per_day, season_days)
+    eaten = allocate_demand_kg(demand, problem.available_kg, items.allowable_use, preference)
+    classes, available = class_matrix(problem, problem.available_kg)
+    _, eaten_by_class = class_matrix(problem, eaten)
+    _, usable = class_matrix(problem, problem.available_kg * items.allowable_use)
+    use = utilization_fraction(eaten_by_class, available)
+    allowable = utilization_fraction(usable, available)
+    key = _class_flags(items.forage_class, items.key, classes)
+    watched = key if key.any() else np.ones_like(key)
+    table = by_unit.copy()
+    table["current_animals"] = current_animals
+    table["demand_kg"] = seasonal_demand_kg(current_animals, intake_kg_per_day, season_days)
+    _add_key_columns(table, classes, use, allowable, watched, current_animals)
+    table["above_ncc"] = current_animals > table["ncc_animals"].to_numpy()
+    table["reduction_for_ncc_animals"] = np.maximum(current_animals - table["ncc_animals"], 0.0)
+    return table, _use_table(problem.unit_ids, classes, key, use, allowable)
+
+
+def _row_share(problem: CapacityProblem) -> np.ndarray:
+    """Share of its unit's animals each row holds: its share of the unit's usable forage."""
+    usable = (problem.available_kg * problem.items.allowable_use).sum(axis=1)
+    unit_total = problem.sum_by_unit(usable)[problem.row_unit]
+    return np.divide(usable, unit_total, out=np.zeros_like(usable), where=unit_total > 0)
+
+
+def _class_flags(item_class: np.ndarray, item_key: np.ndarray, classes: np.ndarray) -> np.ndarray:
+    keyed = set(item_class[item_key])
+    return np.array([name in keyed for name in classes])
+
+
+def _add_key_columns(
+    table: pd.DataFrame,
+    classes: np.ndarray,
+    use: np.ndarray,
+    allowable: np.ndarray,
+    watched: np.ndarray,
+    current_animals: np.ndarray,
+) -> None:
+    pressure = np.divide(use, allowable, out=np.zeros_like(use), where=allowable > 0)
+    pressure[:, ~watched] = -1.0
+    worst = pressure.argmax(axis=1)
+    rows = np.arange(use.shape[0])
+    table["key_class"] = classes[worst]
+    table["key_use_fraction"] = use[rows, worst]
+    table["key_allowable_use"] = allowable[rows, worst]
+    table["overuse"] = table["key_use_fraction"] > table["key_allowable_use"] + USE_TOLERANCE
+    watched_use = np.where(watched[None, :], use, 0.0)
+    limit = animals_at_use_limit(current_animals, watched_use, allowable)
+    table["reduction_for_key_use_animals"] = np.maximum(current_animals - limit, 0.0)
+
+
+def _use_table(
+    unit_ids: np.ndarray,
+    classes: np.ndarray,
+    key: np.ndarray,
+    use: np.ndarray,
+    allowable: np.ndarray,
+) -> pd.DataFrame:
+    return pd.DataFrame(
+        {
+            "unit_id": np.repeat(unit_ids, classes.size),
+            "forage_class": np.tile(classes, unit_ids.size),
+            "key": np.tile(key, unit_ids.size),
+            "use_fraction": use.ravel(),
+            "allowable_use": allowable.ravel(),
+        }
+    )

@@ -1,0 +1,435 @@
+"""Figures of the HTML report: map, capacity chart, population trend, scenarios, tornado.
+
+Every function takes results it is handed (tables, arrays) and returns a
+:class:`matplotlib.figure.Figure` built without pyplot (no global state, Agg
+canvas); :func:`figure_png` turns one into PNG bytes. Nothing here computes
+capacity: sums over units for a chart total are the only arithmetic.
+
+Colours are the Okabe & Ito (2008) colour-blind-safe set and the ``cividis``
+colour map (Nuñez, Anderton & Renslow 2018), and every series also differs by
+marker or line style, so no figure relies on colour alone.
+
+References
+----------
+Okabe, M. & Ito, K. 2008. Color Universal Design (CUD): how to make figures and
+    presentations that are friendly to colorblind people. J*Fly Data Depository.
+Nuñez, J.R., Anderton, C.R. & Renslow, R.S. 2018. Optimizing colormaps with consideration
+    for color vision deficiency. PLoS ONE 13(7):e0199239.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+from collections.abc import Sequence
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+from matplotlib import patheffects
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.cm import ScalarMappable
+from matplotlib.colors import Normalize
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.ticker import FuncFormatter
+
+#: Okabe & Ito (2008) colour-blind-safe palette (hex codes as published in that guide).
+OKABE_ITO = {
+    "black": "#000000",
+    "orange": "#E69F00",
+    "sky_blue": "#56B4E9",
+    "bluish_green": "#009E73",
+    "yellow": "#F0E442",
+    "blue": "#0072B2",
+    "vermillion": "#D55E00",
+    "reddish_purple": "#CC79A7",
+}
+
+#: Colour map of the NCC-density map (perceptually uniform, colour-vision-deficiency safe).
+DENSITY_CMAP = "cividis"
+
+#: Style of each capacity series: label, colour, marker.
+CAPACITY_SERIES = {
+    "ncc_animals": ("NCC (diet quality)", OKABE_ITO["blue"], "o"),
+    "allowable_use_animals": ("Allowable-use capacity", OKABE_ITO["orange"], "s"),
+    "ecc_animals": ("ECC (forage quantity)", OKABE_ITO["bluish_green"], "^"),
+}
+
+#: Resolution of the embedded PNGs [dots per inch].
+PNG_DPI = 110
+
+#: Largest number of units drawn in the per-unit chart, and labelled on the map.
+MAX_UNITS_CHART = 60
+MAX_UNITS_LABELLED = 30
+
+_THOUSANDS = FuncFormatter(lambda value, _position: f"{value:,.0f}")
+
+
+def figure_png(figure: Figure, *, dpi: int = PNG_DPI) -> bytes:
+    """Render ``figure`` to PNG bytes with the Agg canvas.
+
+    Parameters
+    ----------
+    figure : matplotlib.figure.Figure
+    dpi : int, default :data:`PNG_DPI`
+        Resolution [dots per inch].
+
+    Returns
+    -------
+    bytes
+        The PNG file's bytes.
+    """
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=dpi, metadata={"Software": None})
+    return buffer.getvalue()
+
+
+def _new_figure(width_in: float, height_in: float) -> Figure:
+    figure = Figure(figsize=(width_in, height_in), layout="constrained")
+    FigureCanvasAgg(figure)
+    return figure
+
+
+# --- (1) map of units shaded by NCC per km² -------------------------------------------------
+
+
+def ncc_density_map(units: gpd.GeoDataFrame, by_unit: pd.DataFrame) -> Figure:
+    """Map of the management units shaded by NCC density.
+
+    Parameters
+    ----------
+    units : geopandas.GeoDataFrame
+        Unit polygons with ``unit_id`` (the estimate's ``units``, in the area CRS).
+    by_unit : pandas.DataFrame
+        Per-unit table with ``unit_id`` and ``ncc_per_km2`` [animals/km²].
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Units filled on the ``cividis`` scale with a colour bar in animals/km²; units without
+        a value are hatched grey; unit names are written when there are at most
+        :data:`MAX_UNITS_LABELLED` units.
+    """
+    shapes = units[["unit_id", "geometry"]].merge(
+        by_unit[["unit_id", "ncc_per_km2"]], on="unit_id", how="left"
+    )
+    frame = gpd.GeoDataFrame(shapes, geometry="geometry", crs=units.crs)
+    figure = _new_figure(7.5, 6.0)
+    ax = figure.add_subplot()
+    values = frame["ncc_per_km2"].to_numpy(dtype=float)
+    norm = _density_norm(values)
+    frame.plot(
+        column="ncc_per_km2", cmap=DENSITY_CMAP, norm=norm, ax=ax, edgecolor="white",
+        linewidth=0.8, missing_kwds={"color": "#d9d9d9", "hatch": "///", "label": "no value"},
+    )
+    colour_bar = figure.colorbar(ScalarMappable(norm=norm, cmap=DENSITY_CMAP), ax=ax,
+                                 shrink=0.85)
+    colour_bar.set_label("NCC density [animals/km²]")
+    if len(frame) <= MAX_UNITS_LABELLED:
+        _label_units(ax, frame)
+    _map_axes(ax, frame.crs)
+    ax.set_title("Nutritional carrying capacity per km² by unit")
+    return figure
+
+
+def _density_norm(values: np.ndarray) -> Normalize:
+    finite = values[np.isfinite(values)]
+    if finite.size == 0:
+        return Normalize(0.0, 1.0)
+    low, high = float(finite.min()), float(finite.max())
+    return Normalize(low, high if high > low else low + 1.0)
+
+
+def _label_units(ax, frame: gpd.GeoDataFrame) -> None:
+    halo = [patheffects.withStroke(linewidth=2.5, foreground="white")]
+    for unit_id, point in zip(frame["unit_id"], frame.geometry.representative_point()):
+        if point is None or point.is_empty:
+            continue
+        ax.annotate(str(unit_id), (point.x, point.y), ha="center", va="center", fontsize=8,
+                    path_effects=halo)
+
+
+def _map_axes(ax, crs) -> None:
+    """Axis labels with the CRS's axis names and units; metres shown as km."""
+    if crs is None:
+        ax.set_xlabel("x [map units; layer has no CRS]")
+        ax.set_ylabel("y [map units; layer has no CRS]")
+        return
+    code = crs.to_string()
+    by_direction = {info.direction.lower(): info for info in crs.axis_info}
+    pairs = ((ax.xaxis, by_direction.get("east"), "Easting"),
+             (ax.yaxis, by_direction.get("north"), "Northing"))
+    for axis, info, fallback in pairs:
+        name = info.name if info is not None else fallback
+        unit = info.unit_name if info is not None else "map units"
+        if unit in ("metre", "meter"):
+            axis.set_major_formatter(FuncFormatter(lambda value, _p: f"{value / 1000:,.0f}"))
+            unit = "km"
+        axis.set_label_text(f"{name} [{unit}] ({code})")
+
+
+# --- (2) per-unit capacity chart --------------------------------------------------------------
+
+
+def capacity_figure(
+    by_unit: pd.DataFrame,
+    *,
+    season_days: float | None = None,
+    interval_level: float | None = None,
+    max_units: int = MAX_UNITS_CHART,
+) -> Figure:
+    """Dot chart of NCC, allowable-use capacity and ECC per unit, with interval whiskers.
+
+    Parameters
+    ----------
+    by_unit : pandas.DataFrame
+        Per-unit table with ``unit_id``, ``ncc_animals``, ``ecc_animals``,
+        ``allowable_use_animals`` [animals]; optional ``<name>_lo``/``<name>_hi`` interval
+        bounds [animals] and ``current_animals`` [animals].
+    season_days : float, optional
+        Season length [days], for the axis label.
+    interval_level : float, optional
+        Level of the intervals (e.g. 0.9), for the legend.
+    max_units : int, default :data:`MAX_UNITS_CHART`
+        Draw at most this many units (those with the largest ECC); the table has them all.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    shown = by_unit
+    if len(by_unit) > max_units:
+        shown = by_unit.nlargest(max_units, "ecc_animals")
+    shown = shown.iloc[::-1]
+    figure = _new_figure(8.0, max(3.0, 0.45 * len(shown) + 1.6))
+    ax = figure.add_subplot()
+    rows = np.arange(len(shown), dtype=float)
+    offsets = np.linspace(-0.22, 0.22, len(CAPACITY_SERIES))
+    for offset, (column, style) in zip(offsets, CAPACITY_SERIES.items()):
+        _capacity_series(ax, shown, column, rows + offset, style, interval_level)
+    if "current_animals" in shown.columns:
+        ax.plot(shown["current_animals"].to_numpy(dtype=float), rows, linestyle="none",
+                marker="x", markersize=8, color=OKABE_ITO["black"], label="Current animals")
+    ax.set_yticks(rows, [str(unit) for unit in shown["unit_id"]])
+    ax.set_ylabel("Management unit")
+    days = f" for the {season_days:g}-day season" if season_days else ""
+    ax.set_xlabel(f"Capacity [animals{days}]")
+    ax.xaxis.set_major_formatter(_THOUSANDS)
+    ax.set_xlim(left=0.0)
+    ax.grid(axis="x", color="#dddddd")
+    ax.legend(loc="lower right", fontsize=8, framealpha=0.9)
+    title = "NCC, allowable-use capacity and ECC by unit"
+    if len(shown) < len(by_unit):
+        title += f" ({len(shown)} of {len(by_unit)} units, largest ECC)"
+    ax.set_title(title)
+    return figure
+
+
+def _capacity_series(ax, table: pd.DataFrame, column: str, rows: np.ndarray, style: tuple,
+                     interval_level: float | None) -> None:
+    label, colour, marker = style
+    values = table[column].to_numpy(dtype=float)
+    low, high = f"{column}_lo", f"{column}_hi"
+    if {low, high} <= set(table.columns):
+        errors = np.vstack([values - table[low].to_numpy(dtype=float),
+                            table[high].to_numpy(dtype=float) - values])
+        level = f", {100 * interval_level:g} % interval" if interval_level else ", interval"
+        ax.errorbar(values, rows, xerr=np.clip(errors, 0.0, None), fmt=marker, color=colour,
+                    ecolor=colour, elinewidth=1.2, capsize=3, markersize=6,
+                    label=label + level)
+    else:
+        ax.plot(values, rows, linestyle="none", marker=marker, color=colour, markersize=6,
+                label=label)
+
+
+# --- (3) population trend ---------------------------------------------------------------------
+
+
+def population_trend_figure(
+    years: Sequence[float],
+    counts: Sequence[float],
+    fitted_years: Sequence[float] | None,
+    fitted_counts: Sequence[float] | None,
+    K: float | None,
+    ncc_animals: float | None,
+    ecc_animals: float | None,
+) -> Figure:
+    """Counts over time with the fitted logistic and reference lines K, K/2, NCC and ECC.
+
+    Parameters
+    ----------
+    years, counts : sequence of float
+        Year [year] and count [animals, an index with detection error] of each survey.
+    fitted_years, fitted_counts : sequence of float, optional
+        The fitted curve [year], [animals]; None when no curve was fitted.
+    K : float or None
+        Fitted ceiling [animals]; None when the series shows no evidence of one (the K and
+        K/2 lines are then left out and the title and legend say so).
+    ncc_animals, ecc_animals : float or None
+        Forage NCC and ECC of the same area [animals]; None to leave a line out.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    figure = _new_figure(8.0, 4.8)
+    ax = figure.add_subplot()
+    ax.plot(years, counts, linestyle="none", marker="o", color=OKABE_ITO["black"],
+            label="Count (index)")
+    if fitted_years is not None and fitted_counts is not None:
+        ax.plot(fitted_years, fitted_counts, color=OKABE_ITO["sky_blue"], linewidth=2,
+                label="Fitted logistic")
+    lines = [
+        (K, "K (fitted ceiling)", OKABE_ITO["vermillion"], "-"),
+        (None if K is None else K / 2.0, "K/2 (maximum sustained yield level)",
+         OKABE_ITO["vermillion"], ":"),
+        (ncc_animals, "NCC from forage", OKABE_ITO["blue"], "--"),
+        (ecc_animals, "ECC from forage", OKABE_ITO["bluish_green"], "-."),
+    ]
+    for value, label, colour, style in lines:
+        if value is not None and math.isfinite(value):
+            ax.axhline(value, color=colour, linestyle=style, linewidth=1.5,
+                       label=f"{label}: {value:,.0f}")
+    handles, labels = ax.get_legend_handles_labels()
+    title = "Counts over time beside forage capacity"
+    if K is None:
+        handles.append(Line2D([], [], linestyle="none"))
+        labels.append("no evidence of a ceiling: K not drawn")
+        title += " (no evidence of a ceiling)"
+    ax.legend(handles, labels, fontsize=8, loc="best", framealpha=0.9)
+    ax.set_xlabel("Year")
+    ax.set_ylabel("Animals [count index]")
+    ax.yaxis.set_major_formatter(_THOUSANDS)
+    ax.set_ylim(bottom=0.0)
+    ax.grid(color="#eeeeee")
+    ax.set_title(title)
+    return figure
+
+
+# --- (4) treatment scenarios ------------------------------------------------------------------
+
+SCENARIO_COLUMNS = ("unit_id", "scenario", "year", "ncc_animals_baseline", "ncc_animals_scenario")
+_SCENARIO_COLOURS = ("vermillion", "blue", "orange", "reddish_purple", "bluish_green", "sky_blue")
+
+
+def scenario_figure(scenario_table: pd.DataFrame, *, per_unit: bool = False) -> Figure:
+    """NCC over the years after treatment, baseline against each scenario.
+
+    Parameters
+    ----------
+    scenario_table : pandas.DataFrame
+        Columns ``unit_id, scenario, year, ncc_animals_baseline, ncc_animals_scenario``
+        [animals] (``years_since_treatment`` and ``change_animals`` may also be present).
+    per_unit : bool, default False
+        Add one small panel per unit under the panel of the total over units.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    _require_columns(scenario_table, SCENARIO_COLUMNS, "scenario table")
+    units = list(dict.fromkeys(scenario_table["unit_id"]))
+    columns = 3
+    unit_rows = math.ceil(len(units) / columns) if per_unit else 0
+    figure = _new_figure(9.0, 4.2 + 2.3 * unit_rows)
+    grid = figure.add_gridspec(1 + unit_rows, columns, height_ratios=[1.8] + [1.0] * unit_rows)
+    total = figure.add_subplot(grid[0, :])
+    _scenario_panel(total, scenario_table, legend=True)
+    total.set_title("NCC, total over units: baseline and scenario")
+    for index, unit in enumerate(units if per_unit else []):
+        ax = figure.add_subplot(grid[1 + index // columns, index % columns])
+        _scenario_panel(ax, scenario_table[scenario_table["unit_id"] == unit], legend=False)
+        ax.set_title(str(unit), fontsize=9)
+        ax.tick_params(labelsize=7)
+        ax.xaxis.label.set_size(7)
+        ax.yaxis.label.set_size(7)
+    return figure
+
+
+def _scenario_panel(ax, table: pd.DataFrame, *, legend: bool) -> None:
+    """Baseline (black dashed) and one line per scenario, summed over the table's units."""
+    totals = table.groupby(["scenario", "year"], sort=True)[
+        ["ncc_animals_baseline", "ncc_animals_scenario"]
+    ].sum()
+    baseline = totals["ncc_animals_baseline"].unstack("scenario")
+    scenario = totals["ncc_animals_scenario"].unstack("scenario")
+    same = baseline.apply(lambda column: np.allclose(column, baseline.iloc[:, 0],
+                                                     equal_nan=True)).all()
+    baselines = baseline.iloc[:, :1] if same else baseline
+    for name, series in baselines.items():
+        label = "baseline" if same else f"baseline ({name})"
+        ax.plot(series.index, series.to_numpy(), color=OKABE_ITO["black"], linestyle="--",
+                marker=".", label=label)
+    for index, (name, series) in enumerate(scenario.items()):
+        colour = OKABE_ITO[_SCENARIO_COLOURS[index % len(_SCENARIO_COLOURS)]]
+        ax.plot(series.index, series.to_numpy(), color=colour, linewidth=2, marker="o",
+                markersize=4, label=f"scenario: {name}")
+    ax.set_xlabel("Year")
+    ax.set_ylabel("NCC [animals]")
+    ax.yaxis.set_major_formatter(_THOUSANDS)
+    ax.xaxis.get_major_locator().set_params(integer=True)
+    ax.grid(color="#eeeeee")
+    if legend:
+        ax.legend(fontsize=8, framealpha=0.9)
+
+
+def _require_columns(table: pd.DataFrame, columns: Sequence[str], what: str) -> None:
+    missing = [column for column in columns if column not in table.columns]
+    if missing:
+        raise ValueError(f"{what} lacks column(s) {', '.join(missing)}; "
+                         f"found {', '.join(map(str, table.columns))}")
+
+
+# --- (5) sensitivity tornado ------------------------------------------------------------------
+
+TORNADO_COLUMNS = ("input", "low_change_animals", "high_change_animals")
+
+
+def tornado_figure(sensitivity_table: pd.DataFrame) -> Figure:
+    """Tornado chart of the change in capacity when each input is set low and high.
+
+    Parameters
+    ----------
+    sensitivity_table : pandas.DataFrame
+        Columns ``input`` (name), ``low_change_animals`` and ``high_change_animals``: change in
+        total NCC with the input at its low and at its high value [animals].
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Inputs sorted by range |high − low|, the widest at the top.
+    """
+    _require_columns(sensitivity_table, TORNADO_COLUMNS, "sensitivity table")
+    table = sort_by_range(sensitivity_table).iloc[::-1]
+    figure = _new_figure(8.0, max(2.8, 0.42 * len(table) + 1.5))
+    ax = figure.add_subplot()
+    rows = np.arange(len(table))
+    ax.barh(rows, table["low_change_animals"].to_numpy(dtype=float), height=0.6,
+            color=OKABE_ITO["sky_blue"], edgecolor=OKABE_ITO["black"], label="input at low value")
+    ax.barh(rows, table["high_change_animals"].to_numpy(dtype=float), height=0.6,
+            color=OKABE_ITO["vermillion"], edgecolor=OKABE_ITO["black"], hatch="//",
+            label="input at high value")
+    ax.axvline(0.0, color=OKABE_ITO["black"], linewidth=1)
+    ax.set_axisbelow(True)
+    ax.set_yticks(rows, [str(name) for name in table["input"]])
+    ax.set_ylabel("Input")
+    ax.set_xlabel("Change in total NCC [animals]")
+    ax.xaxis.set_major_formatter(FuncFormatter(_signed))
+    ax.grid(axis="x", color="#eeeeee")
+    ax.legend(fontsize=8, framealpha=0.9)
+    ax.set_title("Sensitivity of NCC to each input")
+    return figure
+
+
+def _signed(value: float, _position: int) -> str:
+    return "0" if value == 0 else f"{value:+,.0f}"
+
+
+def sort_by_range(sensitivity_table: pd.DataFrame) -> pd.DataFrame:
+    """Rows sorted by |high − low| change, largest first (ties keep their order)."""
+    spread = (sensitivity_table["high_change_animals"]
+              - sensitivity_table["low_change_animals"]).abs()
+    order = np.argsort(-spread.to_numpy(dtype=float), kind="stable")
+    return sensitivity_table.iloc[order]
+

@@ -1,0 +1,496 @@
+"""Tests of nutricap.science.capacity.
+
+Sources of the check values:
+- ``scipy.optimize.linprog`` with HiGHS, an independent general-purpose LP solver, solving the
+  linear programme of Hobbs & Swift (1985, J. Wildl. Manage. 49:814-822) and, with protein,
+  Hanley & Rogers (1989, USDA FS Res. Note PNW-RN-485) written out term by term in ``_lp``;
+- hand arithmetic shown in comments, applying the published equations to inputs invented for
+  the example (the inputs are invented, the expected values follow from the equations);
+- properties every correct solver must have (monotonicity, scaling, relaxation), derived in
+  docs/methods_capacity.md.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from hypothesis.extra import numpy as hnp
+from scipy.optimize import linprog
+
+from nutricap.errors import InputError
+from nutricap.science import capacity
+from nutricap.science.capacity import (
+    allowable_use_capacity,
+    ecological_capacity,
+    nutritional_capacity,
+)
+
+REL = 1e-9  # relative agreement required with the reference LP
+
+
+# --- reference: an independent general-purpose LP solver ------------------------------------
+
+
+def _lp(allowed_kg: np.ndarray, surpluses: list[np.ndarray]) -> np.ndarray:
+    """Optimal eaten amounts from HiGHS for: max sum x, 0 <= x <= A, sum s_k x >= 0 for each k.
+
+    The problem is scaled by max(A) so that HiGHS's absolute tolerances act on numbers of
+    order 1, then scaled back.
+    """
+    scale = max(allowed_kg.max(initial=0.0), 1e-300)
+    res = linprog(
+        -np.ones(allowed_kg.size),
+        A_ub=-np.vstack(surpluses),
+        b_ub=np.zeros(len(surpluses)),
+        bounds=np.column_stack([np.zeros(allowed_kg.size), allowed_kg / scale]),
+        method="highs",
+    )
+    assert res.status == 0, res.message
+    return res.x * scale
+
+
+def _random_problems(rng: np.random.Generator, n_units: int, n_items: int) -> dict:
+    """Random unit x item problems; about 10 % of items absent, half the units use-capped."""
+    available = rng.lognormal(6.0, 1.5, (n_units, n_items)) * (rng.random((n_units, n_items)) > 0.1)
+    cap = np.where(rng.random((n_units, 1)) < 0.5, 1.0, rng.uniform(0.2, 1.0, (n_units, n_items)))
+    return {
+        "available_kg": available,
+        "de_kcal_per_g": rng.uniform(1.4, 3.8, (n_units, n_items)),
+        "intake_kg_per_day": rng.uniform(1.0, 4.0, n_units),
+        "de_min_kcal_per_g": rng.uniform(2.0, 3.2, n_units),
+        "use_cap": cap,
+    }
+
+
+def _expected_label(allowed: np.ndarray, eaten: np.ndarray, active: list[bool]) -> str:
+    """Limiting factor read off an LP solution from its active constraints."""
+    if allowed.sum() == 0.0:
+        return "no_forage"
+    if eaten.sum() <= 1e-9 * allowed.sum():
+        return "intake"
+    if np.all(eaten >= allowed * (1.0 - 1e-9)):
+        return "quantity"
+    names = [name for name, on in zip(["energy", "protein"], active, strict=False) if on]
+    return "+".join(names)
+
+
+def _is_active(eaten: np.ndarray, surplus: np.ndarray) -> bool:
+    """A quality constraint is active when the diet quality is within 1e-6 of its threshold."""
+    return abs(eaten @ surplus) <= 1e-6 * eaten.sum()
+
+
+# --- comparison with the LP -------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("n_items", [1, 2, 3, 5, 8, 13, 20])
+def test_one_nutrient_equals_linprog(n_items: int) -> None:
+    # Source: scipy.optimize.linprog (HiGHS) on the Hobbs & Swift (1985) LP; 7 x 40 = 280
+    # random problems (seeded).
+    rng = np.random.default_rng(1985 + n_items)
+    problem = _random_problems(rng, 40, n_items)
+    result = nutritional_capacity(**problem)
+    allowed = problem["available_kg"] * problem["use_cap"]
+    surplus = problem["de_kcal_per_g"] - problem["de_min_kcal_per_g"][:, None]
+    for u in range(40):
+        x = _lp(allowed[u], [surplus[u]])
+        expected = x.sum() / problem["intake_kg_per_day"][u]
+        assert result.animal_days[u] == pytest.approx(expected, rel=REL, abs=1e-12)
+        assert result.limiting_factor[u] == _expected_label(allowed[u], x, [True])
+    binds = result.limiting_factor == "energy"
+    assert np.allclose(
+        result.diet_de_kcal_per_g[binds], problem["de_min_kcal_per_g"][binds], rtol=0, atol=1e-9
+    )
+    assert np.all((result.eaten_kg >= 0) & (result.eaten_kg <= allowed))
+
+
+def _spy(monkeypatch: pytest.MonkeyPatch, name: str) -> list[int]:
+    """Record how many units each call of capacity.<name> receives."""
+    real, sizes = getattr(capacity, name), []
+
+    def spy(allowed, *args):
+        sizes.append(len(allowed))
+        return real(allowed, *args)
+
+    monkeypatch.setattr(capacity, name, spy)
+    return sizes
+
+
+@pytest.mark.parametrize("n_items", [2, 3, 5, 8, 13, 20])
+def test_two_nutrients_equal_linprog_and_limiting_factor(
+    n_items: int, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # Source: scipy.optimize.linprog (HiGHS) on the Hanley & Rogers (1989) two-constraint LP;
+    # 6 x 40 = 240 random problems (seeded). The expected limiting factor is read from the
+    # constraints active at the HiGHS solution.
+    rng = np.random.default_rng(1989 + n_items)
+    problem = _random_problems(rng, 40, n_items)
+    problem["dp_pct"] = rng.uniform(-2.0, 16.0, (40, n_items))
+    problem["dp_min_pct"] = rng.uniform(3.0, 9.0, 40)
+    fallback = _spy(monkeypatch, "_linprog_solution")
+    result = nutritional_capacity(**problem)
+    # Generic (non-degenerate) problems are all certified by the vertex solution, so the
+    # comparison below is with a solver the module did not use.
+    assert sum(fallback) == 0
+    allowed = problem["available_kg"] * problem["use_cap"]
+    de_surplus = problem["de_kcal_per_g"] - problem["de_min_kcal_per_g"][:, None]
+    dp_surplus = problem["dp_pct"] - problem["dp_min_pct"][:, None]
+    labels = []
+    for u in range(40):
+        x = _lp(allowed[u], [de_surplus[u], dp_surplus[u]])
+        expected = x.sum() / problem["intake_kg_per_day"][u]
+        assert result.animal_days[u] == pytest.approx(expected, rel=REL, abs=1e-12)
+        active = [_is_active(x, de_surplus[u]), _is_active(x, dp_surplus[u])]
+        labels.append(_expected_label(allowed[u], x, active))
+    assert list(result.limiting_factor) == labels
+    eaten = result.eaten_kg.sum(axis=1) > 0
+    assert np.all(result.diet_de_kcal_per_g[eaten] >= problem["de_min_kcal_per_g"][eaten] - 1e-9)
+    assert np.all(result.diet_dp_pct[eaten] >= problem["dp_min_pct"][eaten] - 1e-9)
+
+
+def test_two_nutrient_sample_covers_every_limiting_factor(monkeypatch: pytest.MonkeyPatch) -> None:
+    # Guards the two tests above against a sample that never exercises a branch, and checks
+    # that only units where neither single-nutrient optimum meets the other constraint (so
+    # both constraints bind, or nothing can be eaten) reach the two-constraint stage.
+    rng = np.random.default_rng(7)
+    problem = _random_problems(rng, 400, 8)
+    problem["dp_pct"] = rng.uniform(-2.0, 16.0, (400, 8))
+    problem["dp_min_pct"] = rng.uniform(3.0, 9.0, 400)
+    sent = _spy(monkeypatch, "_solve_both")
+    labels = nutritional_capacity(**problem).limiting_factor
+    assert {"energy", "protein", "energy+protein", "quantity", "intake"} <= set(labels)
+    n_both = np.sum(labels == "energy+protein")
+    assert n_both <= sum(sent) <= n_both + np.sum(labels == "intake")
+
+
+def _force_linprog(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Make the vertex solution certify nothing, so every two-constraint unit goes to HiGHS."""
+
+    def never_certified(allowed, d, e):
+        n = len(allowed)
+        return np.zeros_like(allowed), np.zeros(n, bool), np.zeros(n), np.zeros(n)
+
+    monkeypatch.setattr(capacity, "_vertex_solution", never_certified)
+
+
+def test_linprog_fallback_agrees_with_vertex_solution(monkeypatch: pytest.MonkeyPatch) -> None:
+    # Source: the two exact methods inside the solver must agree: the dual-vertex solution
+    # (default) and HiGHS (used when the vertex solution is not certified; forced here).
+    rng = np.random.default_rng(11)
+    problem = _random_problems(rng, 60, 6)
+    problem["dp_pct"] = rng.uniform(-2.0, 16.0, (60, 6))
+    problem["dp_min_pct"] = rng.uniform(3.0, 9.0, 60)
+    vertex = nutritional_capacity(**problem)
+    _force_linprog(monkeypatch)
+    fallback = nutritional_capacity(**problem)
+    assert "energy+protein" in set(vertex.limiting_factor)
+    np.testing.assert_allclose(fallback.animal_days, vertex.animal_days, rtol=REL, atol=1e-12)
+    assert list(fallback.limiting_factor) == list(vertex.limiting_factor)
+    np.testing.assert_array_equal(fallback.marginal_item, vertex.marginal_item)
+
+
+def test_two_nutrients_with_tied_items_equals_linprog() -> None:
+    # Source: scipy.optimize.linprog (HiGHS). Duplicated items make the dual degenerate
+    # (parallel lines), the case the vertex solution may not certify.
+    rng = np.random.default_rng(5)
+    problem = _random_problems(rng, 30, 4)
+    for key in ("available_kg", "de_kcal_per_g", "use_cap"):
+        problem[key] = np.concatenate([problem[key], problem[key]], axis=1)
+    dp = rng.uniform(-2.0, 16.0, (30, 4))
+    problem["dp_pct"] = np.concatenate([dp, dp], axis=1)
+    problem["dp_min_pct"] = rng.uniform(3.0, 9.0, 30)
+    result = nutritional_capacity(**problem)
+    allowed = problem["available_kg"] * problem["use_cap"]
+    de_surplus = problem["de_kcal_per_g"] - problem["de_min_kcal_per_g"][:, None]
+    dp_surplus = problem["dp_pct"] - problem["dp_min_pct"][:, None]
+    for u in range(30):
+        x = _lp(allowed[u], [de_surplus[u], dp_surplus[u]])
+        expected = x.sum() / problem["intake_kg_per_day"][u]
+        assert result.animal_days[u] == pytest.approx(expected, rel=REL, abs=1e-12)
+        active = [_is_active(x, de_surplus[u]), _is_active(x, dp_surplus[u])]
+        assert result.limiting_factor[u] == _expected_label(allowed[u], x, active)
+
+
+# --- hand-worked examples --------------------------------------------------------------------
+
+
+def test_hobbs_swift_three_forages_by_hand() -> None:
+    # Inputs invented for the example; expected values by hand with the sort-and-accumulate
+    # solution of Hobbs & Swift (1985), threshold T = 2.6 kcal/g, intake 2 kg/day:
+    #   forb   100 kg at 3.0 kcal/g: above T, eaten in full; surplus (3.0-2.6)*100 = +40
+    #   browse 200 kg at 2.5 kcal/g: deficit (2.6-2.5)*200 = 20 <= 40, eaten in full; left 20
+    #   grass  300 kg at 2.2 kcal/g: deficit 0.4 per kg; 20 / 0.4 = 50 kg, fraction 50/300
+    #   eaten = 100 + 200 + 50 = 350 kg; animal-days = 350 / 2 = 175
+    #   diet DE = (100*3.0 + 200*2.5 + 50*2.2) / 350 = 910 / 350 = 2.6 kcal/g
+    result = nutritional_capacity([100.0, 200.0, 300.0], [3.0, 2.5, 2.2], 2.0, 2.6)
+    assert result.animal_days == pytest.approx([175.0], rel=1e-12)
+    np.testing.assert_allclose(result.eaten_kg, [[100.0, 200.0, 50.0]], rtol=1e-12)
+    assert result.diet_de_kcal_per_g == pytest.approx([2.6], rel=1e-12)
+    assert result.limiting_factor.tolist() == ["energy"]
+    assert result.marginal_item.tolist() == [2]
+    assert result.eaten_kg.shape == (1, 3) and result.diet_dp_pct is None
+
+
+def test_energy_and_protein_both_binding_by_hand() -> None:
+    # Inputs invented for the example; expected values by hand from the two-constraint LP
+    # (Hanley & Rogers 1989) with T = 2.5 kcal/g, P = 5 %, intake 2 kg/day:
+    #   A 100 kg, DE 3.0, DP 2  -> surpluses d = +0.5, e = -3
+    #   B 300 kg, DE 2.0, DP 10 -> d = -0.5, e = +5
+    #   C 1000 kg, DE 2.2, DP 3 -> d = -0.3, e = -2
+    # Energy alone: A (+50), then C 50/0.3 = 166.7 kg; protein -300 - 333.3 < 0: fails.
+    # Protein alone: B (+1500), then C 1500/2 = 750 kg; energy -150 - 225 < 0: fails.
+    # Both binding, A eaten in full, B and C partial:
+    #   0.5*100 - 0.5 xB - 0.3 xC = 0 and -3*100 + 5 xB - 2 xC = 0  ->  xC = 40, xB = 76
+    # Optimality certificate: multipliers from 1 - 0.5 lam + 5 mu = 0, 1 - 0.3 lam - 2 mu = 0
+    #   -> mu = 0.08, lam = 2.8 (both > 0); A's reduced value 1 + 1.4 - 0.24 = 2.16 > 0
+    #   -> dual value 100 * 2.16 = 216 = 100 + 76 + 40 = primal value.
+    # animal-days = 216 / 2 = 108; diet DE = 540/216 = 2.5; DP = 1080/216 = 5.
+    result = nutritional_capacity(
+        [100.0, 300.0, 1000.0], [3.0, 2.0, 2.2], 2.0, 2.5, dp_pct=[2.0, 10.0, 3.0], dp_min_pct=5.0
+    )
+    assert result.animal_days == pytest.approx([108.0], rel=1e-12)
+    np.testing.assert_allclose(result.eaten_kg, [[100.0, 76.0, 40.0]], rtol=1e-12)
+    assert result.diet_de_kcal_per_g == pytest.approx([2.5], rel=1e-12)
+    assert result.diet_dp_pct == pytest.approx([5.0], rel=1e-12)
+    assert result.limiting_factor.tolist() == ["energy+protein"]
+    assert result.marginal_item.tolist() == [1]  # B and C partial; B has the lower DE
+
+
+@pytest.mark.parametrize("via_linprog", [False, True])
+def test_tied_energy_items_label_follows_multipliers(
+    via_linprog: bool, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # Inputs invented for the example; T = 2.5 kcal/g, P = 5 %, intake 1 kg/day.
+    #   X 100 kg, DE 3.0, DP 10 -> d = +0.5, e = +5
+    #   Y 100 kg, DE 2.0, DP -2 -> d = -0.5, e = -7
+    #   Z 100 kg, DE 2.0, DP 8  -> d = -0.5, e = +3
+    # Y and Z tie on DE. Energy alone allows 50 / 0.5 = 100 kg of Y and Z together: 200 kg in
+    # all, e.g. X + Z with DP surplus 500 + 300 > 0, so protein does not bind and 200 is the
+    # two-nutrient optimum too. Taking Y first instead (500 - 700 < 0) misses protein, so the
+    # unit may reach the two-constraint stage; there the multipliers are lam = 2, mu = 0
+    # (from 1 - 0.5 lam - 7 mu = 0 = 1 - 0.5 lam + 3 mu), dual value 100 * (1 + 0.5 * 2) = 200.
+    # mu = 0: relaxing protein would not raise capacity, so the limiting factor is energy.
+    if via_linprog:
+        _force_linprog(monkeypatch)
+    result = nutritional_capacity(
+        [100.0, 100.0, 100.0], [3.0, 2.0, 2.0], 1.0, 2.5, dp_pct=[10.0, -2.0, 8.0], dp_min_pct=5
+    )
+    assert result.animal_days == pytest.approx([200.0], rel=1e-12)
+    assert result.limiting_factor.tolist() == ["energy"]
+    assert result.diet_de_kcal_per_g == pytest.approx([2.5], rel=1e-12)
+    assert result.diet_dp_pct[0] >= 5.0 - 1e-9
+
+
+def test_ecological_capacity_by_hand() -> None:
+    # Hand computation of ECC = 1000 * sum(c a q) / R (inputs invented for the example):
+    #   unit 0: (100*3.0 + 200*2.5) kg*kcal/g * 1000 g/kg = 800 000 kcal / 4000 = 200
+    #   unit 1, cap (0.5, 1): (0.5*100*3.0 + 200*2.5) * 1000 = 650 000 kcal / 5000 = 130
+    available = [[100.0, 200.0], [100.0, 200.0]]
+    result = ecological_capacity(
+        available, [3.0, 2.5], [4000.0, 5000.0], use_cap=[[1.0, 1.0], [0.5, 1.0]]
+    )
+    np.testing.assert_allclose(result, [200.0, 130.0], rtol=1e-12)
+
+
+def test_allowable_use_capacity_by_hand() -> None:
+    # Hand computation of sum(u a) / intake (Holechek 1988, from memory; inputs invented):
+    #   (0.5*1000 + 0.3*500) kg / 2.5 kg/day = 650 / 2.5 = 260 animal-days
+    #   second unit, intake 2.0, uniform use 0.4: 0.4*(400 + 600) / 2.0 = 200
+    np.testing.assert_allclose(allowable_use_capacity([1000.0, 500.0], [0.5, 0.3], 2.5), [260.0])
+    result = allowable_use_capacity([[1000.0, 500.0], [400.0, 600.0]], 0.4, [2.5, 2.0])
+    np.testing.assert_allclose(result, [600.0 / 2.5, 200.0], rtol=1e-12)
+
+
+# --- properties (hypothesis) -----------------------------------------------------------------
+
+_units = st.integers(1, 4)
+_items = st.integers(1, 6)
+
+
+@st.composite
+def _problems(draw: st.DrawFn) -> dict:
+    shape = (draw(_units), draw(_items))
+    floats = {"allow_nan": False, "allow_infinity": False}
+    return {
+        "available_kg": draw(hnp.arrays(float, shape, elements=st.floats(0.0, 1e4, **floats))),
+        "de_kcal_per_g": draw(hnp.arrays(float, shape, elements=st.floats(0.5, 4.5, **floats))),
+        "intake_kg_per_day": draw(st.floats(0.5, 5.0)),
+        "de_min_kcal_per_g": draw(st.floats(1.0, 4.0)),
+    }
+
+
+def _tol(problem: dict) -> np.ndarray:
+    """Absolute tolerance on animal-days: 1e-9 of all forage over intake."""
+    return 1e-9 * np.sum(problem["available_kg"], axis=1) / problem["intake_kg_per_day"] + 1e-12
+
+
+def _ncc(problem: dict, **changes) -> np.ndarray:
+    return nutritional_capacity(**{**problem, **changes}).animal_days
+
+
+@settings(max_examples=150, deadline=None)
+@given(_problems(), st.floats(0.01, 1.0))
+def test_ncc_at_most_ecc_when_target_at_least_maintenance(problem: dict, share: float) -> None:
+    # Derivation (docs/methods_capacity.md): each NCC animal-day eats intake kg at DE >= T, so
+    # NCC * T * intake * 1000 <= eaten DE <= available DE = ECC * R when R <= T * intake * 1000.
+    requirement = share * problem["de_min_kcal_per_g"] * problem["intake_kg_per_day"] * 1000.0
+    ecc = ecological_capacity(problem["available_kg"], problem["de_kcal_per_g"], requirement)
+    assert np.all(_ncc(problem) <= ecc * (1 + 1e-9) + _tol(problem))
+
+
+@settings(max_examples=150, deadline=None)
+@given(_problems(), st.floats(0.0, 1.0))
+def test_ncc_does_not_rise_with_threshold(problem: dict, rise: float) -> None:
+    # A higher T shrinks the feasible set of the LP.
+    higher = _ncc(problem, de_min_kcal_per_g=problem["de_min_kcal_per_g"] + rise)
+    assert np.all(higher <= _ncc(problem) + _tol(problem))
+
+
+@settings(max_examples=150, deadline=None)
+@given(_problems(), st.data())
+def test_ncc_does_not_fall_when_forage_added(problem: dict, data: st.DataObject) -> None:
+    # More forage enlarges the box 0 <= x <= a; the old optimum stays feasible.
+    shape = problem["available_kg"].shape
+    extra = data.draw(hnp.arrays(float, shape, elements=st.floats(0.0, 1e4, allow_nan=False)))
+    more = _ncc(problem, available_kg=problem["available_kg"] + extra)
+    assert np.all(more >= _ncc(problem) - _tol({**problem, "available_kg": problem["available_kg"]
+                                                + extra}))
+
+
+@settings(max_examples=150, deadline=None)
+@given(_problems(), st.floats(0.01, 100.0))
+def test_scaling_forage_scales_ncc(problem: dict, factor: float) -> None:
+    # The LP is homogeneous in a: x* scales with a.
+    scaled = _ncc(problem, available_kg=problem["available_kg"] * factor)
+    assert np.allclose(scaled, factor * _ncc(problem), rtol=0, atol=max(factor, 1) * _tol(problem))
+
+
+@settings(max_examples=150, deadline=None)
+@given(_problems(), st.data())
+def test_use_caps_never_raise_ncc(problem: dict, data: st.DataObject) -> None:
+    # A cap c <= 1 shrinks the box to 0 <= x <= c a.
+    shape = problem["available_kg"].shape
+    cap = data.draw(hnp.arrays(float, shape, elements=st.floats(0.0, 1.0)))
+    assert np.all(_ncc(problem, use_cap=cap) <= _ncc(problem) + _tol(problem))
+
+
+@settings(max_examples=150, deadline=None)
+@given(_problems(), st.data())
+def test_two_nutrient_ncc_at_most_each_single_nutrient(problem: dict, data: st.DataObject) -> None:
+    # Each single-nutrient problem is a relaxation of the two-nutrient one.
+    shape = problem["available_kg"].shape
+    dp = data.draw(hnp.arrays(float, shape, elements=st.floats(-3.0, 20.0)))
+    dp_min = data.draw(st.floats(0.0, 12.0))
+    both = _ncc(problem, dp_pct=dp, dp_min_pct=dp_min)
+    protein_only = _ncc(problem, de_min_kcal_per_g=0.0, dp_pct=dp, dp_min_pct=dp_min)
+    assert np.all(both <= _ncc(problem) + _tol(problem))
+    assert np.all(both <= protein_only + _tol(problem))
+
+
+# --- edge cases ------------------------------------------------------------------------------
+
+
+def test_no_forage() -> None:
+    result = nutritional_capacity(
+        [[0.0, 0.0], [5.0, 5.0]], [3.0, 2.0], 2.0, 2.5, use_cap=[[1.0, 1.0], [0.0, 0.0]]
+    )
+    assert result.animal_days.tolist() == [0.0, 0.0]
+    assert result.limiting_factor.tolist() == ["no_forage", "no_forage"]
+    assert result.diet_de_kcal_per_g.tolist() == [0.0, 0.0]
+    assert result.marginal_item.tolist() == [-1, -1]
+
+
+def test_no_item_reaches_threshold_gives_intake() -> None:
+    result = nutritional_capacity([10.0, 20.0], [2.0, 2.4], 2.0, 2.5, dp_pct=[8, 9], dp_min_pct=5)
+    assert result.animal_days.tolist() == [0.0]
+    assert result.limiting_factor.tolist() == ["intake"]
+    assert result.diet_de_kcal_per_g.tolist() == [0.0] and result.diet_dp_pct.tolist() == [0.0]
+    assert result.marginal_item.tolist() == [-1]
+
+
+def test_no_mix_meets_both_nutrients_gives_intake() -> None:
+    # One item rich in energy only, one in protein only, each too poor in the other for any
+    # mix: 0.5 x1 - 1.0 x2 >= 0 and -6 x1 + 2 x2 >= 0 force x2 <= x1/2 and x2 >= 3 x1.
+    result = nutritional_capacity([10.0, 10.0], [3.0, 1.5], 1.0, 2.5, dp_pct=[0, 8], dp_min_pct=6)
+    assert result.animal_days.tolist() == [0.0]
+    assert result.limiting_factor.tolist() == ["intake"]
+
+
+def test_every_item_above_threshold_is_eaten() -> None:
+    result = nutritional_capacity([10.0, 20.0], [3.0, 2.8], 2.0, 2.5, use_cap=[0.5, 1.0])
+    np.testing.assert_array_equal(result.eaten_kg, [[5.0, 20.0]])
+    assert result.animal_days.tolist() == [12.5]
+    assert result.limiting_factor.tolist() == ["quantity"]
+    assert result.marginal_item.tolist() == [-1]
+
+
+def test_quality_within_tolerance_of_threshold_meets_it() -> None:
+    # 1e-13 below T counts as meeting T (tolerance 1e-12): the item is eaten in full.
+    result = nutritional_capacity([10.0], [2.5 - 1e-13], 1.0, 2.5)
+    assert result.animal_days.tolist() == [10.0]
+    assert result.limiting_factor.tolist() == ["quantity"]
+    below = nutritional_capacity([10.0], [2.5 - 1e-9], 1.0, 2.5)
+    assert below.limiting_factor.tolist() == ["intake"]
+    # The same for DP: an energy-rich item 1e-13 % below P is eaten, 1e-6 % below is not.
+    for gap, eaten in [(1e-13, 10.0), (1e-6, 0.0)]:
+        result = nutritional_capacity([10.0], [3.0], 1.0, 2.5, dp_pct=[5 - gap], dp_min_pct=5)
+        assert result.animal_days.tolist() == [eaten]
+
+
+def test_item_exactly_at_threshold_with_poorer_items() -> None:
+    # No surplus to spend: the item at T is eaten, nothing below T is; energy binds.
+    result = nutritional_capacity([10.0, 30.0], [2.5, 2.0], 1.0, 2.5)
+    np.testing.assert_array_equal(result.eaten_kg, [[10.0, 0.0]])
+    assert result.limiting_factor.tolist() == ["energy"]
+    assert result.diet_de_kcal_per_g.tolist() == [2.5]
+
+
+def test_one_dimensional_input_is_one_unit_and_empty_input_is_empty() -> None:
+    single = nutritional_capacity([10.0, 30.0], [3.0, 2.0], [1.0], [2.5])
+    assert single.animal_days.shape == (1,) and single.eaten_kg.shape == (1, 2)
+    empty = nutritional_capacity(np.zeros((0, 3)), [3.0, 2.0, 1.0], 1.0, 2.5)
+    assert empty.animal_days.shape == (0,) and empty.eaten_kg.shape == (0, 3)
+    no_items = nutritional_capacity(np.zeros((2, 0)), np.zeros(0), 1.0, 2.5)
+    assert no_items.limiting_factor.tolist() == ["no_forage", "no_forage"]
+
+
+@pytest.mark.parametrize(
+    ("changes", "source", "location"),
+    [
+        ({"available_kg": [[10.0, -1.0]]}, "available_kg", "unit 0, item 1"),
+        ({"available_kg": [[10.0, np.nan]]}, "available_kg", "unit 0, item 1"),
+        ({"available_kg": [[[10.0, 1.0]]]}, "available_kg", None),
+        ({"available_kg": [["a", "b"]]}, "available_kg", None),
+        ({"de_kcal_per_g": [3.0, np.inf]}, "de_kcal_per_g", "item 1"),
+        ({"de_kcal_per_g": [3.0, 2.0, 1.0]}, "de_kcal_per_g", None),
+        ({"intake_kg_per_day": 0.0}, "intake_kg_per_day", None),
+        ({"intake_kg_per_day": [-1.0]}, "intake_kg_per_day", "unit 0"),
+        ({"de_min_kcal_per_g": [2.5, 2.5]}, "de_min_kcal_per_g", None),
+        ({"use_cap": [0.5, 1.5]}, "use_cap", "item 1"),
+        ({"use_cap": -0.1}, "use_cap", None),
+        ({"dp_pct": [5.0, 6.0]}, "dp_min_pct", None),
+        ({"dp_min_pct": 5.0}, "dp_pct", None),
+        ({"dp_pct": [5.0, np.nan], "dp_min_pct": 5.0}, "dp_pct", "item 1"),
+    ],
+)
+def test_bad_input_raises_input_error(changes: dict, source: str, location: str | None) -> None:
+    good = {
+        "available_kg": [[10.0, 30.0]],
+        "de_kcal_per_g": [3.0, 2.0],
+        "intake_kg_per_day": 2.0,
+        "de_min_kcal_per_g": 2.5,
+    }
+    with pytest.raises(InputError) as info:
+        nutritional_capacity(**{**good, **changes})
+    assert info.value.source == source
+    assert info.value.location == location
+
+
+def test_bad_input_to_ecc_and_allowable_use() -> None:
+    with pytest.raises(InputError, match="de_requirement_kcal_per_day"):
+        ecological_capacity([10.0], [3.0], 0.0)
+    with pytest.raises(InputError, match="allowable_use"):
+        allowable_use_capacity([10.0], [1.2], 2.0)
+    with pytest.raises(InputError, match="intake_kg_per_day"):
+        allowable_use_capacity([10.0], [0.5], np.nan)
