@@ -144,6 +144,12 @@ cap_at_allowable_use = true
 
 [pooling]
 mode = "unit"
+
+[uncertainty]
+bootstrap_replicates = 1000
+interval_level = 0.9
+seed = 20261201
+sensitivity_change = 0.1
 """
 
 

@@ -83,12 +83,19 @@ class CapacityProblem:
         The unit each row belongs to (index into ``unit_ids``).
     items : ForageItems
     available_kg : array, shape (rows, items) [kg DM]
+    row_stratum_ha : array, shape (rows, strata) [ha], optional
+        Accessible hectares of each stratum in each row, when the supply is
+        stratum means × hectares (lets the supply be re-drawn, e.g. by the bootstrap).
+    strata : list of str, optional
+        Column labels of ``row_stratum_ha``.
     """
 
     unit_ids: np.ndarray
     row_unit: np.ndarray
     items: ForageItems
     available_kg: np.ndarray
+    row_stratum_ha: np.ndarray | None = None
+    strata: list[str] | None = None
 
     def sum_by_unit(self, values: np.ndarray) -> np.ndarray:
         """Sum per-row ``values`` (rows, ...) into units (units, ...)."""
@@ -127,7 +134,7 @@ def build_problem(
         hectares = np.zeros((len(table), len(supply.strata)))
         hectares[np.arange(len(table)), stratum_index] = accessible
     available = available_forage_kg(items, hectares, supply.strata)
-    return CapacityProblem(unit_ids, row_unit, items, available)
+    return CapacityProblem(unit_ids, row_unit, items, available, hectares, list(supply.strata))
 
 
 def solve_problem(

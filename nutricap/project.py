@@ -102,6 +102,15 @@ class PoolingSection(_Section):
     mode: Literal["unit", "patch"] = "unit"
 
 
+class UncertaintySection(_Section):
+    """``[uncertainty]``: stratified bootstrap over plots and one-at-a-time sensitivity."""
+
+    bootstrap_replicates: int = Field(default=0, ge=0, le=100_000)
+    interval_level: float = Field(default=0.9, gt=0, lt=1)
+    seed: int = Field(default=20261201, ge=0)
+    sensitivity_change: float = Field(default=0.1, ge=0, lt=1)
+
+
 class ProjectConfig(_Section):
     """The whole project file."""
 
@@ -111,6 +120,7 @@ class ProjectConfig(_Section):
     supply: SupplySection = SupplySection()
     forage_use: ForageUseSection = ForageUseSection()
     pooling: PoolingSection = PoolingSection()
+    uncertainty: UncertaintySection = UncertaintySection()
 
 
 class Project:

@@ -8,7 +8,7 @@ Writing files is left to :mod:`nutricap.report.tables`.
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 
 import geopandas as gpd
@@ -18,7 +18,7 @@ import pandas as pd
 from nutricap.assess import assess_use, current_animals_from_counts
 from nutricap.errors import InputError, ProjectFileError, TableError
 from nutricap.inputs import read_animal_classes, read_forage_classes, read_plots
-from nutricap.landscape.plots import StratumSupply, stratum_supply
+from nutricap.landscape.plots import StratumSupply, plot_biomass_matrix, stratum_supply
 from nutricap.landscape.vectors import (
     StratumAreas,
     overlay_strata_on_units,
@@ -38,8 +38,15 @@ from nutricap.project import Project
 from nutricap.report.tables import markdown_table, write_csv, write_geopackage, write_json
 from nutricap.science import energetics
 from nutricap.science.forage_quality import mixed_diet_quality
+from nutricap.sensitivity import input_groups
 from nutricap.tables import spreadsheet_row
 from nutricap.trend import read_counts
+from nutricap.uncertainty import (
+    BootstrapResult,
+    add_intervals,
+    bootstrap_capacity,
+    one_at_a_time,
+)
 
 Progress = Callable[[str], None]
 HA_PER_KM2 = 100.0
@@ -79,57 +86,40 @@ class Estimate:
     herd: energetics.HerdRequirement
     target: DietTarget
     season_days: float
+    uncertainty: Uncertainty = field(default_factory=lambda: Uncertainty())
     notes: list[str] = field(default_factory=list)
 
 
+@dataclass(frozen=True)
+class Inputs:
+    """The project's tables and layers, read and checked."""
+
+    forage_classes: pd.DataFrame
+    plots: pd.DataFrame
+    animals: pd.DataFrame
+    units: gpd.GeoDataFrame
+    strata: gpd.GeoDataFrame
+
+
 def estimate(project: Project, progress: Progress | None = None) -> Estimate:
-    """Run the whole estimate for ``project`` and return the results (nothing is written)."""
+    """Run the whole estimate for ``project`` and return the results (nothing is written).
+
+    supply → availability → pool by unit → solve → uncertainty → current use.
+    """
     say = progress or (lambda message: None)
-    config = project.config
-    say("reading tables")
-    forage_classes = read_forage_classes(project.input_path("forage_classes"))
-    plots = read_plots(project.input_path("plots"))
-    animals = read_animal_classes(project.input_path("animal_classes"))
-    say("reading layers and overlaying strata on units")
-    units = read_units(project.input_path("units"), config.inputs.units_layer)
-    strata = read_strata(project.input_path("strata"), config.inputs.strata_layer)
-    areas = overlay_strata_on_units(
-        units,
-        strata,
-        units_path=project.input_path("units"),
-        strata_path=project.input_path("strata"),
-    )
-    _require_units_on_map(areas, project)
-    say("summarising clip plots by stratum")
-    classes = sorted(forage_classes.loc[forage_classes["stratum"] == "", "forage_class"])
-    supply = stratum_supply(
-        plots,
-        classes,
-        sorted(strata["stratum"].unique()),
-        plots_path=project.input_path("plots"),
-        strata_path=project.input_path("strata"),
-        strata_without_forage=config.supply.strata_without_forage,
-    )
-    items = build_forage_items(supply, forage_classes)
-    problem = build_problem(areas, supply, items, config.pooling.mode)
+    days = project.config.project.days
+    inputs = read_inputs(project, say)
+    areas, supply, problem = build_supply(project, inputs, say)
     say("computing the herd's requirements")
-    herd = herd_requirement(animals, project)
-    target = diet_target(animals, project)
+    herd = herd_requirement(inputs.animals, project)
+    target = diet_target(inputs.animals, project)
     say("solving capacity per unit")
     solution = solve(problem, herd, target, project)
-    by_unit = unit_table(problem, solution, areas, herd, config.project.days)
-    current = current_animals(project, areas)
-    use_by_class = None
-    if current is not None:
-        say("assessing current use")
-        by_unit, use_by_class = assess_use(
-            problem,
-            by_unit,
-            current,
-            intake_kg_per_day=herd.intake_kg_per_day,
-            season_days=config.project.days,
-            preference=problem.items.preference,
-        )
+    by_unit = unit_table(problem, solution, areas, herd, days)
+    uncertainty = assess_uncertainty(project, inputs, supply, problem, herd, target, say)
+    if uncertainty.bootstrap is not None:
+        by_unit = add_intervals(by_unit, uncertainty.bootstrap, days)
+    by_unit, use_by_class = assess_current_use(project, areas, problem, by_unit, herd, say)
     return Estimate(
         by_unit=by_unit,
         use_by_class=use_by_class,
@@ -141,8 +131,142 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
         solution=solution,
         herd=herd,
         target=target,
-        season_days=config.project.days,
-        notes=_supply_notes(supply, plots),
+        season_days=days,
+        uncertainty=uncertainty,
+        notes=_supply_notes(supply, inputs.plots),
+    )
+
+
+def read_inputs(project: Project, say: Progress) -> Inputs:
+    """Read and check every table and layer of the project."""
+    config = project.config
+    say("reading tables")
+    forage_classes = read_forage_classes(project.input_path("forage_classes"))
+    plots = read_plots(project.input_path("plots"))
+    animals = read_animal_classes(project.input_path("animal_classes"))
+    say("reading layers")
+    units = read_units(project.input_path("units"), config.inputs.units_layer)
+    strata = read_strata(project.input_path("strata"), config.inputs.strata_layer)
+    return Inputs(forage_classes, plots, animals, units, strata)
+
+
+def build_supply(
+    project: Project, inputs: Inputs, say: Progress
+) -> tuple[StratumAreas, StratumSupply, CapacityProblem]:
+    """Overlay strata on units, summarise plots by stratum, pool into the capacity problem."""
+    config = project.config
+    say("overlaying strata on units")
+    areas = overlay_strata_on_units(
+        inputs.units,
+        inputs.strata,
+        units_path=project.input_path("units"),
+        strata_path=project.input_path("strata"),
+    )
+    _require_units_on_map(areas, project)
+    say("summarising clip plots by stratum")
+    supply = stratum_supply(
+        inputs.plots,
+        _general_classes(inputs.forage_classes),
+        sorted(inputs.strata["stratum"].unique()),
+        plots_path=project.input_path("plots"),
+        strata_path=project.input_path("strata"),
+        strata_without_forage=config.supply.strata_without_forage,
+    )
+    items = build_forage_items(supply, inputs.forage_classes)
+    return areas, supply, build_problem(areas, supply, items, config.pooling.mode)
+
+
+def _general_classes(forage_classes: pd.DataFrame) -> list[str]:
+    return sorted(forage_classes.loc[forage_classes["stratum"] == "", "forage_class"])
+
+
+@dataclass(frozen=True)
+class Uncertainty:
+    """Bootstrap replicates (None when not asked for) and the sensitivity table."""
+
+    bootstrap: BootstrapResult | None = None
+    sensitivity: pd.DataFrame | None = None
+    change: float = 0.0
+
+
+def assess_uncertainty(
+    project: Project,
+    inputs: Inputs,
+    supply: StratumSupply,
+    problem: CapacityProblem,
+    herd: energetics.HerdRequirement,
+    target: DietTarget,
+    say: Progress,
+) -> Uncertainty:
+    """Stratified bootstrap over plots and the one-at-a-time sensitivity of total NCC."""
+    settings = project.config.uncertainty
+    bootstrap = None
+    if settings.bootstrap_replicates > 0 and problem.row_stratum_ha is not None:
+        say(f"bootstrap over plots: {settings.bootstrap_replicates} replicates")
+        wide = plot_biomass_matrix(inputs.plots, supply.classes)
+        bootstrap = bootstrap_capacity(
+            problem,
+            wide[supply.classes].to_numpy(),
+            pd.Index(supply.strata).get_indexer(wide["stratum"]),
+            lambda rows: solve(rows, herd, target, project),
+            replicates=settings.bootstrap_replicates,
+            level=settings.interval_level,
+            seed=settings.seed,
+        )
+    sensitivity = None
+    if settings.sensitivity_change > 0:
+        say(f"sensitivity of total NCC to ±{settings.sensitivity_change:.0%} changes")
+        sensitivity = sensitivity_table(project, inputs.animals, problem, herd, target)
+    return Uncertainty(bootstrap, sensitivity, settings.sensitivity_change)
+
+
+def sensitivity_table(
+    project: Project,
+    animals: pd.DataFrame,
+    problem: CapacityProblem,
+    herd: energetics.HerdRequirement,
+    target: DietTarget,
+) -> pd.DataFrame:
+    """Tornado table of total NCC [animals] for ± the configured change of each input group."""
+    days = project.config.project.days
+
+    def total_for(problem=problem, herd=herd, de_factor=1.0, dp_factor=1.0) -> float:
+        moved = replace(
+            target,
+            de_min_kcal_per_g=target.de_min_kcal_per_g * de_factor,
+            dp_min_pct=None if target.dp_min_pct is None else target.dp_min_pct * dp_factor,
+        )
+        return float(solve(problem, herd, moved, project).ncc.animal_days.sum() / days)
+
+    def herd_for_mass(factor: float) -> energetics.HerdRequirement:
+        heavier = animals.assign(body_mass_kg=animals["body_mass_kg"] * factor)
+        return herd_requirement(heavier, project)
+
+    groups = input_groups(problem, total_for, herd_for_mass, protein=target.dp_min_pct is not None)
+    change = project.config.uncertainty.sensitivity_change
+    return one_at_a_time(total_for(), groups, change)
+
+
+def assess_current_use(
+    project: Project,
+    areas: StratumAreas,
+    problem: CapacityProblem,
+    by_unit: pd.DataFrame,
+    herd: energetics.HerdRequirement,
+    say: Progress,
+) -> tuple[pd.DataFrame, pd.DataFrame | None]:
+    """Overuse columns when current numbers are known; the table unchanged otherwise."""
+    current = current_animals(project, areas)
+    if current is None:
+        return by_unit, None
+    say("assessing current use")
+    return assess_use(
+        problem,
+        by_unit,
+        current,
+        intake_kg_per_day=herd.intake_kg_per_day,
+        season_days=project.config.project.days,
+        preference=problem.items.preference,
     )
 
 
@@ -396,19 +520,20 @@ def run_estimate(
 def write_estimate(result: Estimate, project: Project, folder: Path) -> None:
     """Write the tables and the manifest of ``result`` into ``folder``."""
     config = project.config
+    totals = totals_table(result)
     write_csv(result.by_unit, folder / "capacity_by_unit.csv")
+    write_csv(totals, folder / "capacity_totals.csv")
     write_csv(result.by_unit_class, folder / "capacity_by_unit_class.csv")
     write_csv(result.supply.table(), folder / "supply_by_stratum.csv")
+    if result.use_by_class is not None:
+        write_csv(result.use_by_class, folder / "use_by_unit_class.csv")
+    if result.uncertainty.sensitivity is not None:
+        write_csv(result.uncertainty.sensitivity, folder / "sensitivity.csv")
     write_geopackage(result.by_unit, result.units, folder / "capacity_by_unit.gpkg")
     context = [
         f"{config.project.species}, {config.project.name}; season of {result.season_days:g} days.",
-        f"Target diet: DE ≥ {result.target.de_min_kcal_per_g:.3f} kcal/g DM"
-        + (
-            f", DP ≥ {result.target.dp_min_pct:.2f} %"
-            if result.target.dp_min_pct is not None
-            else ""
-        )
-        + f" ({result.target.derivation}).",
+        f"Target diet: {target_words(result.target)}.",
+        *[_total_words(row) for row in totals.itertuples()],
     ]
     markdown = markdown_table(result.by_unit, title="Capacity by unit", context_lines=context)
     (folder / "capacity_by_unit.md").write_text(markdown, encoding="utf-8")
@@ -420,6 +545,45 @@ def write_estimate(result: Estimate, project: Project, folder: Path) -> None:
         derived=_derived_values(result),
     )
     write_json(manifest, folder / "run.json")
+
+
+def target_words(target: DietTarget) -> str:
+    """The target diet in words: thresholds and how they were obtained."""
+    protein = f", DP ≥ {target.dp_min_pct:.2f} %" if target.dp_min_pct is not None else ""
+    return f"DE ≥ {target.de_min_kcal_per_g:.3f} kcal/g DM{protein} ({target.derivation})"
+
+
+def totals_table(result: Estimate) -> pd.DataFrame:
+    """Total NCC, ECC and allowable-use capacity over all units [animals], with intervals."""
+    table = result.by_unit
+    rows = pd.DataFrame(
+        {
+            "figure": ["ncc", "ecc", "allowable_use"],
+            "total_animals": [
+                table["ncc_animals"].sum(),
+                table["ecc_animals"].sum(),
+                table["allowable_use_animals"].sum(),
+            ],
+        }
+    )
+    bootstrap = result.uncertainty.bootstrap
+    if bootstrap is not None:
+        intervals = bootstrap.total_intervals(result.season_days)
+        rows["total_animals_lo"] = [intervals[name][0] for name in rows["figure"]]
+        rows["total_animals_hi"] = [intervals[name][1] for name in rows["figure"]]
+        rows["interval_level"] = bootstrap.level
+    return rows
+
+
+def _total_words(row) -> str:
+    names = {"ncc": "NCC", "ecc": "ECC", "allowable_use": "Capacity at allowable use"}
+    words = f"{names[row.figure]}, all units: {row.total_animals:,.0f} animals"
+    if hasattr(row, "total_animals_lo"):
+        words += (
+            f" ({row.interval_level:.0%} bootstrap interval "
+            f"{row.total_animals_lo:,.0f}–{row.total_animals_hi:,.0f})"
+        )
+    return words + "."
 
 
 def _derived_values(result: Estimate) -> dict:

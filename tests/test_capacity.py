@@ -353,9 +353,8 @@ def test_ncc_does_not_fall_when_forage_added(problem: dict, data: st.DataObject)
     # More forage enlarges the box 0 <= x <= a; the old optimum stays feasible.
     shape = problem["available_kg"].shape
     extra = data.draw(hnp.arrays(float, shape, elements=st.floats(0.0, 1e4, allow_nan=False)))
-    more = _ncc(problem, available_kg=problem["available_kg"] + extra)
-    assert np.all(more >= _ncc(problem) - _tol({**problem, "available_kg": problem["available_kg"]
-                                                + extra}))
+    larger = {**problem, "available_kg": problem["available_kg"] + extra}
+    assert np.all(_ncc(larger) >= _ncc(problem) - _tol(larger))
 
 
 @settings(max_examples=150, deadline=None)
@@ -389,9 +388,13 @@ def test_two_nutrient_ncc_at_most_each_single_nutrient(problem: dict, data: st.D
 
 
 # --- edge cases ------------------------------------------------------------------------------
+# Expected values: the defined answers of the module's contract (docs/methods_capacity.md,
+# "Input checks and edge cases"), with the arithmetic in a comment where there is any.
+# Inputs invented for the example.
 
 
 def test_no_forage() -> None:
+    # Unit 0 has no forage; unit 1 has forage but a use cap of 0: nothing may be eaten.
     result = nutritional_capacity(
         [[0.0, 0.0], [5.0, 5.0]], [3.0, 2.0], 2.0, 2.5, use_cap=[[1.0, 1.0], [0.0, 0.0]]
     )
@@ -402,6 +405,7 @@ def test_no_forage() -> None:
 
 
 def test_no_item_reaches_threshold_gives_intake() -> None:
+    # Both items below T = 2.5 kcal/g: no surplus to spend on them, capacity 0.
     result = nutritional_capacity([10.0, 20.0], [2.0, 2.4], 2.0, 2.5, dp_pct=[8, 9], dp_min_pct=5)
     assert result.animal_days.tolist() == [0.0]
     assert result.limiting_factor.tolist() == ["intake"]
@@ -411,13 +415,15 @@ def test_no_item_reaches_threshold_gives_intake() -> None:
 
 def test_no_mix_meets_both_nutrients_gives_intake() -> None:
     # One item rich in energy only, one in protein only, each too poor in the other for any
-    # mix: 0.5 x1 - 1.0 x2 >= 0 and -6 x1 + 2 x2 >= 0 force x2 <= x1/2 and x2 >= 3 x1.
+    # mix: 0.5 x1 - 1.0 x2 >= 0 and -6 x1 + 2 x2 >= 0 force x2 <= x1/2 and x2 >= 3 x1,
+    # so x1 = x2 = 0 (hand arithmetic).
     result = nutritional_capacity([10.0, 10.0], [3.0, 1.5], 1.0, 2.5, dp_pct=[0, 8], dp_min_pct=6)
     assert result.animal_days.tolist() == [0.0]
     assert result.limiting_factor.tolist() == ["intake"]
 
 
 def test_every_item_above_threshold_is_eaten() -> None:
+    # Both items above T; capped amounts 0.5 * 10 = 5 and 20 kg; (5 + 20) / 2 = 12.5 days.
     result = nutritional_capacity([10.0, 20.0], [3.0, 2.8], 2.0, 2.5, use_cap=[0.5, 1.0])
     np.testing.assert_array_equal(result.eaten_kg, [[5.0, 20.0]])
     assert result.animal_days.tolist() == [12.5]

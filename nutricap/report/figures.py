@@ -81,7 +81,8 @@ def figure_png(figure: Figure, *, dpi: int = PNG_DPI) -> bytes:
         The PNG file's bytes.
     """
     buffer = io.BytesIO()
-    figure.savefig(buffer, format="png", dpi=dpi, metadata={"Software": None})
+    figure.savefig(buffer, format="png", dpi=dpi, bbox_inches="tight", pad_inches=0.08,
+                   metadata={"Software": None})
     return buffer.getvalue()
 
 
@@ -385,8 +386,16 @@ def _require_columns(table: pd.DataFrame, columns: Sequence[str], what: str) -> 
 
 TORNADO_COLUMNS = ("input", "low_change_animals", "high_change_animals")
 
+#: Largest number of inputs drawn in the tornado chart (the table lists them all).
+MAX_TORNADO_INPUTS = 15
 
-def tornado_figure(sensitivity_table: pd.DataFrame) -> Figure:
+
+def tornado_figure(
+    sensitivity_table: pd.DataFrame,
+    *,
+    change: float | None = None,
+    max_inputs: int = MAX_TORNADO_INPUTS,
+) -> Figure:
     """Tornado chart of the change in capacity when each input is set low and high.
 
     Parameters
@@ -394,6 +403,12 @@ def tornado_figure(sensitivity_table: pd.DataFrame) -> Figure:
     sensitivity_table : pandas.DataFrame
         Columns ``input`` (name), ``low_change_animals`` and ``high_change_animals``: change in
         total NCC with the input at its low and at its high value [animals].
+    change : float, optional
+        The fractional change that made the low and high values (0.1 for ±10 %), for the
+        legend.
+    max_inputs : int, default :data:`MAX_TORNADO_INPUTS`
+        Draw at most this many inputs (the widest ranges); the title says when some are left
+        out.
 
     Returns
     -------
@@ -401,15 +416,16 @@ def tornado_figure(sensitivity_table: pd.DataFrame) -> Figure:
         Inputs sorted by range |high − low|, the widest at the top.
     """
     _require_columns(sensitivity_table, TORNADO_COLUMNS, "sensitivity table")
-    table = sort_by_range(sensitivity_table).iloc[::-1]
+    table = sort_by_range(sensitivity_table).iloc[:max_inputs].iloc[::-1]
     figure = _new_figure(8.0, max(2.8, 0.42 * len(table) + 1.5))
     ax = figure.add_subplot()
     rows = np.arange(len(table))
+    low, high = ("low value", "high value") if not change else (f"{-change:+.0%}", f"{change:+.0%}")
     ax.barh(rows, table["low_change_animals"].to_numpy(dtype=float), height=0.6,
-            color=OKABE_ITO["sky_blue"], edgecolor=OKABE_ITO["black"], label="input at low value")
+            color=OKABE_ITO["sky_blue"], edgecolor=OKABE_ITO["black"], label=f"input at {low}")
     ax.barh(rows, table["high_change_animals"].to_numpy(dtype=float), height=0.6,
             color=OKABE_ITO["vermillion"], edgecolor=OKABE_ITO["black"], hatch="//",
-            label="input at high value")
+            label=f"input at {high}")
     ax.axvline(0.0, color=OKABE_ITO["black"], linewidth=1)
     ax.set_axisbelow(True)
     ax.set_yticks(rows, [str(name) for name in table["input"]])
@@ -418,7 +434,10 @@ def tornado_figure(sensitivity_table: pd.DataFrame) -> Figure:
     ax.xaxis.set_major_formatter(FuncFormatter(_signed))
     ax.grid(axis="x", color="#eeeeee")
     ax.legend(fontsize=8, framealpha=0.9)
-    ax.set_title("Sensitivity of NCC to each input")
+    title = "Sensitivity of total NCC to each input"
+    if len(table) < len(sensitivity_table):
+        title += f" ({len(table)} widest of {len(sensitivity_table)})"
+    ax.set_title(title)
     return figure
 
 

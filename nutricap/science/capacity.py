@@ -222,10 +222,10 @@ def _fill_to_threshold(allowed: np.ndarray, surplus: np.ndarray) -> tuple[np.nda
         used up exactly at an item boundary); -1 where every allowed item is eaten in full.
     """
     n_units, n_items = allowed.shape
-    order = np.argsort(-surplus, axis=1)
+    order = np.argsort(surplus, axis=1)[:, ::-1]  # descending; faster than argsort(-surplus)
     flat = (order + (np.arange(n_units) * n_items)[:, np.newaxis]).ravel()
-    allowed_sorted = allowed.ravel()[flat].reshape(allowed.shape)
-    surplus_sorted = surplus.ravel()[flat].reshape(allowed.shape)
+    allowed_sorted = np.take(allowed, flat).reshape(allowed.shape)
+    surplus_sorted = np.take(surplus, flat).reshape(allowed.shape)
     # Non-negative items come first, so the running balance rises, then falls monotonically
     # (floating-point addition of a non-positive term never increases a sum): the items with
     # balance >= 0 form a prefix, and they are eaten in full.
@@ -404,13 +404,42 @@ def _two_nutrients(
     return eaten, marginal, code
 
 
-# --- public API ------------------------------------------------------------------------------
+# --- results ---------------------------------------------------------------------------------
 
 
 def _mean_quality(eaten: np.ndarray, total: np.ndarray, quality: np.ndarray) -> np.ndarray:
     """Mass-weighted diet quality; 0.0 where nothing is eaten (never NaN)."""
     weighted = np.einsum("ij,ij->i", eaten, quality)
     return np.divide(weighted, total, out=np.zeros_like(total), where=total > 0.0)
+
+
+def _assemble(
+    allowed: np.ndarray,
+    eaten: np.ndarray,
+    marginal: np.ndarray,
+    code: np.ndarray,
+    de: np.ndarray,
+    dp: np.ndarray | None,
+    intake: np.ndarray,
+) -> NutritionalCapacity:
+    """Totals, limiting-factor labels and diet quality from a solved problem."""
+    total = eaten.sum(axis=1)
+    everything = np.all(eaten >= allowed, axis=1)
+    code = np.where(everything, _QUANTITY, code)
+    code = np.where(total > 0.0, code, _INTAKE)
+    code = np.where(allowed.sum(axis=1) > 0.0, code, _NO_FORAGE)
+    marginal = np.where((total > 0.0) & ~everything, marginal, -1)
+    return NutritionalCapacity(
+        animal_days=total / intake,
+        eaten_kg=eaten,
+        limiting_factor=_LABELS[code],
+        diet_de_kcal_per_g=_mean_quality(eaten, total, de),
+        diet_dp_pct=None if dp is None else _mean_quality(eaten, total, dp),
+        marginal_item=marginal,
+    )
+
+
+# --- public API ------------------------------------------------------------------------------
 
 
 def nutritional_capacity(
@@ -510,32 +539,6 @@ def nutritional_capacity(
     return _assemble(allowed, eaten, marginal, code, de, dp, intake)
 
 
-def _assemble(
-    allowed: np.ndarray,
-    eaten: np.ndarray,
-    marginal: np.ndarray,
-    code: np.ndarray,
-    de: np.ndarray,
-    dp: np.ndarray | None,
-    intake: np.ndarray,
-) -> NutritionalCapacity:
-    """Totals, limiting-factor labels and diet quality from a solved problem."""
-    total = eaten.sum(axis=1)
-    everything = np.all(eaten >= allowed, axis=1)
-    code = np.where(everything, _QUANTITY, code)
-    code = np.where(total > 0.0, code, _INTAKE)
-    code = np.where(allowed.sum(axis=1) > 0.0, code, _NO_FORAGE)
-    marginal = np.where((total > 0.0) & ~everything, marginal, -1)
-    return NutritionalCapacity(
-        animal_days=total / intake,
-        eaten_kg=eaten,
-        limiting_factor=_LABELS[code],
-        diet_de_kcal_per_g=_mean_quality(eaten, total, de),
-        diet_dp_pct=None if dp is None else _mean_quality(eaten, total, dp),
-        marginal_item=marginal,
-    )
-
-
 def ecological_capacity(
     available_kg: ArrayLike,
     de_kcal_per_g: ArrayLike,
@@ -581,10 +584,8 @@ def ecological_capacity(
     """
     available = _forage(available_kg)
     de = _per_item(de_kcal_per_g, "de_kcal_per_g", available.shape, 0.0, np.inf)
-    requirement = _per_unit(
-        de_requirement_kcal_per_day, "de_requirement_kcal_per_day", len(available), 0.0,
-        np.inf, True,
-    )
+    name = "de_requirement_kcal_per_day"
+    requirement = _per_unit(de_requirement_kcal_per_day, name, len(available), 0.0, np.inf, True)
     allowed = _allowed_kg(available, use_cap)
     return np.einsum("ij,ij->i", allowed, de) * G_PER_KG / requirement
 
@@ -614,7 +615,8 @@ def allowable_use_capacity(
 
     References
     ----------
-    Holechek, J.L. 1988. An approach for setting the stocking rate. Rangelands 10:10-14.
+    Holechek, J.L. 1988. An approach for setting the stocking rate. Rangelands 10:10-14
+    (form of the equation from memory; the paper was not re-read for this module).
 
     Examples
     --------

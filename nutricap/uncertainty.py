@@ -1,0 +1,187 @@
+"""Uncertainty of the capacity figures: stratified bootstrap and one-at-a-time sensitivity.
+
+Bootstrap (Efron & Tibshirani 1993, *An Introduction to the Bootstrap*, ch. 13
+percentile intervals; stratified resampling as in their ch. 8, from memory):
+plots are resampled with replacement *within each stratum*, the stratum means
+are recomputed, and every replicate's capacity problem is solved. The spatial
+work (overlay, hectares) is done once; all replicates are stacked into one
+problem and solved in a single vectorised call.
+
+Sensitivity: each input group is moved down and up by a stated fraction, one
+at a time, and the change in total NCC is recorded (a tornado table). This is
+deterministic one-at-a-time perturbation, not sampling, so no sampling library
+is needed.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, replace
+
+import numpy as np
+import pandas as pd
+
+from nutricap.problem import CapacityProblem, Solution
+
+FIGURES = ("ncc", "ecc", "allowable_use")
+SolveRows = Callable[[CapacityProblem], Solution]
+
+
+@dataclass(frozen=True)
+class BootstrapResult:
+    """Replicate capacities and their percentile intervals.
+
+    Attributes
+    ----------
+    replicate_animal_days : dict of str → array, shape (replicates, units)
+        Per figure (``ncc``, ``ecc``, ``allowable_use``) [animal-days].
+    level : float
+        Interval level, e.g. 0.9.
+    """
+
+    replicate_animal_days: dict[str, np.ndarray]
+    level: float
+
+    def unit_intervals(self, season_days: float) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+        """``figure → (lo, hi)`` per unit [animals]."""
+        return {
+            name: percentile_interval(days / season_days, self.level)
+            for name, days in self.replicate_animal_days.items()
+        }
+
+    def total_intervals(self, season_days: float) -> dict[str, tuple[float, float]]:
+        """``figure → (lo, hi)`` of the total over units [animals]."""
+        result = {}
+        for name, days in self.replicate_animal_days.items():
+            lo, hi = percentile_interval(days.sum(axis=1)[:, None] / season_days, self.level)
+            result[name] = (float(lo[0]), float(hi[0]))
+        return result
+
+
+def percentile_interval(replicates: np.ndarray, level: float) -> tuple[np.ndarray, np.ndarray]:
+    """Percentile interval over axis 0 at ``level`` (e.g. 0.9 → 5th and 95th percentiles)."""
+    tail = (1.0 - level) / 2.0 * 100.0
+    lo, hi = np.percentile(replicates, [tail, 100.0 - tail], axis=0)
+    return lo, hi
+
+
+def resample_stratum_means(
+    plot_biomass_kg_per_ha: np.ndarray,
+    plot_stratum: np.ndarray,
+    n_strata: int,
+    replicates: int,
+    rng: np.random.Generator,
+) -> np.ndarray:
+    """Bootstrap means per stratum and class.
+
+    Parameters
+    ----------
+    plot_biomass_kg_per_ha : array, shape (plots, classes) [kg/ha]
+    plot_stratum : int array, shape (plots,)
+        Stratum index of each plot.
+    n_strata : int
+    replicates : int
+    rng : numpy Generator
+
+    Returns
+    -------
+    array, shape (replicates, strata, classes) [kg/ha]
+        Each stratum's plots drawn with replacement, as many as it has; zero
+        for strata without plots.
+    """
+    classes = plot_biomass_kg_per_ha.shape[1]
+    means = np.zeros((replicates, n_strata, classes))
+    for stratum in range(n_strata):
+        values = plot_biomass_kg_per_ha[plot_stratum == stratum]
+        if len(values) == 0:
+            continue
+        draws = rng.integers(0, len(values), size=(replicates, len(values)))
+        means[:, stratum, :] = values[draws].mean(axis=1)
+    return means
+
+
+def bootstrap_capacity(
+    problem: CapacityProblem,
+    plot_biomass_kg_per_ha: np.ndarray,
+    plot_stratum: np.ndarray,
+    solve_rows: SolveRows,
+    *,
+    replicates: int,
+    level: float,
+    seed: int,
+) -> BootstrapResult:
+    """Stratified bootstrap of NCC, ECC and allowable-use capacity per unit.
+
+    ``plot_biomass_kg_per_ha`` columns are the forage classes in the order in
+    which items repeat within a stratum (``problem.items`` is stratum-major:
+    item = stratum × classes + class).
+    """
+    rng = np.random.default_rng(seed)
+    n_strata = len(problem.strata)
+    means = resample_stratum_means(plot_biomass_kg_per_ha, plot_stratum, n_strata, replicates, rng)
+    biomass = means.reshape(replicates, -1)
+    column = pd.Index(problem.strata).get_indexer(problem.items.stratum)
+    available = problem.row_stratum_ha[None, :, column] * biomass[:, None, :]
+    rows = problem.row_unit.size
+    stacked = replace(
+        problem,
+        row_unit=np.tile(problem.row_unit, replicates)
+        + np.repeat(np.arange(replicates) * problem.unit_ids.size, rows),
+        unit_ids=np.tile(problem.unit_ids, replicates),
+        available_kg=available.reshape(replicates * rows, -1),
+    )
+    solution = solve_rows(stacked)
+    per_figure = {
+        "ncc": solution.ncc.animal_days,
+        "ecc": solution.ecc_animal_days,
+        "allowable_use": solution.allowable_use_animal_days,
+    }
+    shape = (replicates, problem.unit_ids.size)
+    return BootstrapResult(
+        {name: stacked.sum_by_unit(days).reshape(shape) for name, days in per_figure.items()},
+        level,
+    )
+
+
+def add_intervals(table: pd.DataFrame, result: BootstrapResult, season_days: float) -> pd.DataFrame:
+    """Add ``<figure>_animals_lo`` / ``_hi`` columns to the per-unit table."""
+    table = table.copy()
+    for name, (lo, hi) in result.unit_intervals(season_days).items():
+        table[f"{name}_animals_lo"] = lo
+        table[f"{name}_animals_hi"] = hi
+    return table
+
+
+TotalNcc = Callable[[float], float]
+
+
+def one_at_a_time(
+    baseline_total: float, perturbations: dict[str, TotalNcc], change: float
+) -> pd.DataFrame:
+    """Tornado table: change of total NCC when each input moves by ± ``change``.
+
+    Parameters
+    ----------
+    baseline_total : float
+        Total NCC at the inputs as given [animals].
+    perturbations : dict of str → callable
+        For each input group, a function of the multiplier (e.g. 0.9 or 1.1)
+        returning the total NCC with that group so multiplied [animals].
+    change : float
+        The fractional change, e.g. 0.1 for ±10 %.
+
+    Returns
+    -------
+    DataFrame
+        ``input, low_change_animals, high_change_animals, range_animals``,
+        largest range first.
+    """
+    rows = []
+    for name, total_at in perturbations.items():
+        low = total_at(1.0 - change) - baseline_total
+        high = total_at(1.0 + change) - baseline_total
+        rows.append((name, low, high, abs(high - low)))
+    table = pd.DataFrame(
+        rows, columns=["input", "low_change_animals", "high_change_animals", "range_animals"]
+    )
+    return table.sort_values("range_animals", ascending=False, kind="stable").reset_index(drop=True)

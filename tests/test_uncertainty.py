@@ -1,0 +1,172 @@
+"""Tests of nutricap.uncertainty and the sensitivity table.
+
+External checks: the bootstrap variance of a sample mean is (n−1)/n · s²/n
+(Efron & Tibshirani 1993, An Introduction to the Bootstrap, §5.2, from memory);
+percentile-interval width of a mean shrinks as 1/√n (standard sampling theory).
+"""
+
+import shutil
+from dataclasses import replace
+
+import numpy as np
+import pytest
+
+from nutricap.problem import CapacityProblem, ForageItems, solve_problem
+from nutricap.project import load_project
+from nutricap.uncertainty import (
+    bootstrap_capacity,
+    one_at_a_time,
+    percentile_interval,
+    resample_stratum_means,
+)
+from nutricap.workflow import estimate, totals_table
+
+
+def _items(strata, classes):
+    n = len(strata) * len(classes)
+    return ForageItems(
+        stratum=np.repeat(strata, len(classes)),
+        forage_class=np.tile(classes, len(strata)),
+        de_kcal_per_g=np.tile([2.9, 2.0], len(strata))[:n],
+        dp_pct=np.tile([6.0, 3.0], len(strata))[:n],
+        allowable_use=np.full(n, 0.5),
+        key=np.zeros(n, dtype=bool),
+        biomass_kg_per_ha=np.zeros(n),
+        preference=np.ones(n),
+    )
+
+
+def _problem(hectares):
+    strata = ["a", "b"]
+    return CapacityProblem(
+        unit_ids=np.array(["u1", "u2"]),
+        row_unit=np.array([0, 1]),
+        items=_items(strata, ["browse", "grass"]),
+        available_kg=np.zeros((2, 4)),
+        row_stratum_ha=np.asarray(hectares, dtype=float),
+        strata=strata,
+    )
+
+
+def _solve(rows):
+    return solve_problem(
+        rows,
+        intake_kg_per_day=1.5,
+        maintenance_de_kcal_per_day=3000.0,
+        de_min_kcal_per_g=2.4,
+        dp_min_pct=None,
+        cap_at_allowable_use=True,
+    )
+
+
+def _plots(rng, per_stratum):
+    values = np.vstack([rng.gamma(4.0, [50.0, 80.0], size=(per_stratum, 2)) for _ in range(2)])
+    return values, np.repeat([0, 1], per_stratum)
+
+
+def test_bootstrap_variance_of_a_mean_matches_theory():
+    rng = np.random.default_rng(11)
+    values = rng.gamma(3.0, 40.0, size=(25, 1))
+    means = resample_stratum_means(values, np.zeros(25, dtype=int), 1, 20_000, rng)[:, 0, 0]
+    n = 25
+    expected = (n - 1) / n * values[:, 0].var(ddof=1) / n  # Efron & Tibshirani 1993
+    assert means.var() == pytest.approx(expected, rel=0.05)
+    assert means.mean() == pytest.approx(values.mean(), rel=0.01)
+
+
+def test_identical_plots_collapse_the_interval():
+    values = np.tile([[120.0, 300.0]], (10, 1))
+    result = bootstrap_capacity(
+        _problem([[100, 50], [0, 200]]),
+        values,
+        np.repeat([0, 1], 5),
+        _solve,
+        replicates=200,
+        level=0.9,
+        seed=1,
+    )
+    for days in result.replicate_animal_days.values():
+        assert np.ptp(days, axis=0).max() == pytest.approx(0.0, abs=1e-9)
+
+
+def test_one_plot_per_stratum_collapses_to_the_point_estimate():
+    values = np.array([[120.0, 300.0], [80.0, 40.0]])
+    problem = _problem([[100, 50], [0, 200]])
+    result = bootstrap_capacity(
+        problem, values, np.array([0, 1]), _solve, replicates=100, level=0.9, seed=1
+    )
+    point = replace(
+        problem, available_kg=problem.row_stratum_ha[:, [0, 0, 1, 1]] * values.ravel()[None, :]
+    )
+    lo, hi = result.unit_intervals(1.0)["ncc"]
+    np.testing.assert_allclose(lo, _solve(point).ncc.animal_days)
+    np.testing.assert_allclose(hi, _solve(point).ncc.animal_days)
+
+
+def test_interval_shrinks_as_one_over_root_n_when_plots_are_duplicated():
+    rng = np.random.default_rng(5)
+    values, stratum = _plots(rng, 12)
+    problem = _problem([[100, 50], [30, 200]])
+    width = {}
+    for copies in (1, 4):
+        result = bootstrap_capacity(
+            problem,
+            np.repeat(values, copies, axis=0),
+            np.repeat(stratum, copies),
+            _solve,
+            replicates=4000,
+            level=0.9,
+            seed=2,
+        )
+        lo, hi = result.unit_intervals(1.0)["ecc"]
+        width[copies] = hi - lo
+    # 4-fold duplication: width × 1/√4 = 0.5 (sampling theory); ±15 % for Monte Carlo error.
+    np.testing.assert_allclose(width[4] / width[1], 0.5, rtol=0.15)
+
+
+def test_bootstrap_is_reproducible_with_its_seed():
+    rng = np.random.default_rng(8)
+    values, stratum = _plots(rng, 6)
+    runs = [
+        bootstrap_capacity(
+            _problem([[10, 5], [3, 20]]), values, stratum, _solve, replicates=50, level=0.9, seed=42
+        ).replicate_animal_days["ncc"]
+        for _ in range(2)
+    ]
+    np.testing.assert_array_equal(runs[0], runs[1])
+
+
+def test_percentile_interval_against_numpy_quantile():
+    data = np.arange(101, dtype=float)[:, None]
+    lo, hi = percentile_interval(data, 0.9)
+    assert lo[0] == pytest.approx(np.quantile(data, 0.05))
+    assert hi[0] == pytest.approx(np.quantile(data, 0.95))
+
+
+def test_tornado_table_sorted_by_range():
+    table = one_at_a_time(100.0, {"small": lambda f: 100 * f**0.1, "large": lambda f: 100 * f}, 0.1)
+    assert table["input"].tolist() == ["large", "small"]
+    # A linear input moves ±10 % of the baseline: −10 and +10 animals (hand computed).
+    assert table.loc[0, "low_change_animals"] == pytest.approx(-10.0)
+    assert table.loc[0, "high_change_animals"] == pytest.approx(10.0)
+
+
+def test_example_intervals_bracket_point_and_sensitivity_present(example_project, tmp_path):
+    folder = tmp_path / "inputs"
+    shutil.copytree(example_project.parent, folder)
+    project_file = folder / example_project.name
+    text = project_file.read_text().replace(
+        "[pooling]", "[uncertainty]\nbootstrap_replicates = 300\n\n[pooling]"
+    )
+    project_file.write_text(text)
+    result = estimate(load_project(project_file))
+    table = result.by_unit
+    for figure in ("ncc", "ecc", "allowable_use"):
+        assert (table[f"{figure}_animals_lo"] <= table[f"{figure}_animals_hi"]).all()
+    totals = totals_table(result)
+    assert (totals["total_animals_lo"] < totals["total_animals"]).all()
+    assert (totals["total_animals"] < totals["total_animals_hi"]).all()
+    sensitivity = result.uncertainty.sensitivity
+    assert {"body mass (all animal classes)", "allowable use (all classes)"} <= set(
+        sensitivity["input"]
+    )
