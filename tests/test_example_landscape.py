@@ -108,7 +108,7 @@ def test_layer_names_and_crs(first: Path) -> None:
 
 def test_project_file_follows_the_schema(first: Path) -> None:
     raw = tomllib.loads((first / "project.toml").read_text(encoding="utf-8"))
-    assert set(raw) == {"project", "inputs", "target", "forage_use", "pooling"}
+    assert set(raw) == {"project", "inputs", "target", "forage_use", "pooling", "uncertainty"}
     assert raw["project"]["season"] == "winter"
     assert raw["project"]["season_days"] == example.SEASON_DAYS
     assert set(raw["inputs"].values()) == ALL_FILES - {"project.toml"}

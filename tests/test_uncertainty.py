@@ -156,8 +156,9 @@ def test_example_intervals_bracket_point_and_sensitivity_present(example_project
     shutil.copytree(example_project.parent, folder)
     project_file = folder / example_project.name
     text = project_file.read_text().replace(
-        "[pooling]", "[uncertainty]\nbootstrap_replicates = 300\n\n[pooling]"
+        "bootstrap_replicates = 1000", "bootstrap_replicates = 300"
     )
+    assert "bootstrap_replicates = 300" in text
     project_file.write_text(text)
     result = estimate(load_project(project_file))
     table = result.by_unit
