@@ -7,7 +7,7 @@ Sources of the check values:
 - hand arithmetic shown in comments, applying the published equations to inputs invented for
   the example (the inputs are invented, the expected values follow from the equations);
 - properties every correct solver must have (monotonicity, scaling, relaxation), derived in
-  docs/methods_capacity.md.
+  docs/methods.md.
 """
 
 from __future__ import annotations
@@ -332,7 +332,7 @@ def _ncc(problem: dict, **changes) -> np.ndarray:
 @settings(max_examples=150, deadline=None)
 @given(_problems(), st.floats(0.01, 1.0))
 def test_ncc_at_most_ecc_when_target_at_least_maintenance(problem: dict, share: float) -> None:
-    # Derivation (docs/methods_capacity.md): each NCC animal-day eats intake kg at DE >= T, so
+    # Derivation (docs/methods.md): each NCC animal-day eats intake kg at DE >= T, so
     # NCC * T * intake * 1000 <= eaten DE <= available DE = ECC * R when R <= T * intake * 1000.
     requirement = share * problem["de_min_kcal_per_g"] * problem["intake_kg_per_day"] * 1000.0
     ecc = ecological_capacity(problem["available_kg"], problem["de_kcal_per_g"], requirement)
@@ -388,7 +388,7 @@ def test_two_nutrient_ncc_at_most_each_single_nutrient(problem: dict, data: st.D
 
 
 # --- edge cases ------------------------------------------------------------------------------
-# Expected values: the defined answers of the module's contract (docs/methods_capacity.md,
+# Expected values: the defined answers of the module's contract (docs/methods.md,
 # "Input checks and edge cases"), with the arithmetic in a comment where there is any.
 # Inputs invented for the example.
 

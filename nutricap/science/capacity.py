@@ -21,7 +21,7 @@ With one nutrient the problem is a fractional knapsack solved exactly by sorting
 quality and accumulating (:func:`nutritional_capacity`, Notes). With two nutrients the
 single-nutrient optima are tried first; the remaining units are solved exactly from the vertices
 of the two-multiplier dual, and any unit that vertex search cannot certify goes to
-``scipy.optimize.linprog`` (HiGHS). ``docs/methods_capacity.md`` derives each step.
+``scipy.optimize.linprog`` (HiGHS). ``docs/methods.md`` derives each step.
 
 References
 ----------
@@ -499,7 +499,7 @@ def nutritional_capacity(
     .. math:: x_k = \\frac{\\sum_{j \\text{ before } k} (q_j - T) A_j}{T - q_k}
 
     so that the diet DE equals T exactly. An item whose DE is within ``QUALITY_TOL`` of T
-    counts as meeting T. With DP as well, see ``docs/methods_capacity.md``.
+    counts as meeting T. With DP as well, see ``docs/methods.md``.
 
     References
     ----------
