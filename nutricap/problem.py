@@ -27,7 +27,11 @@ from nutricap.science.capacity import (
 
 @dataclass(frozen=True)
 class ForageItems:
-    """Per-item attributes, each an array of shape (items,)."""
+    """Per-item attributes, each an array of shape (items,).
+
+    ``variant`` is ``""`` for forage as sampled, or the label of a treatment
+    response (e.g. ``"thinning 2027"``) for forage of a treated patch.
+    """
 
     stratum: np.ndarray
     forage_class: np.ndarray
@@ -37,28 +41,55 @@ class ForageItems:
     key: np.ndarray
     biomass_kg_per_ha: np.ndarray
     preference: np.ndarray
+    growth_form: np.ndarray
+    cp_pct: np.ndarray
+    tannin: np.ndarray
+    variant: np.ndarray
 
     @property
     def size(self) -> int:
         return int(self.stratum.size)
 
+    @property
+    def patch_type(self) -> np.ndarray:
+        """The patch type each item grows in: the stratum, with the variant when there is one."""
+        return patch_type_labels(self.stratum, self.variant)
+
+    def subset(self, mask: np.ndarray) -> ForageItems:
+        """The items where ``mask`` is true."""
+        return ForageItems(**{name: value[mask] for name, value in vars(self).items()})
+
+    @staticmethod
+    def concatenate(parts: list[ForageItems]) -> ForageItems:
+        """The items of ``parts`` one after another."""
+        names = vars(parts[0]).keys()
+        return ForageItems(**{n: np.concatenate([vars(p)[n] for p in parts]) for n in names})
+
+
+ITEM_COLUMNS = ["de_kcal_per_g", "dp_pct", "allowable_use", "key", "preference", "cp_pct", "tannin"]
+
+
+def patch_type_labels(stratum: np.ndarray, variant: np.ndarray) -> np.ndarray:
+    """``stratum`` where ``variant`` is empty, else ``"stratum | variant"``."""
+    stratum = np.asarray(stratum, dtype=object)
+    variant = np.asarray(variant, dtype=object)
+    joined = stratum + " | " + variant
+    return np.where(variant == "", stratum, joined).astype(object)
+
 
 def build_forage_items(supply: StratumSupply, forage_classes: pd.DataFrame) -> ForageItems:
     """One item per stratum × forage class, with stratum-specific quality where given."""
-    strata = np.repeat(supply.strata, len(supply.classes))
-    classes = np.tile(supply.classes, len(supply.strata))
+    strata = np.repeat(supply.strata, len(supply.classes)).astype(object)
+    classes = np.tile(supply.classes, len(supply.strata)).astype(object)
     general = forage_classes[forage_classes["stratum"] == ""].set_index("forage_class")
     specific = forage_classes[forage_classes["stratum"] != ""].set_index(
         ["forage_class", "stratum"]
     )
-    attributes = general.loc[
-        classes, ["de_kcal_per_g", "dp_pct", "allowable_use", "key", "preference"]
-    ]
-    attributes = attributes.reset_index(drop=True)
+    attributes = general.loc[classes, [*ITEM_COLUMNS, "growth_form"]].reset_index(drop=True)
     pairs = pd.MultiIndex.from_arrays([classes, strata])
     overridden = pairs.isin(specific.index)
     if overridden.any():
-        columns = ["de_kcal_per_g", "dp_pct", "allowable_use"]
+        columns = ["de_kcal_per_g", "dp_pct", "allowable_use", "cp_pct", "tannin"]
         attributes.loc[overridden, columns] = specific.loc[pairs[overridden], columns].to_numpy()
     return ForageItems(
         stratum=strata,
@@ -69,6 +100,10 @@ def build_forage_items(supply: StratumSupply, forage_classes: pd.DataFrame) -> F
         key=attributes["key"].to_numpy(dtype=bool),
         biomass_kg_per_ha=supply.mean_kg_per_ha.ravel(),
         preference=attributes["preference"].to_numpy(dtype=float),
+        growth_form=attributes["growth_form"].fillna("").to_numpy(dtype=object),
+        cp_pct=attributes["cp_pct"].fillna(0.0).to_numpy(dtype=float),
+        tannin=attributes["tannin"].fillna(0.0).to_numpy(dtype=float),
+        variant=np.full(classes.size, "", dtype=object),
     )
 
 
@@ -83,11 +118,12 @@ class CapacityProblem:
         The unit each row belongs to (index into ``unit_ids``).
     items : ForageItems
     available_kg : array, shape (rows, items) [kg DM]
-    row_stratum_ha : array, shape (rows, strata) [ha], optional
-        Accessible hectares of each stratum in each row, when the supply is
-        stratum means × hectares (lets the supply be re-drawn, e.g. by the bootstrap).
+    row_stratum_ha : array, shape (rows, patch types) [ha], optional
+        Accessible hectares of each patch type (a stratum, or a stratum under a
+        treatment variant) in each row, when the supply is stratum means ×
+        hectares (lets the supply be re-drawn, e.g. by the bootstrap).
     strata : list of str, optional
-        Column labels of ``row_stratum_ha``.
+        Column labels of ``row_stratum_ha`` (see :func:`patch_type_labels`).
     """
 
     unit_ids: np.ndarray
@@ -120,21 +156,42 @@ def build_problem(
 
     ``mode="unit"``: one row per unit. ``mode="patch"``: one row per unit × stratum.
     """
-    unit_ids = areas.units["unit_id"].to_numpy()
-    table = areas.by_unit_stratum
-    unit_index = pd.Index(unit_ids).get_indexer(table["unit_id"])
-    stratum_index = pd.Index(supply.strata).get_indexer(table["stratum"])
-    accessible = table["accessible_ha"].to_numpy()
+    pieces = areas.by_unit_stratum.assign(variant="")
+    return problem_from_pieces(areas.units["unit_id"].to_numpy(), pieces, items, mode)
+
+
+def problem_from_pieces(
+    unit_ids: np.ndarray, pieces: pd.DataFrame, items: ForageItems, mode: str
+) -> CapacityProblem:
+    """The capacity problem from pieces of land and the items that grow on them.
+
+    Parameters
+    ----------
+    unit_ids : array, shape (units,)
+    pieces : DataFrame
+        ``unit_id, stratum, variant, accessible_ha``: accessible hectares of each
+        patch type (stratum and treatment variant) in each unit.
+    items : ForageItems
+        Every item of every patch type that occurs in ``pieces``.
+    mode : {"unit", "patch"}
+        One row per unit, or one row per unit × patch type.
+    """
+    types = patch_type_labels(pieces["stratum"].to_numpy(), pieces["variant"].to_numpy())
+    labels = sorted(set(types) | set(items.patch_type))
+    type_index = pd.Index(labels).get_indexer(types)
+    unit_index = pd.Index(unit_ids).get_indexer(pieces["unit_id"])
+    accessible = pieces["accessible_ha"].to_numpy(dtype=float)
     if mode == "unit":
         row_unit = np.arange(unit_ids.size)
-        hectares = np.zeros((unit_ids.size, len(supply.strata)))
-        np.add.at(hectares, (unit_index, stratum_index), accessible)
+        row_of_piece = unit_index
     else:
-        row_unit = unit_index
-        hectares = np.zeros((len(table), len(supply.strata)))
-        hectares[np.arange(len(table)), stratum_index] = accessible
-    available = available_forage_kg(items, hectares, supply.strata)
-    return CapacityProblem(unit_ids, row_unit, items, available, hectares, list(supply.strata))
+        keys = pd.MultiIndex.from_arrays([unit_index, type_index])
+        unique_keys, row_of_piece = np.unique(keys.to_numpy(), return_inverse=True)
+        row_unit = np.array([key[0] for key in unique_keys], dtype=int)
+    hectares = np.zeros((row_unit.size, len(labels)))
+    np.add.at(hectares, (row_of_piece, type_index), accessible)
+    available = available_forage_kg(items, hectares, labels)
+    return CapacityProblem(unit_ids, row_unit, items, available, hectares, labels)
 
 
 def solve_problem(
@@ -165,22 +222,22 @@ def solve_problem(
 
 
 def available_forage_kg(
-    items: ForageItems, row_stratum_hectares: np.ndarray, strata: list[str]
+    items: ForageItems, row_type_hectares: np.ndarray, patch_types: list[str]
 ) -> np.ndarray:
     """Available dry forage of every item in every row [kg].
 
     Parameters
     ----------
     items : ForageItems
-    row_stratum_hectares : array, shape (rows, strata)
-        Accessible hectares of each stratum in each row (unit or patch) [ha].
-    strata : list of str
-        Column labels of ``row_stratum_hectares``.
+    row_type_hectares : array, shape (rows, patch types)
+        Accessible hectares of each patch type in each row (unit or patch) [ha].
+    patch_types : list of str
+        Column labels of ``row_type_hectares``.
 
     Returns
     -------
     array, shape (rows, items) [kg]
-        ``hectares[row, stratum(item)] × biomass[item]`` (kg/ha × ha = kg).
+        ``hectares[row, patch type(item)] × biomass[item]`` (kg/ha × ha = kg).
     """
-    column = pd.Index(strata).get_indexer(items.stratum)
-    return row_stratum_hectares[:, column] * items.biomass_kg_per_ha[None, :]
+    column = pd.Index(patch_types).get_indexer(items.patch_type)
+    return row_type_hectares[:, column] * items.biomass_kg_per_ha[None, :]

@@ -120,7 +120,7 @@ def bootstrap_capacity(
     n_strata = len(problem.strata)
     means = resample_stratum_means(plot_biomass_kg_per_ha, plot_stratum, n_strata, replicates, rng)
     biomass = means.reshape(replicates, -1)
-    column = pd.Index(problem.strata).get_indexer(problem.items.stratum)
+    column = pd.Index(problem.strata).get_indexer(problem.items.patch_type)
     available = problem.row_stratum_ha[None, :, column] * biomass[:, None, :]
     rows = problem.row_unit.size
     stacked = replace(

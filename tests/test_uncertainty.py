@@ -33,6 +33,10 @@ def _items(strata, classes):
         key=np.zeros(n, dtype=bool),
         biomass_kg_per_ha=np.zeros(n),
         preference=np.ones(n),
+        growth_form=np.full(n, "", dtype=object),
+        cp_pct=np.zeros(n),
+        tannin=np.zeros(n),
+        variant=np.full(n, "", dtype=object),
     )
 
 
