@@ -55,6 +55,7 @@ def build_parser() -> argparse.ArgumentParser:
     commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     _add_demo(commands)
     _add_estimate(commands)
+    _add_compare(commands)
     _add_check(commands)
     _add_trend(commands)
     return parser
@@ -86,14 +87,29 @@ def _add_demo(commands) -> None:
 def _add_estimate(commands) -> None:
     parser = _subparser(commands, "estimate", "Estimate capacity per unit for a project file.")
     parser.add_argument("project", type=Path, help="project file (TOML)")
+    _add_output_options(parser)
+    parser.set_defaults(handler=run_estimate_command)
+
+
+def _add_compare(commands) -> None:
+    parser = _subparser(
+        commands, "compare", "Compare a treatment scenario with the baseline over its years."
+    )
+    parser.add_argument("project", type=Path, help="project file (TOML)")
+    parser.add_argument("--scenario", required=True, help="name of a [scenarios.NAME] section")
+    _add_output_options(parser)
+    parser.set_defaults(handler=run_compare_command)
+
+
+def _add_output_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--out", type=Path, required=True, help="output folder (not an input folder)"
     )
     parser.add_argument(
         "--overwrite", action="store_true", help="replace an existing output folder"
     )
+    parser.add_argument("--no-report", action="store_true", help="skip report.html")
     parser.add_argument("--quiet", action="store_true", help="no progress messages")
-    parser.set_defaults(handler=run_estimate_command)
 
 
 def _add_check(commands) -> None:
@@ -119,8 +135,37 @@ def run_estimate_command(args: argparse.Namespace) -> int:
 
     progress = StepPrinter(args.quiet)
     project = load_project(args.project)
-    result = run_estimate(project, args.out, overwrite=args.overwrite, progress=progress)
+    result = run_estimate(
+        project,
+        args.out,
+        overwrite=args.overwrite,
+        report=not args.no_report,
+        progress=progress,
+    )
     _print_summary(result, args.out)
+    return EXIT_OK
+
+
+def run_compare_command(args: argparse.Namespace) -> int:
+    from nutricap.project import load_project
+    from nutricap.workflow import run_compare
+
+    progress = StepPrinter(args.quiet)
+    project = load_project(args.project)
+    result, table = run_compare(
+        project,
+        args.scenario,
+        args.out,
+        overwrite=args.overwrite,
+        report=not args.no_report,
+        progress=progress,
+    )
+    totals = table.groupby("year")[["ncc_animals_baseline", "ncc_animals_scenario"]].sum()
+    print(f"Scenario {args.scenario!r}: total NCC by year (baseline → scenario)")
+    for year, row in totals.iterrows():
+        print(f"  {year}: {row['ncc_animals_baseline']:,.0f} → {row['ncc_animals_scenario']:,.0f}")
+    print(f"Table: {Path(args.out) / 'scenario_by_unit.csv'}")
+    print(f"CAUTION: {CAUTION}")
     return EXIT_OK
 
 

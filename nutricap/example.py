@@ -302,6 +302,64 @@ def make_counts(rng: np.random.Generator, units: gpd.GeoDataFrame) -> pd.DataFra
     return pd.concat(frames, ignore_index=True)
 
 
+# Treatment responses by years since treatment, invented for the example. The broad
+# pattern (browse and herbs rising for some years after juniper removal; sagebrush killed
+# and herbs flushing after fire) follows published reviews from memory, not their numbers.
+RESPONSE_COLUMNS = (
+    "treatment", "forage_class", "growth_form", "years_since",
+    "biomass_multiplier", "de_shift_kcal_per_g", "cp_shift_pct",
+)
+RESPONSES = (
+    ("thinning", "juniper", "", 0, 0.1, 0.0, 0.0),
+    ("thinning", "juniper", "", 15, 0.4, 0.0, 0.0),
+    ("thinning", "big_sagebrush", "", 1, 1.1, 0.0, 0.0),
+    ("thinning", "big_sagebrush", "", 6, 1.6, 0.0, 0.0),
+    ("thinning", "big_sagebrush", "", 15, 1.3, 0.0, 0.0),
+    ("thinning", "", "browse", 1, 1.1, 0.0, 0.0),
+    ("thinning", "", "browse", 6, 1.8, 0.0, 0.0),
+    ("thinning", "", "browse", 15, 1.2, 0.0, 0.0),
+    ("thinning", "", "grass", 1, 1.5, 0.0, 0.0),
+    ("thinning", "", "grass", 4, 2.5, 0.0, 0.0),
+    ("thinning", "", "grass", 15, 1.3, 0.0, 0.0),
+    ("thinning", "", "forb", 1, 2.0, 0.0, 1.0),
+    ("thinning", "", "forb", 5, 1.5, 0.0, 0.0),
+    ("prescribed_burn", "big_sagebrush", "", 0, 0.05, 0.0, 0.0),
+    ("prescribed_burn", "big_sagebrush", "", 20, 0.5, 0.0, 0.0),
+    ("prescribed_burn", "bitterbrush", "", 0, 0.3, 0.1, 2.0),
+    ("prescribed_burn", "bitterbrush", "", 4, 1.2, 0.0, 0.0),
+    ("prescribed_burn", "bitterbrush", "", 12, 1.0, 0.0, 0.0),
+    ("prescribed_burn", "", "forb", 1, 2.5, 0.2, 2.0),
+    ("prescribed_burn", "", "forb", 5, 1.2, 0.0, 0.0),
+    ("prescribed_burn", "", "grass", 1, 1.5, 0.15, 1.5),
+    ("prescribed_burn", "", "grass", 4, 1.2, 0.0, 0.0),
+)
+SCENARIOS_TOML = """
+[scenarios.juniper_thinning]
+description = "Thin the three largest juniper stands in 2027 (invented for the example)"
+treatments = "treatments_thinning.gpkg"
+responses = "treatment_responses.csv"
+first_year = 2026
+last_year = 2042
+
+[scenarios.prescribed_burn]
+description = "Burn two sagebrush stands in 2028 (invented for the example)"
+treatments = "treatments_burn.gpkg"
+responses = "treatment_responses.csv"
+first_year = 2026
+last_year = 2042
+"""
+
+
+def make_treatments(strata: gpd.GeoDataFrame, stratum: str, count: int, inset_m: float,
+                    treatment: str, year: int) -> gpd.GeoDataFrame:
+    """Treatment polygons: the ``count`` largest polygons of ``stratum``, inset by ``inset_m``."""
+    stands = strata[strata["stratum"] == stratum]
+    largest = stands.loc[stands.geometry.area.sort_values(ascending=False).index[:count]]
+    shapes = largest.geometry.buffer(-inset_m).reset_index(drop=True)
+    labels = {"treatment": [treatment] * len(shapes), "year": [year] * len(shapes)}
+    return gpd.GeoDataFrame(labels, geometry=shapes, crs=CRS)
+
+
 def write_example_landscape(folder: Path, seed: int = SEED) -> Path:
     """Write the invented example project into ``folder``.
 
@@ -327,12 +385,21 @@ def write_example_landscape(folder: Path, seed: int = SEED) -> Path:
     make_plots(rng).to_csv(folder / "plots.csv", index=False)
     ANIMAL_CLASSES.to_csv(folder / "animal_classes.csv", index=False)
     make_counts(rng, units).to_csv(folder / "counts.csv", index=False)
-    for frame, name in ((units, "units"), (strata, "strata")):
+    pd.DataFrame(RESPONSES, columns=list(RESPONSE_COLUMNS)).to_csv(
+        folder / "treatment_responses.csv", index=False
+    )
+    thinning = make_treatments(strata, "juniper_woodland", 3, 100.0, "thinning", 2027)
+    burn = make_treatments(strata, "sagebrush_steppe", 2, 150.0, "prescribed_burn", 2028)
+    layers = (
+        (units, "units"), (strata, "strata"),
+        (thinning, "treatments_thinning"), (burn, "treatments_burn"),
+    )
+    for frame, name in layers:
         path = folder / f"{name}.gpkg"
         path.unlink(missing_ok=True)
         frame.to_file(path, layer=name, driver="GPKG")
     project = folder / "project.toml"
-    project.write_text(PROJECT_TOML, encoding="utf-8")
+    project.write_text(PROJECT_TOML + SCENARIOS_TOML, encoding="utf-8")
     return project
 
 

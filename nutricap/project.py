@@ -16,6 +16,11 @@ from typing import Literal
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from nutricap.errors import ProjectFileError
+from nutricap.landscape.raster_config import (
+    AvailabilitySection,
+    RasterSection,
+    raster_input_paths,
+)
 
 
 class _Section(BaseModel):
@@ -111,6 +116,25 @@ class UncertaintySection(_Section):
     sensitivity_change: float = Field(default=0.1, ge=0, lt=1)
 
 
+class ScenarioSection(_Section):
+    """``[scenarios.NAME]``: a set of treatments and the years to compare."""
+
+    treatments: Path
+    treatments_layer: str | None = None
+    responses: Path
+    first_year: int = Field(ge=1900, le=2200)
+    last_year: int = Field(ge=1900, le=2200)
+    description: str = ""
+
+    @model_validator(mode="after")
+    def _years_in_order(self) -> ScenarioSection:
+        if self.last_year < self.first_year:
+            raise ValueError("last_year is before first_year")
+        if self.last_year - self.first_year > 200:
+            raise ValueError("a scenario spans at most 200 years")
+        return self
+
+
 class ProjectConfig(_Section):
     """The whole project file."""
 
@@ -121,6 +145,9 @@ class ProjectConfig(_Section):
     forage_use: ForageUseSection = ForageUseSection()
     pooling: PoolingSection = PoolingSection()
     uncertainty: UncertaintySection = UncertaintySection()
+    scenarios: dict[str, ScenarioSection] = Field(default_factory=dict)
+    rasters: RasterSection | None = None
+    availability: AvailabilitySection | None = None
 
 
 class Project:
@@ -152,7 +179,13 @@ class Project:
     def input_paths(self) -> dict[str, Path]:
         """Every input file given, by key."""
         names = ("forage_classes", "plots", "animal_classes", "units", "strata", "counts")
-        return {name: path for name in names if (path := self.input_path(name)) is not None}
+        found = {name: path for name in names if (path := self.input_path(name)) is not None}
+        for name, scenario in self.config.scenarios.items():
+            found[f"scenarios.{name}.treatments"] = (self.folder / scenario.treatments).resolve()
+            found[f"scenarios.{name}.responses"] = (self.folder / scenario.responses).resolve()
+        layers = raster_input_paths(self.config.rasters, self.config.availability)
+        found.update({key: (self.folder / path).resolve() for key, path in layers.items()})
+        return found
 
 
 def load_project(path: str | Path) -> Project:
@@ -222,8 +255,9 @@ def _lookup(raw: dict, location: list[str]) -> object:
 def _check_inputs_exist(project: Project) -> None:
     for name, path in project.input_paths().items():
         if not path.exists():
+            key = name if "." in name else f"inputs.{name}"
             raise ProjectFileError(
-                f"input file for key 'inputs.{name}' does not exist",
+                f"input file for key '{key}' does not exist",
                 source=project.path,
                 expected="a path relative to the project file",
                 found=str(path),

@@ -18,6 +18,7 @@ import pandas as pd
 from nutricap.assess import assess_use, current_animals_from_counts
 from nutricap.errors import InputError, ProjectFileError, TableError
 from nutricap.inputs import read_animal_classes, read_forage_classes, read_plots
+from nutricap.landscape.grid_supply import GridResult, grid_problem, write_grid_outputs
 from nutricap.landscape.plots import StratumSupply, plot_biomass_matrix, stratum_supply
 from nutricap.landscape.vectors import (
     StratumAreas,
@@ -35,7 +36,15 @@ from nutricap.problem import (
     solve_problem,
 )
 from nutricap.project import Project
+from nutricap.report.figures import figure_png, scenario_figure
+from nutricap.report.html import ReportExtras, write_report
 from nutricap.report.tables import markdown_table, write_csv, write_geopackage, write_json
+from nutricap.scenarios import (
+    Scenario,
+    load_scenario,
+    scenario_problem,
+    years_since_latest_treatment,
+)
 from nutricap.science import energetics
 from nutricap.science.forage_quality import mixed_diet_quality
 from nutricap.sensitivity import input_groups
@@ -88,6 +97,7 @@ class Estimate:
     season_days: float
     uncertainty: Uncertainty = field(default_factory=lambda: Uncertainty())
     notes: list[str] = field(default_factory=list)
+    grid: GridResult | None = None
 
 
 @dataclass(frozen=True)
@@ -109,7 +119,20 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     say = progress or (lambda message: None)
     days = project.config.project.days
     inputs = read_inputs(project, say)
-    areas, supply, problem = build_supply(project, inputs, say)
+    grid = None
+    if project.config.rasters is not None or project.config.availability is not None:
+        grid = grid_problem(
+            project,
+            inputs.units,
+            inputs.strata,
+            inputs.plots,
+            inputs.forage_classes,
+            project.config.pooling.mode,
+            progress,
+        )
+        areas, supply, problem = grid.areas, grid.supply, grid.problem
+    else:
+        areas, supply, problem = build_supply(project, inputs, say)
     say("computing the herd's requirements")
     herd = herd_requirement(inputs.animals, project)
     target = diet_target(inputs.animals, project)
@@ -133,7 +156,8 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
         target=target,
         season_days=days,
         uncertainty=uncertainty,
-        notes=_supply_notes(supply, inputs.plots),
+        notes=_supply_notes(supply, inputs.plots) + (grid.notes if grid is not None else []),
+        grid=grid,
     )
 
 
@@ -503,7 +527,12 @@ def _supply_notes(supply: StratumSupply, plots: pd.DataFrame) -> list[str]:
 
 
 def run_estimate(
-    project: Project, out: Path, *, overwrite: bool = False, progress: Progress | None = None
+    project: Project,
+    out: Path,
+    *,
+    overwrite: bool = False,
+    report: bool = True,
+    progress: Progress | None = None,
 ) -> Estimate:
     """Estimate ``project`` and write every output into ``out`` atomically."""
     say = progress or (lambda message: None)
@@ -513,12 +542,19 @@ def run_estimate(
     result = estimate(project, progress)
     say(f"writing outputs to {out}")
     with staged_folder(out) as staging:
-        write_estimate(result, project, staging)
+        write_estimate(result, project, staging, report=report)
     return result
 
 
-def write_estimate(result: Estimate, project: Project, folder: Path) -> None:
-    """Write the tables and the manifest of ``result`` into ``folder``."""
+def write_estimate(
+    result: Estimate,
+    project: Project,
+    folder: Path,
+    *,
+    report: bool = True,
+    scenario_table: pd.DataFrame | None = None,
+) -> None:
+    """Write the tables, the manifest and (unless ``report=False``) the HTML report."""
     config = project.config
     totals = totals_table(result)
     write_csv(result.by_unit, folder / "capacity_by_unit.csv")
@@ -530,6 +566,9 @@ def write_estimate(result: Estimate, project: Project, folder: Path) -> None:
     if result.uncertainty.sensitivity is not None:
         write_csv(result.uncertainty.sensitivity, folder / "sensitivity.csv")
     write_geopackage(result.by_unit, result.units, folder / "capacity_by_unit.gpkg")
+    if result.grid is not None:
+        eaten_kg, intake = result.solution.ncc.eaten_kg, result.herd.intake_kg_per_day
+        write_grid_outputs(result.grid, result.problem, eaten_kg, intake, folder)
     context = [
         f"{config.project.species}, {config.project.name}; season of {result.season_days:g} days.",
         f"Target diet: {target_words(result.target)}.",
@@ -545,6 +584,27 @@ def write_estimate(result: Estimate, project: Project, folder: Path) -> None:
         derived=_derived_values(result),
     )
     write_json(manifest, folder / "run.json")
+    if report:
+        write_report(
+            folder / "report.html",
+            result,
+            project=project,
+            manifest=manifest,
+            extras=report_extras(result, project, scenario_table),
+        )
+
+
+def report_extras(
+    result: Estimate, project: Project, scenario_table: pd.DataFrame | None
+) -> ReportExtras:
+    """What the report shows beside the estimate: sensitivity, intervals, scenario."""
+    uncertainty = result.uncertainty
+    return ReportExtras(
+        scenario_table=scenario_table,
+        sensitivity_table=uncertainty.sensitivity,
+        interval_level=uncertainty.bootstrap.level if uncertainty.bootstrap else None,
+        sensitivity_change=uncertainty.change or None,
+    )
 
 
 def target_words(target: DietTarget) -> str:
@@ -596,4 +656,87 @@ def _derived_values(result: Estimate) -> dict:
         "area_crs": result.areas.area_crs.to_string(),
         "area_crs_reason": result.areas.area_crs_reason,
         "notes": result.notes,
+        **({"raster_path": result.grid.describe()} if result.grid is not None else {}),
     }
+
+
+def compare(project: Project, scenario_name: str, progress: Progress | None = None):
+    """Baseline estimate and a treatment scenario over its years.
+
+    Returns ``(estimate, scenario_table)``; the table has ``unit_id, scenario, year,
+    years_since_treatment, ncc_animals_baseline, ncc_animals_scenario, change_animals``
+    and the same pair for ECC and allowable-use capacity.
+    """
+    say = progress or (lambda message: None)
+    result = estimate(project, progress)
+    if result.areas.pieces is None:
+        raise InputError(
+            "treatment scenarios need the strata layer (vector supply)",
+            source=project.path,
+            location=f"key 'scenarios.{scenario_name}'",
+        )
+    scenario = load_scenario(project, scenario_name, result.areas, result.supply.strata)
+    section = scenario.section
+    say(f"scenario {scenario_name!r}: {section.first_year}–{section.last_year}")
+    years = range(section.first_year, section.last_year + 1)
+    frames = [_scenario_year(project, result, scenario, year) for year in years]
+    return result, pd.concat(frames, ignore_index=True)
+
+
+def _scenario_year(
+    project: Project, result: Estimate, scenario: Scenario, year: int
+) -> pd.DataFrame:
+    days = project.config.project.days
+    problem, pieces = scenario_problem(
+        scenario,
+        result.areas,
+        result.problem.items.subset(result.problem.items.variant == ""),
+        year,
+        project.config.pooling.mode,
+    )
+    solution = solve(problem, result.herd, result.target, project)
+    table = pd.DataFrame(
+        {
+            "unit_id": problem.unit_ids,
+            "scenario": scenario.name,
+            "year": year,
+            "years_since_treatment": years_since_latest_treatment(pieces, problem.unit_ids),
+        }
+    )
+    figures = {
+        "ncc": solution.ncc.animal_days,
+        "ecc": solution.ecc_animal_days,
+        "allowable_use": solution.allowable_use_animal_days,
+    }
+    for name, animal_days in figures.items():
+        baseline = result.by_unit[f"{name}_animals"].to_numpy()
+        changed = problem.sum_by_unit(animal_days) / days
+        table[f"{name}_animals_baseline"] = baseline
+        table[f"{name}_animals_scenario"] = changed
+        table[f"{name}_change_animals"] = changed - baseline
+    table["change_animals"] = table["ncc_change_animals"]
+    return table
+
+
+def run_compare(
+    project: Project,
+    scenario_name: str,
+    out: Path,
+    *,
+    overwrite: bool = False,
+    report: bool = True,
+    progress: Progress | None = None,
+) -> tuple[Estimate, pd.DataFrame]:
+    """Estimate, run the scenario, and write everything (plus the scenario table and chart)."""
+    say = progress or (lambda message: None)
+    out = check_output_folder(
+        out, [project.path, *project.input_paths().values()], overwrite=overwrite
+    )
+    result, table = compare(project, scenario_name, progress)
+    say(f"writing outputs to {out}")
+    with staged_folder(out) as staging:
+        write_estimate(result, project, staging, report=report, scenario_table=table)
+        write_csv(table, staging / "scenario_by_unit.csv")
+        chart = figure_png(scenario_figure(table, per_unit=True))
+        (staging / "scenario_by_unit.png").write_bytes(chart)
+    return result, table

@@ -21,8 +21,14 @@ import shapely
 from nutricap import example
 from nutricap.project import load_project
 
-CSV_FILES = ("forage_classes.csv", "plots.csv", "animal_classes.csv", "counts.csv")
-LAYERS = {"units.gpkg": "units", "strata.gpkg": "strata"}
+CSV_FILES = (
+    "forage_classes.csv", "plots.csv", "animal_classes.csv", "counts.csv",
+    "treatment_responses.csv",
+)
+LAYERS = {
+    "units.gpkg": "units", "strata.gpkg": "strata",
+    "treatments_thinning.gpkg": "treatments_thinning", "treatments_burn.gpkg": "treatments_burn",
+}
 ALL_FILES = {*CSV_FILES, *LAYERS, "project.toml"}
 # Column contract of SPEC.md ("Inputs"); the energy pair de_kcal_per_g | dmd_pct is
 # checked separately.
@@ -108,10 +114,16 @@ def test_layer_names_and_crs(first: Path) -> None:
 
 def test_project_file_follows_the_schema(first: Path) -> None:
     raw = tomllib.loads((first / "project.toml").read_text(encoding="utf-8"))
-    assert set(raw) == {"project", "inputs", "target", "forage_use", "pooling", "uncertainty"}
+    assert set(raw) == {
+        "project", "inputs", "target", "forage_use", "pooling", "uncertainty", "scenarios",
+    }
     assert raw["project"]["season"] == "winter"
     assert raw["project"]["season_days"] == example.SEASON_DAYS
-    assert set(raw["inputs"].values()) == ALL_FILES - {"project.toml"}
+    scenario_files = {
+        name for section in raw["scenarios"].values()
+        for name in (section["treatments"], section["responses"])
+    }
+    assert set(raw["inputs"].values()) | scenario_files == ALL_FILES - {"project.toml"}
     project = load_project(first / "project.toml")  # the package's own validation
     assert project.config.target.animal_class == "adult_female"
 

@@ -39,12 +39,16 @@ class StratumAreas:
         The CRS areas were computed in.
     area_crs_reason : str
         Why that CRS was chosen, for the run manifest.
+    pieces : GeoDataFrame, optional
+        The overlay's polygons (``unit_id, stratum, accessible_fraction, area_ha,
+        accessible_ha``) in the area CRS, for later overlays (treatments).
     """
 
     units: gpd.GeoDataFrame
     by_unit_stratum: pd.DataFrame
     area_crs: CRS
     area_crs_reason: str
+    pieces: gpd.GeoDataFrame | None = None
 
 
 def read_layer(path: Path, *, layer: str | None, columns: list[str], what: str) -> gpd.GeoDataFrame:
@@ -251,7 +255,7 @@ def overlay_strata_on_units(
     table = pieces.groupby(["unit_id", "stratum"], as_index=False, sort=True)[
         ["area_ha", "accessible_ha"]
     ].sum()
-    return StratumAreas(units, table, area_crs, reason)
+    return StratumAreas(units, table, area_crs, reason, pieces)
 
 
 def _extra_unit_columns(units: gpd.GeoDataFrame) -> list[str]:

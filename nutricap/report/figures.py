@@ -12,9 +12,11 @@ marker or line style, so no figure relies on colour alone.
 References
 ----------
 Okabe, M. & Ito, K. 2008. Color Universal Design (CUD): how to make figures and
-    presentations that are friendly to colorblind people. J*Fly Data Depository.
+    presentations that are friendly to colorblind people. Online guide (citation and hex
+    codes from memory).
 Nuñez, J.R., Anderton, C.R. & Renslow, R.S. 2018. Optimizing colormaps with consideration
-    for color vision deficiency. PLoS ONE 13(7):e0199239.
+    for color vision deficiency. PLoS ONE 13(7):e0199239 (citation from memory; the colour
+    map itself is matplotlib's ``cividis``).
 """
 
 from __future__ import annotations
@@ -34,7 +36,7 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.ticker import FuncFormatter
 
-#: Okabe & Ito (2008) colour-blind-safe palette (hex codes as published in that guide).
+#: Okabe & Ito (2008) colour-blind-safe palette (hex codes from memory).
 OKABE_ITO = {
     "black": "#000000",
     "orange": "#E69F00",
@@ -431,7 +433,7 @@ def tornado_figure(
     ax.set_yticks(rows, [str(name) for name in table["input"]])
     ax.set_ylabel("Input")
     ax.set_xlabel("Change in total NCC [animals]")
-    ax.xaxis.set_major_formatter(FuncFormatter(_signed))
+    ax.xaxis.set_major_formatter(FuncFormatter(signed_animals))
     ax.grid(axis="x", color="#eeeeee")
     ax.legend(fontsize=8, framealpha=0.9)
     title = "Sensitivity of total NCC to each input"
@@ -441,8 +443,9 @@ def tornado_figure(
     return figure
 
 
-def _signed(value: float, _position: int) -> str:
-    return "0" if value == 0 else f"{value:+,.0f}"
+def signed_animals(value: float, _position: int | None = None) -> str:
+    """A change in animals with its sign and thousands separators: '+1,200', '-35', '0'."""
+    return "0" if round(value) == 0 else f"{value:+,.0f}"
 
 
 def sort_by_range(sensitivity_table: pd.DataFrame) -> pd.DataFrame:

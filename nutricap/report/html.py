@@ -31,7 +31,7 @@ import pandas as pd
 from nutricap.cautions import CAUTION
 from nutricap.inputs import read_animal_classes, read_forage_classes
 from nutricap.report import figures
-from nutricap.science import energetics, forage_quality, supply
+from nutricap.science import energetics, forage_quality, population, supply
 from nutricap.trend import TREND_CAUTIONS
 
 if TYPE_CHECKING:
@@ -103,10 +103,12 @@ def render_report(
         The HTML text.
     """
     extras = extras or ReportExtras()
+    animals = read_animal_classes(project.input_path("animal_classes"))
+    forage = read_forage_classes(project.input_path("forage_classes"))
     context = {
         "caution": CAUTION,
         "header": _header(estimate, project, manifest),
-        "inputs": _inputs(estimate, project, manifest),
+        "inputs": _inputs(estimate, project, manifest, n_animal_classes=len(animals)),
         "diet": _diet(estimate),
         "map": _figure(figures.ncc_density_map(estimate.units, estimate.by_unit),
                        "Map of the management units shaded by NCC per square kilometre."),
@@ -117,8 +119,12 @@ def render_report(
         "trend": _trend(extras.trend, estimate.by_unit),
         "unit_table": unit_table(estimate.by_unit, extras.interval_level),
         "supply": _supply(estimate),
-        "methods": METHODS,
-        "parameters": _parameters(estimate, project),
+        "methods": methods(
+            intervals=any(_has_interval(estimate.by_unit, n) for n in INTERVAL_COLUMNS),
+            sensitivity=extras.sensitivity_table is not None,
+            trend=extras.trend is not None,
+        ),
+        "parameters": _parameters(estimate, project, animals, forage),
         "manifest": _manifest(manifest),
     }
     return _template().render(**context)
@@ -244,7 +250,7 @@ def _header(estimate: Estimate, project: Project, manifest: dict) -> dict:
         f"{config.project.name} carry through a {estimate.season_days:g}-day "
         f"{_season_name(config.project.season)}season while every animal can still eat a diet "
         f"of at least {target.de_min_kcal_per_g:.3f} kcal digestible energy per g dry "
-        f"matter{protein} ({target.derivation})?"
+        f"matter{protein}?"
     )
     totals = {name: ANIMALS(by_unit[name].sum())
               for name in ("ncc_animals", "ecc_animals", "allowable_use_animals")}
@@ -275,7 +281,8 @@ def _run_date(manifest: dict) -> str:
 # --- 2. inputs --------------------------------------------------------------------------------
 
 
-def _inputs(estimate: Estimate, project: Project, manifest: dict) -> dict:
+def _inputs(estimate: Estimate, project: Project, manifest: dict, *,
+            n_animal_classes: int) -> dict:
     config = project.config
     derived = manifest.get("derived", {})
     counts = {
@@ -283,7 +290,7 @@ def _inputs(estimate: Estimate, project: Project, manifest: dict) -> dict:
         "Vegetation strata": len(estimate.supply.strata),
         "Clip plots": int(np.sum(estimate.supply.n_plots)),
         "Forage classes": len(estimate.supply.classes),
-        "Animal classes": len(read_animal_classes(project.input_path("animal_classes"))),
+        "Animal classes": n_animal_classes,
     }
     settings = {
         "Season": f"{estimate.season_days:g} days ({config.project.season})",
@@ -353,6 +360,8 @@ INTERVAL_COLUMNS = {
     "ecc_animals": "ECC interval [animals]",
     "allowable_use_animals": "Allowable-use interval [animals]",
 }
+INTERVAL_NAMES = {"ncc_animals": "NCC", "ecc_animals": "ECC",
+                  "allowable_use_animals": "allowable-use capacity"}
 
 
 def _has_interval(frame: pd.DataFrame, name: str) -> bool:
@@ -371,7 +380,7 @@ def _capacity(estimate: Estimate, level: float | None) -> dict:
     return {
         "figure": _figure(chart, "Per-unit dot chart of NCC, allowable-use capacity and ECC "
                                  "in animals."),
-        "intervals": [INTERVAL_COLUMNS[name].removesuffix(" [animals]") for name in intervals],
+        "intervals": [INTERVAL_NAMES[name] for name in intervals],
         "level": _level_text(level),
         "shown": min(len(by_unit), figures.MAX_UNITS_CHART),
         "units": len(by_unit),
@@ -452,9 +461,7 @@ def _sensitivity(sensitivity_table: pd.DataFrame | None, change: float | None) -
 
 
 def _signed(value: Any) -> str:
-    if _missing(value):
-        return "–"
-    return "0" if float(value) == 0 else f"{float(value):+,.0f}"
+    return "–" if _missing(value) else figures.signed_animals(float(value))
 
 
 # --- 6. use and overuse -----------------------------------------------------------------------
@@ -592,28 +599,30 @@ def _trend_capacity(data: dict, by_unit: pd.DataFrame) -> tuple[float | None, fl
 
 
 def _interval(data: dict, name: str, digits: int) -> str:
-    bounds = data.get(f"{name}_ci")
+    bounds = data.get(name)
     if not bounds or any(_missing(b) for b in bounds):
         return ""
     return f" (interval {bounds[0]:,.{digits}f} to {bounds[1]:,.{digits}f})"
 
 
+#: Trend figures shown when given: key, label, decimals, key of its interval.
 TREND_FIGURES = (
-    ("r_mean", "Mean exponential rate of increase r [1/year]", 3),
-    ("lambda_mean", "Finite rate of increase λ [per year]", 3),
-    ("r_max", "Logistic r_max [1/year]", 3),
-    ("K", "Fitted ceiling K [animals]", 0),
-    ("msy_level", "Maximum-sustained-yield level K/2 [animals]", 0),
-    ("msy_yield", "Maximum sustained yield r·K/4 [animals/year]", 0),
+    ("r_mean", "Mean exponential rate of increase r [1/year]", 3, "r_ci"),
+    ("lambda_mean", "Finite rate of increase λ [per year]", 3, "lambda_ci"),
+    ("r_max", "Logistic r_max [1/year]", 3, "r_max_ci"),
+    ("K", "Fitted ceiling K [animals]", 0, "K_ci"),
+    ("msy_level", "Maximum-sustained-yield level K/2 [animals]", 0, None),
+    ("msy_yield", "Maximum sustained yield r·K/4 [animals/year]", 0, None),
 )
 
 
 def _trend_figures(data: dict) -> dict:
     shown = {}
-    for name, label, digits in TREND_FIGURES:
+    for name, label, digits, interval in TREND_FIGURES:
         value = data.get(name)
         if not _missing(value):
-            shown[label] = f"{float(value):,.{digits}f}" + _interval(data, name, digits)
+            bounds = _interval(data, interval, digits) if interval else ""
+            shown[label] = f"{float(value):,.{digits}f}" + bounds
     for name, label in (("phase", "Phase"), ("ceiling_reason", "Ceiling evidence")):
         if data.get(name):
             shown[label] = str(data[name])
@@ -751,12 +760,44 @@ METHODS = (
 )
 
 
+BOOTSTRAP_METHOD = Method(
+    "Intervals: stratified bootstrap over plots",
+    "interval = (100·(1−level)/2, 100·(1+level)/2) percentiles of the replicate capacities",
+    "Plots are resampled with replacement within each stratum, the stratum means recomputed "
+    "and every capacity solved again for each replicate.",
+    "Efron, B. & Tibshirani, R.J. 1993. An Introduction to the Bootstrap. Chapman & Hall "
+    "(percentile intervals; stratified resampling, from memory).",
+)
+
+SENSITIVITY_METHOD = Method(
+    "Sensitivity",
+    "Δ_low = NCC(x·(1−δ)) − NCC(x);  Δ_high = NCC(x·(1+δ)) − NCC(x)    [animals]",
+    "Each input group is moved down and up by the fraction δ, one at a time, and total NCC "
+    "is solved again; inputs are ranked by |Δ_high − Δ_low|.",
+    "One-at-a-time perturbation (common practice).",
+)
+
+TREND_METHOD = Method(
+    "Population trend",
+    "λ = N(t+1)/N(t);  r = ln λ;  MSY level = K/2;  MSY = r_max·K/4",
+    population.LOGISTIC_METHOD + ".",
+    "The logistic model and maximum sustained yield (textbook population ecology); "
+    "May, R.M. 1974. Science 186:645–647 (discrete logistic, from memory).",
+)
+
+
+def methods(*, intervals: bool, sensitivity: bool, trend: bool) -> tuple[Method, ...]:
+    """The method entries of this run: the core, then those of the optional analyses."""
+    optional = ((intervals, BOOTSTRAP_METHOD), (sensitivity, SENSITIVITY_METHOD),
+                (trend, TREND_METHOD))
+    return METHODS + tuple(method for used, method in optional if used)
+
+
 # --- 12. parameters ---------------------------------------------------------------------------
 
 
-def _parameters(estimate: Estimate, project: Project) -> dict:
-    animals = read_animal_classes(project.input_path("animal_classes"))
-    forage = read_forage_classes(project.input_path("forage_classes"))
+def _parameters(estimate: Estimate, project: Project, animals: pd.DataFrame,
+                forage: pd.DataFrame) -> dict:
     season = project.config.project.season
     return {
         "states": _state_rows(animals, season, project),

@@ -1,0 +1,117 @@
+"""Project-file sections of the raster path: ``[rasters]`` and ``[availability]``.
+
+Same conventions as :mod:`nutricap.project`: TOML data only, unknown keys refused, paths relative
+to the project file. Which forage classes exist is only known once the forage-class table is
+read, so names of classes are checked later (:mod:`nutricap.landscape.grid_supply`).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Literal
+
+from pydantic import BaseModel, ConfigDict, Field, model_validator
+
+RESAMPLING_METHODS = ("nearest", "bilinear", "average")
+
+
+class _Section(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+
+class CalibratedSection(_Section):
+    """``[rasters.calibrated]``: clip plots with coordinates + an index raster → biomass rasters.
+
+    ``groups`` maps a forage group to its forage classes; one biomass model is fitted per group
+    (group biomass of a plot = the sum of its classes) and the group's predicted biomass is
+    shared among its classes in proportion to their plot totals.
+    """
+
+    index: Path
+    plots: Path
+    groups: dict[str, list[str]] = Field(min_length=1)
+    model: Literal["linear", "loglinear", "best"] = "best"
+    plots_crs: str | None = None
+    extrapolation_margin: float = Field(default=0.1, ge=0.0, le=1.0)
+    beyond_margin: Literal["clamp", "extrapolate"] = "clamp"
+
+    @model_validator(mode="after")
+    def _classes_once(self) -> CalibratedSection:
+        seen: dict[str, str] = {}
+        for group, classes in self.groups.items():
+            if not classes:
+                raise ValueError(f"group {group!r} lists no forage class")
+            for name in classes:
+                if name in seen:
+                    raise ValueError(
+                        f"forage class {name!r} is in groups {seen[name]!r} and {group!r}"
+                    )
+                seen[name] = group
+        return self
+
+    def classes(self) -> list[str]:
+        """Every forage class predicted from the index, in the order given."""
+        return [name for classes in self.groups.values() for name in classes]
+
+
+class RasterSection(_Section):
+    """``[rasters]``: forage rasters and how the grid is handled."""
+
+    biomass: dict[str, Path] = Field(default_factory=dict)
+    calibrated: CalibratedSection | None = None
+    resample: Literal["none", "nearest", "bilinear", "average"] = "none"
+    window_size: int | None = Field(default=None, ge=16, le=16_384)
+    density_compression: Literal["zstd", "deflate"] = "zstd"
+
+    @model_validator(mode="after")
+    def _one_source_per_class(self) -> RasterSection:
+        if self.calibrated is not None:
+            both = sorted(set(self.biomass) & set(self.calibrated.classes()))
+            if both:
+                raise ValueError(
+                    f"forage class {both[0]!r} has a biomass raster and a calibrated group"
+                )
+        return self
+
+
+class AvailabilitySection(_Section):
+    """``[availability]``: rules applied to every cell before forage is pooled by unit."""
+
+    snow_depth: Path | None = None
+    snow_burial: Literal["exposed_fraction", "all_or_none"] = "exposed_fraction"
+    slope: Path | None = None
+    slope_units: Literal["percent", "degrees"] = "percent"
+    slope_table: Path | None = None
+    distance_to_water: Path | None = None
+    water_table: Path | None = None
+    min_forage_kg_per_ha: float | None = Field(default=None, ge=0.0)
+    exclusions: list[Path] = Field(default_factory=list)
+
+    @model_validator(mode="after")
+    def _tables_need_layers(self) -> AvailabilitySection:
+        if self.slope_table is not None and self.slope is None:
+            raise ValueError("slope_table is given but no slope raster")
+        if self.water_table is not None and self.distance_to_water is None:
+            raise ValueError("water_table is given but no distance_to_water raster")
+        return self
+
+
+def raster_input_paths(
+    rasters: RasterSection | None, availability: AvailabilitySection | None
+) -> dict[str, Path]:
+    """Every file named in the two sections, by project key (paths as written, not resolved)."""
+    found: dict[str, Path] = {}
+    if rasters is not None:
+        for name, path in rasters.biomass.items():
+            found[f"rasters.biomass.{name}"] = path
+        if rasters.calibrated is not None:
+            found["rasters.calibrated.index"] = rasters.calibrated.index
+            found["rasters.calibrated.plots"] = rasters.calibrated.plots
+    if availability is not None:
+        for key in ("snow_depth", "slope", "slope_table", "distance_to_water", "water_table"):
+            path = getattr(availability, key)
+            if path is not None:
+                found[f"availability.{key}"] = path
+        for number, path in enumerate(availability.exclusions, start=1):
+            found[f"availability.exclusions.{number}"] = path
+    return found

@@ -1,0 +1,278 @@
+"""Treatment scenarios: capacity over the years after thinning, burning or seeding.
+
+A scenario (``[scenarios.NAME]`` in the project file) names a layer of
+treatment polygons (``treatment``, ``year``, optional ``new_stratum``) and a
+response table (by treatment, forage class or growth form, and years since
+treatment: biomass multiplier, DE shift, CP shift). For each year of the span,
+the treated part of every stratum piece becomes a patch of its own — in its new
+stratum when the treatment changes it — whose forage is the stratum's plot
+mean × the multiplier, with shifted quality; the problem is solved again and
+set beside the baseline.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+
+from nutricap.errors import InputError, SpatialError, TableError
+from nutricap.landscape.vectors import M2_PER_HA, StratumAreas, check_no_overlaps, read_layer
+from nutricap.problem import ForageItems, problem_from_pieces
+from nutricap.project import Project, ScenarioSection
+from nutricap.science.forage_quality import digestible_protein_pct
+from nutricap.science.treatment import response_at
+from nutricap.tables import Column, check_unique, read_csv_table, spreadsheet_row
+
+RESPONSE_COLUMNS = [
+    Column("treatment", "text", meaning="treatment type, as in the treatments layer"),
+    Column("forage_class", "text", required=False, allow_blank=True),
+    Column("growth_form", "text", required=False, allow_blank=True),
+    Column("years_since", minimum=0, maximum=200, meaning="years since treatment, >= 0"),
+    Column("biomass_multiplier", minimum=0, maximum=50, meaning="biomass × this, >= 0"),
+    Column(
+        "de_shift_kcal_per_g",
+        required=False,
+        allow_blank=True,
+        minimum=-3,
+        maximum=3,
+        meaning="change of digestible energy, kcal/g",
+    ),
+    Column(
+        "cp_shift_pct",
+        required=False,
+        allow_blank=True,
+        minimum=-30,
+        maximum=30,
+        meaning="change of crude protein, percentage points",
+    ),
+]
+MAX_DE_KCAL_PER_G = 5.0
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """A scenario read and overlaid on the units' stratum pieces.
+
+    Attributes
+    ----------
+    name : str
+    section : ScenarioSection
+    treated : DataFrame
+        ``unit_id, stratum, new_stratum, treatment, year, accessible_ha`` of every
+        treated piece.
+    responses : DataFrame
+        The response table.
+    """
+
+    name: str
+    section: ScenarioSection
+    treated: pd.DataFrame
+    responses: pd.DataFrame
+
+
+def load_scenario(project: Project, name: str, areas: StratumAreas, strata: list[str]) -> Scenario:
+    """Read a scenario's layer and table, check them, and overlay the treatments."""
+    section = _section(project, name)
+    treatments_path = (project.folder / section.treatments).resolve()
+    responses_path = (project.folder / section.responses).resolve()
+    responses = read_responses(responses_path)
+    treatments = read_treatments(treatments_path, section.treatments_layer, strata)
+    known = set(responses["treatment"])
+    missing = sorted(set(treatments["treatment"]) - known)
+    if missing:
+        raise SpatialError(
+            f"treatment {missing[0]!r} has no rows in the response table {responses_path}",
+            source=treatments_path,
+            location="attribute 'treatment'",
+            expected="one of " + ", ".join(map(repr, sorted(known))),
+            found=repr(missing[0]),
+        )
+    treated = overlay_treatments(areas, treatments.to_crs(areas.area_crs))
+    return Scenario(name, section, treated, responses)
+
+
+def _section(project: Project, name: str) -> ScenarioSection:
+    scenarios = project.config.scenarios
+    if name not in scenarios:
+        known = ", ".join(map(repr, sorted(scenarios))) or "none"
+        raise InputError(
+            f"no scenario named {name!r}",
+            source=project.path,
+            location=f"key 'scenarios.{name}'",
+            expected=f"one of the scenarios in the project file ({known})",
+            found=repr(name),
+        )
+    return scenarios[name]
+
+
+def read_responses(path: Path) -> pd.DataFrame:
+    """Read the response table; each row names a forage class or a growth form, not both."""
+    table = read_csv_table(path, RESPONSE_COLUMNS, what="treatment-response table")
+    for name in ("forage_class", "growth_form"):
+        if name not in table.columns:
+            table[name] = ""
+    for name in ("de_shift_kcal_per_g", "cp_shift_pct"):
+        table[name] = table.get(name, pd.Series(0.0, index=table.index)).fillna(0.0)
+    both = (table["forage_class"] != "") == (table["growth_form"] != "")
+    if both.any():
+        index = int(np.flatnonzero(both.to_numpy())[0])
+        raise TableError(
+            "a response row must name a forage class or a growth form",
+            source=path,
+            location=f"row {spreadsheet_row(index)}, columns 'forage_class'/'growth_form'",
+            expected="exactly one of the two filled",
+            found="both" if table["forage_class"].iloc[index] else "neither",
+        )
+    keys = ["treatment", "forage_class", "growth_form", "years_since"]
+    check_unique(table, keys, path)
+    return table.sort_values(keys, kind="stable").reset_index(drop=True)
+
+
+def read_treatments(path: Path, layer: str | None, strata: list[str]) -> gpd.GeoDataFrame:
+    """Read the treatment polygons.
+
+    Attributes: ``treatment`` (type), whole-number ``year``, optional ``new_stratum``.
+    """
+    frame = read_layer(path, layer=layer, columns=["treatment", "year"], what="treatments layer")
+    frame["treatment"] = frame["treatment"].astype(str).str.strip()
+    years = pd.to_numeric(frame["year"], errors="coerce").to_numpy(dtype=float)
+    bad = np.isnan(years) | (years != np.round(years))
+    if bad.any():
+        index = int(np.flatnonzero(bad)[0])
+        raise SpatialError(
+            "treatment year is not a whole number",
+            source=path,
+            location=f"feature {index + 1} (of {len(frame)}), attribute 'year'",
+            expected="a calendar year such as 2027",
+            found=repr(frame["year"].iloc[index]),
+        )
+    frame["year"] = years.astype(int)
+    if "new_stratum" not in frame.columns:
+        frame["new_stratum"] = ""
+    frame["new_stratum"] = frame["new_stratum"].fillna("").astype(str).str.strip()
+    unknown = ~frame["new_stratum"].isin(["", *strata])
+    if unknown.any():
+        index = int(np.flatnonzero(unknown.to_numpy())[0])
+        raise SpatialError(
+            "new_stratum is not a stratum with plots",
+            source=path,
+            location=f"feature {index + 1} (of {len(frame)}), attribute 'new_stratum'",
+            expected="empty, or one of " + ", ".join(map(repr, strata)),
+            found=repr(frame["new_stratum"].iloc[index]),
+        )
+    check_no_overlaps(frame.assign(_id=np.arange(1, len(frame) + 1)), "_id", path, "treatments")
+    return frame
+
+
+def overlay_treatments(areas: StratumAreas, treatments: gpd.GeoDataFrame) -> pd.DataFrame:
+    """Accessible hectares of every stratum piece under every treatment polygon."""
+    pieces = areas.pieces[["unit_id", "stratum", "accessible_fraction", "geometry"]]
+    treated = gpd.overlay(
+        pieces,
+        treatments[["treatment", "year", "new_stratum", "geometry"]],
+        how="intersection",
+        keep_geom_type=True,
+    )
+    treated["accessible_ha"] = treated.geometry.area / M2_PER_HA * treated["accessible_fraction"]
+    columns = ["unit_id", "stratum", "new_stratum", "treatment", "year"]
+    return treated.groupby(columns, as_index=False)["accessible_ha"].sum()
+
+
+def pieces_in_year(base: pd.DataFrame, treated: pd.DataFrame, year: int) -> pd.DataFrame:
+    """Land by unit, patch type and variant in ``year``: treated parts moved to their own patches.
+
+    Returns ``unit_id, stratum, variant, accessible_ha, treatment, years_since``.
+    """
+    done = treated[treated["year"] <= year]
+    untreated = base[["unit_id", "stratum", "accessible_ha"]].copy()
+    removed = done.groupby(["unit_id", "stratum"])["accessible_ha"].sum()
+    keys = pd.MultiIndex.from_frame(untreated[["unit_id", "stratum"]])
+    untreated["accessible_ha"] = np.maximum(
+        untreated["accessible_ha"].to_numpy() - removed.reindex(keys).fillna(0.0).to_numpy(), 0.0
+    )
+    untreated = untreated.assign(variant="", treatment="", years_since=np.nan)
+    moved = pd.DataFrame(
+        {
+            "unit_id": done["unit_id"],
+            "stratum": np.where(done["new_stratum"] != "", done["new_stratum"], done["stratum"]),
+            "variant": done["treatment"] + " " + done["year"].astype(str),
+            "accessible_ha": done["accessible_ha"],
+            "treatment": done["treatment"],
+            "years_since": year - done["year"],
+        }
+    )
+    return pd.concat([untreated, moved], ignore_index=True)
+
+
+def treated_items(base: ForageItems, pieces: pd.DataFrame, responses: pd.DataFrame) -> ForageItems:
+    """The baseline items plus, for every treated patch type, its items under the response."""
+    parts = [base]
+    variants = pieces[pieces["variant"] != ""].drop_duplicates(["stratum", "variant"])
+    for row in variants.itertuples():
+        items = base.subset((base.stratum == row.stratum) & (base.variant == ""))
+        parts.append(
+            respond(
+                items,
+                responses[responses["treatment"] == row.treatment],
+                row.years_since,
+                row.variant,
+            )
+        )
+    return ForageItems.concatenate(parts)
+
+
+def respond(
+    items: ForageItems, responses: pd.DataFrame, years_since: float, variant: str
+) -> ForageItems:
+    """``items`` of one stratum ``years_since`` years after a treatment."""
+    multiplier = np.ones(items.size)
+    de_shift = np.zeros(items.size)
+    cp_shift = np.zeros(items.size)
+    for index in range(items.size):
+        rows = _response_rows(responses, items.forage_class[index], items.growth_form[index])
+        if rows.empty:
+            continue
+        years = rows["years_since"].to_numpy()
+        multiplier[index] = response_at(years, rows["biomass_multiplier"], years_since, 1.0)
+        de_shift[index] = response_at(years, rows["de_shift_kcal_per_g"], years_since, 0.0)
+        cp_shift[index] = response_at(years, rows["cp_shift_pct"], years_since, 0.0)
+    cp = np.maximum(items.cp_pct + cp_shift, 0.0)
+    return replace(
+        items,
+        biomass_kg_per_ha=items.biomass_kg_per_ha * multiplier,
+        de_kcal_per_g=np.clip(items.de_kcal_per_g + de_shift, 0.0, MAX_DE_KCAL_PER_G),
+        cp_pct=cp,
+        dp_pct=np.where(cp_shift != 0, digestible_protein_pct(cp, items.tannin), items.dp_pct),
+        variant=np.full(items.size, variant, dtype=object),
+    )
+
+
+def _response_rows(responses: pd.DataFrame, forage_class: str, growth_form: str) -> pd.DataFrame:
+    """Rows for the class if there are any, else rows for its growth form."""
+    by_class = responses[responses["forage_class"] == forage_class]
+    if not by_class.empty:
+        return by_class
+    if growth_form == "":
+        return by_class
+    return responses[responses["growth_form"] == growth_form]
+
+
+def scenario_problem(
+    scenario: Scenario, areas: StratumAreas, base: ForageItems, year: int, mode: str
+):
+    """The capacity problem of ``scenario`` in ``year``, and the pieces it was built from."""
+    pieces = pieces_in_year(areas.by_unit_stratum, scenario.treated, year)
+    items = treated_items(base, pieces, scenario.responses)
+    problem = problem_from_pieces(areas.units["unit_id"].to_numpy(), pieces, items, mode)
+    return problem, pieces
+
+
+def years_since_latest_treatment(pieces: pd.DataFrame, unit_ids: np.ndarray) -> np.ndarray:
+    """Per unit, years since its most recent treatment so far (NaN where none yet)."""
+    treated = pieces[pieces["variant"] != ""]
+    latest = treated.groupby("unit_id")["years_since"].min()
+    return latest.reindex(unit_ids).to_numpy(dtype=float)

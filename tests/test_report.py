@@ -1,0 +1,500 @@
+"""Tests of the HTML report (nutricap.report.html) and its figures (nutricap.report.figures).
+
+The report is rendered on the invented example landscape and checked for structure: well
+formed, self-contained (no external src/href, images as PNG data URIs), every unit and the
+caution present, optional sections only when given. The small frames below are invented for
+the test: they check that the figures render and show what they are given, not that any
+capacity is right. Parsing uses Python's html.parser (standard library).
+"""
+
+from __future__ import annotations
+
+import base64
+import dataclasses
+import re
+import struct
+from html.parser import HTMLParser
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pytest
+from markupsafe import escape
+from matplotlib.container import ErrorbarContainer
+from shapely.geometry import box
+
+from nutricap.cautions import CAUTION
+from nutricap.manifest import build_manifest
+from nutricap.project import load_project
+from nutricap.report import figures
+from nutricap.report.html import ReportExtras, is_flag, render_report, write_report
+from nutricap.science.energetics import NUTRITIONAL_STATES
+
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), file signature
+VOID_ELEMENTS = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta",
+                 "source", "track", "wbr"}  # HTML Living Standard, "void elements"
+EXTERNAL = re.compile(r"^\s*(https?:|//|file:)", re.IGNORECASE)
+USE_COLUMNS = ["current_animals", "demand_kg", "key_class", "key_use_fraction",
+               "key_allowable_use", "overuse", "reduction_for_key_use_animals", "above_ncc",
+               "reduction_for_ncc_animals"]
+
+
+class Page(HTMLParser):
+    """Collects tags, attributes, ids, text and nesting errors of an HTML document."""
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.stack: list[str] = []
+        self.errors: list[str] = []
+        self.counts: dict[str, int] = {}
+        self.attributes: list[tuple[str, str, str]] = []
+        self.images: list[dict] = []
+        self.ids: set[str] = set()
+        self.text: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        self.counts[tag] = self.counts.get(tag, 0) + 1
+        attributes = dict(attrs)
+        self.attributes += [(tag, name, value or "") for name, value in attrs]
+        if "id" in attributes:
+            self.ids.add(attributes["id"])
+        if tag == "img":
+            self.images.append(attributes)
+        if tag not in VOID_ELEMENTS:
+            self.stack.append(tag)
+
+    def handle_startendtag(self, tag, attrs):
+        self.handle_starttag(tag, attrs)
+        if tag not in VOID_ELEMENTS:
+            self.stack.pop()
+
+    def handle_endtag(self, tag):
+        if not self.stack or self.stack[-1] != tag:
+            self.errors.append(f"</{tag}> closes <{self.stack[-1] if self.stack else None}>")
+            return
+        self.stack.pop()
+
+    def handle_data(self, data):
+        self.text.append(data)
+
+    @property
+    def plain_text(self) -> str:
+        return " ".join(" ".join(self.text).split())
+
+
+def parse(html: str) -> Page:
+    page = Page()
+    page.feed(html)
+    page.close()
+    return page
+
+
+def png_size(data: bytes) -> tuple[int, int]:
+    """Width and height from the IHDR chunk (PNG specification: bytes 16-24, big-endian)."""
+    assert data[:8] == PNG_SIGNATURE
+    assert data[12:16] == b"IHDR"
+    return struct.unpack(">II", data[16:24])
+
+
+@pytest.fixture(scope="module")
+def project(example_project):
+    return load_project(example_project)
+
+
+@pytest.fixture(scope="module")
+def manifest(project, example_estimate):
+    """The manifest as workflow.write_estimate builds it."""
+    return build_manifest(
+        command="estimate",
+        project_path=project.path,
+        input_paths=project.input_paths(),
+        settings=project.config.model_dump(mode="json"),
+        derived={
+            "diet_de_min_kcal_per_g": example_estimate.target.de_min_kcal_per_g,
+            "area_crs": example_estimate.areas.area_crs.to_string(),
+            "area_crs_reason": example_estimate.areas.area_crs_reason,
+        },
+    )
+
+
+@pytest.fixture(scope="module")
+def plain_estimate(example_estimate):
+    """The example estimate without interval and use columns (the base report)."""
+    table = example_estimate.by_unit
+    dropped = [c for c in table.columns if c.endswith(("_lo", "_hi")) or c in USE_COLUMNS]
+    return dataclasses.replace(example_estimate, by_unit=table.drop(columns=dropped))
+
+
+@pytest.fixture(scope="module")
+def base_html(plain_estimate, project, manifest):
+    return render_report(plain_estimate, project=project, manifest=manifest)
+
+
+@pytest.fixture(scope="module")
+def base_page(base_html):
+    return parse(base_html)
+
+
+def invented_scenario(unit_ids) -> pd.DataFrame:
+    """Baseline and scenario NCC by unit and year (values invented for the test)."""
+    rows = []
+    for unit in unit_ids:
+        for year in range(2026, 2031):
+            gain = 50.0 * np.exp(-(year - 2027) ** 2 / 2.0)
+            rows.append({"unit_id": unit, "scenario": "spring burn", "year": year,
+                         "years_since_treatment": year - 2026, "ncc_animals_baseline": 100.0,
+                         "ncc_animals_scenario": 100.0 + gain, "change_animals": gain})
+    return pd.DataFrame(rows)
+
+
+def invented_sensitivity() -> pd.DataFrame:
+    """Tornado table (values invented for the test)."""
+    return pd.DataFrame({"input": ["intake", "diet DE threshold", "biomass"],
+                         "low_change_animals": [120.0, 800.0, -90.0],
+                         "high_change_animals": [-100.0, -650.0, 95.0]})
+
+
+def invented_trend(K: float | None) -> dict:
+    """A count series with a fitted curve (values invented for the test)."""
+    years = list(range(2014, 2024))
+    fitted = [900.0 / (1.0 + 8.0 * np.exp(-0.5 * (y - 2014))) for y in years]
+    return {"series": "total", "years": years, "counts": [f * 1.04 for f in fitted],
+            "fitted_years": years, "fitted_counts": fitted, "K": K, "r_mean": 0.21,
+            "r_ci": [0.15, 0.27], "ceiling_reason": "invented for the test"}
+
+
+@pytest.fixture(scope="module")
+def full_html(example_estimate, project, manifest):
+    extras = ReportExtras(
+        scenario_table=invented_scenario(example_estimate.by_unit["unit_id"]),
+        sensitivity_table=invented_sensitivity(),
+        trend=invented_trend(K=900.0),
+        interval_level=0.9,
+        sensitivity_change=0.1,
+    )
+    table = example_estimate.by_unit.copy()
+    for name in ("ncc_animals", "ecc_animals", "allowable_use_animals"):
+        if f"{name}_lo" not in table.columns:  # intervals invented for the test
+            table[f"{name}_lo"] = 0.9 * table[name]
+            table[f"{name}_hi"] = 1.1 * table[name]
+    estimate = dataclasses.replace(example_estimate, by_unit=table)
+    return render_report(estimate, project=project, manifest=manifest, extras=extras)
+
+
+@pytest.fixture(scope="module")
+def full_page(full_html):
+    return parse(full_html)
+
+
+# --- structure and self-containment --------------------------------------------------------
+
+
+@pytest.mark.parametrize("which", ["base", "full"])
+def test_report_is_well_formed(which, base_page, full_page):
+    page = base_page if which == "base" else full_page
+    assert page.errors == []
+    assert page.stack == []
+    for tag in ("html", "head", "body", "main", "title", "style"):
+        assert page.counts.get(tag) == 1, tag
+    assert page.counts.get("script", 0) == 0
+
+
+def test_report_starts_with_doctype(base_html):
+    assert base_html.lstrip().lower().startswith("<!doctype html>")
+
+
+@pytest.mark.parametrize("which", ["base", "full"])
+def test_no_external_references(which, base_html, full_html, base_page, full_page):
+    html, page = (base_html, base_page) if which == "base" else (full_html, full_page)
+    external = [(tag, name, value[:60]) for tag, name, value in page.attributes
+                if EXTERNAL.match(value)]
+    assert external == []
+    assert "@import" not in html
+    assert not re.search(r"url\(\s*['\"]?(https?:|//|file:)", html, re.IGNORECASE)
+    links = [value for _tag, name, value in page.attributes if name == "href"]
+    assert links and all(value.startswith("#") for value in links)
+
+
+@pytest.mark.parametrize("which, expected", [("base", 2), ("full", 5)])
+def test_images_are_png_data_uris(which, expected, base_page, full_page):
+    page = base_page if which == "base" else full_page
+    assert len(page.images) == expected
+    for image in page.images:
+        assert image["src"].startswith("data:image/png;base64,")
+        data = base64.b64decode(image["src"].split(",", 1)[1], validate=True)
+        width, height = png_size(data)
+        assert width > 100 and height > 100
+        assert image.get("alt")
+
+
+def test_every_unit_and_the_caution_present(base_html, base_page, plain_estimate):
+    for unit in plain_estimate.by_unit["unit_id"]:
+        assert unit in base_page.plain_text
+    # Near the top (before the inputs) and again at the end (after the manifest).
+    caution = str(escape(CAUTION))
+    top = base_html.index('id="caution-top"')
+    end = base_html.index('id="caution-end"')
+    assert top < base_html.index(caution, top) < base_html.index('id="inputs"')
+    assert base_html.index('id="manifest"') < end < base_html.index(caution, end)
+
+
+def test_optional_sections_only_when_given(base_page, full_page):
+    optional = {"scenario", "trend", "sensitivity"}
+    assert not optional & base_page.ids
+    assert optional <= full_page.ids
+    for method in ("stratified bootstrap", "One-at-a-time perturbation", "discrete logistic"):
+        assert method not in base_page.plain_text
+        assert method in full_page.plain_text
+
+
+def test_sections_in_order(full_html):
+    order = ["caution-top", "inputs", "diet", "map", "capacity", "use", "scenario", "trend",
+             "units", "supply", "methods", "parameters", "manifest", "caution-end"]
+    positions = [full_html.index(f'id="{name}"') for name in order]
+    assert positions == sorted(positions)
+
+
+# --- content -------------------------------------------------------------------------------
+
+
+def test_inputs_list_every_file_with_its_checksum(base_page, manifest):
+    text = base_page.plain_text
+    assert manifest["inputs"]
+    for info in manifest["inputs"].values():
+        assert info["sha256"] in text
+    assert manifest["derived"]["area_crs_reason"] in text
+
+
+def test_input_counts(base_page, plain_estimate):
+    text = base_page.plain_text
+    supply = plain_estimate.supply
+    assert f"Clip plots {int(supply.n_plots.sum()):,}" in text
+    assert f"Vegetation strata {len(supply.strata)}" in text
+    assert f"Forage classes {len(supply.classes)}" in text
+
+
+def test_target_diet_shown(base_page, plain_estimate):
+    text = base_page.plain_text
+    assert f"{plain_estimate.target.de_min_kcal_per_g:.3f} kcal digestible energy" in text
+    assert plain_estimate.target.derivation in text
+
+
+def test_unit_table_totals_use_thousands_separators(base_page, plain_estimate):
+    # The total row repeats the sum of the table's own column (consistency, not correctness).
+    text = base_page.plain_text
+    total = plain_estimate.by_unit["ncc_animals"].sum()
+    assert total > 1000  # so that a separator is expected
+    assert f"{total:,.0f}" in text
+    assert f"{plain_estimate.by_unit['available_forage_kg'].sum():,.0f}" in text
+
+
+def test_methods_cite_every_source(base_page):
+    text = base_page.plain_text
+    for source in ("Kleiber", "70 · W^0.75", "ME / 0.82", "Robbins, C.T. 1993",
+                   "Robbins, C.T., Hanley", "Hobbs, N.T. & Swift, D.M. 1985",
+                   "Hanley, T.A. & Rogers, J.J. 1989", "PNW-RN-485", "Holechek, J.L. 1988",
+                   "National Range and Pasture Handbook", "AUM", "B = 10 · m / A"):
+        assert source in text, source
+
+
+def test_parameter_table_shows_state_sources_and_inputs(base_page):
+    text = base_page.plain_text
+    for source in NUTRITIONAL_STATES["source"]:
+        assert " ".join(source.split()) in text
+    assert "project input: forage_classes.csv" in text
+    assert "project input: animal_classes.csv" in text
+
+
+def test_manifest_in_collapsible_block(base_html, manifest):
+    details = re.search(r'<section id="manifest">.*?<details>(.*?)</details>', base_html,
+                        re.DOTALL)
+    assert details is not None
+    for name, version in manifest["versions"].items():
+        assert name in details.group(1) and version in details.group(1)
+
+
+def test_use_section_without_current_numbers(base_page):
+    assert "No current animal numbers were given" in base_page.plain_text
+    assert "Herd-reduction figures are advisory" in base_page.plain_text
+
+
+def test_use_section_flags(plain_estimate, project, manifest):
+    table = plain_estimate.by_unit.copy()
+    # Current numbers and flags invented for the test: the first unit is flagged.
+    table["current_animals"] = 500.0
+    table["key_use_fraction"] = 0.3
+    table["overuse"] = [True] + [False] * (len(table) - 1)
+    estimate = dataclasses.replace(plain_estimate, by_unit=table)
+    html = render_report(estimate, project=project, manifest=manifest)
+    use = re.search(r'<section id="use">(.*?)</section>', html, re.DOTALL).group(1)
+    assert use.count('class="flagged"') == 1
+    assert "1 unit(s) flagged" in use
+    assert "30 %" in use
+
+
+def test_use_section_with_current_numbers_only(plain_estimate, project, manifest):
+    table = plain_estimate.by_unit.assign(current_animals=100.0)  # invented for the test
+    html = render_report(dataclasses.replace(plain_estimate, by_unit=table), project=project,
+                         manifest=manifest)
+    assert "Current animal numbers were given" in parse(html).plain_text
+
+
+def test_intervals_in_table_and_caption(full_page):
+    text = full_page.plain_text
+    assert "NCC 90 % interval [animals]" in text
+    assert "Whiskers: 90 % intervals" in text
+
+
+def test_text_is_escaped(plain_estimate, project, manifest):
+    name = "<script>alert(1)</script>"
+    first = plain_estimate.by_unit["unit_id"].iloc[0]
+    units = plain_estimate.units.replace({"unit_id": {first: name}})
+    table = plain_estimate.by_unit.replace({"unit_id": {first: name}})
+    estimate = dataclasses.replace(plain_estimate, by_unit=table, units=units)
+    html = render_report(estimate, project=project, manifest=manifest)
+    assert name not in html
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in html
+
+
+def test_trend_without_ceiling(plain_estimate, project, manifest):
+    extras = ReportExtras(trend=invented_trend(K=None))
+    page = parse(render_report(plain_estimate, project=project, manifest=manifest,
+                               extras=extras))
+    text = page.plain_text
+    assert "no evidence of a ceiling" in text
+    assert "Counts are usually indices" in text
+    assert "weak evidence of K" in text
+
+
+def test_write_report(tmp_path, plain_estimate, project, manifest):
+    path = tmp_path / "report.html"
+    write_report(path, plain_estimate, project=project, manifest=manifest)
+    page = parse(path.read_text(encoding="utf-8"))
+    assert page.errors == [] and CAUTION in page.plain_text
+
+
+@pytest.mark.parametrize("value, flagged", [(True, True), (False, False), (np.bool_(True), True),
+                                            (None, False), (float("nan"), False), ("", False),
+                                            ("no", False), ("use above allowable", True)])
+def test_is_flag(value, flagged):
+    assert is_flag(value) is flagged
+
+
+# --- figures (small frames invented for the test) ------------------------------------------
+
+
+def check_png(figure) -> None:
+    data = figures.figure_png(figure)
+    width, height = png_size(data)
+    assert width > 100 and height > 100
+
+
+def legend_texts(ax) -> list[str]:
+    return [text.get_text() for text in ax.get_legend().get_texts()]
+
+
+def test_ncc_density_map():
+    units = gpd.GeoDataFrame({"unit_id": ["North", "South"]},
+                             geometry=[box(0, 1000, 1000, 2000), box(0, 0, 1000, 1000)],
+                             crs="EPSG:32612")
+    by_unit = pd.DataFrame({"unit_id": ["North", "South"], "ncc_per_km2": [12.0, 30.0]})
+    figure = figures.ncc_density_map(units, by_unit)
+    check_png(figure)
+    labels = [ax.get_ylabel() for ax in figure.axes] + [ax.get_xlabel() for ax in figure.axes]
+    assert any("animals/km²" in label for label in labels)
+    assert any("[km]" in label for label in labels)
+    names = [text.get_text() for text in figure.axes[0].texts]
+    assert sorted(names) == ["North", "South"]
+
+
+def capacity_frame(intervals: bool) -> pd.DataFrame:
+    frame = pd.DataFrame({"unit_id": ["A", "B"], "ncc_animals": [100.0, 250.0],
+                          "ecc_animals": [400.0, 900.0], "allowable_use_animals": [200.0, 500.0]})
+    if intervals:
+        for name in ("ncc_animals", "ecc_animals", "allowable_use_animals"):
+            frame[f"{name}_lo"] = frame[name] * 0.8
+            frame[f"{name}_hi"] = frame[name] * 1.2
+    return frame
+
+
+@pytest.mark.parametrize("intervals", [False, True])
+def test_capacity_figure(intervals):
+    figure = figures.capacity_figure(capacity_frame(intervals), season_days=120,
+                                     interval_level=0.9)
+    check_png(figure)
+    ax = figure.axes[0]
+    bars = [c for c in ax.containers if isinstance(c, ErrorbarContainer)]
+    assert len(bars) == (3 if intervals else 0)
+    assert "[animals" in ax.get_xlabel()
+    assert any(("90 % interval" in text) is intervals for text in legend_texts(ax))
+
+
+def test_capacity_figure_limits_units():
+    frame = pd.DataFrame({"unit_id": [f"U{i}" for i in range(10)],
+                          "ncc_animals": np.arange(10.0), "ecc_animals": np.arange(10.0) * 4,
+                          "allowable_use_animals": np.arange(10.0) * 2})
+    figure = figures.capacity_figure(frame, max_units=4)
+    ticks = [t.get_text() for t in figure.axes[0].get_yticklabels()]
+    assert sorted(ticks) == ["U6", "U7", "U8", "U9"]  # the four largest ECC
+    assert "4 of 10" in figure.axes[0].get_title()
+
+
+def test_population_trend_figure_with_ceiling():
+    figure = figures.population_trend_figure([2020, 2021, 2022], [100, 150, 190],
+                                             [2020, 2021, 2022], [105, 145, 185], 400.0,
+                                             300.0, 900.0)
+    check_png(figure)
+    texts = legend_texts(figure.axes[0])
+    for label in ("K (fitted ceiling): 400", "K/2 (maximum sustained yield level): 200",
+                  "NCC from forage: 300", "ECC from forage: 900", "Fitted logistic"):
+        assert label in texts
+    assert figure.axes[0].get_ylabel().endswith("]")
+
+
+def test_population_trend_figure_without_ceiling():
+    figure = figures.population_trend_figure([2020, 2021, 2022], [100, 150, 190], None, None,
+                                             None, 300.0, None)
+    ax = figure.axes[0]
+    texts = legend_texts(ax)
+    assert not any(text.startswith("K") for text in texts)
+    assert any("no evidence of a ceiling" in text for text in texts)
+    assert "no evidence of a ceiling" in ax.get_title()
+    assert len(ax.lines) == 2  # the counts and the NCC line
+
+
+def test_scenario_figure_total_is_sum_over_units():
+    table = invented_scenario(["A", "B", "C"])
+    figure = figures.scenario_figure(table)
+    ax = figure.axes[0]
+    lines = {line.get_label(): line for line in ax.lines}
+    expected = table.groupby("year")["ncc_animals_scenario"].sum()
+    np.testing.assert_allclose(lines["scenario: spring burn"].get_ydata(), expected.to_numpy())
+    np.testing.assert_allclose(lines["baseline"].get_ydata(), 300.0)
+    check_png(figure)
+
+
+def test_scenario_figure_small_multiples():
+    figure = figures.scenario_figure(invented_scenario(["A", "B", "C", "D"]), per_unit=True)
+    assert len(figure.axes) == 5
+    assert [ax.get_title() for ax in figure.axes[1:]] == ["A", "B", "C", "D"]
+
+
+def test_scenario_figure_needs_its_columns():
+    with pytest.raises(ValueError, match="ncc_animals_scenario"):
+        figures.scenario_figure(invented_scenario(["A"]).drop(columns="ncc_animals_scenario"))
+
+
+def test_tornado_sorted_by_range():
+    figure = figures.tornado_figure(invented_sensitivity(), change=0.1)
+    check_png(figure)
+    ax = figure.axes[0]
+    top_to_bottom = [t.get_text() for t in ax.get_yticklabels()][::-1]
+    assert top_to_bottom == ["diet DE threshold", "intake", "biomass"]  # ranges 1450, 220, 185
+    assert legend_texts(ax) == ["input at -10%", "input at +10%"]
+
+
+def test_tornado_limits_inputs():
+    table = pd.DataFrame({"input": list("abcdef"), "low_change_animals": -np.arange(6.0),
+                          "high_change_animals": np.arange(6.0)})
+    figure = figures.tornado_figure(table, max_inputs=3)
+    assert sorted(t.get_text() for t in figure.axes[0].get_yticklabels()) == ["d", "e", "f"]

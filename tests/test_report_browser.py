@@ -1,0 +1,76 @@
+"""The HTML report in a real browser: headless Chromium renders it with its images.
+
+Skipped when no Chromium (or Chrome) executable is on the PATH. The report is rendered
+with every optional section (scenario, sensitivity and trend values invented for the test,
+see tests/test_report.py); the checks are about display, not about any number.
+"""
+
+from __future__ import annotations
+
+import re
+import shutil
+import subprocess
+
+import numpy as np
+import pytest
+from PIL import Image
+from test_report import full_html, manifest, project  # noqa: F401  (fixtures reused)
+
+from nutricap.report.figures import OKABE_ITO
+
+BROWSERS = ("chromium", "chromium-browser", "google-chrome", "google-chrome-stable")
+BROWSER = next((path for name in BROWSERS if (path := shutil.which(name))), None)
+TIMEOUT_S = 60
+WINDOW = (1200, 3000)
+
+pytestmark = pytest.mark.skipif(
+    BROWSER is None, reason="no Chromium or Chrome executable on the PATH "
+    f"(looked for {', '.join(BROWSERS)}); install one, e.g. apt-get install chromium",
+)
+
+
+def run_browser(tmp_path, *arguments: str) -> subprocess.CompletedProcess:
+    command = [BROWSER, "--headless", "--no-sandbox", "--disable-gpu", "--hide-scrollbars",
+               "--disable-dev-shm-usage", "--no-first-run", "--disable-extensions",
+               f"--user-data-dir={tmp_path / 'profile'}", *arguments]
+    return subprocess.run(command, capture_output=True, text=True, timeout=TIMEOUT_S,
+                          check=False)
+
+
+@pytest.fixture(scope="module")
+def report_file(tmp_path_factory, full_html):  # noqa: F811
+    path = tmp_path_factory.mktemp("browser") / "report.html"
+    path.write_text(full_html, encoding="utf-8")
+    return path
+
+
+def near(pixels: np.ndarray, hex_colour: str, tolerance: int = 24) -> int:
+    """Number of pixels within ``tolerance`` (per channel) of ``hex_colour``."""
+    target = np.array([int(hex_colour[i:i + 2], 16) for i in (1, 3, 5)])
+    return int(np.all(np.abs(pixels[..., :3].astype(int) - target) <= tolerance, axis=-1).sum())
+
+
+def test_screenshot_shows_the_figures(tmp_path, report_file):
+    shot = tmp_path / "report.png"
+    result = run_browser(tmp_path, f"--screenshot={shot}",
+                         f"--window-size={WINDOW[0]},{WINDOW[1]}", report_file.as_uri())
+    assert shot.is_file() and shot.stat().st_size > 0, result.stderr[-2000:]
+    pixels = np.asarray(Image.open(shot).convert("RGB"))
+    assert pixels.shape[:2] == (WINDOW[1], WINDOW[0])
+    packed = (pixels[..., 0].astype(np.uint32) << 16) | (pixels[..., 1].astype(np.uint32) << 8)
+    assert np.unique(packed | pixels[..., 2]).size > 50  # not a blank, one-colour page
+    # Colours that only the embedded PNGs carry: the ECC markers (Okabe-Ito bluish green)
+    # of the capacity chart and the top of the cividis scale on the map, (254, 232, 56)
+    # read from matplotlib's cividis colour map at 1.0.
+    assert near(pixels, OKABE_ITO["bluish_green"]) > 30
+    assert near(pixels, "#FEE838") > 500
+
+
+def test_dumped_dom_has_every_image(tmp_path, report_file, full_html):  # noqa: F811
+    result = run_browser(tmp_path, "--dump-dom", report_file.as_uri())
+    assert result.returncode == 0, result.stderr[-2000:]
+    dom = result.stdout
+    sources = re.findall(r'<img[^>]*\ssrc="([^"]*)"', dom)
+    assert len(sources) == full_html.count("<img ") == 5
+    assert all(source.startswith("data:image/png;base64,") for source in sources)
+    assert 'id="caution-top"' in dom and 'id="caution-end"' in dom

@@ -1,0 +1,142 @@
+"""Tests of treatment scenarios: nutricap.science.treatment, nutricap.scenarios, `compare`.
+
+Checks are identities of the method (no effect in, no effect out), shapely
+areas as the independent measure of moved land, and hand-computed
+interpolation. The example's responses are invented for the example and are
+never used as check values.
+"""
+
+import shutil
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pytest
+from shapely.affinity import translate
+from shapely.geometry import box
+
+from nutricap.cli import main
+from nutricap.project import load_project
+from nutricap.scenarios import load_scenario, pieces_in_year
+from nutricap.science.treatment import response_at
+from nutricap.workflow import compare, estimate
+
+
+def test_response_interpolation_hand_computed():
+    years, values = [1, 5, 10], [2.0, 1.2, 1.1]
+    # Halfway between years 1 and 5: (2.0 + 1.2) / 2 = 1.6 (linear interpolation).
+    assert float(response_at(years, values, 3, untreated=1.0)) == pytest.approx(1.6)
+    assert float(response_at(years, values, 0, untreated=1.0)) == pytest.approx(2.0)
+    assert float(response_at(years, values, 11, untreated=1.0)) == 1.0  # after the last year
+    assert float(response_at(years, values, -1, untreated=1.0)) == 1.0  # not yet treated
+
+
+@pytest.fixture()
+def project(example_project, tmp_path):
+    folder = tmp_path / "inputs"
+    shutil.copytree(example_project.parent, folder)
+    return folder / example_project.name
+
+
+def _ncc_change(project_file, scenario):
+    _, table = compare(load_project(project_file), scenario)
+    return table
+
+
+def test_neutral_response_changes_nothing(project):
+    responses = pd.read_csv(project.parent / "treatment_responses.csv")
+    responses["biomass_multiplier"] = 1.0
+    responses["de_shift_kcal_per_g"] = 0.0
+    responses["cp_shift_pct"] = 0.0
+    responses.to_csv(project.parent / "treatment_responses.csv", index=False)
+    table = _ncc_change(project, "juniper_thinning")
+    np.testing.assert_allclose(
+        table["ncc_animals_scenario"], table["ncc_animals_baseline"], rtol=1e-9
+    )
+    np.testing.assert_allclose(
+        table["ecc_animals_scenario"], table["ecc_animals_baseline"], rtol=1e-9
+    )
+
+
+def test_treatment_outside_every_unit_changes_nothing(project):
+    path = project.parent / "treatments_thinning.gpkg"
+    layer = gpd.read_file(path)
+    layer["geometry"] = layer.geometry.apply(lambda g: translate(g, xoff=200_000))
+    layer.to_file(path, layer="treatments_thinning", driver="GPKG")
+    table = _ncc_change(project, "juniper_thinning")
+    assert table["change_animals"].abs().max() == pytest.approx(0.0, abs=1e-9)
+    assert table["years_since_treatment"].isna().all()
+
+
+def test_effect_ends_after_the_last_listed_year(project):
+    table = _ncc_change(project, "juniper_thinning")
+    treated_units = table.loc[table["change_animals"].abs() > 1e-6, "unit_id"].unique()
+    assert len(treated_units) > 0
+    # The thinning responses end 15 years after 2027; juniper's row ends there too.
+    after = table[table["year"] > 2027 + 15]
+    assert after.empty or np.allclose(after["change_animals"], 0.0, atol=1e-9)
+    before = table[table["year"] < 2027]
+    np.testing.assert_allclose(before["change_animals"], 0.0, atol=1e-9)
+
+
+def test_stratum_change_moves_the_treated_area(project):
+    estimate_units = gpd.read_file(project.parent / "units.gpkg")
+    strata = gpd.read_file(project.parent / "strata.gpkg")
+    unit = estimate_units.geometry.iloc[0]
+    x0, y0, _, _ = unit.bounds
+    square = box(x0, y0, x0 + 3000, y0 + 3000).intersection(unit)
+    burn = gpd.GeoDataFrame(
+        {"treatment": ["prescribed_burn"], "year": [2028], "new_stratum": ["burned_shrub"]},
+        geometry=[square],
+        crs=strata.crs,
+    )
+    burn.to_file(project.parent / "treatments_burn.gpkg", layer="treatments_burn", driver="GPKG")
+    loaded = load_project(project)
+    result = estimate(loaded)
+    scenario = load_scenario(loaded, "prescribed_burn", result.areas, result.supply.strata)
+    pieces = pieces_in_year(result.areas.by_unit_stratum, scenario.treated, 2030)
+    moved = pieces[pieces["variant"] != ""]
+    # Independent: shapely area of (square ∩ each stratum polygon) × its accessible fraction.
+    expected_ha = (
+        sum(
+            square.intersection(g).area * f
+            for g, f in zip(strata.geometry, strata["accessible_fraction"])
+        )
+        / 1e4
+    )
+    assert moved["accessible_ha"].sum() == pytest.approx(expected_ha, rel=1e-6)
+    assert set(moved["stratum"]) == {"burned_shrub"}
+    # Land is conserved: what left the old strata arrived in the new one.
+    total_before = result.areas.by_unit_stratum["accessible_ha"].sum()
+    assert pieces["accessible_ha"].sum() == pytest.approx(total_before, rel=1e-9)
+
+
+def test_compare_command_writes_table_and_chart(project, tmp_path, capsys):
+    out = tmp_path / "compare"
+    code = main(
+        ["compare", str(project), "--scenario", "prescribed_burn", "--out", str(out), "--quiet"]
+    )
+    assert code == 0
+    table = pd.read_csv(out / "scenario_by_unit.csv")
+    required = [
+        "unit_id",
+        "scenario",
+        "year",
+        "years_since_treatment",
+        "ncc_animals_baseline",
+        "ncc_animals_scenario",
+        "change_animals",
+    ]
+    assert set(required) <= set(table.columns)
+    chart = (out / "scenario_by_unit.png").read_bytes()
+    assert chart.startswith(b"\x89PNG\r\n\x1a\n") and len(chart) > 10_000
+    assert "CAUTION" in capsys.readouterr().out
+
+
+def test_unknown_scenario_is_one_clear_message(project, tmp_path, capsys):
+    code = main(
+        ["compare", str(project), "--scenario", "clearcut", "--out", str(tmp_path / "x"), "--quiet"]
+    )
+    err = capsys.readouterr().err
+    assert code == 2 and "no scenario named 'clearcut'" in err and "juniper_thinning" in err
+    assert not (tmp_path / "x").exists()
