@@ -47,9 +47,10 @@ from nutricap.scenarios import (
 )
 from nutricap.science import energetics
 from nutricap.science.forage_quality import mixed_diet_quality
+from nutricap.science.population import logistic_trajectory
 from nutricap.sensitivity import input_groups
 from nutricap.tables import spreadsheet_row
-from nutricap.trend import read_counts
+from nutricap.trend import TOTAL_LABEL, analyse_series, read_counts, select_series
 from nutricap.uncertainty import (
     BootstrapResult,
     add_intervals,
@@ -96,6 +97,7 @@ class Estimate:
     target: DietTarget
     season_days: float
     uncertainty: Uncertainty = field(default_factory=lambda: Uncertainty())
+    trend: dict | None = None
     notes: list[str] = field(default_factory=list)
     grid: GridResult | None = None
 
@@ -143,6 +145,7 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     if uncertainty.bootstrap is not None:
         by_unit = add_intervals(by_unit, uncertainty.bootstrap, days)
     by_unit, use_by_class = assess_current_use(project, areas, problem, by_unit, herd, say)
+    trend = counts_trend(project, say)
     return Estimate(
         by_unit=by_unit,
         use_by_class=use_by_class,
@@ -156,6 +159,7 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
         target=target,
         season_days=days,
         uncertainty=uncertainty,
+        trend=trend,
         notes=_supply_notes(supply, inputs.plots) + (grid.notes if grid is not None else []),
         grid=grid,
     )
@@ -292,6 +296,35 @@ def assess_current_use(
         season_days=project.config.project.days,
         preference=problem.items.preference,
     )
+
+
+TREND_LEVEL = 0.95
+"""Confidence level of the trend figures shown beside the capacity (as `nutricap trend`)."""
+
+
+def counts_trend(project: Project, say: Progress) -> dict | None:
+    """Trend figures of the project's counts (the total over units), with the fitted curve."""
+    path = project.input_path("counts")
+    if path is None:
+        return None
+    say("population trend of the counts")
+    series = select_series(read_counts(path), path, None)
+    name = TOTAL_LABEL if TOTAL_LABEL in series else next(iter(series))
+    frame = series[name]
+    figures = analyse_series(frame, TREND_LEVEL)
+    figures["series"] = name
+    if figures.get("K") is not None:
+        years = np.arange(int(frame["year"].min()), int(frame["year"].max()) + 1)
+        removals = frame.set_index("year")["removals"].reindex(years).fillna(0.0).to_numpy()
+        figures["fitted_years"] = years.tolist()
+        figures["fitted_counts"] = logistic_trajectory(
+            float(frame["count"].iloc[0]),
+            figures["r_max"],
+            figures["K"],
+            years.size,
+            removals[:-1],
+        ).tolist()
+    return figures
 
 
 def current_animals(project: Project, areas: StratumAreas) -> np.ndarray | None:
@@ -563,6 +596,8 @@ def write_estimate(
     write_csv(result.supply.table(), folder / "supply_by_stratum.csv")
     if result.use_by_class is not None:
         write_csv(result.use_by_class, folder / "use_by_unit_class.csv")
+    if result.trend is not None:
+        write_json(result.trend, folder / "trend.json")
     if result.uncertainty.sensitivity is not None:
         write_csv(result.uncertainty.sensitivity, folder / "sensitivity.csv")
     write_geopackage(result.by_unit, result.units, folder / "capacity_by_unit.gpkg")
@@ -603,6 +638,7 @@ def report_extras(
         scenario_table=scenario_table,
         sensitivity_table=uncertainty.sensitivity,
         interval_level=uncertainty.bootstrap.level if uncertainty.bootstrap else None,
+        trend=result.trend,
         sensitivity_change=uncertainty.change or None,
     )
 

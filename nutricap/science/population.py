@@ -256,6 +256,40 @@ def logistic_step(n_animals, r_max, K, removals=0.0):
     return _step(n_animals, r_max, 1.0 / np.asarray(K, dtype=float), removals)
 
 
+def logistic_trajectory(first_count, r_max, K, n_years: int, removals=None) -> np.ndarray:
+    """The discrete logistic iterated from a starting count, year by year.
+
+    Parameters
+    ----------
+    first_count : float
+        Animals in the first year [animals].
+    r_max : float
+        Per-capita growth per year at low density [1/year, discrete scale].
+    K : float
+        Ceiling [animals].
+    n_years : int
+        Number of years in the trajectory, the first included.
+    removals : array, shape (n_years - 1,), optional
+        Animals removed after each year's count [animals]; default none.
+
+    Returns
+    -------
+    array, shape (n_years,)
+        Animals each year [animals]; never below 0.
+
+    Examples
+    --------
+    >>> logistic_trajectory(100.0, 0.5, 1000.0, 3).round(1).tolist()
+    [100.0, 145.0, 207.0]
+    """
+    harvest = np.zeros(max(n_years - 1, 0)) if removals is None else np.asarray(removals, float)
+    path = np.empty(n_years)
+    path[0] = first_count
+    for year in range(1, n_years):
+        path[year] = max(float(logistic_step(path[year - 1], r_max, K, harvest[year - 1])), 0.0)
+    return path
+
+
 def fit_logistic(years, counts, removals=None, level: float = 0.95) -> LogisticFit:
     """Fit the discrete logistic to a count series and judge whether it shows a ceiling.
 
@@ -305,8 +339,9 @@ def fit_logistic(years, counts, removals=None, level: float = 0.95) -> LogisticF
     error and the detection of density dependence. *Journal of Animal Ecology* 75:837–851.
     """
     _check_level(level)
-    years, counts, removals = _as_series(years, counts, min_counts=MIN_COUNTS_LOGISTIC,
-                                         removals=removals)
+    years, counts, removals = _as_series(
+        years, counts, min_counts=MIN_COUNTS_LOGISTIC, removals=removals
+    )
     steps = _whole_year_steps(years)
     harvest = _harvest_by_step(years, steps, removals)
     scale = float(counts.max())
@@ -427,8 +462,11 @@ def population_phase(n_animals, K):
     """
     K = np.asarray(K, dtype=float)
     if np.any(~(K > 0)):
-        raise InputError("K must be positive to place a population against it",
-                         expected="K > 0", found=repr(float(np.min(K))))
+        raise InputError(
+            "K must be positive to place a population against it",
+            expected="K > 0",
+            found=repr(float(np.min(K))),
+        )
     ratio = np.asarray(n_animals, dtype=float) / K
     low = PHASE_THRESHOLDS["low_density_below_fraction_of_K"]
     band = PHASE_THRESHOLDS["near_ceiling_band_fraction_of_K"]
@@ -451,8 +489,12 @@ def _step(n_animals, r_max, crowding, removals):
 
 def _check_level(level: float) -> None:
     if not 0.0 < level < 1.0:
-        raise InputError("confidence level out of range", location="level",
-                         expected="a number between 0 and 1, e.g. 0.95", found=repr(level))
+        raise InputError(
+            "confidence level out of range",
+            location="level",
+            expected="a number between 0 and 1, e.g. 0.95",
+            found=repr(level),
+        )
 
 
 def _t_quantile(level: float, dof: int) -> float:
@@ -463,23 +505,32 @@ def _as_series(years, counts, min_counts: int, removals=None):
     """Validate a series and return (years, counts, removals) sorted by year."""
     years = np.asarray(years, dtype=float).ravel()
     counts = np.asarray(counts, dtype=float).ravel()
-    removals = np.zeros_like(counts) if removals is None else np.asarray(
-        removals, dtype=float).ravel()
+    removals = (
+        np.zeros_like(counts) if removals is None else np.asarray(removals, dtype=float).ravel()
+    )
     if not years.size == counts.size == removals.size:
-        raise InputError("years, counts and removals differ in length",
-                         expected="one year per count",
-                         found=f"{years.size} years, {counts.size} counts, "
-                               f"{removals.size} removals")
+        raise InputError(
+            "years, counts and removals differ in length",
+            expected="one year per count",
+            found=f"{years.size} years, {counts.size} counts, {removals.size} removals",
+        )
     _check_values(years, counts, removals)
     if counts.size < min_counts:
-        raise InputError("too few counts", expected=f"at least {min_counts} yearly counts",
-                         found=f"{counts.size}")
+        raise InputError(
+            "too few counts",
+            expected=f"at least {min_counts} yearly counts",
+            found=f"{counts.size}",
+        )
     order = np.argsort(years, kind="stable")
     years, counts, removals = years[order], counts[order], removals[order]
     repeated = np.flatnonzero(np.diff(years) == 0)
     if repeated.size:
-        raise InputError("the same year appears twice", location=f"year {years[repeated[0]]:g}",
-                         expected="one count per year", found="two counts")
+        raise InputError(
+            "the same year appears twice",
+            location=f"year {years[repeated[0]]:g}",
+            expected="one count per year",
+            found="two counts",
+        )
     return years, counts, removals
 
 
@@ -492,8 +543,12 @@ def _check_values(years, counts, removals) -> None:
         if not ok.all():
             first = int(np.flatnonzero(~ok)[0])
             where = f"year {years[first]:g}" if np.isfinite(years[first]) else f"entry {first}"
-            raise InputError(f"invalid {name}", location=where, expected=expected,
-                             found=repr(float(values[first])))
+            raise InputError(
+                f"invalid {name}",
+                location=where,
+                expected=expected,
+                found=repr(float(values[first])),
+            )
 
 
 def _whole_year_steps(years) -> np.ndarray:
@@ -501,9 +556,12 @@ def _whole_year_steps(years) -> np.ndarray:
     steps = np.rint(gaps).astype(int)
     if np.any(np.abs(gaps - steps) > 1e-9):
         first = int(np.flatnonzero(np.abs(gaps - steps) > 1e-9)[0])
-        raise InputError("the logistic fit needs whole years between counts",
-                         location=f"year {years[first]:g}", expected="whole-year intervals",
-                         found=f"an interval of {gaps[first]:g} years")
+        raise InputError(
+            "the logistic fit needs whole years between counts",
+            location=f"year {years[first]:g}",
+            expected="whole-year intervals",
+            found=f"an interval of {gaps[first]:g} years",
+        )
     return steps
 
 
@@ -548,16 +606,18 @@ def _start_values(counts, steps, harvest, scale) -> list[np.ndarray]:
     if intercept <= 0:
         return [geometric]
     lower, upper = zip(_R_MAX_BOUNDS, _CROWDING_BOUNDS, strict=True)
-    regression = np.clip([intercept, -slope / intercept], np.add(lower, 1e-6),
-                         np.subtract(upper, 1e-6))
+    regression = np.clip(
+        [intercept, -slope / intercept], np.add(lower, 1e-6), np.subtract(upper, 1e-6)
+    )
     return [geometric, regression]
 
 
 def _least_squares_best_start(residuals, counts, steps, harvest, scale):
     bounds = tuple(zip(_R_MAX_BOUNDS, _CROWDING_BOUNDS, strict=True))
     fits = [
-        optimize.least_squares(residuals, start, jac="3-point", bounds=bounds, method="trf",
-                               x_scale=1.0)
+        optimize.least_squares(
+            residuals, start, jac="3-point", bounds=bounds, method="trf", x_scale=1.0
+        )
         for start in _start_values(counts, steps, harvest, scale)
     ]
     return min(fits, key=lambda fit: fit.cost)
@@ -568,12 +628,25 @@ def _judge_fit(fit, counts, scale, level) -> LogisticFit:
     dof = n_residuals - 2
     sd = float(np.sqrt(2.0 * fit.cost / dof))
     r_max, crowding_scaled = (float(value) for value in fit.x)
-    common = dict(r_max=r_max, method=LOGISTIC_METHOD, crowding_per_animal=crowding_scaled / scale,
-                  residual_sd_log=sd, n_counts=int(counts.size), level=float(level))
+    common = dict(
+        r_max=r_max,
+        method=LOGISTIC_METHOD,
+        crowding_per_animal=crowding_scaled / scale,
+        residual_sd_log=sd,
+        n_counts=int(counts.size),
+        level=float(level),
+    )
     information = fit.jac.T @ fit.jac
     if np.any(fit.active_mask != 0) or np.linalg.cond(information) > _SINGULAR_CONDITION:
-        return LogisticFit(K=None, K_ci=None, r_max_ci=None, crowding_ci=None,
-                           ceiling_evidence=False, reason=_NOT_IDENTIFIABLE, **common)
+        return LogisticFit(
+            K=None,
+            K_ci=None,
+            r_max_ci=None,
+            crowding_ci=None,
+            ceiling_evidence=False,
+            reason=_NOT_IDENTIFIABLE,
+            **common,
+        )
     half = _t_quantile(level, dof) * np.sqrt(np.diag(sd**2 * np.linalg.inv(information)))
     r_ci = (float(r_max - half[0]), float(r_max + half[0]))
     c_ci = (float(crowding_scaled - half[1]), float(crowding_scaled + half[1]))
@@ -600,25 +673,35 @@ def _ceiling_verdict(r_max, crowding_scaled, c_ci, level) -> str | None:
     """Reason the series does not support a ceiling, or None when it does."""
     pct = f"{100 * level:g}%"
     if r_max <= 0:
-        return ("no evidence of a ceiling: the fitted growth at low density r_max is not above "
-                "zero, so the series does not show a population growing toward a limit")
+        return (
+            "no evidence of a ceiling: the fitted growth at low density r_max is not above "
+            "zero, so the series does not show a population growing toward a limit"
+        )
     if crowding_scaled <= 0:
         return "no evidence of a ceiling: growth did not slow as numbers rose (fitted 1/K ≤ 0)"
     if c_ci[0] <= 0:
-        return (f"no evidence of a ceiling: the density-dependence term 1/K is not different "
-                f"from zero at the {pct} level")
+        return (
+            f"no evidence of a ceiling: the density-dependence term 1/K is not different "
+            f"from zero at the {pct} level"
+        )
     if crowding_scaled * FAR_ABOVE_LARGEST_COUNT < 1.0:
-        return (f"no evidence of a ceiling: the fitted K is more than "
-                f"{FAR_ABOVE_LARGEST_COUNT:g} times the largest count, so the series does not "
-                f"show where growth stops")
+        return (
+            f"no evidence of a ceiling: the fitted K is more than "
+            f"{FAR_ABOVE_LARGEST_COUNT:g} times the largest count, so the series does not "
+            f"show where growth stops"
+        )
     return None
 
 
 def _supported_reason(level, crowding_scaled_low) -> str:
-    reason = (f"ceiling supported: growth slows with density (1/K above zero at the "
-              f"{100 * level:g}% level) and K lies within {FAR_ABOVE_LARGEST_COUNT:g} times the "
-              f"largest count")
+    reason = (
+        f"ceiling supported: growth slows with density (1/K above zero at the "
+        f"{100 * level:g}% level) and K lies within {FAR_ABOVE_LARGEST_COUNT:g} times the "
+        f"largest count"
+    )
     if crowding_scaled_low * FAR_ABOVE_LARGEST_COUNT < 1.0:
-        reason += (f"; but the upper limit of K is more than {FAR_ABOVE_LARGEST_COUNT:g} times "
-                   f"the largest count, so K is poorly bounded")
+        reason += (
+            f"; but the upper limit of K is more than {FAR_ABOVE_LARGEST_COUNT:g} times "
+            f"the largest count, so K is poorly bounded"
+        )
     return reason

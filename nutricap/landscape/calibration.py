@@ -1,0 +1,367 @@
+"""Calibrated raster supply (capability 1b): clip plots with coordinates + an index raster.
+
+For each forage group, the group's biomass on each plot (the sum of its classes, kg/ha) is
+regressed on the index raster sampled at the plot, by one of two models:
+
+- ``linear``:    B = a + b·x (ordinary least squares; predictions below 0 are set to 0);
+- ``loglinear``: ln B = a + b·x (ordinary least squares on ln B; back-transformed with
+  Duan's (1983) smearing factor, B = exp(a + b·x) · mean(exp(residuals))).
+
+``best`` picks the model with the lower AIC **on the original (kg/ha) scale**: for the
+log-linear model the log-likelihood of ln B is converted to that of B by the Jacobian of the
+transformation, ``ℓ_B = ℓ_lnB − Σ ln B_i`` (Akaike 1978), so ``AIC_B = AIC_lnB + 2 Σ ln B_i``;
+both models have k = 3 parameters (a, b, σ). The log-linear model needs every plot's group
+biomass > 0.
+
+A group's predicted biomass is shared among its classes in proportion to their totals over
+the plots (ratio of sums). The plots' index range bounds the model: cells beyond it by more
+than a margin are clamped to the margin (or extrapolated on request) and reported.
+
+References
+----------
+Akaike, H. 1978. On the likelihood of a time series model. J. R. Stat. Soc. D 27:217-235.
+Duan, N. 1983. Smearing estimate: a nonparametric retransformation method. J. Am. Stat.
+    Assoc. 78:605-610.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import rasterio
+from pyproj import CRS, Transformer
+
+from nutricap.errors import SpatialError, TableError
+from nutricap.inputs import PLOT_COLUMNS
+from nutricap.science.supply import biomass_kg_per_ha
+from nutricap.tables import Column, check_known, check_unique, read_csv_table, spreadsheet_row
+
+MODELS = ("linear", "loglinear")
+N_PARAMETERS = 3  # intercept, slope, residual variance
+MIN_PLOTS = 3  # the residual standard error needs n - 2 > 0
+
+CALIBRATION_PLOT_COLUMNS = [
+    Column("plot_id", "text", meaning="plot identifier"),
+    Column("x", meaning="easting or longitude of the plot, in plots_crs"),
+    Column("y", meaning="northing or latitude of the plot, in plots_crs"),
+    *[column for column in PLOT_COLUMNS if column.name not in {"plot_id", "stratum"}],
+]
+
+
+@dataclass(frozen=True)
+class BiomassModel:
+    """A fitted index → biomass model of one forage group.
+
+    Attributes
+    ----------
+    group : str
+    kind : str
+        ``"linear"`` or ``"loglinear"``.
+    intercept, slope : float
+        a and b of ``B = a + b·x`` or ``ln B = a + b·x``.
+    residual_se : float
+        Residual standard error on the fitted scale, ``sqrt(SSR / (n − 2))``
+        ([kg/ha] for linear, [ln(kg/ha)] for log-linear).
+    rmse_kg_per_ha : float
+        Root-mean-square error of the fitted values on the original scale [kg/ha].
+    r_squared : float
+        Coefficient of determination on the fitted scale.
+    aic : float
+        Akaike information criterion on the original scale (see the module notes).
+    smearing : float
+        Duan (1983) back-transformation factor (1 for the linear model).
+    n : int
+        Number of plots.
+    index_min, index_max : float
+        Range of the index over the plots.
+    """
+
+    group: str
+    kind: str
+    intercept: float
+    slope: float
+    residual_se: float
+    rmse_kg_per_ha: float
+    r_squared: float
+    aic: float
+    smearing: float
+    n: int
+    index_min: float
+    index_max: float
+
+    def predict_kg_per_ha(self, index):
+        """Group biomass [kg/ha] at index values ``index`` (float32 in, float32 out)."""
+        index = np.asarray(index, dtype=np.float32)
+        fitted = np.float32(self.intercept) + np.float32(self.slope) * index
+        if self.kind == "linear":
+            return np.maximum(fitted, np.float32(0.0))
+        return np.exp(fitted) * np.float32(self.smearing)
+
+
+def _least_squares(x: np.ndarray, y: np.ndarray) -> tuple[float, float, np.ndarray]:
+    """Intercept, slope and residuals of the ordinary least-squares line of y on x."""
+    x_mean, y_mean = x.mean(), y.mean()
+    slope = float(np.sum((x - x_mean) * (y - y_mean)) / np.sum((x - x_mean) ** 2))
+    intercept = float(y_mean - slope * x_mean)
+    return intercept, slope, y - (intercept + slope * x)
+
+
+def gaussian_aic(residuals: np.ndarray, n_parameters: int = N_PARAMETERS) -> float:
+    """AIC of a normal linear model from its residuals.
+
+    Notes
+    -----
+    With the maximum-likelihood variance σ̂² = SSR/n the log-likelihood is
+    ``ℓ = −n/2 · (ln(2π σ̂²) + 1)`` and ``AIC = 2k − 2ℓ`` (Akaike 1978).
+    """
+    n = residuals.size
+    variance = float(np.sum(residuals**2)) / n
+    log_likelihood = -0.5 * n * (np.log(2.0 * np.pi * variance) + 1.0)
+    return 2.0 * n_parameters - 2.0 * log_likelihood
+
+
+def fit_linear(group: str, index, biomass_kg_per_ha) -> BiomassModel:
+    """Fit ``B = a + b·x`` by ordinary least squares (see the module notes)."""
+    x, y = _as_pairs(index, biomass_kg_per_ha)
+    intercept, slope, residuals = _least_squares(x, y)
+    return _model(group, "linear", intercept, slope, x, y, residuals, residuals, smearing=1.0)
+
+
+def fit_loglinear(group: str, index, biomass_kg_per_ha) -> BiomassModel:
+    """Fit ``ln B = a + b·x`` by ordinary least squares; every B must be > 0."""
+    x, y = _as_pairs(index, biomass_kg_per_ha)
+    if np.any(y <= 0):
+        raise ValueError("the log-linear model needs every biomass > 0")
+    intercept, slope, residuals = _least_squares(x, np.log(y))
+    smearing = float(np.mean(np.exp(residuals)))
+    original = y - np.exp(intercept + slope * x) * smearing
+    log_y = np.log(y)
+    model = _model(group, "loglinear", intercept, slope, x, log_y, residuals, original, smearing)
+    return replace(model, aic=model.aic + 2.0 * float(np.sum(log_y)))
+
+
+def _as_pairs(index, biomass) -> tuple[np.ndarray, np.ndarray]:
+    x = np.asarray(index, dtype=float)
+    y = np.asarray(biomass, dtype=float)
+    if x.size < MIN_PLOTS or np.ptp(x) == 0:
+        raise ValueError(f"a model needs at least {MIN_PLOTS} plots with different index values")
+    return x, y
+
+
+def _model(group, kind, intercept, slope, x, fitted_scale_y, residuals, original, smearing):
+    n = x.size
+    total = float(np.sum((fitted_scale_y - fitted_scale_y.mean()) ** 2))
+    ssr = float(np.sum(residuals**2))
+    return BiomassModel(
+        group=group,
+        kind=kind,
+        intercept=intercept,
+        slope=slope,
+        residual_se=float(np.sqrt(ssr / (n - 2))),
+        rmse_kg_per_ha=float(np.sqrt(np.mean(original**2))),
+        r_squared=1.0 - ssr / total if total > 0 else float("nan"),
+        aic=gaussian_aic(residuals),
+        smearing=smearing,
+        n=n,
+        index_min=float(x.min()),
+        index_max=float(x.max()),
+    )
+
+
+def select_model(group: str, index, biomass_kg_per_ha, choice: str) -> tuple[BiomassModel, str]:
+    """Fit the chosen model, or both and keep the lower original-scale AIC (``"best"``).
+
+    Returns the model and, in words, why it was chosen. Raises ValueError when the chosen
+    model cannot be fitted (too few plots, or log-linear with a zero biomass).
+    """
+    if choice == "linear":
+        return fit_linear(group, index, biomass_kg_per_ha), "chosen in the project file"
+    if choice == "loglinear":
+        return fit_loglinear(group, index, biomass_kg_per_ha), "chosen in the project file"
+    linear = fit_linear(group, index, biomass_kg_per_ha)
+    if np.any(np.asarray(biomass_kg_per_ha) <= 0):
+        return linear, "best: log-linear not possible (a plot has zero biomass)"
+    loglinear = fit_loglinear(group, index, biomass_kg_per_ha)
+    best = min((linear, loglinear), key=lambda model: model.aic)
+    other = loglinear if best is linear else linear
+    return best, f"best: lower AIC on the kg/ha scale ({best.aic:.2f} vs {other.aic:.2f})"
+
+
+def read_calibration_plots(path: Path, known_classes: set[str]) -> pd.DataFrame:
+    """Read the plots-with-coordinates table; return it with ``biomass_kg_per_ha``.
+
+    One row per plot × forage class found (a class not recorded on a plot is 0 there);
+    every plot has one location.
+    """
+    table = read_csv_table(path, CALIBRATION_PLOT_COLUMNS, what="calibration plots table")
+    direct = table.get("biomass_kg_per_ha", pd.Series(np.nan, index=table.index))
+    if {"dry_mass_g", "frame_area_m2"} <= set(table.columns):
+        framed = biomass_kg_per_ha(table["dry_mass_g"].to_numpy(), table["frame_area_m2"])
+        direct = direct.fillna(pd.Series(np.asarray(framed), index=table.index))
+    missing = direct.isna().to_numpy()
+    if missing.any():
+        raise TableError(
+            "no biomass value",
+            source=path,
+            location=f"row {spreadsheet_row(int(np.flatnonzero(missing)[0]))}",
+            expected="dry_mass_g with frame_area_m2, or biomass_kg_per_ha",
+            found="empty cells",
+        )
+    table["biomass_kg_per_ha"] = direct
+    check_unique(table, ["plot_id", "forage_class"], path)
+    check_known(table, "forage_class", known_classes, path, known_from="the forage-class table")
+    moved = table.groupby("plot_id")[["x", "y"]].transform("first").ne(table[["x", "y"]])
+    if moved.any(axis=None):
+        index = int(np.flatnonzero(moved.any(axis=1).to_numpy())[0])
+        raise TableError(
+            "plot recorded at two locations",
+            source=path,
+            location=f"row {spreadsheet_row(index)}, columns 'x'/'y'",
+            expected="the same x and y on every row of a plot",
+            found=f"plot {table['plot_id'].iloc[index]!r} moved",
+        )
+    return table
+
+
+def group_biomass(plots: pd.DataFrame, groups: dict[str, list[str]]) -> pd.DataFrame:
+    """Plots × groups biomass [kg/ha] (sum of each group's classes; 0 when none recorded).
+
+    The index is ``plot_id``; columns ``x``, ``y`` come first.
+    """
+    classes = [name for members in groups.values() for name in members]
+    wide = (
+        plots.pivot_table(
+            index="plot_id", columns="forage_class", values="biomass_kg_per_ha", aggfunc="sum"
+        )
+        .reindex(columns=classes, fill_value=0.0)
+        .fillna(0.0)
+    )
+    sums = pd.DataFrame({group: wide[members].sum(axis=1) for group, members in groups.items()})
+    where = plots.groupby("plot_id")[["x", "y"]].first().reindex(sums.index)
+    return pd.concat([where, sums], axis=1)
+
+
+def class_shares(plots: pd.DataFrame, groups: dict[str, list[str]], path: Path) -> dict[str, float]:
+    """Share of each class in its group's biomass over all plots (ratio of sums) [0–1]."""
+    totals = plots.groupby("forage_class")["biomass_kg_per_ha"].sum()
+    shares = {}
+    for group, members in groups.items():
+        amounts = totals.reindex(members, fill_value=0.0)
+        if amounts.sum() <= 0:
+            raise TableError(
+                f"forage group {group!r} has no biomass on any plot",
+                source=path,
+                location="column 'forage_class'",
+                expected="plots recording " + ", ".join(map(repr, members)),
+                found="none, or only zeros",
+            )
+        shares.update((amounts / amounts.sum()).to_dict())
+    return shares
+
+
+def sample_index(index_path: Path, where: pd.DataFrame, plots_crs: str | None, plots_path: Path):
+    """The index raster's value at each plot (first band).
+
+    Raises :class:`SpatialError` naming the first plot that lies outside the raster or on a
+    nodata cell, and how many do.
+    """
+    with rasterio.open(index_path) as src:
+        x, y = where["x"].to_numpy(float), where["y"].to_numpy(float)
+        if plots_crs is not None and CRS.from_user_input(plots_crs) != CRS(src.crs.to_wkt()):
+            transformer = Transformer.from_crs(plots_crs, src.crs.to_wkt(), always_xy=True)
+            x, y = transformer.transform(x, y)
+        rows, cols = rasterio.transform.rowcol(src.transform, x, y)
+        rows, cols = np.asarray(rows), np.asarray(cols)
+        inside = (rows >= 0) & (rows < src.height) & (cols >= 0) & (cols < src.width)
+        values = np.full(x.size, np.nan)
+        if inside.any():
+            sampled = np.ma.masked_array(
+                [v[0] for v in src.sample(zip(x[inside], y[inside]), indexes=1, masked=True)]
+            )
+            values[inside] = np.ma.filled(sampled.astype(float), np.nan)
+    bad = ~np.isfinite(values)
+    if bad.any():
+        first = int(np.flatnonzero(bad)[0])
+        raise SpatialError(
+            f"the index raster does not cover {int(bad.sum())} of {bad.size} calibration plots",
+            source=index_path,
+            location=f"plot {where.index[first]!r} at ({where['x'].iloc[first]:g}, "
+            f"{where['y'].iloc[first]:g}) in {plots_path.name}",
+            expected="every plot on a cell of the index raster with data"
+            + ("" if plots_crs else " (x, y in the raster's CRS, or set plots_crs)"),
+            found="outside the raster" if not inside[first] else "a nodata cell",
+        )
+    return values
+
+
+def clamp_index(index, low: float, high: float):
+    """Index values limited to ``[low, high]`` (float32)."""
+    return np.clip(np.asarray(index, dtype=np.float32), np.float32(low), np.float32(high))
+
+
+def margin_bounds(model: BiomassModel, margin: float) -> tuple[float, float]:
+    """The plots' index range widened by ``margin`` × its width on each side."""
+    width = model.index_max - model.index_min
+    return model.index_min - margin * width, model.index_max + margin * width
+
+
+def calibration_table(models: list[BiomassModel], reasons: list[str], groups: dict) -> pd.DataFrame:
+    """One row per group: the model, its fit, residual error and n (for calibration.csv)."""
+    rows = [
+        {
+            "forage_group": m.group,
+            "forage_classes": " ".join(groups[m.group]),
+            "model": m.kind,
+            "selection": reason,
+            "n_plots": m.n,
+            "intercept": m.intercept,
+            "slope": m.slope,
+            "r_squared": m.r_squared,
+            "residual_se": m.residual_se,
+            "residual_se_scale": "kg/ha" if m.kind == "linear" else "ln(kg/ha)",
+            "rmse_kg_per_ha": m.rmse_kg_per_ha,
+            "aic_kg_per_ha_scale": m.aic,
+            "smearing_factor": m.smearing,
+            "index_min": m.index_min,
+            "index_max": m.index_max,
+        }
+        for m, reason in zip(models, reasons)
+    ]
+    return pd.DataFrame(rows)
+
+
+def fit_groups(
+    plots_path: Path,
+    index_path: Path,
+    groups: dict[str, list[str]],
+    choice: str,
+    plots_crs: str | None,
+    known_classes: set[str],
+) -> tuple[list[BiomassModel], dict[str, float], pd.DataFrame]:
+    """Read the plots, sample the index and fit one model per group.
+
+    Returns the models (in the order of ``groups``), the class shares within groups, and the
+    calibration table.
+    """
+    plots = read_calibration_plots(plots_path, known_classes)
+    by_plot = group_biomass(plots, groups)
+    index = sample_index(index_path, by_plot, plots_crs, plots_path)
+    shares = class_shares(plots, groups, plots_path)
+    models, reasons = [], []
+    for group in groups:
+        try:
+            model, reason = select_model(group, index, by_plot[group].to_numpy(), choice)
+        except ValueError as exc:
+            raise TableError(
+                f"cannot fit the {choice} model of forage group {group!r}: {exc}",
+                source=plots_path,
+                expected=f"at least {MIN_PLOTS} plots with different index values"
+                + ("; every plot's group biomass > 0" if choice == "loglinear" else ""),
+                found=f"{len(by_plot)} plots, index range {np.ptp(index):g}",
+            ) from None
+        models.append(model)
+        reasons.append(reason)
+    return models, shares, calibration_table(models, reasons, groups)

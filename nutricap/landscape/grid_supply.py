@@ -1,0 +1,941 @@
+"""Forage supply on a raster grid, streamed window by window (capabilities 1b, 1c, 3, 5, 11).
+
+For each window of the grid: the biomass of every forage class in every cell [kg/ha] (strata
+classes from the plot means of the cell's stratum, direct classes from their rasters,
+calibrated classes from the index raster and the group models) → the availability rules
+(:func:`nutricap.landscape.availability.apply_rules`) → sums by (unit, stratum) key. Sums are
+taken over runs of equal key along each row (``numpy.add.reduceat``) and the run sums are
+added into the keys (``numpy.bincount``). A cell belongs to a unit or stratum polygon when its
+centre lies in it (GDAL's rasteriser); cells outside the strata map carry no forage.
+
+The result is a :class:`~nutricap.problem.CapacityProblem` (one row per unit, or per unit ×
+stratum patch) like the vector path's, so the same solver and tables follow. A second streamed
+pass writes ``capacity_density.tif``: animal-days per hectare from each cell's share of the
+forage eaten in its row of the solution. The per-cell forage left by the rules is kept between
+the two passes in a temporary file (not in memory), so the inputs are read only once.
+
+Precision: per-cell arithmetic and the sums along one row of a window are float32 (relative
+error below 1e-5, far below the sampling error of the inputs); everything summed across runs
+and windows is float64.
+"""
+
+from __future__ import annotations
+
+import shutil
+import sys
+import tempfile
+import weakref
+from collections import deque
+from collections.abc import Callable, Iterator
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import rasterio
+from rasterio.windows import Window
+from tqdm import tqdm
+
+from nutricap.errors import ProjectFileError, SpatialError
+from nutricap.landscape import availability as rules_mod
+from nutricap.landscape.calibration import BiomassModel, fit_groups, margin_bounds
+from nutricap.landscape.plots import StratumSupply, stratum_supply
+from nutricap.landscape.rasters import (
+    Grid,
+    LayerSpec,
+    LayerStack,
+    ShapeBurner,
+    grid_windows,
+    read_grid,
+    streaming_env,
+)
+from nutricap.landscape.vectors import (
+    M2_PER_HA,
+    StratumAreas,
+    _extra_unit_columns,
+    check_no_overlaps,
+    choose_area_crs,
+    read_layer,
+)
+from nutricap.problem import CapacityProblem, build_forage_items
+from nutricap.report.tables import write_csv
+
+Progress = Callable[[str], None]
+DENSITY_NODATA = -9999.0
+READ_AHEAD = 2  # windows read by background threads while one is computed
+
+
+@dataclass(frozen=True)
+class CalibratedGroup:
+    """A forage group predicted from the index raster."""
+
+    model: BiomassModel
+    class_index: np.ndarray  # columns of the group's classes
+    shares: np.ndarray  # share of each class in the group [0-1]
+    low: float  # index range used as fitted (plots' range ± margin)
+    high: float
+    clamp: bool  # clamp the index beyond [low, high] (else extrapolate)
+
+
+@dataclass(frozen=True)
+class GridSetup:
+    """Constants of the per-window computation (everything but the window's data)."""
+
+    classes: list[str]
+    n_strata: int
+    polygon_stratum: np.ndarray  # (polygons + 1,) stratum code of each burnt polygon code
+    polygon_biomass: np.ndarray  # (polygons + 1, classes) plot-mean kg/ha, 0 for raster classes
+    strata_columns: list[int]  # classes whose biomass comes from the plots of the stratum
+    polygon_access: np.ndarray | None  # (polygons + 1,) accessible fraction
+    direct: dict[int, str]  # class column → layer key
+    calibrated: list[CalibratedGroup]
+    index_key: str | None
+    rules: rules_mod.CellRules
+    snow_key: str | None
+    slope_key: str | None
+    water_key: str | None
+    dump_key: int
+
+    @property
+    def n_classes(self) -> int:
+        return len(self.classes)
+
+
+@dataclass
+class WindowData:
+    """What the reader threads hand over for one window."""
+
+    window: Window
+    layers: dict[str, tuple[np.ndarray, np.ndarray]]
+    units: np.ndarray  # unit code, 0 = none
+    polygons: np.ndarray  # strata polygon code, 0 = none
+    excluded: np.ndarray | None
+
+
+@dataclass
+class WindowSums:
+    """What one window adds to the totals."""
+
+    run_keys: np.ndarray
+    run_cells: np.ndarray
+    run_sums: np.ndarray  # (rows of the layout, runs) float32
+    calibration_cells: np.ndarray  # (groups, 3): beyond range, beyond margin, negative
+    cell_keys: np.ndarray  # key of each cell, dump where it has no data
+    cell_kg_per_ha: np.ndarray  # (classes, cells) forage left after the rules
+
+
+@dataclass
+class Totals:
+    """Sums over every window, by key (unit × (strata + "no stratum") + dump)."""
+
+    cells: np.ndarray
+    sums: np.ndarray
+    calibration_cells: np.ndarray
+
+    def add(self, part: WindowSums) -> None:
+        self.cells += np.bincount(part.run_keys, weights=part.run_cells, minlength=self.cells.size)
+        for row, values in enumerate(part.run_sums):
+            self.sums[:, row] += np.bincount(
+                part.run_keys, weights=values, minlength=self.cells.size
+            )
+        self.calibration_cells += part.calibration_cells
+
+
+class CellCache:
+    """Per-cell results of the first pass, kept in a temporary file for the density pass.
+
+    The file (key int32 + forage of every class float32 per cell) is removed by
+    :meth:`remove`, or when the object is garbage-collected, or at exit.
+    """
+
+    def __init__(self) -> None:
+        self.folder = Path(tempfile.mkdtemp(prefix="nutricap-cells-"))
+        self.path = self.folder / "cells.bin"
+        self._finalizer = weakref.finalize(self, shutil.rmtree, self.folder, True)
+        self._stream = open(self.path, "wb")  # noqa: SIM115 - closed in finish()
+
+    def append(self, keys: np.ndarray, kg_per_ha: np.ndarray) -> None:
+        self._stream.write(keys.astype(np.int32, copy=False).tobytes())
+        self._stream.write(np.ascontiguousarray(kg_per_ha, dtype=np.float32).tobytes())
+
+    def finish(self) -> None:
+        self._stream.close()
+
+    def windows(
+        self, windows: list[Window], n_classes: int
+    ) -> Iterator[tuple[Window, np.ndarray, np.ndarray]]:
+        """Yield each window with its cells' keys and forage, in the order written."""
+        with open(self.path, "rb") as stream:
+            for window in windows:
+                n = int(window.width) * int(window.height)
+                keys = np.frombuffer(stream.read(4 * n), dtype=np.int32)
+                kg = np.frombuffer(stream.read(4 * n * n_classes), dtype=np.float32)
+                yield window, keys, kg.reshape(n_classes, n)
+
+    def remove(self) -> None:
+        self._finalizer()
+
+
+@dataclass
+class GridResult:
+    """The grid path's result: the capacity problem and what the rules and models did.
+
+    Attributes
+    ----------
+    problem : CapacityProblem
+    areas : StratumAreas
+        Units with their polygon ``area_ha``; ``by_unit_stratum`` with ``area_ha`` and
+        ``accessible_ha`` from the cells.
+    supply : StratumSupply
+        Plot statistics of the strata-based forage classes (may have no class).
+    rules_report : DataFrame
+        Area and forage each availability rule removed, per unit (see
+        :func:`nutricap.landscape.availability.rules_report`).
+    calibration_report : DataFrame or None
+        One row per calibrated forage group.
+    notes : list of str
+    grid : Grid
+    resampled : dict
+        Layer key → resampling method (None when the layer was on the grid).
+    """
+
+    problem: CapacityProblem
+    areas: StratumAreas
+    supply: StratumSupply
+    rules_report: pd.DataFrame
+    calibration_report: pd.DataFrame | None
+    notes: list[str]
+    grid: Grid
+    resampled: dict[str, str | None]
+    windows: list[Window] = field(repr=False)
+    cache: CellCache = field(repr=False)
+    row_of_key: np.ndarray = field(repr=False)
+    stratum_of_key: np.ndarray = field(repr=False)
+    classes: list[str] = field(default_factory=list)
+    compression: str = "zstd"
+    show_progress: bool = False
+
+    def describe(self) -> dict:
+        """Grid, resampling and rules in plain values, for the run manifest."""
+        return {
+            "grid": self.grid.describe(),
+            "resampled_layers": {k: v for k, v in self.resampled.items() if v is not None},
+            "rules_applied": sorted(set(self.rules_report["rule"]), key=rules_mod.RULES.index),
+            "cell_membership": "a cell belongs to a polygon when its centre lies in it",
+        }
+
+
+# --- project → layers, classes and rules ------------------------------------------------------
+
+
+def layer_specs(project) -> list[LayerSpec]:
+    """Every raster of the project in grid order: the first defines the grid."""
+    paths = project.input_paths()
+    keys = [key for key in paths if key.startswith(("rasters.", "availability."))]
+    rasters = [
+        key for key in keys if not key.endswith((".plots", "_table")) and ".exclusions." not in key
+    ]
+    return [LayerSpec(key, paths[key]) for key in rasters]
+
+
+def _general_classes(forage_classes: pd.DataFrame) -> pd.DataFrame:
+    return forage_classes[forage_classes["stratum"] == ""].set_index("forage_class")
+
+
+def _check_class_names(project, names: list[str], key: str, known: list[str]) -> None:
+    unknown = [name for name in names if name not in known]
+    if unknown:
+        raise ProjectFileError(
+            f"forage class {unknown[0]!r} is not in the forage-class table",
+            source=project.path,
+            location=f"key {key!r}",
+            expected="one of " + ", ".join(map(repr, known)),
+            found=repr(unknown[0]),
+        )
+
+
+def cell_rules(project, forage_classes: pd.DataFrame, classes: list[str], partial: bool):
+    """The availability rules of the project, with the class heights the snow rule needs."""
+    section = project.config.availability
+    if section is None:
+        return rules_mod.CellRules(partial_access=partial)
+    heights = None
+    if section.snow_depth is not None:
+        heights = _general_classes(forage_classes).loc[classes, "height_cm"].to_numpy(float)
+        missing = [name for name, h in zip(classes, heights) if np.isnan(h)]
+        if missing:
+            raise ProjectFileError(
+                f"forage class {missing[0]!r} has no height_cm, which the snow rule needs",
+                source=project.input_path("forage_classes"),
+                location="column 'height_cm'",
+                expected="a height for every forage class when [availability] snow_depth is set",
+                found=f"{len(missing)} class(es) without: " + ", ".join(map(repr, missing)),
+            )
+    folder = project.folder
+    return rules_mod.CellRules(
+        height_cm=heights,
+        snow_method=section.snow_burial,
+        min_forage_kg_per_ha=section.min_forage_kg_per_ha,
+        slope_table=_table(section.slope, section.slope_table, "slope", folder),
+        water_table=_table(
+            section.distance_to_water, section.water_table, "distance_to_water", folder
+        ),
+        slope_in_degrees=section.slope_units == "degrees",
+        partial_access=partial,
+        exclusions=bool(section.exclusions),
+    )
+
+
+def _table(layer, table, factor: str, folder: Path):
+    if layer is None:
+        return None
+    path = (folder / table).resolve() if table is not None else None
+    return rules_mod.load_reduction_table(path, factor)
+
+
+def strata_supply(plots, strata, strata_classes, all_classes, project) -> StratumSupply:
+    """Plot statistics of the strata-based classes (every plot counts, with its zeros)."""
+    map_strata = sorted(strata["stratum"].unique())
+    if not strata_classes:
+        n_plots = plots.groupby("stratum")["plot_id"].nunique().reindex(map_strata, fill_value=0)
+        empty = np.zeros((len(map_strata), 0))
+        return StratumSupply(map_strata, [], empty, empty.copy(), n_plots.to_numpy(int))
+    full = stratum_supply(
+        plots,
+        all_classes,
+        map_strata,
+        plots_path=project.input_path("plots"),
+        strata_path=project.input_path("strata"),
+        strata_without_forage=project.config.supply.strata_without_forage,
+    )
+    columns = [all_classes.index(name) for name in strata_classes]
+    return StratumSupply(
+        full.strata,
+        list(strata_classes),
+        full.mean_kg_per_ha[:, columns],
+        full.se_kg_per_ha[:, columns],
+        full.n_plots,
+    )
+
+
+# --- the per-window computation -------------------------------------------------------------
+
+
+def window_sums(setup: GridSetup, data: WindowData) -> WindowSums:
+    """Per-cell biomass → availability rules → run sums of one window (pure, no file access)."""
+    units = data.units.ravel()
+    polygons = data.polygons.ravel()
+    stratum = setup.polygon_stratum[polygons]
+    key = (units.astype(np.int32) - 1) * np.int32(setup.n_strata + 1) + stratum
+    key[units == 0] = setup.dump_key
+    mapped = (units > 0) & (polygons > 0)
+    valid = mapped.copy()
+    for name in _used_layers(setup):
+        valid &= data.layers[name][1].ravel()
+    invalid = ~valid
+    for name in _used_layers(setup):
+        np.putmask(data.layers[name][0], invalid.reshape(data.units.shape), np.float32(0.0))
+    gross, calibration_cells = _gross_biomass(setup, data, polygons, valid)
+    outcome = rules_mod.apply_rules(
+        gross,
+        setup.rules,
+        valid,
+        excluded=None if data.excluded is None else data.excluded.ravel(),
+        accessible_fraction=None
+        if setup.polygon_access is None
+        else setup.polygon_access[polygons],
+        snow_depth_cm=_layer(data, setup.snow_key),
+        slope=_layer(data, setup.slope_key),
+        distance_to_water_m=_layer(data, setup.water_key),
+    )
+    mapped_without_data = (mapped & invalid).astype(np.float32)
+    layout = [outcome.available_kg_per_ha, gross, outcome.access[None], mapped_without_data[None]]
+    for rule in setup.rules.active()[1:]:
+        layout.append(outcome.removed_kg_per_ha[rule][None])
+        layout.append(outcome.affected[rule].astype(np.float32)[None])
+    stacked = np.concatenate(layout, axis=0)
+    run_keys, run_cells, run_sums = _run_sums(key, stacked, data.units.shape)
+    cell_keys = np.where(valid, key, setup.dump_key)
+    return WindowSums(
+        run_keys,
+        run_cells,
+        run_sums,
+        calibration_cells,
+        cell_keys,
+        outcome.available_kg_per_ha,
+    )
+
+
+def _used_layers(setup: GridSetup) -> list[str]:
+    keys = [*setup.direct.values(), setup.index_key, setup.snow_key]
+    keys += [setup.slope_key, setup.water_key]
+    return [key for key in keys if key is not None]
+
+
+def _layer(data: WindowData, key: str | None) -> np.ndarray | None:
+    return None if key is None else data.layers[key][0].ravel()
+
+
+def _gross_biomass(setup: GridSetup, data: WindowData, polygons: np.ndarray, valid: np.ndarray):
+    """Standing biomass of every class in every cell [kg/ha], 0 where the cell has no data.
+
+    The layers' values are already 0 where ``valid`` is False.
+    """
+    gross = np.empty((setup.n_classes, polygons.size), dtype=np.float32)
+    valid_share = valid.astype(np.float32)
+    for column in setup.strata_columns:
+        np.multiply(setup.polygon_biomass[:, column][polygons], valid_share, out=gross[column])
+    for column, key in setup.direct.items():
+        gross[column] = data.layers[key][0].ravel()
+    counts = np.zeros((len(setup.calibrated), 3), dtype=np.int64)
+    if setup.calibrated:
+        index = data.layers[setup.index_key][0].ravel()
+        for number, group in enumerate(setup.calibrated):
+            predicted, counts[number] = _predict_group(group, index, valid)
+            predicted *= valid_share
+            gross[group.class_index] = group.shares[:, None] * predicted[None, :]
+    return gross, counts
+
+
+def _predict_group(group: CalibratedGroup, index: np.ndarray, valid: np.ndarray):
+    """Group biomass [kg/ha] from the index, and cells beyond range / beyond margin / negative."""
+    model = group.model
+    beyond_range = valid & ((index < model.index_min) | (index > model.index_max))
+    beyond_margin = valid & ((index < group.low) | (index > group.high))
+    used = np.clip(index, np.float32(group.low), np.float32(group.high)) if group.clamp else index
+    fitted = np.float32(model.intercept) + np.float32(model.slope) * used
+    negative = valid & (fitted < 0) if model.kind == "linear" else np.zeros(1, bool)
+    counts = [np.count_nonzero(beyond_range), np.count_nonzero(beyond_margin)]
+    counts.append(np.count_nonzero(negative))
+    return model.predict_kg_per_ha(used), counts
+
+
+def _run_sums(key: np.ndarray, stacked: np.ndarray, shape: tuple[int, int]):
+    """Sums of ``stacked`` rows over runs of equal key; runs break at row ends of the window."""
+    key2d = key.reshape(shape)
+    start = np.empty(shape, dtype=bool)
+    start[:, 0] = True
+    np.not_equal(key2d[:, 1:], key2d[:, :-1], out=start[:, 1:])
+    starts = np.flatnonzero(start)
+    run_cells = np.diff(np.append(starts, key.size))
+    return key[starts], run_cells, np.add.reduceat(stacked, starts, axis=1)
+
+
+# --- streaming ------------------------------------------------------------------------------
+
+
+class WindowReader:
+    """Reads a window's layers and burns its polygons (runs in background threads)."""
+
+    def __init__(self, stack: LayerStack, grid: Grid, burners: dict[str, ShapeBurner]) -> None:
+        self.stack = stack
+        self.grid = grid
+        self.burners = burners
+
+    def __call__(self, window: Window) -> WindowData:
+        excluded = self.burners.get("exclusions")
+        return WindowData(
+            window=window,
+            layers=self.stack.read(window),
+            units=self.burners["units"].burn(window, self.grid),
+            polygons=self.burners["strata"].burn(window, self.grid),
+            excluded=None if excluded is None else excluded.burn(window, self.grid) > 0,
+        )
+
+
+def stream_windows(
+    setup: GridSetup,
+    reader: WindowReader,
+    windows: list[Window],
+    totals: Totals,
+    cache: CellCache | None,
+    show_progress: bool,
+) -> None:
+    """First pass: every window read ahead in background threads, computed, added, cached."""
+    bar = tqdm(
+        total=len(windows),
+        desc="raster windows",
+        unit="window",
+        file=sys.stderr,
+        disable=not show_progress,
+    )
+    with ThreadPoolExecutor(max_workers=READ_AHEAD) as pool:
+        queue = deque(pool.submit(reader, window) for window in windows[:READ_AHEAD])
+        upcoming = iter(windows[READ_AHEAD:])
+        while queue:
+            data = queue.popleft().result()
+            following = next(upcoming, None)
+            if following is not None:
+                queue.append(pool.submit(reader, following))
+            part = window_sums(setup, data)
+            totals.add(part)
+            if cache is not None:
+                cache.append(part.cell_keys, part.cell_kg_per_ha)
+            bar.update()
+    bar.close()
+
+
+# --- setup from the project -----------------------------------------------------------------
+
+
+def _class_sources(project, forage_classes):
+    config = project.config
+    classes = sorted(_general_classes(forage_classes).index)
+    rasters = config.rasters
+    direct = dict(rasters.biomass) if rasters is not None else {}
+    calibrated = rasters.calibrated if rasters is not None else None
+    _check_class_names(project, list(direct), "rasters.biomass", classes)
+    if calibrated is not None:
+        _check_class_names(project, calibrated.classes(), "rasters.calibrated.groups", classes)
+    on_rasters = set(direct) | set(calibrated.classes() if calibrated else [])
+    return classes, direct, calibrated, [c for c in classes if c not in on_rasters]
+
+
+def _calibrated_groups(project, calibrated, classes):
+    if calibrated is None:
+        return [], None
+    models, shares, report = fit_groups(
+        project.input_paths()["rasters.calibrated.plots"],
+        project.input_paths()["rasters.calibrated.index"],
+        calibrated.groups,
+        calibrated.model,
+        calibrated.plots_crs,
+        set(classes),
+    )
+    groups = []
+    for model, members in zip(models, calibrated.groups.values()):
+        low, high = margin_bounds(model, calibrated.extrapolation_margin)
+        groups.append(
+            CalibratedGroup(
+                model=model,
+                class_index=np.array([classes.index(m) for m in members]),
+                shares=np.array([shares[m] for m in members], dtype=np.float32),
+                low=low,
+                high=high,
+                clamp=calibrated.beyond_margin == "clamp",
+            )
+        )
+    return groups, report
+
+
+def _strata_polygons(strata: gpd.GeoDataFrame, supply: StratumSupply, classes: list[str]):
+    """Per burnt polygon code (0 = none): stratum code, plot-mean biomass, accessible fraction."""
+    names = supply.strata
+    stratum = np.concatenate(([len(names)], pd.Index(names).get_indexer(strata["stratum"])))
+    biomass = np.zeros((len(names) + 1, len(classes)), dtype=np.float32)  # last row: none
+    for column, name in enumerate(supply.classes):
+        biomass[:-1, classes.index(name)] = np.nan_to_num(supply.mean_kg_per_ha[:, column])
+    polygon_biomass = biomass[stratum]
+    fraction = strata["accessible_fraction"].to_numpy(dtype=np.float32)
+    access = np.concatenate(([1.0], fraction)).astype(np.float32) if (fraction < 1).any() else None
+    return stratum.astype(np.int32), polygon_biomass, access
+
+
+def _unit_areas(units, strata, project) -> tuple[gpd.GeoDataFrame, object, str]:
+    """Units with their polygon area [ha] in the area CRS (as in the vector path)."""
+    area_crs, reason = choose_area_crs(units)
+    in_area_crs = units.to_crs(area_crs)
+    check_no_overlaps(in_area_crs, "unit_id", project.input_path("units"), "units")
+    check_no_overlaps(
+        strata.to_crs(area_crs), "stratum", project.input_path("strata"), "strata polygons"
+    )
+    table = in_area_crs[["unit_id", *_extra_unit_columns(in_area_crs), "geometry"]].copy()
+    table["area_ha"] = table.geometry.area / M2_PER_HA
+    return table, area_crs, reason
+
+
+def _burners(units, strata, project, grid: Grid) -> dict[str, ShapeBurner]:
+    burners = {
+        "units": ShapeBurner(
+            units.to_crs(grid.crs).geometry.to_numpy(), np.arange(1, len(units) + 1), "int32"
+        ),
+        "strata": ShapeBurner(
+            strata.to_crs(grid.crs).geometry.to_numpy(), np.arange(1, len(strata) + 1), "int32"
+        ),
+    }
+    section = project.config.availability
+    if section is not None and section.exclusions:
+        shapes = []
+        for number in range(1, len(section.exclusions) + 1):
+            key = f"availability.exclusions.{number}"
+            layer = read_layer(project.input_paths()[key], layer=None, columns=[], what=key)
+            shapes.extend(layer.to_crs(grid.crs).geometry.to_numpy())
+        burners["exclusions"] = ShapeBurner(shapes, np.ones(len(shapes), dtype=np.uint8), "uint8")
+    return burners
+
+
+def _key_of(specs: list[LayerSpec], name: str) -> str | None:
+    return next((spec.key for spec in specs if spec.key == name), None)
+
+
+# --- the grid problem -----------------------------------------------------------------------
+
+
+def grid_problem(
+    project,
+    units: gpd.GeoDataFrame,
+    strata: gpd.GeoDataFrame,
+    plots: pd.DataFrame,
+    forage_classes: pd.DataFrame,
+    mode: str,
+    progress: Progress | None = None,
+) -> GridResult:
+    """Build the capacity problem from the rasters and availability rules of ``project``.
+
+    Parameters
+    ----------
+    project : Project
+        With a ``[rasters]`` and/or ``[availability]`` section.
+    units, strata : GeoDataFrame
+        As read by :func:`nutricap.landscape.vectors.read_units` / ``read_strata``.
+    plots : DataFrame
+        The clip-plot table (strata-based supply).
+    forage_classes : DataFrame
+        The forage-class table.
+    mode : str
+        Pooling mode, ``"unit"`` or ``"patch"``.
+    progress : callable, optional
+        Called with a message per step; a progress bar over windows is shown when given
+        (and not quiet).
+    """
+    say = progress or (lambda message: None)
+    specs = layer_specs(project)
+    if not specs:
+        raise ProjectFileError(
+            "the raster path needs at least one raster layer to define the grid",
+            source=project.path,
+            location="sections [rasters] / [availability]",
+            expected="a biomass, index, snow_depth, slope or distance_to_water raster",
+            found="none",
+        )
+    grid = read_grid(specs[0].path, specs[0].key)
+    classes, direct, calibrated, strata_classes = _class_sources(project, forage_classes)
+    say("fitting index → biomass models" if calibrated else "summarising clip plots by stratum")
+    groups, calibration_report = _calibrated_groups(project, calibrated, classes)
+    supply = strata_supply(plots, strata, strata_classes, classes, project)
+    polygon_stratum, polygon_biomass, access = _strata_polygons(strata, supply, classes)
+    rules = cell_rules(project, forage_classes, classes, access is not None)
+    units_table, area_crs, reason = _unit_areas(units, strata, project)
+    n_keys = len(units) * (len(supply.strata) + 1)
+    setup = GridSetup(
+        classes=classes,
+        n_strata=len(supply.strata),
+        polygon_stratum=polygon_stratum,
+        polygon_biomass=polygon_biomass,
+        strata_columns=[classes.index(name) for name in strata_classes],
+        polygon_access=access,
+        direct={classes.index(name): f"rasters.biomass.{name}" for name in direct},
+        calibrated=groups,
+        index_key="rasters.calibrated.index" if groups else None,
+        rules=rules,
+        snow_key=_key_of(specs, "availability.snow_depth"),
+        slope_key=_key_of(specs, "availability.slope"),
+        water_key=_key_of(specs, "availability.distance_to_water"),
+        dump_key=n_keys,
+    )
+    config = project.config
+    resample = config.rasters.resample if config.rasters is not None else "none"
+    window_size = config.rasters.window_size if config.rasters is not None else None
+    windows = grid_windows(grid, window_size)
+    n_rows = 2 * len(classes) + 2 + 2 * (len(rules.active()) - 1)
+    totals = Totals(
+        np.zeros(n_keys + 1), np.zeros((n_keys + 1, n_rows)), np.zeros((len(groups), 3), np.int64)
+    )
+    cache = CellCache()
+    show = progress is not None and not getattr(progress, "quiet", False)
+    say(f"streaming {grid.cells:,} cells in {len(windows)} windows")
+    with streaming_env(), LayerStack(specs, grid, resample) as stack:
+        reader = WindowReader(stack, grid, _burners(units, strata, project, grid))
+        stream_windows(setup, reader, windows, totals, cache, show)
+        resampled = stack.resampled
+    cache.finish()
+    return _assemble(
+        project, setup, totals, grid, supply, units_table, (area_crs, reason), mode,
+        forage_classes, calibration_report, specs, resampled, windows, cache, show,
+    )  # fmt: skip
+
+
+def _assemble(
+    project, setup, totals, grid, supply, units_table, crs_reason, mode,
+    forage_classes, calibration_report, specs, resampled, windows, cache, show,
+) -> GridResult:  # fmt: skip
+    """Totals by key → checks, capacity problem, areas, reports."""
+    n_units, n_strata, n_classes = len(units_table), setup.n_strata, setup.n_classes
+    cell_ha = grid.cell_area_ha
+    cells = totals.cells[:-1].reshape(n_units, n_strata + 1)
+    sums = totals.sums[:-1].reshape(n_units, n_strata + 1, -1)
+    available_kg = sums[:, :n_strata, :n_classes] * cell_ha
+    gross_kg = sums[:, :n_strata, n_classes : 2 * n_classes] * cell_ha
+    accessible_ha = sums[:, :n_strata, 2 * n_classes] * cell_ha
+    without_data = sums[:, :n_strata, 2 * n_classes + 1]
+    _check_units(project, units_table, cells, without_data, specs, grid)
+    mapped_ha = cells[:, :n_strata] * cell_ha
+    full_supply = _full_supply(supply, setup.classes, gross_kg, mapped_ha - without_data * cell_ha)
+    items = build_forage_items(full_supply, forage_classes)
+    problem, row_of_key = _problem(units_table, available_kg, mapped_ha, items, mode)
+    areas = _areas(units_table, full_supply.strata, mapped_ha, accessible_ha, crs_reason)
+    report = _rules_report(units_table, setup.rules, sums, n_strata, n_classes, cell_ha)
+    calibration = _calibration_report(
+        calibration_report, totals.calibration_cells, cell_ha, project
+    )
+    notes = _notes(units_table, cells, without_data, cell_ha, resampled, calibration)
+    stratum_of_key = np.append(np.tile(np.arange(n_strata + 1), n_units), n_strata)
+    compression = project.config.rasters.density_compression if project.config.rasters else "zstd"
+    return GridResult(
+        problem, areas, supply, report, calibration, notes, grid, resampled, windows, cache,
+        row_of_key, stratum_of_key, setup.classes, compression, show,
+    )  # fmt: skip
+
+
+def _check_units(project, units_table, cells, without_data, specs, grid) -> None:
+    """Refuse units with no cell on the grid, no mapped cell, or no cell with data."""
+    units_path = project.input_path("units")
+    ids = units_table["unit_id"].to_numpy()
+    on_grid = cells.sum(axis=1)
+    mapped = cells[:, :-1].sum(axis=1)
+    with_data = mapped - without_data.sum(axis=1)
+    checks = [
+        (
+            on_grid == 0,
+            "holds no cell centre of the raster grid",
+            f"every unit on the grid of {grid.source.name} and larger than a cell",
+        ),
+        (
+            (on_grid > 0) & (mapped == 0),
+            "does not overlap any vegetation stratum on the grid",
+            f"every unit at least partly covered by the strata layer "
+            f"({project.input_path('strata')})",
+        ),
+        (
+            (mapped > 0) & (with_data == 0),
+            "has no cell with data in every raster layer",
+            "at least one cell with data in every layer ("
+            + ", ".join(spec.key for spec in specs)
+            + ")",
+        ),
+    ]
+    for bad, message, expected in checks:
+        if bad.any():
+            raise SpatialError(
+                f"unit {ids[bad][0]!r} {message}",
+                source=units_path,
+                location="attribute 'unit_id'",
+                expected=expected,
+                found=f"{int(bad.sum())} unit(s): " + ", ".join(map(repr, ids[bad][:10])),
+            )
+
+
+def _full_supply(supply: StratumSupply, classes, gross_kg, with_data_ha) -> StratumSupply:
+    """Biomass per stratum of every class: plot means, or raster means over cells with data."""
+    area = with_data_ha.sum(axis=0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        raster_mean = np.where(area[:, None] > 0, gross_kg.sum(axis=0) / area[:, None], 0.0)
+    mean = raster_mean.copy()
+    se = np.full_like(mean, np.nan)
+    for column, name in enumerate(supply.classes):
+        mean[:, classes.index(name)] = supply.mean_kg_per_ha[:, column]
+        se[:, classes.index(name)] = supply.se_kg_per_ha[:, column]
+    return StratumSupply(supply.strata, list(classes), mean, se, supply.n_plots)
+
+
+def _problem(units_table, available_kg, mapped_ha, items, mode):
+    """Rows (units, or unit × stratum patches with cells) × items, and each key's row."""
+    n_units, n_strata, n_classes = available_kg.shape
+    unit_ids = units_table["unit_id"].to_numpy()
+    row_of_key = np.full((n_units, n_strata + 1), -1)
+    if mode == "unit":
+        available = available_kg.reshape(n_units, n_strata * n_classes)
+        row_unit = np.arange(n_units)
+        row_of_key[:, :n_strata] = row_unit[:, None]
+    else:
+        unit_index, stratum_index = np.nonzero(mapped_ha > 0)
+        available = np.zeros((unit_index.size, n_strata * n_classes))
+        columns = stratum_index[:, None] * n_classes + np.arange(n_classes)[None, :]
+        available[np.arange(unit_index.size)[:, None], columns] = available_kg[
+            unit_index, stratum_index
+        ]
+        row_unit = unit_index
+        row_of_key[unit_index, stratum_index] = np.arange(unit_index.size)
+    problem = CapacityProblem(unit_ids, row_unit, items, available)
+    return problem, np.append(row_of_key.ravel(), -1)
+
+
+def _areas(units_table, strata_names, mapped_ha, accessible_ha, crs_reason) -> StratumAreas:
+    unit_index, stratum_index = np.nonzero(mapped_ha > 0)
+    table = pd.DataFrame(
+        {
+            "unit_id": units_table["unit_id"].to_numpy()[unit_index],
+            "stratum": np.asarray(strata_names, dtype=object)[stratum_index],
+            "area_ha": mapped_ha[unit_index, stratum_index],
+            "accessible_ha": accessible_ha[unit_index, stratum_index],
+        }
+    )
+    area_crs, reason = crs_reason
+    return StratumAreas(units_table, table, area_crs, reason)
+
+
+def _rules_report(units_table, rules, sums, n_strata, n_classes, cell_ha) -> pd.DataFrame:
+    per_unit = sums[:, :n_strata, :].sum(axis=1)
+    active = rules.active()
+    first = 2 * n_classes + 2
+    area = [per_unit[:, 2 * n_classes + 1] * cell_ha]
+    removed = [np.full(len(units_table), np.nan)]
+    for number in range(len(active) - 1):
+        removed.append(per_unit[:, first + 2 * number] * cell_ha)
+        area.append(per_unit[:, first + 2 * number + 1] * cell_ha)
+    gross = per_unit[:, n_classes : 2 * n_classes].sum(axis=1) * cell_ha
+    return rules_mod.rules_report(
+        units_table["unit_id"].to_numpy(), active, np.column_stack(area),
+        np.column_stack(removed), gross,
+    )  # fmt: skip
+
+
+def _calibration_report(report, counts, cell_ha, project):
+    if report is None:
+        return None
+    report = report.copy()
+    report["area_beyond_plot_range_ha"] = counts[:, 0] * cell_ha
+    report["area_beyond_margin_ha"] = counts[:, 1] * cell_ha
+    report["area_predicted_below_zero_ha"] = counts[:, 2] * cell_ha
+    calibrated = project.config.rasters.calibrated
+    report["extrapolation_margin"] = calibrated.extrapolation_margin
+    report["beyond_margin"] = (
+        "index clamped to the margin"
+        if calibrated.beyond_margin == "clamp"
+        else "model extrapolated"
+    )
+    return report
+
+
+def _notes(units_table, cells, without_data, cell_ha, resampled, calibration) -> list[str]:
+    notes = [
+        f"raster layer {key} resampled onto the grid by {method} resampling"
+        for key, method in resampled.items()
+        if method is not None
+    ]
+    lost = without_data.sum() * cell_ha
+    if lost > 0:
+        notes.append(
+            f"{lost:,.1f} ha of mapped unit area has no data in at least one raster layer; no "
+            "forage is counted there (availability_rules.csv, rule 'nodata')"
+        )
+    on_grid_ha = cells.sum(axis=1) * cell_ha
+    share = on_grid_ha / units_table["area_ha"].to_numpy()
+    partial = units_table["unit_id"].to_numpy()[share < 0.99]
+    if partial.size:
+        notes.append(
+            "units with less than 99 % of their area on the raster grid (forage off the grid "
+            "is not counted): " + ", ".join(map(str, partial))
+        )
+    if calibration is not None:
+        for row in calibration.itertuples():
+            if row.area_beyond_margin_ha > 0:
+                notes.append(
+                    f"WARNING: calibrated forage group {row.forage_group!r}: "
+                    f"{row.area_beyond_margin_ha:,.1f} ha has an index beyond the plots' range "
+                    f"[{row.index_min:.4g}, {row.index_max:.4g}] by more than the margin "
+                    f"({row.extrapolation_margin:g} of the range); {row.beyond_margin}"
+                )
+    return notes
+
+
+# --- outputs --------------------------------------------------------------------------------
+
+
+def density_coefficients(
+    result: GridResult, problem: CapacityProblem, eaten_kg: np.ndarray, intake_kg_per_day: float
+) -> np.ndarray:
+    """Animal-days per kg of each class's forage left in a cell, by key: (keys, classes).
+
+    ``eaten_kg[row, item] / available_kg[row, item] / intake`` of the key's row and the
+    items of the key's stratum; 0 where nothing is available.
+    """
+    n_classes = len(result.classes)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = np.where(problem.available_kg > 0, eaten_kg / problem.available_kg, 0.0)
+    coefficients = np.zeros((result.row_of_key.size, n_classes), dtype=np.float64)
+    has_row = result.row_of_key >= 0
+    rows = result.row_of_key[has_row]
+    columns = result.stratum_of_key[has_row][:, None] * n_classes + np.arange(n_classes)
+    coefficients[has_row] = ratio[rows[:, None], columns]
+    return (coefficients / intake_kg_per_day).astype(np.float32)
+
+
+def _density(keys: np.ndarray, kg_per_ha: np.ndarray, per_class: np.ndarray, dump: int):
+    """Animal-days per ha of each cell: Σ_c kg_c × coefficient[key, c]; nodata at ``dump``."""
+    density = np.zeros(keys.size, dtype=np.float32)
+    for column in range(per_class.shape[0]):
+        density += kg_per_ha[column] * np.take(per_class[column], keys)
+    density[keys == dump] = DENSITY_NODATA
+    return density
+
+
+def write_capacity_density(
+    result: GridResult,
+    problem: CapacityProblem,
+    eaten_kg: np.ndarray,
+    intake_kg_per_day: float,
+    path: Path,
+) -> None:
+    """Second pass: ``capacity_density.tif``, NCC animal-days per hectare of each cell.
+
+    Notes
+    -----
+    ``density = Σ_c kg_c × eaten[row, item_c] / available[row, item_c] / intake / cell_ha``
+    with kg_c the forage of class c left in the cell [kg]; since kg_c / cell_ha is the cell's
+    forage per hectare, the cell area cancels. Σ density × cell_ha over the cells of a unit is
+    the unit's NCC in animal-days. Nodata (−9999) outside units and strata and where a layer
+    has no data.
+    """
+    per_class = np.ascontiguousarray(
+        density_coefficients(result, problem, eaten_kg, intake_kg_per_day).T
+    )
+    n_classes = per_class.shape[0]
+    grid = result.grid
+    profile = {
+        "driver": "GTiff",
+        "width": grid.width,
+        "height": grid.height,
+        "count": 1,
+        "dtype": "float32",
+        "crs": grid.crs,
+        "transform": grid.transform,
+        "nodata": DENSITY_NODATA,
+        "tiled": True,
+        "blockxsize": 256,
+        "blockysize": 256,
+        "compress": result.compression,
+        "bigtiff": "IF_SAFER",
+        "num_threads": 2,
+    }
+    bar = tqdm(
+        total=len(result.windows),
+        desc="capacity density",
+        unit="window",
+        file=sys.stderr,
+        disable=not result.show_progress,
+    )
+    dump = result.row_of_key.size - 1
+    with streaming_env(), rasterio.open(path, "w", **profile) as dst:
+        for window, keys, kg in result.cache.windows(result.windows, n_classes):
+            density = _density(keys, kg, per_class, dump)
+            dst.write(density.reshape(int(window.height), int(window.width)), 1, window=window)
+            bar.update()
+    bar.close()
+
+
+def write_grid_outputs(
+    result: GridResult,
+    problem: CapacityProblem,
+    eaten_kg: np.ndarray,
+    intake_kg_per_day: float,
+    folder: Path,
+) -> None:
+    """Write availability_rules.csv, calibration.csv (when calibrated), capacity_density.tif."""
+    write_csv(result.rules_report, folder / "availability_rules.csv")
+    if result.calibration_report is not None:
+        write_csv(result.calibration_report, folder / "calibration.csv")
+    path = folder / "capacity_density.tif"
+    write_capacity_density(result, problem, eaten_kg, intake_kg_per_day, path)

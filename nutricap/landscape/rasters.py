@@ -1,0 +1,380 @@
+"""Raster layers on one grid: checks, windows, windowed reads and polygons burnt per window.
+
+The grid is defined by one raster (the first layer of the project). Every other layer must share
+its CRS and cell size and be aligned with it (cell edges on the same lines; the extent may
+differ, cells off a layer's extent have no data). A layer that is not aligned is refused, or
+resampled onto the grid when the project asks for it (``resample = "nearest" | "bilinear" |
+"average"``, by GDAL's warper).
+
+Rasters are read in windows aligned to the grid layer's blocks, so that memory does not grow
+with the raster. Nodata is honoured everywhere: a band's nodata value, NaN, and a GDAL
+per-dataset mask all mark cells without data. Polygons (units, strata, exclusion masks) are
+burnt per window by GDAL's rasteriser: a cell belongs to a polygon when its centre lies in it.
+"""
+
+from __future__ import annotations
+
+import math
+import threading
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import rasterio
+import rasterio.features
+import rasterio.windows
+import shapely
+from affine import Affine
+from pyproj import CRS
+from rasterio.enums import MaskFlags, Resampling
+from rasterio.errors import RasterioIOError
+from rasterio.vrt import WarpedVRT
+from rasterio.windows import Window
+
+from nutricap.errors import SpatialError
+
+M2_PER_HA = 10_000.0
+DEFAULT_WINDOW_CELLS = 1024 * 1024
+"""Cells per window when the project does not set window_size (about 4 MB per float32 layer)."""
+GDAL_CACHE_MB = 64
+"""GDAL's block cache while streaming [MB]; small and fixed so memory does not grow."""
+ALIGNMENT_TOLERANCE_CELLS = 1e-3
+"""Largest misfit of two grids' cell edges, in cells, that still counts as aligned."""
+RESAMPLING = {
+    "nearest": Resampling.nearest,
+    "bilinear": Resampling.bilinear,
+    "average": Resampling.average,
+}
+
+
+@dataclass(frozen=True)
+class Grid:
+    """The grid every layer is read on.
+
+    Attributes
+    ----------
+    crs : rasterio.crs.CRS
+    transform : Affine
+        Grid → map coordinates (north-up, no rotation).
+    width, height : int
+        Columns and rows.
+    block_shape : (int, int)
+        Rows and columns of the grid raster's internal blocks.
+    metres_per_unit : float
+        Length of one CRS unit [m].
+    source : Path
+        The raster that defines the grid.
+    """
+
+    crs: rasterio.crs.CRS
+    transform: Affine
+    width: int
+    height: int
+    block_shape: tuple[int, int]
+    metres_per_unit: float
+    source: Path
+
+    @property
+    def cell_area_ha(self) -> float:
+        """Area of one cell [ha] = |a·e| × (m per unit)² / 10,000 (planar, in the grid's CRS)."""
+        return abs(self.transform.a * self.transform.e) * self.metres_per_unit**2 / M2_PER_HA
+
+    @property
+    def cells(self) -> int:
+        return self.width * self.height
+
+    def window_transform(self, window: Window) -> Affine:
+        return rasterio.windows.transform(window, self.transform)
+
+    def describe(self) -> dict:
+        """The grid in words and numbers, for the run manifest."""
+        return {
+            "defined_by": str(self.source),
+            "crs": self.crs.to_string(),
+            "cell_size": [self.transform.a, -self.transform.e],
+            "cell_area_ha": self.cell_area_ha,
+            "width": self.width,
+            "height": self.height,
+            "origin": [self.transform.c, self.transform.f],
+        }
+
+
+def read_grid(path: Path, key: str) -> Grid:
+    """The grid of raster ``path`` (project key ``key``); refuse grids areas cannot be taken on."""
+    with open_raster(path, key) as src:
+        crs = _raster_crs(src, path, key)
+        t = src.transform
+        if t.b != 0 or t.d != 0:
+            raise SpatialError(
+                "the raster grid is rotated or sheared",
+                source=path,
+                location=f"key {key!r}",
+                expected="a north-up grid (no rotation terms in the geotransform)",
+                found=f"rotation terms {t.b:g}, {t.d:g}",
+            )
+        projected = CRS.from_wkt(crs.to_wkt())
+        if not projected.is_projected:
+            raise SpatialError(
+                "the raster that defines the grid has a geographic CRS",
+                source=path,
+                location=f"key {key!r}",
+                expected="a projected CRS in metres or feet (cell areas are planar); "
+                "reproject it, e.g. to the local UTM zone",
+                found=crs.to_string(),
+            )
+        factor = projected.axis_info[0].unit_conversion_factor
+        return Grid(crs, t, src.width, src.height, src.block_shapes[0], factor, path)
+
+
+def open_raster(path: Path, key: str):
+    """Open a raster for reading; an unreadable file is a :class:`SpatialError`."""
+    try:
+        return rasterio.open(path)
+    except RasterioIOError as exc:
+        raise SpatialError(
+            f"cannot read raster: {exc}", source=path, location=f"key {key!r}"
+        ) from None
+
+
+def _raster_crs(src, path: Path, key: str):
+    if src.crs is None:
+        raise SpatialError(
+            "raster has no coordinate reference system",
+            source=path,
+            location=f"key {key!r}",
+            expected="a GeoTIFF with a CRS",
+            found="none",
+        )
+    return src.crs
+
+
+def alignment_problem(grid: Grid, src) -> tuple[str, str] | None:
+    """Why raster ``src`` is not aligned with ``grid`` (expected, found), or None when it is."""
+    if CRS.from_wkt(src.crs.to_wkt()) != CRS.from_wkt(grid.crs.to_wkt()):
+        return f"CRS {grid.crs.to_string()} (as {grid.source.name})", f"CRS {src.crs.to_string()}"
+    t, g = src.transform, grid.transform
+    same_size = math.isclose(t.a, g.a, rel_tol=1e-9) and math.isclose(t.e, g.e, rel_tol=1e-9)
+    if not same_size or t.b != 0 or t.d != 0:
+        return (
+            f"cells of {g.a:g} × {-g.e:g} (as {grid.source.name})",
+            f"cells of {t.a:g} × {-t.e:g}",
+        )
+    col, row = (t.c - g.c) / g.a, (t.f - g.f) / g.e
+    if abs(col - round(col)) > ALIGNMENT_TOLERANCE_CELLS or (
+        abs(row - round(row)) > ALIGNMENT_TOLERANCE_CELLS
+    ):
+        return (
+            f"cell edges on those of {grid.source.name} (origin {g.c:g}, {g.f:g})",
+            f"origin {t.c:g}, {t.f:g}: shifted by {col % 1:.3f} × {row % 1:.3f} of a cell",
+        )
+    return None
+
+
+@dataclass(frozen=True)
+class LayerSpec:
+    """A raster layer of the project: its project key and file."""
+
+    key: str
+    path: Path
+
+
+class GridLayer:
+    """One raster read on the grid, window by window (not thread-safe: one per thread).
+
+    An aligned raster is read directly (with its offset from the grid); with ``resample`` not
+    ``"none"`` a misaligned raster is warped onto the grid by GDAL with that method.
+    """
+
+    def __init__(self, spec: LayerSpec, grid: Grid, resample: str) -> None:
+        self.spec = spec
+        self.src = open_raster(spec.path, spec.key)
+        _raster_crs(self.src, spec.path, spec.key)
+        self.resampled_by: str | None = None
+        problem = alignment_problem(grid, self.src)
+        self.offset = (0, 0)
+        if problem is None:
+            t = self.src.transform
+            self.offset = (
+                round((t.f - grid.transform.f) / grid.transform.e),
+                round((t.c - grid.transform.c) / grid.transform.a),
+            )
+            self.dataset = self.src
+        elif resample == "none":
+            self.src.close()
+            expected, found = problem
+            raise SpatialError(
+                "raster is not on the grid of the first raster layer",
+                source=spec.path,
+                location=f"key {spec.key!r}",
+                expected=expected + "; or set resample in [rasters] to resample it",
+                found=found,
+            )
+        else:
+            self.dataset = WarpedVRT(
+                self.src,
+                crs=grid.crs,
+                transform=grid.transform,
+                width=grid.width,
+                height=grid.height,
+                resampling=RESAMPLING[resample],
+            )
+            self.resampled_by = resample
+        self.nodata = self.dataset.nodata
+        flags = self.dataset.mask_flag_enums[0]
+        self.per_dataset_mask = MaskFlags.per_dataset in flags or MaskFlags.alpha in flags
+        self.is_float = np.dtype(self.dataset.dtypes[0]).kind == "f"
+
+    def read(self, window: Window) -> tuple[np.ndarray, np.ndarray]:
+        """Values (float32) and validity (bool) of the grid cells in ``window``."""
+        shape = (int(window.height), int(window.width))
+        values = np.zeros(shape, dtype=np.float32)
+        valid = np.zeros(shape, dtype=bool)
+        inner, target = self._intersection(window)
+        if inner is None:
+            return values, valid
+        part = self.dataset.read(1, window=inner, out_dtype=np.float32)
+        ok = np.ones(part.shape, dtype=bool)
+        if self.nodata is not None and not np.isnan(self.nodata):
+            ok &= part != np.float32(self.nodata)
+        if self.is_float:
+            ok &= ~np.isnan(part)
+        if self.per_dataset_mask:
+            ok &= self.dataset.read_masks(1, window=inner) > 0
+        values[target] = part
+        valid[target] = ok
+        return values, valid
+
+    def _intersection(self, window: Window):
+        """The part of ``window`` this layer covers: (layer window, slices into the window)."""
+        row_off, col_off = self.offset
+        r0, c0 = int(window.row_off) - row_off, int(window.col_off) - col_off
+        r1, c1 = r0 + int(window.height), c0 + int(window.width)
+        rr0, cc0 = max(r0, 0), max(c0, 0)
+        rr1, cc1 = min(r1, self.dataset.height), min(c1, self.dataset.width)
+        if rr0 >= rr1 or cc0 >= cc1:
+            return None, None
+        inner = Window(cc0, rr0, cc1 - cc0, rr1 - rr0)
+        target = (slice(rr0 - r0, rr1 - r0), slice(cc0 - c0, cc1 - c0))
+        return inner, target
+
+    def close(self) -> None:
+        if self.dataset is not self.src:
+            self.dataset.close()
+        self.src.close()
+
+
+class LayerStack:
+    """Every raster layer of a run, opened once per reading thread.
+
+    Opening in the constructor checks every layer against the grid at once (errors are
+    raised there, in the calling thread).
+    """
+
+    def __init__(self, specs: list[LayerSpec], grid: Grid, resample: str) -> None:
+        self.specs = specs
+        self.grid = grid
+        self.resample = resample
+        self._local = threading.local()
+        self._opened: list[GridLayer] = []
+        self._lock = threading.Lock()
+        self.resampled = {layer.spec.key: layer.resampled_by for layer in self._layers()}
+
+    def _layers(self) -> list[GridLayer]:
+        layers = getattr(self._local, "layers", None)
+        if layers is None:
+            layers = []
+            try:
+                for spec in self.specs:
+                    layers.append(GridLayer(spec, self.grid, self.resample))
+            except BaseException:
+                for layer in layers:
+                    layer.close()
+                raise
+            self._local.layers = layers
+            with self._lock:
+                self._opened.extend(layers)
+        return layers
+
+    def read(self, window: Window) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+        """Values and validity of every layer in ``window``, by key."""
+        return {layer.spec.key: layer.read(window) for layer in self._layers()}
+
+    def close(self) -> None:
+        with self._lock:
+            for layer in self._opened:
+                layer.close()
+            self._opened.clear()
+
+    def __enter__(self) -> LayerStack:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+
+def grid_windows(grid: Grid, window_size: int | None = None) -> list[Window]:
+    """Windows covering the grid, aligned to its blocks, of about a fixed number of cells.
+
+    Tiled rasters are read in squares of ``window_size`` cells a side (rounded to whole
+    blocks); striped rasters (blocks as wide as the raster) in full-width strips of about
+    ``window_size²`` cells. The number of cells per window, hence memory, does not depend on
+    the raster's size.
+    """
+    cells = window_size**2 if window_size else DEFAULT_WINDOW_CELLS
+    block_rows, block_cols = grid.block_shape
+    if block_cols >= grid.width:
+        rows = max(block_rows, (cells // grid.width) // block_rows * block_rows, 1)
+        cols = grid.width
+    else:
+        side = max(1, int(math.sqrt(cells)))
+        rows = max(block_rows, side // block_rows * block_rows)
+        cols = max(block_cols, side // block_cols * block_cols)
+    return [
+        Window(c, r, min(cols, grid.width - c), min(rows, grid.height - r))
+        for r in range(0, grid.height, rows)
+        for c in range(0, grid.width, cols)
+    ]
+
+
+class ShapeBurner:
+    """Burns polygons into windows of the grid: each cell takes the value of the polygon that
+    holds its centre (``fill`` where none does).
+
+    Polygons are selected per window with an STR-tree and clipped to the window (GEOS) before
+    GDAL rasterises them, so each window handles only its own vertices.
+    """
+
+    def __init__(self, geometries, values, dtype, fill: int = 0) -> None:
+        self.geometries = np.asarray(geometries, dtype=object)
+        self.values = np.asarray(values)
+        self.dtype = dtype
+        self.fill = fill
+        self.tree = shapely.STRtree(self.geometries)
+
+    def burn(self, window: Window, grid: Grid) -> np.ndarray:
+        shape = (int(window.height), int(window.width))
+        west, south, east, north = rasterio.windows.bounds(window, grid.transform)
+        pad_x, pad_y = abs(grid.transform.a), abs(grid.transform.e)
+        clip = (west - pad_x, south - pad_y, east + pad_x, north + pad_y)
+        hits = self.tree.query(shapely.box(*clip))
+        if hits.size == 0:
+            return np.full(shape, self.fill, dtype=self.dtype)
+        clipped = shapely.clip_by_rect(self.geometries[hits], *clip)
+        parts, owner = shapely.get_parts(clipped, return_index=True)
+        polygonal = shapely.get_type_id(parts) == 3
+        if not polygonal.any():
+            return np.full(shape, self.fill, dtype=self.dtype)
+        shapes = zip(parts[polygonal], self.values[hits][owner[polygonal]].tolist())
+        return rasterio.features.rasterize(
+            shapes,
+            out_shape=shape,
+            transform=grid.window_transform(window),
+            fill=self.fill,
+            dtype=self.dtype,
+            all_touched=False,
+        )
+
+
+def streaming_env() -> rasterio.Env:
+    """GDAL settings while streaming: a small fixed block cache."""
+    return rasterio.Env(GDAL_CACHEMAX=GDAL_CACHE_MB)
