@@ -38,6 +38,16 @@ def test_estimate_succeeds(project, tmp_path, capsys):
     assert "capacity_by_unit.csv" in out and "CAUTION" in out
 
 
+def test_report_written_by_default_and_skipped_on_request(project, tmp_path, capsys):
+    with_report = tmp_path / "with"
+    without = tmp_path / "without"
+    assert _run(capsys, "estimate", project, "--out", with_report, "--quiet")[0] == 0
+    assert _run(capsys, "estimate", project, "--out", without, "--no-report", "--quiet")[0] == 0
+    assert (with_report / "report.html").stat().st_size > 10_000
+    assert not (without / "report.html").exists()
+    assert (without / "capacity_by_unit.csv").is_file()
+
+
 def test_check_writes_nothing(project, capsys):
     before = sorted(p.name for p in project.parent.iterdir())
     code, out, _ = _run(capsys, "check", project, "--quiet")
