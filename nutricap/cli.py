@@ -20,6 +20,7 @@ from nutricap.errors import InputError
 
 EXIT_OK = 0
 EXIT_BAD_INPUT = 2
+EXIT_INTERRUPTED = 130  # 128 + SIGINT, the shell's convention
 
 DESCRIPTION = (
     "Nutritional carrying capacity (NCC) of ungulate range per management unit, beside the "
@@ -231,6 +232,14 @@ def main(argv: Sequence[str] | None = None) -> int:
         # The reader (e.g. `| head`) closed the pipe: stop quietly, as Unix tools do.
         sys.stderr.close()
         return EXIT_OK
+    except OSError as exc:
+        # The file system refused (permission denied, disk full, ...): the path and the reason.
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(f"nutricap: error: {where}{exc.strerror or exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        print("nutricap: interrupted; earlier results were left as they were", file=sys.stderr)
+        return EXIT_INTERRUPTED
 
 
 if __name__ == "__main__":

@@ -148,11 +148,13 @@ def read_forage_classes(path: Path) -> pd.DataFrame:
         if name not in table.columns:
             table[name] = np.nan
     table["preference"] = table.get("preference", pd.Series(np.nan, index=table.index)).fillna(1.0)
-    if "stratum" not in table.columns:
-        table["stratum"] = ""
+    for name in ("stratum", "growth_form"):
+        if name not in table.columns:
+            table[name] = ""
     if "key" not in table.columns:
         table["key"] = False
     check_unique(table, ["forage_class", "stratum"], path)
+    _refuse_fractions_as_percent(table, ("dmd_pct", "cp_pct"), path)
     _require_energy(table, path)
     derive = table["de_kcal_per_g"].isna()
     if derive.any():
@@ -165,6 +167,27 @@ def read_forage_classes(path: Path) -> pd.DataFrame:
     )
     _require_class_rows(table, path)
     return table
+
+
+def _refuse_fractions_as_percent(table: pd.DataFrame, names: tuple[str, ...], path: Path) -> None:
+    """Refuse a percent value above 0 and at most 1: a fraction typed as percent.
+
+    Forage dry-matter digestibility and crude protein lie well above 1 % (cured grasses and
+    browse in winter keep a few percent of crude protein and a digestibility above 20 %; from
+    memory), so 0.48 almost surely means 48 %. An explicit 0 stays allowed.
+    """
+    for name in names:
+        values = table[name].to_numpy(dtype=float)
+        fraction = (values > 0) & (values <= 1)
+        if fraction.any():
+            index = int(np.flatnonzero(fraction)[0])
+            raise TableError(
+                "a value of 1 % or less: a fraction given instead of percent?",
+                source=path,
+                location=f"row {spreadsheet_row(index)}, column {name!r}",
+                expected="percent of dry matter (48 for 48 %)",
+                found=f"{values[index]:g}",
+            )
 
 
 def _require_energy(table: pd.DataFrame, path: Path) -> None:
@@ -214,6 +237,7 @@ def read_plots(path: Path) -> pd.DataFrame:
         framed = biomass_kg_per_ha(
             table["dry_mass_g"].to_numpy(), table["frame_area_m2"].to_numpy()
         )
+        _require_plausible_framed_biomass(table, framed, path)
         direct = direct.fillna(pd.Series(framed, index=table.index))
     missing = direct.isna()
     if missing.any():
@@ -242,6 +266,24 @@ def _require_pairs(table: pd.DataFrame, path: Path) -> None:
             location=f"row {spreadsheet_row(index)}, column 'frame_area_m2'",
             expected="the frame area in m² (greater than 0)",
             found="an empty cell",
+        )
+
+
+def _require_plausible_framed_biomass(
+    table: pd.DataFrame, framed_kg_per_ha: np.ndarray, path: Path
+) -> None:
+    """Biomass from mass and frame obeys the range of ``biomass_kg_per_ha`` (units mixed up?)."""
+    limit = next(c.maximum for c in PLOT_COLUMNS if c.name == "biomass_kg_per_ha")
+    absurd = framed_kg_per_ha > limit
+    if absurd.any():
+        index = int(np.flatnonzero(absurd)[0])
+        mass, area = table["dry_mass_g"].iloc[index], table["frame_area_m2"].iloc[index]
+        raise TableError(
+            "biomass out of range; is the mass in grams and the frame area in m²?",
+            source=path,
+            location=f"row {spreadsheet_row(index)}, columns 'dry_mass_g'/'frame_area_m2'",
+            expected=f"at most {limit:g} kg/ha (10 × dry_mass_g / frame_area_m2)",
+            found=f"{framed_kg_per_ha[index]:g} kg/ha from {mass:g} g in {area:g} m²",
         )
 
 

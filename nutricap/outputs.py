@@ -4,19 +4,35 @@ Outputs are written into a staging folder beside the target and moved into
 place only when complete, so an interrupted run leaves the previous results
 intact and never a half-written table. A run refuses an output folder equal
 to, inside, or containing an input folder, and replaces an existing non-empty
-folder only when asked to (``overwrite=True``).
+folder only when asked to (``overwrite=True``) and only when it holds previous
+results (a ``run.json``), so that ``--overwrite`` can never remove a folder of
+other files.
+
+The staging folder is ``.<name>.partial-<host>-<pid>-<random>`` and, while the
+new results are moved into place, the previous ones are briefly
+``.<name>.old-<host>-<pid>``. When a run is killed (power cut, ``kill -9``) one
+of these may be left behind. The next run to the same folder from the same
+machine tidies them up once their process is gone: a stale staging folder is
+removed; a stale ``.old`` folder is moved back into place when the results
+folder is missing (the kill fell between the two renames), else removed.
+Leftovers of other machines or of running processes are never touched.
 """
 
 from __future__ import annotations
 
 import os
+import re
 import shutil
+import socket
 import tempfile
 from collections.abc import Iterable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
 from nutricap.errors import OutputError
+
+RESULTS_MARKER = "run.json"
+"""A folder holding this file is taken for previous results that ``overwrite`` may replace."""
 
 
 def check_output_folder(out: Path, input_paths: Iterable[Path], *, overwrite: bool) -> Path:
@@ -40,6 +56,7 @@ def check_output_folder(out: Path, input_paths: Iterable[Path], *, overwrite: bo
             )
     if out.exists() and not out.is_dir():
         raise OutputError("the output path is a file", source=out, expected="a folder")
+    recover_interrupted(out)
     if out.is_dir() and any(out.iterdir()) and not overwrite:
         raise OutputError(
             "the output folder exists and is not empty",
@@ -51,9 +68,16 @@ def check_output_folder(out: Path, input_paths: Iterable[Path], *, overwrite: bo
 
 @contextmanager
 def staged_folder(out: Path) -> Iterator[Path]:
-    """Yield a staging folder; on success replace ``out`` with it, on failure delete it."""
+    """Yield a staging folder; on success replace ``out`` with it, on failure delete it.
+
+    Raises :class:`OutputError` before anything is written when ``out`` holds files but no
+    previous results (no ``run.json``).
+    """
+    out = Path(out)
+    recover_interrupted(out)
+    _require_replaceable(out)
     out.parent.mkdir(parents=True, exist_ok=True)
-    staging = Path(tempfile.mkdtemp(prefix=f".{out.name}.partial-", dir=out.parent))
+    staging = Path(tempfile.mkdtemp(prefix=f"{_prefix(out, 'partial')}-", dir=out.parent))
     try:
         yield staging
     except BaseException:
@@ -62,11 +86,21 @@ def staged_folder(out: Path) -> Iterator[Path]:
     _replace(staging, out)
 
 
+def _require_replaceable(out: Path) -> None:
+    if out.is_dir() and any(out.iterdir()) and not (out / RESULTS_MARKER).is_file():
+        raise OutputError(
+            "the output folder holds files that are not nutricap results; it is not replaced",
+            source=out,
+            expected=f"a new or empty folder, or previous results (with {RESULTS_MARKER})",
+            found=", ".join(sorted(p.name for p in out.iterdir())[:5]),
+        )
+
+
 def _replace(staging: Path, out: Path) -> None:
     """Move ``staging`` to ``out``; an old ``out`` is renamed aside first, then removed."""
     old = None
     if out.exists():
-        old = out.with_name(f".{out.name}.old-{os.getpid()}")
+        old = out.with_name(_prefix(out, "old"))
         out.rename(old)
     try:
         staging.rename(out)
@@ -76,3 +110,51 @@ def _replace(staging: Path, out: Path) -> None:
         raise
     if old is not None:
         shutil.rmtree(old, ignore_errors=True)
+
+
+def _host() -> str:
+    """This machine's name, reduced to characters safe in a file name."""
+    return re.sub(r"[^A-Za-z0-9]", "_", socket.gethostname()) or "host"
+
+
+def _prefix(out: Path, kind: str, pid: int | None = None) -> str:
+    """``.<name>.<kind>-<host>-<pid>``: the name of a staging (partial) or old folder."""
+    return f".{out.name}.{kind}-{_host()}-{os.getpid() if pid is None else pid}"
+
+
+def recover_interrupted(out: Path) -> list[Path]:
+    """Tidy up after runs to ``out`` that were killed; return the folders removed or restored.
+
+    Only leftovers of this machine whose process no longer runs are touched.
+    """
+    out = Path(out)
+    if not out.parent.is_dir():
+        return []
+    touched = []
+    for kind in ("old", "partial"):
+        pattern = re.compile(re.escape(f".{out.name}.{kind}-{_host()}-") + r"(\d+)(?:-|$)")
+        for leftover in sorted(out.parent.iterdir()):
+            match = pattern.match(leftover.name)
+            if match is None or not leftover.is_dir() or _running(int(match.group(1))):
+                continue
+            if kind == "old" and not out.exists():
+                leftover.rename(out)
+            else:
+                shutil.rmtree(leftover, ignore_errors=True)
+            touched.append(leftover)
+    return touched
+
+
+def _running(pid: int) -> bool:
+    """Whether process ``pid`` exists on this machine (assumed so where that cannot be asked)."""
+    if pid == os.getpid():
+        return True
+    if os.name != "posix":
+        return True
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True

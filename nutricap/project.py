@@ -10,6 +10,8 @@ from __future__ import annotations
 import datetime as dt
 import difflib
 import tomllib
+import types
+import typing
 from pathlib import Path
 from typing import Literal
 
@@ -204,10 +206,18 @@ def load_project(path: str | Path) -> Project:
 def _read_toml(path: Path) -> dict:
     if not path.is_file():
         raise ProjectFileError("project file not found", source=path, expected="a TOML file")
+    data = path.read_bytes()
     try:
-        return tomllib.loads(path.read_text(encoding="utf-8"))
-    except UnicodeDecodeError:
-        raise ProjectFileError("project file is not UTF-8 text", source=path) from None
+        return tomllib.loads(data.decode("utf-8"))
+    except UnicodeDecodeError as exc:
+        line = data[: exc.start].count(b"\n") + 1
+        raise ProjectFileError(
+            "project file is not UTF-8 text",
+            source=path,
+            location=f"line {line}",
+            expected="a TOML file saved as UTF-8",
+            found=f"byte {data[exc.start]:#04x}",
+        ) from None
     except tomllib.TOMLDecodeError as exc:
         raise ProjectFileError(f"TOML syntax error: {exc}", source=path) from None
 
@@ -233,14 +243,37 @@ def _describe_one(error: dict, raw: dict) -> str:
 
 
 def _did_you_mean(location: list[str]) -> str:
-    model: type[BaseModel] = ProjectConfig
-    for part in location[:-1]:
-        field = model.model_fields.get(part)
-        if field is None or not isinstance(field.annotation, type):
-            return ""
-        model = field.annotation
+    model = _section_model(location[:-1])
+    if model is None:
+        return ""
     close = difflib.get_close_matches(location[-1], list(model.model_fields), n=1)
     return f"; did you mean {close[0]!r}?" if close else ""
+
+
+def _section_model(location: list[str]) -> type[BaseModel] | None:
+    """The schema of the section at ``location`` (``["scenarios", "burn"]`` → ScenarioSection)."""
+    model: type[BaseModel] = ProjectConfig
+    parts = iter(location)
+    for part in parts:
+        field = model.model_fields.get(part)
+        if field is None:
+            return None
+        annotation = _without_none(field.annotation)
+        if typing.get_origin(annotation) is dict:
+            next(parts, None)  # the user's name of the entry, e.g. a scenario
+            annotation = typing.get_args(annotation)[1]
+        if not (isinstance(annotation, type) and issubclass(annotation, BaseModel)):
+            return None
+        model = annotation
+    return model
+
+
+def _without_none(annotation: object) -> object:
+    """``X | None`` → ``X``; anything else unchanged."""
+    if typing.get_origin(annotation) in (typing.Union, types.UnionType):
+        kept = [arg for arg in typing.get_args(annotation) if arg is not type(None)]
+        return kept[0] if len(kept) == 1 else annotation
+    return annotation
 
 
 def _lookup(raw: dict, location: list[str]) -> object:

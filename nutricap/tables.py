@@ -8,14 +8,21 @@ file, the spreadsheet row (the header is row 1, the first data row is row 2)
 and the column.
 
 Decisions on awkward files (documented in docs/inputs.md): a UTF-8 byte-order
-mark is accepted; a file that is not UTF-8 is refused; a semicolon-separated
-file is refused with a message saying so (decimal commas would otherwise be
-misread silently).
+mark is accepted; a file that is not UTF-8 is refused; a file separated by
+semicolons (or tabs, or vertical bars) is refused with a message saying so
+(decimal commas would otherwise be misread silently); a column name repeated in
+the header is refused; an undeclared column named almost like an absent declared
+one (``tanin`` for ``tannin``) is refused as a misspelling; empty rows at the end
+are ignored, an empty row between data rows is refused (every later row number
+would be off by one); a table with no data rows is refused.
 """
 
 from __future__ import annotations
 
+import csv
 import difflib
+import io
+import re
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -26,6 +33,11 @@ from nutricap.errors import TableError
 
 TRUE_WORDS = frozenset({"true", "yes", "y", "1", "t"})
 FALSE_WORDS = frozenset({"false", "no", "n", "0", "f", ""})
+OTHER_SEPARATORS = {";": "semicolons", "\t": "tabs", "|": "vertical bars"}
+NEWLINE = b"\n"
+NEAR_MISS_CUTOFF = 0.8
+"""An undeclared column this close (difflib ratio, ignoring case) to an absent declared one
+is taken for a misspelling and refused."""
 
 
 @dataclass(frozen=True)
@@ -71,6 +83,7 @@ def read_csv_table(path: Path, columns: list[Column], *, what: str) -> pd.DataFr
     """
     frame = _read_raw(path, what)
     _check_columns(frame, columns, path)
+    frame = _without_empty_rows(frame, path, what)
     for column in columns:
         if column.name in frame.columns:
             frame[column.name] = _convert_column(frame[column.name], column, path)
@@ -78,49 +91,169 @@ def read_csv_table(path: Path, columns: list[Column], *, what: str) -> pd.DataFr
 
 
 def _read_raw(path: Path, what: str) -> pd.DataFrame:
-    if not path.is_file():
-        raise TableError(f"{what} not found", source=path, expected="an existing CSV file")
-    try:
-        text = path.read_bytes().decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise TableError(
-            f"{what} is not UTF-8 text (byte {exc.start})",
-            source=path,
-            expected="a CSV file saved as UTF-8",
-            found="another encoding; re-save the file as UTF-8 CSV",
-        ) from None
-    header = text.splitlines()[0] if text.strip() else ""
+    text = _read_text(path, what)
+    lines = text.splitlines()
+    header = lines[0].strip() if lines else ""
     if not header:
-        raise TableError(f"{what} is empty", source=path, expected="a header row")
-    if ";" in header and "," not in header:
         raise TableError(
-            f"{what} is separated by semicolons",
+            f"{what} is empty" if not text.strip() else f"{what} has no header on row 1",
             source=path,
             location="row 1",
-            expected="comma-separated values with a decimal point",
-            found=f"header {header!r}",
+            expected="a header row naming the columns",
         )
+    _refuse_other_separators(header, path, what)
+    _refuse_repeated_columns(header, path)
     try:
-        frame = pd.read_csv(path, dtype=str, keep_default_na=False, encoding="utf-8-sig")
+        frame = pd.read_csv(
+            io.StringIO(text), dtype=str, keep_default_na=False, skip_blank_lines=False
+        )
     except (pd.errors.ParserError, pd.errors.EmptyDataError) as exc:
-        raise TableError(f"{what} cannot be read as CSV: {exc}", source=path) from None
+        raise _parser_error(exc, path, what) from None
     frame.columns = [str(name).strip() for name in frame.columns]
     return frame.apply(lambda col: col.str.strip())
 
 
+def _read_text(path: Path, what: str) -> str:
+    if path.is_dir():
+        raise TableError(f"{what} is a folder, not a file", source=path, expected="a CSV file")
+    if not path.is_file():
+        raise TableError(f"{what} not found", source=path, expected="an existing CSV file")
+    data = path.read_bytes()
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        row = data[: exc.start].count(NEWLINE) + 1
+        raise TableError(
+            f"{what} is not UTF-8 text (byte {exc.start})",
+            source=path,
+            location=f"row {row}",
+            expected="a CSV file saved as UTF-8",
+            found="another encoding; re-save the file as UTF-8 CSV",
+        ) from None
+
+
+def _refuse_other_separators(header: str, path: Path, what: str) -> None:
+    if "," in header:
+        return
+    for separator, words in OTHER_SEPARATORS.items():
+        if separator in header:
+            raise TableError(
+                f"{what} is separated by {words}",
+                source=path,
+                location="row 1",
+                expected="comma-separated values with a decimal point",
+                found=f"header {header!r}",
+            )
+
+
+def _refuse_repeated_columns(header: str, path: Path) -> None:
+    names = [name.strip() for name in next(csv.reader([header]))]
+    seen: set[str] = set()
+    for number, name in enumerate(names, start=1):
+        if name and name in seen:
+            raise TableError(
+                f"column {name!r} appears twice in the header",
+                source=path,
+                location=f"row 1 (header), column {number}",
+                expected="each column name once",
+                found=f"a second {name!r}",
+            )
+        seen.add(name)
+
+
+def _parser_error(exc: Exception, path: Path, what: str) -> TableError:
+    match = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", str(exc))
+    if match is None:
+        return TableError(f"{what} cannot be read as CSV: {exc}", source=path)
+    expected, line, found = match.groups()
+    return TableError(
+        "more values than the header has columns",
+        source=path,
+        location=f"row {line}",
+        expected=f"{expected} values as in the header (a decimal comma, or a comma in an "
+        "unquoted text?)",
+        found=f"{found} values",
+    )
+
+
+def _without_empty_rows(frame: pd.DataFrame, path: Path, what: str) -> pd.DataFrame:
+    """Drop empty rows at the end; refuse one between data rows (row numbers would shift)."""
+    empty = (frame == "").all(axis=1).to_numpy()
+    filled = np.flatnonzero(~empty)
+    if filled.size == 0:
+        raise TableError(
+            f"{what} has a header but no data rows",
+            source=path,
+            location="row 2",
+            expected="at least one data row",
+            found="none",
+        )
+    frame = frame.iloc[: filled[-1] + 1]
+    if empty[: filled[-1]].any():
+        index = int(np.flatnonzero(empty[: filled[-1]])[0])
+        raise TableError(
+            "empty row between data rows",
+            source=path,
+            location=f"row {spreadsheet_row(index)}",
+            expected="no empty rows (delete it, so that row numbers stay those of the file)",
+            found="an empty row",
+        )
+    return frame
+
+
+def closest_name(name: str, candidates: list[str], cutoff: float = 0.6) -> str | None:
+    """The candidate closest to ``name`` ignoring case (difflib ratio), or None below ``cutoff``.
+
+    Examples
+    --------
+    >>> closest_name("UnitID", ["unit_id", "stratum"])
+    'unit_id'
+    """
+    lowered = {candidate.lower(): candidate for candidate in candidates}
+    close = difflib.get_close_matches(name.lower(), list(lowered), n=1, cutoff=cutoff)
+    return lowered[close[0]] if close else None
+
+
 def _check_columns(frame: pd.DataFrame, columns: list[Column], path: Path) -> None:
     present = list(frame.columns)
+    found = "columns " + ", ".join(repr(name) for name in present)
     for column in columns:
         if column.required and column.name not in present:
-            close = difflib.get_close_matches(column.name, present, n=1)
-            hint = f"; did you mean to name {close[0]!r} {column.name!r}?" if close else ""
+            close = closest_name(column.name, present, cutoff=0.6)
+            hint = f"; did you mean to name {close!r} {column.name!r}?" if close else ""
             raise TableError(
                 f"missing column {column.name!r}{hint}",
                 source=path,
                 location="row 1 (header)",
                 expected=f"column {column.name!r}"
                 + (f" ({column.meaning})" if column.meaning else ""),
-                found="columns " + ", ".join(repr(name) for name in present),
+                found=found,
+            )
+    _refuse_near_misses(present, columns, path)
+
+
+def _refuse_near_misses(present: list[str], columns: list[Column], path: Path) -> None:
+    """Refuse an undeclared column named almost like an absent declared one.
+
+    A misspelt optional column (``tanin``, ``dry_mass_kg``) would otherwise be kept as a
+    note and its values silently ignored.
+    """
+    declared = {column.name: column for column in columns}
+    absent = [name for name in declared if name not in present]
+    for name in present:
+        if name in declared:
+            continue
+        close = closest_name(name, absent, cutoff=NEAR_MISS_CUTOFF)
+        if close is not None:
+            meaning = declared[close].meaning
+            raise TableError(
+                f"unknown column {name!r}; did you mean {close!r}?",
+                source=path,
+                location="row 1 (header)",
+                expected=f"column {close!r}"
+                + (f" ({meaning})" if meaning else "")
+                + ", or a name clearly different from it for a column to ignore",
+                found=repr(name),
             )
 
 
@@ -219,7 +352,7 @@ def check_unique(frame: pd.DataFrame, keys: list[str], path: Path) -> None:
     duplicated = frame.duplicated(subset=keys, keep="first").to_numpy()
     if duplicated.any():
         index = int(np.flatnonzero(duplicated)[0])
-        values = ", ".join(f"{key}={_plain(frame[key].iloc[index])!r}" for key in keys)
+        values = ", ".join(f"{key}={plain_value(frame[key].iloc[index])!r}" for key in keys)
         raise TableError(
             "duplicate entry",
             source=path,
@@ -229,7 +362,7 @@ def check_unique(frame: pd.DataFrame, keys: list[str], path: Path) -> None:
         )
 
 
-def _plain(value: object) -> object:
+def plain_value(value: object) -> object:
     """A numpy scalar as the Python value it holds (for readable messages)."""
     return value.item() if isinstance(value, np.generic) else value
 

@@ -18,7 +18,7 @@ import pandas as pd
 from nutricap.assess import assess_use, current_animals_from_counts
 from nutricap.errors import InputError, ProjectFileError, TableError
 from nutricap.inputs import read_animal_classes, read_forage_classes, read_plots
-from nutricap.landscape.grid_supply import GridResult, grid_problem, write_grid_outputs
+from nutricap.landscape.grid_supply import GridResult, grid_outputs_alongside, grid_problem
 from nutricap.landscape.plots import StratumSupply, plot_biomass_matrix, stratum_supply
 from nutricap.landscape.vectors import (
     StratumAreas,
@@ -601,32 +601,33 @@ def write_estimate(
     if result.uncertainty.sensitivity is not None:
         write_csv(result.uncertainty.sensitivity, folder / "sensitivity.csv")
     write_geopackage(result.by_unit, result.units, folder / "capacity_by_unit.gpkg")
-    if result.grid is not None:
-        eaten_kg, intake = result.solution.ncc.eaten_kg, result.herd.intake_kg_per_day
-        write_grid_outputs(result.grid, result.problem, eaten_kg, intake, folder)
-    context = [
-        f"{config.project.species}, {config.project.name}; season of {result.season_days:g} days.",
-        f"Target diet: {target_words(result.target)}.",
-        *[_total_words(row) for row in totals.itertuples()],
-    ]
-    markdown = markdown_table(result.by_unit, title="Capacity by unit", context_lines=context)
-    (folder / "capacity_by_unit.md").write_text(markdown, encoding="utf-8")
-    manifest = build_manifest(
-        command="estimate",
-        project_path=project.path,
-        input_paths=project.input_paths(),
-        settings=config.model_dump(mode="json"),
-        derived=_derived_values(result),
-    )
-    write_json(manifest, folder / "run.json")
-    if report:
-        write_report(
-            folder / "report.html",
-            result,
-            project=project,
-            manifest=manifest,
-            extras=report_extras(result, project, scenario_table),
+    eaten_kg, intake = result.solution.ncc.eaten_kg, result.herd.intake_kg_per_day
+    # Raster outputs (capacity_density.tif: a second streamed pass) are written alongside.
+    with grid_outputs_alongside(result.grid, result.problem, eaten_kg, intake, folder):
+        context = [
+            f"{config.project.species}, {config.project.name}; "
+            f"season of {result.season_days:g} days.",
+            f"Target diet: {target_words(result.target)}.",
+            *[_total_words(row) for row in totals.itertuples()],
+        ]
+        markdown = markdown_table(result.by_unit, title="Capacity by unit", context_lines=context)
+        (folder / "capacity_by_unit.md").write_text(markdown, encoding="utf-8")
+        manifest = build_manifest(
+            command="estimate",
+            project_path=project.path,
+            input_paths=project.input_paths(),
+            settings=config.model_dump(mode="json"),
+            derived=_derived_values(result),
         )
+        write_json(manifest, folder / "run.json")
+        if report:
+            write_report(
+                folder / "report.html",
+                result,
+                project=project,
+                manifest=manifest,
+                extras=report_extras(result, project, scenario_table),
+            )
 
 
 def report_extras(

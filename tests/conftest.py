@@ -27,3 +27,12 @@ def example_estimate(example_project):
     from nutricap.workflow import estimate
 
     return estimate(load_project(example_project))
+
+
+def pytest_terminal_summary(terminalreporter, exitstatus, config):
+    """Report how many bad-input cases (tests/bad_inputs/cases.py) were run."""
+    from bad_inputs import CASES_RUN
+
+    ran = config.stash.get(CASES_RUN, [])
+    if ran:
+        terminalreporter.write_line(f"bad-input cases run: {len(ran)}")

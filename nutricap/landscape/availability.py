@@ -96,12 +96,7 @@ def exposed_fraction_above_snow(snow_depth_cm, height_cm):
     >>> exposed_fraction_above_snow([0.0, 30.0, 80.0], 60.0).tolist()
     [1.0, 0.5, 0.0]
     """
-    depth = np.maximum(np.asarray(snow_depth_cm, dtype=np.float32), np.float32(0.0))
-    height = np.asarray(height_cm, dtype=np.float32)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        share = np.float32(1.0) - depth / height
-    share = np.where(height > 0, share, (depth <= 0).astype(np.float32))
-    return np.clip(share, np.float32(0.0), np.float32(1.0)).astype(np.float32, copy=False)
+    return _broadcast_into(_exposed_into, snow_depth_cm, height_cm)
 
 
 def available_all_or_none(snow_depth_cm, height_cm):
@@ -129,18 +124,44 @@ def available_all_or_none(snow_depth_cm, height_cm):
     >>> available_all_or_none([0.0, 59.0, 60.0], 60.0).tolist()
     [1.0, 1.0, 0.0]
     """
-    depth = np.asarray(snow_depth_cm, dtype=np.float32)
-    height = np.asarray(height_cm, dtype=np.float32)
-    return (depth < height).astype(np.float32)
+    return _broadcast_into(_all_or_none_into, snow_depth_cm, height_cm)
 
 
 def snow_available_fraction(snow_depth_cm, height_cm, method: str = "exposed_fraction"):
     """Share of a class available above the snow by ``method`` (one of SNOW_BURIAL_METHODS)."""
-    if method == "exposed_fraction":
-        return exposed_fraction_above_snow(snow_depth_cm, height_cm)
-    if method == "all_or_none":
-        return available_all_or_none(snow_depth_cm, height_cm)
-    raise ValueError(f"unknown snow burial method {method!r}; expected {SNOW_BURIAL_METHODS}")
+    return _broadcast_into(_snow_rule(method), snow_depth_cm, height_cm)
+
+
+def _snow_rule(method: str):
+    rules = {"exposed_fraction": _exposed_into, "all_or_none": _all_or_none_into}
+    if method not in rules:
+        raise ValueError(f"unknown snow burial method {method!r}; expected {SNOW_BURIAL_METHODS}")
+    return rules[method]
+
+
+def _broadcast_into(rule, snow_depth_cm, height_cm) -> np.ndarray:
+    depth, height = np.broadcast_arrays(
+        np.asarray(snow_depth_cm, dtype=np.float32), np.asarray(height_cm, dtype=np.float32)
+    )
+    out = np.empty(depth.shape, dtype=np.float32)
+    rule(depth, height, out)
+    return out
+
+
+def _exposed_into(depth, height, out) -> None:
+    """``out = clip(1 − depth / height, 0, 1)``; 1 on bare ground where height ≤ 0."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        np.divide(depth, height, out=out)
+    np.subtract(np.float32(1.0), out, out=out)
+    np.clip(out, np.float32(0.0), np.float32(1.0), out=out)
+    flat = np.asarray(height) <= 0
+    if flat.any():
+        np.copyto(out, np.asarray(depth) <= 0, where=np.broadcast_to(flat, out.shape))
+
+
+def _all_or_none_into(depth, height, out) -> None:
+    """``out = 1`` where the class stands above the snow (``depth < height``), else 0."""
+    np.less(depth, height, out=out)
 
 
 def slope_percent_from_degrees(slope_deg):
@@ -327,24 +348,29 @@ class CellRules:
 
 @dataclass
 class RuleOutcome:
-    """What the rules left and removed in a set of cells.
+    """What the rules left and removed in a set of cells (views into one float32 array).
 
     Attributes
     ----------
-    available_kg_per_ha : ndarray (classes, cells), float32
+    available_kg_per_ha : ndarray (classes, cells)
         Forage left of each class after every rule [kg/ha of cell].
-    access : ndarray (cells,), float32
+    access : ndarray (cells,)
         Share of each cell's area still used after the area rules [0–1]; 0 without data.
     removed_kg_per_ha : dict rule → ndarray (cells,)
         Forage (all classes) each rule removed [kg/ha of cell].
-    affected : dict rule → ndarray (cells,), bool
-        Cells with data where the rule removed something (or, for an area rule, took area).
+    affected : dict rule → ndarray (cells,)
+        1.0 in cells with data where the rule removed something (or took area), else 0.0.
     """
 
     available_kg_per_ha: np.ndarray
     access: np.ndarray
     removed_kg_per_ha: dict[str, np.ndarray]
     affected: dict[str, np.ndarray]
+
+
+def outcome_rows(n_classes: int, rules: CellRules) -> int:
+    """Rows of the array :func:`apply_rules` fills: classes, access, 2 per rule after nodata."""
+    return n_classes + 1 + 2 * (len(rules.active()) - 1)
 
 
 def apply_rules(
@@ -357,13 +383,14 @@ def apply_rules(
     snow_depth_cm: np.ndarray | None = None,
     slope: np.ndarray | None = None,
     distance_to_water_m: np.ndarray | None = None,
+    out: np.ndarray | None = None,
 ) -> RuleOutcome:
     """Apply every active rule (except ``nodata``, handled by the caller) to a set of cells.
 
     Parameters
     ----------
     biomass_kg_per_ha : ndarray (classes, cells), float32
-        Standing forage of each class [kg/ha]; 0 in cells without data. Not modified.
+        Standing forage of each class [kg/ha]; 0 in cells that are not ``valid``. Not modified.
     rules : CellRules
     valid : bool ndarray (cells,)
         Cells that are mapped and have data in every layer; the others keep nothing.
@@ -374,6 +401,8 @@ def apply_rules(
     snow_depth_cm, slope, distance_to_water_m : ndarray (cells,), optional
         The layers of the snow, slope ([%] or [degrees]) and distance-to-water [m] rules
         (any finite value where ``valid`` is False).
+    out : float32 ndarray (:func:`outcome_rows`, cells), optional
+        Where to write the result (the outcome's arrays are views into it).
 
     Returns
     -------
@@ -387,42 +416,79 @@ def apply_rules(
     reductions, the forage left is ``g_c · f_c · e · m · (1 − r_s)(1 − r_w)``. Each rule's
     removed forage is the total before it minus the total after it.
     """
-    gross = biomass_kg_per_ha
-    access = valid.astype(np.float32)
-    total = gross.sum(axis=0, dtype=np.float32)
-    removed: dict[str, np.ndarray] = {}
-    affected: dict[str, np.ndarray] = {}
-
-    def area_rule(name: str, keep: np.ndarray) -> None:
-        nonlocal total
-        access[:] *= keep
-        removed[name] = total * (np.float32(1.0) - keep)
-        affected[name] = (keep < 1) & valid
-        total = total * keep
-
+    n_classes, n_cells = biomass_kg_per_ha.shape
+    if out is None:
+        out = np.empty((outcome_rows(n_classes, rules), n_cells), dtype=np.float32)
+    state = _RuleState(biomass_kg_per_ha, rules, valid, out)
     if rules.exclusions and excluded is not None:
-        area_rule("exclusions", (~excluded).astype(np.float32))
+        state.area_rule("exclusions", (~excluded).astype(np.float32))
     if rules.partial_access and accessible_fraction is not None:
-        area_rule("accessible_fraction", accessible_fraction.astype(np.float32, copy=False))
-    exposed = gross
+        state.area_rule("accessible_fraction", accessible_fraction.astype(np.float32, copy=False))
     if rules.height_cm is not None and snow_depth_cm is not None:
-        heights = np.asarray(rules.height_cm, dtype=np.float32)[:, None]
-        shares = snow_available_fraction(snow_depth_cm[None, :], heights, rules.snow_method)
-        exposed = gross * shares
-        after = exposed.sum(axis=0, dtype=np.float32) * access
-        removed["snow"] = total - after
-        affected["snow"] = removed["snow"] > 0
-        total = after
+        state.snow(snow_depth_cm)
     if rules.min_forage_kg_per_ha is not None:
-        density = exposed.sum(axis=0, dtype=np.float32)
-        area_rule("min_forage", (density >= rules.min_forage_kg_per_ha).astype(np.float32))
+        dense = state.exposed_total() >= np.float32(rules.min_forage_kg_per_ha)
+        state.area_rule("min_forage", dense.astype(np.float32))
     if rules.slope_table is not None and slope is not None:
         percent = slope_percent_from_degrees(slope) if rules.slope_in_degrees else slope
-        area_rule("slope", np.float32(1.0) - rules.slope_table.reduction_of(percent))
+        state.area_rule("slope", np.float32(1.0) - rules.slope_table.reduction_of(percent))
     if rules.water_table is not None and distance_to_water_m is not None:
         reduction = rules.water_table.reduction_of(distance_to_water_m)
-        area_rule("distance_to_water", np.float32(1.0) - reduction)
-    return RuleOutcome(exposed * access, access, removed, affected)
+        state.area_rule("distance_to_water", np.float32(1.0) - reduction)
+    return state.finish()
+
+
+class _RuleState:
+    """Running state of :func:`apply_rules`: forage left, area share left, total left."""
+
+    def __init__(self, gross: np.ndarray, rules: CellRules, valid: np.ndarray, out) -> None:
+        n_classes = gross.shape[0]
+        self.gross, self.rules, self.valid = gross, rules, valid
+        self.available = out[:n_classes]
+        self.access = out[n_classes]
+        np.copyto(self.access, valid)
+        self.rows = {
+            rule: (out[n_classes + 1 + 2 * i], out[n_classes + 2 + 2 * i])
+            for i, rule in enumerate(rules.active()[1:])
+        }
+        self.total = gross.sum(axis=0, dtype=np.float32)
+        self.snowed = False
+        self.area_rules = 0
+
+    def area_rule(self, name: str, keep: np.ndarray) -> None:
+        removed, affected = self.rows[name]
+        np.subtract(np.float32(1.0), keep, out=removed)
+        removed *= self.total
+        np.copyto(affected, (keep < 1) & self.valid)
+        self.access *= keep
+        self.total *= keep
+        self.area_rules += 1
+
+    def snow(self, depth: np.ndarray) -> None:
+        rule = _snow_rule(self.rules.snow_method)
+        for column, height in enumerate(np.asarray(self.rules.height_cm, dtype=np.float32)):
+            rule(depth, height, self.available[column])
+        self.available *= self.gross
+        self.snowed = True
+        removed, affected = self.rows["snow"]
+        after = self.exposed_total() * self.access
+        np.subtract(self.total, after, out=removed)
+        np.copyto(affected, removed > 0)
+        self.total = after
+
+    def exposed_total(self) -> np.ndarray:
+        """Forage above the snow [kg/ha], before the area rules."""
+        source = self.available if self.snowed else self.gross
+        return source.sum(axis=0, dtype=np.float32)
+
+    def finish(self) -> RuleOutcome:
+        if not self.snowed:
+            np.copyto(self.available, self.gross)
+        if self.area_rules:
+            self.available *= self.access
+        removed = {rule: rows[0] for rule, rows in self.rows.items()}
+        affected = {rule: rows[1] for rule, rows in self.rows.items()}
+        return RuleOutcome(self.available, self.access, removed, affected)
 
 
 def rules_report(

@@ -288,8 +288,8 @@ def sample_index(index_path: Path, where: pd.DataFrame, plots_crs: str | None, p
         raise SpatialError(
             f"the index raster does not cover {int(bad.sum())} of {bad.size} calibration plots",
             source=index_path,
-            location=f"plot {where.index[first]!r} at ({where['x'].iloc[first]:g}, "
-            f"{where['y'].iloc[first]:g}) in {plots_path.name}",
+            location=f"plot {where.index[first]!r} at ({where['x'].iloc[first]:.10g}, "
+            f"{where['y'].iloc[first]:.10g}) in {plots_path.name}",
             expected="every plot on a cell of the index raster with data"
             + ("" if plots_crs else " (x, y in the raster's CRS, or set plots_crs)"),
             found="outside the raster" if not inside[first] else "a nodata cell",

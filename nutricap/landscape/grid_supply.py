@@ -27,7 +27,8 @@ import tempfile
 import weakref
 from collections import deque
 from collections.abc import Callable, Iterator
-from concurrent.futures import ThreadPoolExecutor
+from concurrent.futures import ThreadPoolExecutor, wait
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -64,7 +65,15 @@ from nutricap.report.tables import write_csv
 
 Progress = Callable[[str], None]
 DENSITY_NODATA = -9999.0
-READ_AHEAD = 2  # windows read by background threads while one is computed
+WORKERS = 2  # threads that read and compute windows (the machines in view have 2 cores)
+CHUNK_CELLS = 131_072
+"""Cells computed at a time within a window: the arrays of a chunk stay in the CPU cache."""
+
+
+def chunk_rows(height: int, width: int) -> list[tuple[int, int]]:
+    """Row ranges of the chunks of a window (whole rows, about CHUNK_CELLS cells each)."""
+    step = max(1, CHUNK_CELLS // max(width, 1))
+    return [(row, min(row + step, height)) for row in range(0, height, step)]
 
 
 @dataclass(frozen=True)
@@ -86,6 +95,7 @@ class GridSetup:
     classes: list[str]
     n_strata: int
     polygon_stratum: np.ndarray  # (polygons + 1,) stratum code of each burnt polygon code
+    unit_base: np.ndarray  # (units + 1,) first key of each burnt unit code (0: outside, last)
     polygon_biomass: np.ndarray  # (polygons + 1, classes) plot-mean kg/ha, 0 for raster classes
     strata_columns: list[int]  # classes whose biomass comes from the plots of the stratum
     polygon_access: np.ndarray | None  # (polygons + 1,) accessible fraction
@@ -113,17 +123,37 @@ class WindowData:
     polygons: np.ndarray  # strata polygon code, 0 = none
     excluded: np.ndarray | None
 
+    def rows(self, first: int, last: int) -> WindowData:
+        """Rows ``first:last`` of the window (views, no copy)."""
+        part = slice(first, last)
+        return WindowData(
+            self.window,
+            {key: (values[part], ok[part]) for key, (values, ok) in self.layers.items()},
+            self.units[part],
+            self.polygons[part],
+            None if self.excluded is None else self.excluded[part],
+        )
+
 
 @dataclass
 class WindowSums:
-    """What one window adds to the totals."""
+    """What one window (or a chunk of it) adds to the totals, and its cells for the cache."""
 
     run_keys: np.ndarray
     run_cells: np.ndarray
     run_sums: np.ndarray  # (rows of the layout, runs) float32
     calibration_cells: np.ndarray  # (groups, 3): beyond range, beyond margin, negative
-    cell_keys: np.ndarray  # key of each cell, dump where it has no data
-    cell_kg_per_ha: np.ndarray  # (classes, cells) forage left after the rules
+    cells: list[tuple[np.ndarray, np.ndarray]]  # per chunk: key (dump: no data), forage left
+
+    @staticmethod
+    def concatenate(parts: list[WindowSums]) -> WindowSums:
+        return WindowSums(
+            np.concatenate([part.run_keys for part in parts]),
+            np.concatenate([part.run_cells for part in parts]),
+            np.concatenate([part.run_sums for part in parts], axis=1),
+            sum(part.calibration_cells for part in parts),
+            [cell for part in parts for cell in part.cells],
+        )
 
 
 @dataclass
@@ -157,22 +187,26 @@ class CellCache:
         self._stream = open(self.path, "wb")  # noqa: SIM115 - closed in finish()
 
     def append(self, keys: np.ndarray, kg_per_ha: np.ndarray) -> None:
-        self._stream.write(keys.astype(np.int32, copy=False).tobytes())
-        self._stream.write(np.ascontiguousarray(kg_per_ha, dtype=np.float32).tobytes())
+        self._stream.write(np.ascontiguousarray(keys, dtype=np.int32))
+        self._stream.write(np.ascontiguousarray(kg_per_ha, dtype=np.float32))
 
     def finish(self) -> None:
         self._stream.close()
 
     def windows(
         self, windows: list[Window], n_classes: int
-    ) -> Iterator[tuple[Window, np.ndarray, np.ndarray]]:
-        """Yield each window with its cells' keys and forage, in the order written."""
+    ) -> Iterator[tuple[Window, list[tuple[int, int, np.ndarray, np.ndarray]]]]:
+        """Yield each window with its chunks (rows, keys, forage), in the order written."""
         with open(self.path, "rb") as stream:
             for window in windows:
-                n = int(window.width) * int(window.height)
-                keys = np.frombuffer(stream.read(4 * n), dtype=np.int32)
-                kg = np.frombuffer(stream.read(4 * n * n_classes), dtype=np.float32)
-                yield window, keys, kg.reshape(n_classes, n)
+                height, width = int(window.height), int(window.width)
+                chunks = []
+                for first, last in chunk_rows(height, width):
+                    n = (last - first) * width
+                    keys = np.frombuffer(stream.read(4 * n), dtype=np.int32)
+                    kg = np.frombuffer(stream.read(4 * n * n_classes), dtype=np.float32)
+                    chunks.append((first, last, keys, kg.reshape(n_classes, n)))
+                yield window, chunks
 
     def remove(self) -> None:
         self._finalizer()
@@ -323,21 +357,75 @@ def strata_supply(plots, strata, strata_classes, all_classes, project) -> Stratu
 # --- the per-window computation -------------------------------------------------------------
 
 
+@dataclass(frozen=True)
+class Layout:
+    """Rows of the per-cell array summed by key: what the rules left and removed, the standing
+    forage before the rules, and the cells without data.
+
+    ``available`` (classes) | ``access`` | (removed, affected) per rule after ``nodata`` |
+    ``gross`` (classes) | ``nodata``.
+    """
+
+    n_classes: int
+    n_rules: int
+
+    @property
+    def rules_end(self) -> int:
+        return self.n_classes + 1 + 2 * self.n_rules
+
+    @property
+    def rows(self) -> int:
+        return self.rules_end + self.n_classes + 1
+
+    @property
+    def available(self) -> slice:
+        return slice(0, self.n_classes)
+
+    @property
+    def access(self) -> int:
+        return self.n_classes
+
+    def removed(self, number: int) -> int:
+        return self.n_classes + 1 + 2 * number
+
+    def affected(self, number: int) -> int:
+        return self.removed(number) + 1
+
+    @property
+    def gross(self) -> slice:
+        return slice(self.rules_end, self.rules_end + self.n_classes)
+
+    @property
+    def nodata(self) -> int:
+        return self.rows - 1
+
+
+def layout_of(setup: GridSetup) -> Layout:
+    return Layout(setup.n_classes, len(setup.rules.active()) - 1)
+
+
 def window_sums(setup: GridSetup, data: WindowData) -> WindowSums:
-    """Per-cell biomass → availability rules → run sums of one window (pure, no file access)."""
-    units = data.units.ravel()
-    polygons = data.polygons.ravel()
-    stratum = setup.polygon_stratum[polygons]
-    key = (units.astype(np.int32) - 1) * np.int32(setup.n_strata + 1) + stratum
-    key[units == 0] = setup.dump_key
+    """Per-cell biomass → availability rules → run sums of one window (pure, no file access).
+
+    The window is computed in chunks of whole rows (:func:`chunk_rows`).
+    """
+    height, width = data.units.shape
+    return WindowSums.concatenate(
+        [chunk_sums(setup, data.rows(first, last)) for first, last in chunk_rows(height, width)]
+    )
+
+
+def chunk_sums(setup: GridSetup, data: WindowData) -> WindowSums:
+    """:func:`window_sums` of a few rows."""
+    units = data.units.ravel().astype(np.intp)  # burnt as int32, GDAL's fast path
+    polygons = data.polygons.ravel().astype(np.intp)
+    key = setup.unit_base[units] + setup.polygon_stratum[polygons]
     mapped = (units > 0) & (polygons > 0)
-    valid = mapped.copy()
-    for name in _used_layers(setup):
-        valid &= data.layers[name][1].ravel()
-    invalid = ~valid
-    for name in _used_layers(setup):
-        np.putmask(data.layers[name][0], invalid.reshape(data.units.shape), np.float32(0.0))
-    gross, calibration_cells = _gross_biomass(setup, data, polygons, valid)
+    valid = _valid_cells(setup, data, mapped)
+    layout = layout_of(setup)
+    stacked = np.empty((layout.rows, units.size), dtype=np.float32)
+    gross = stacked[layout.gross]
+    calibration_cells = _gross_biomass(setup, data, polygons, valid, gross)
     outcome = rules_mod.apply_rules(
         gross,
         setup.rules,
@@ -349,23 +437,24 @@ def window_sums(setup: GridSetup, data: WindowData) -> WindowSums:
         snow_depth_cm=_layer(data, setup.snow_key),
         slope=_layer(data, setup.slope_key),
         distance_to_water_m=_layer(data, setup.water_key),
+        out=stacked[: layout.rules_end],
     )
-    mapped_without_data = (mapped & invalid).astype(np.float32)
-    layout = [outcome.available_kg_per_ha, gross, outcome.access[None], mapped_without_data[None]]
-    for rule in setup.rules.active()[1:]:
-        layout.append(outcome.removed_kg_per_ha[rule][None])
-        layout.append(outcome.affected[rule].astype(np.float32)[None])
-    stacked = np.concatenate(layout, axis=0)
+    np.greater(mapped, valid, out=stacked[layout.nodata])  # mapped without data
     run_keys, run_cells, run_sums = _run_sums(key, stacked, data.units.shape)
-    cell_keys = np.where(valid, key, setup.dump_key)
-    return WindowSums(
-        run_keys,
-        run_cells,
-        run_sums,
-        calibration_cells,
-        cell_keys,
-        outcome.available_kg_per_ha,
-    )
+    cell_keys = np.where(valid, key, setup.dump_key).astype(np.int32)
+    cells = [(cell_keys, outcome.available_kg_per_ha)]
+    return WindowSums(run_keys, run_cells, run_sums, calibration_cells, cells)
+
+
+def _valid_cells(setup: GridSetup, data: WindowData, mapped: np.ndarray) -> np.ndarray:
+    """Mapped cells with data in every layer used; layers' values set to 0 where they have none."""
+    valid = mapped.copy()
+    for name in _used_layers(setup):
+        values, ok = data.layers[name]
+        if not ok.all():
+            np.putmask(values, ~ok, np.float32(0.0))
+            valid &= ok.ravel()
+    return valid
 
 
 def _used_layers(setup: GridSetup) -> list[str]:
@@ -378,17 +467,17 @@ def _layer(data: WindowData, key: str | None) -> np.ndarray | None:
     return None if key is None else data.layers[key][0].ravel()
 
 
-def _gross_biomass(setup: GridSetup, data: WindowData, polygons: np.ndarray, valid: np.ndarray):
-    """Standing biomass of every class in every cell [kg/ha], 0 where the cell has no data.
+def _gross_biomass(setup: GridSetup, data: WindowData, polygons, valid, gross) -> np.ndarray:
+    """Standing biomass of every class in every cell into ``gross`` [kg/ha], 0 without data.
 
-    The layers' values are already 0 where ``valid`` is False.
+    Layer values are finite everywhere (see :func:`_valid_cells`). Returns the calibration
+    counts (beyond range, beyond margin, predicted below zero) per calibrated group.
     """
-    gross = np.empty((setup.n_classes, polygons.size), dtype=np.float32)
     valid_share = valid.astype(np.float32)
     for column in setup.strata_columns:
         np.multiply(setup.polygon_biomass[:, column][polygons], valid_share, out=gross[column])
     for column, key in setup.direct.items():
-        gross[column] = data.layers[key][0].ravel()
+        np.multiply(data.layers[key][0].ravel(), valid_share, out=gross[column])
     counts = np.zeros((len(setup.calibrated), 3), dtype=np.int64)
     if setup.calibrated:
         index = data.layers[setup.index_key][0].ravel()
@@ -396,7 +485,7 @@ def _gross_biomass(setup: GridSetup, data: WindowData, polygons: np.ndarray, val
             predicted, counts[number] = _predict_group(group, index, valid)
             predicted *= valid_share
             gross[group.class_index] = group.shares[:, None] * predicted[None, :]
-    return gross, counts
+    return counts
 
 
 def _predict_group(group: CalibratedGroup, index: np.ndarray, valid: np.ndarray):
@@ -453,7 +542,11 @@ def stream_windows(
     cache: CellCache | None,
     show_progress: bool,
 ) -> None:
-    """First pass: every window read ahead in background threads, computed, added, cached."""
+    """First pass: windows read and computed by worker threads, added and cached in order.
+
+    Reading (GDAL) and the numpy arithmetic both release the GIL, so the workers use the
+    cores; at most ``WORKERS + 1`` windows are in memory at once.
+    """
     bar = tqdm(
         total=len(windows),
         desc="raster windows",
@@ -461,18 +554,21 @@ def stream_windows(
         file=sys.stderr,
         disable=not show_progress,
     )
-    with ThreadPoolExecutor(max_workers=READ_AHEAD) as pool:
-        queue = deque(pool.submit(reader, window) for window in windows[:READ_AHEAD])
-        upcoming = iter(windows[READ_AHEAD:])
+    def work(window: Window) -> WindowSums:
+        return window_sums(setup, reader(window))
+
+    with ThreadPoolExecutor(max_workers=WORKERS) as pool:
+        queue = deque(pool.submit(work, window) for window in windows[:WORKERS])
+        upcoming = iter(windows[WORKERS:])
         while queue:
-            data = queue.popleft().result()
+            part = queue.popleft().result()
             following = next(upcoming, None)
             if following is not None:
-                queue.append(pool.submit(reader, following))
-            part = window_sums(setup, data)
+                queue.append(pool.submit(work, following))
             totals.add(part)
             if cache is not None:
-                cache.append(part.cell_keys, part.cell_kg_per_ha)
+                for keys, kg_per_ha in part.cells:
+                    cache.append(keys, kg_per_ha)
             bar.update()
     bar.close()
 
@@ -530,7 +626,7 @@ def _strata_polygons(strata: gpd.GeoDataFrame, supply: StratumSupply, classes: l
     polygon_biomass = biomass[stratum]
     fraction = strata["accessible_fraction"].to_numpy(dtype=np.float32)
     access = np.concatenate(([1.0], fraction)).astype(np.float32) if (fraction < 1).any() else None
-    return stratum.astype(np.int32), polygon_biomass, access
+    return stratum.astype(np.int64), polygon_biomass, access
 
 
 def _unit_areas(units, strata, project) -> tuple[gpd.GeoDataFrame, object, str]:
@@ -618,11 +714,14 @@ def grid_problem(
     polygon_stratum, polygon_biomass, access = _strata_polygons(strata, supply, classes)
     rules = cell_rules(project, forage_classes, classes, access is not None)
     units_table, area_crs, reason = _unit_areas(units, strata, project)
-    n_keys = len(units) * (len(supply.strata) + 1)
+    n_keys = (len(units) + 1) * (len(supply.strata) + 1)  # the last "unit": outside every unit
+    unit_base = np.arange(-1, len(units)) * (len(supply.strata) + 1)
+    unit_base[0] = len(units) * (len(supply.strata) + 1)
     setup = GridSetup(
         classes=classes,
         n_strata=len(supply.strata),
         polygon_stratum=polygon_stratum,
+        unit_base=unit_base,
         polygon_biomass=polygon_biomass,
         strata_columns=[classes.index(name) for name in strata_classes],
         polygon_access=access,
@@ -639,9 +738,9 @@ def grid_problem(
     resample = config.rasters.resample if config.rasters is not None else "none"
     window_size = config.rasters.window_size if config.rasters is not None else None
     windows = grid_windows(grid, window_size)
-    n_rows = 2 * len(classes) + 2 + 2 * (len(rules.active()) - 1)
+    n_rows = layout_of(setup).rows
     totals = Totals(
-        np.zeros(n_keys + 1), np.zeros((n_keys + 1, n_rows)), np.zeros((len(groups), 3), np.int64)
+        np.zeros(n_keys), np.zeros((n_keys, n_rows)), np.zeros((len(groups), 3), np.int64)
     )
     cache = CellCache()
     show = progress is not None and not getattr(progress, "quiet", False)
@@ -662,26 +761,28 @@ def _assemble(
     forage_classes, calibration_report, specs, resampled, windows, cache, show,
 ) -> GridResult:  # fmt: skip
     """Totals by key → checks, capacity problem, areas, reports."""
-    n_units, n_strata, n_classes = len(units_table), setup.n_strata, setup.n_classes
+    n_units, n_strata = len(units_table), setup.n_strata
     cell_ha = grid.cell_area_ha
-    cells = totals.cells[:-1].reshape(n_units, n_strata + 1)
-    sums = totals.sums[:-1].reshape(n_units, n_strata + 1, -1)
-    available_kg = sums[:, :n_strata, :n_classes] * cell_ha
-    gross_kg = sums[:, :n_strata, n_classes : 2 * n_classes] * cell_ha
-    accessible_ha = sums[:, :n_strata, 2 * n_classes] * cell_ha
-    without_data = sums[:, :n_strata, 2 * n_classes + 1]
+    inside = n_units * (n_strata + 1)  # keys of the last "unit" hold cells outside every unit
+    cells = totals.cells[:inside].reshape(n_units, n_strata + 1)
+    sums = totals.sums[:inside].reshape(n_units, n_strata + 1, -1)
+    layout = layout_of(setup)
+    available_kg = sums[:, :n_strata, layout.available] * cell_ha
+    gross_kg = sums[:, :n_strata, layout.gross] * cell_ha
+    accessible_ha = sums[:, :n_strata, layout.access] * cell_ha
+    without_data = sums[:, :n_strata, layout.nodata]
     _check_units(project, units_table, cells, without_data, specs, grid)
     mapped_ha = cells[:, :n_strata] * cell_ha
     full_supply = _full_supply(supply, setup.classes, gross_kg, mapped_ha - without_data * cell_ha)
     items = build_forage_items(full_supply, forage_classes)
     problem, row_of_key = _problem(units_table, available_kg, mapped_ha, items, mode)
     areas = _areas(units_table, full_supply.strata, mapped_ha, accessible_ha, crs_reason)
-    report = _rules_report(units_table, setup.rules, sums, n_strata, n_classes, cell_ha)
+    report = _rules_report(units_table, setup.rules, sums, layout, cell_ha)
     calibration = _calibration_report(
         calibration_report, totals.calibration_cells, cell_ha, project
     )
     notes = _notes(units_table, cells, without_data, cell_ha, resampled, calibration)
-    stratum_of_key = np.append(np.tile(np.arange(n_strata + 1), n_units), n_strata)
+    stratum_of_key = np.append(np.tile(np.arange(n_strata + 1), n_units + 1), n_strata)
     compression = project.config.rasters.density_compression if project.config.rasters else "zstd"
     return GridResult(
         problem, areas, supply, report, calibration, notes, grid, resampled, windows, cache,
@@ -716,15 +817,44 @@ def _check_units(project, units_table, cells, without_data, specs, grid) -> None
             + ")",
         ),
     ]
-    for bad, message, expected in checks:
+    for number, (bad, message, expected) in enumerate(checks):
         if bad.any():
+            found = f"{int(bad.sum())} unit(s): " + ", ".join(map(repr, ids[bad][:10]))
+            if number == 2:
+                first = units_table.geometry.to_crs(grid.crs).iloc[int(np.flatnonzero(bad)[0])]
+                found += "; " + "; ".join(_layers_without_data(first, specs, grid, project))
             raise SpatialError(
                 f"unit {ids[bad][0]!r} {message}",
                 source=units_path,
                 location="attribute 'unit_id'",
                 expected=expected,
-                found=f"{int(bad.sum())} unit(s): " + ", ".join(map(repr, ids[bad][:10])),
+                found=found,
             )
+
+
+def _layers_without_data(shape, specs: list[LayerSpec], grid: Grid, project) -> list[str]:
+    """Which layers have no data over a unit (the cells whose centre lies in ``shape``)."""
+    rasters = project.config.rasters
+    resample = rasters.resample if rasters is not None else "none"
+    burner = ShapeBurner([shape], [1], "uint8")
+    west, south, east, north = shape.bounds
+    inside = np.zeros(len(specs))
+    cells = 0
+    with streaming_env(), LayerStack(specs, grid, resample) as stack:
+        for window in grid_windows(grid):
+            w_west, w_south, w_east, w_north = rasterio.windows.bounds(window, grid.transform)
+            if w_east < west or w_west > east or w_north < south or w_south > north:
+                continue
+            unit = burner.burn(window, grid) > 0
+            cells += int(unit.sum())
+            layers = stack.read(window)
+            inside += [np.count_nonzero(layers[spec.key][1] & unit) for spec in specs]
+    return [
+        f"layer {spec.key} ({spec.path.name}) has data on {100 * count / max(cells, 1):.0f} % "
+        "of its cells"
+        for spec, count in zip(specs, inside)
+        if count < cells
+    ]
 
 
 def _full_supply(supply: StratumSupply, classes, gross_kg, with_data_ha) -> StratumSupply:
@@ -759,7 +889,8 @@ def _problem(units_table, available_kg, mapped_ha, items, mode):
         row_unit = unit_index
         row_of_key[unit_index, stratum_index] = np.arange(unit_index.size)
     problem = CapacityProblem(unit_ids, row_unit, items, available)
-    return problem, np.append(row_of_key.ravel(), -1)
+    outside = np.full(n_strata + 2, -1)  # keys outside every unit, and the no-data key
+    return problem, np.append(row_of_key.ravel(), outside)
 
 
 def _areas(units_table, strata_names, mapped_ha, accessible_ha, crs_reason) -> StratumAreas:
@@ -776,16 +907,15 @@ def _areas(units_table, strata_names, mapped_ha, accessible_ha, crs_reason) -> S
     return StratumAreas(units_table, table, area_crs, reason)
 
 
-def _rules_report(units_table, rules, sums, n_strata, n_classes, cell_ha) -> pd.DataFrame:
-    per_unit = sums[:, :n_strata, :].sum(axis=1)
+def _rules_report(units_table, rules, sums, layout: Layout, cell_ha) -> pd.DataFrame:
+    per_unit = sums.sum(axis=1)
     active = rules.active()
-    first = 2 * n_classes + 2
-    area = [per_unit[:, 2 * n_classes + 1] * cell_ha]
+    area = [per_unit[:, layout.nodata] * cell_ha]
     removed = [np.full(len(units_table), np.nan)]
-    for number in range(len(active) - 1):
-        removed.append(per_unit[:, first + 2 * number] * cell_ha)
-        area.append(per_unit[:, first + 2 * number + 1] * cell_ha)
-    gross = per_unit[:, n_classes : 2 * n_classes].sum(axis=1) * cell_ha
+    for number in range(layout.n_rules):
+        removed.append(per_unit[:, layout.removed(number)] * cell_ha)
+        area.append(per_unit[:, layout.affected(number)] * cell_ha)
+    gross = per_unit[:, layout.gross].sum(axis=1) * cell_ha
     return rules_mod.rules_report(
         units_table["unit_id"].to_numpy(), active, np.column_stack(area),
         np.column_stack(removed), gross,
@@ -865,10 +995,11 @@ def density_coefficients(
 
 def _density(keys: np.ndarray, kg_per_ha: np.ndarray, per_class: np.ndarray, dump: int):
     """Animal-days per ha of each cell: Σ_c kg_c × coefficient[key, c]; nodata at ``dump``."""
+    index = keys.astype(np.intp)
     density = np.zeros(keys.size, dtype=np.float32)
     for column in range(per_class.shape[0]):
-        density += kg_per_ha[column] * np.take(per_class[column], keys)
-    density[keys == dump] = DENSITY_NODATA
+        density += kg_per_ha[column] * np.take(per_class[column], index)
+    density[index == dump] = DENSITY_NODATA
     return density
 
 
@@ -918,12 +1049,53 @@ def write_capacity_density(
         disable=not result.show_progress,
     )
     dump = result.row_of_key.size - 1
+
+    def write(window: Window, density: np.ndarray) -> None:
+        dst.write(density, 1, window=window)
+        bar.update()
+
     with streaming_env(), rasterio.open(path, "w", **profile) as dst:
-        for window, keys, kg in result.cache.windows(result.windows, n_classes):
-            density = _density(keys, kg, per_class, dump)
-            dst.write(density.reshape(int(window.height), int(window.width)), 1, window=window)
-            bar.update()
+        with ThreadPoolExecutor(max_workers=1) as writer:  # compresses while the next is computed
+            pending = None
+            for window, chunks in result.cache.windows(result.windows, n_classes):
+                density = np.empty((int(window.height), int(window.width)), dtype=np.float32)
+                for first, last, keys, kg in chunks:
+                    density[first:last].flat = _density(keys, kg, per_class, dump)
+                if pending is not None:
+                    pending.result()
+                pending = writer.submit(write, window, density)
+            if pending is not None:
+                pending.result()
     bar.close()
+
+
+@contextmanager
+def grid_outputs_alongside(
+    result: GridResult | None,
+    problem: CapacityProblem,
+    eaten_kg: np.ndarray,
+    intake_kg_per_day: float,
+    folder: Path,
+) -> Iterator[None]:
+    """Write the grid outputs (:func:`write_grid_outputs`) in a background thread while the
+    body of the ``with`` block writes the others; wait for them on leaving the block.
+
+    Nothing happens without a grid result. A failure of either side is raised after both
+    have stopped, so the output folder is never removed while the grid outputs are written.
+    """
+    if result is None:
+        yield
+        return
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        writing = pool.submit(
+            write_grid_outputs, result, problem, eaten_kg, intake_kg_per_day, folder
+        )
+        try:
+            yield
+        except BaseException:
+            wait([writing])
+            raise
+        writing.result()
 
 
 def write_grid_outputs(

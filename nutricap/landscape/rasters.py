@@ -164,8 +164,8 @@ def alignment_problem(grid: Grid, src) -> tuple[str, str] | None:
         abs(row - round(row)) > ALIGNMENT_TOLERANCE_CELLS
     ):
         return (
-            f"cell edges on those of {grid.source.name} (origin {g.c:g}, {g.f:g})",
-            f"origin {t.c:g}, {t.f:g}: shifted by {col % 1:.3f} × {row % 1:.3f} of a cell",
+            f"cell edges on those of {grid.source.name} (origin {g.c:.10g}, {g.f:.10g})",
+            f"origin {t.c:.10g}, {t.f:.10g}: shifted by {col % 1:.3f} × {row % 1:.3f} of a cell",
         )
     return None
 

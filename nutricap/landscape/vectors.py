@@ -1,9 +1,11 @@
 """Vector layers: reading, checking and the strata × units overlay.
 
 Areas are computed in one projected CRS (the *area CRS*): the units layer's CRS
-when it is projected; otherwise a Lambert azimuthal equal-area projection
+when it is projected, in metres and nearly equal-area over the units; otherwise
+(geographic, feet, Web Mercator, ...) a Lambert azimuthal equal-area projection
 centred on the units (EPSG method 9820), so that areas stay true. Other layers
-are reprojected to it.
+are reprojected to it. A layer labelled geographic whose coordinates are not
+longitudes and latitudes is refused (its CRS is wrong).
 """
 
 from __future__ import annotations
@@ -15,14 +17,20 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 import pyogrio
-from pyproj import CRS
+from pyproj import CRS, Proj
 from shapely.validation import explain_validity
 
 from nutricap.errors import SpatialError
+from nutricap.tables import closest_name, plain_value
 
 M2_PER_HA = 10_000.0
 OVERLAP_TOLERANCE_M2 = 1.0
 """Two polygons sharing more than this area [m²] count as overlapping."""
+AREAL_SCALE_TOLERANCE = 0.005
+"""A projected CRS whose areal scale departs more than this from 1 over the units is not used
+for areas. UTM inside its zone stays within about 0.2 % (point scale k0 = 0.9996 on the central
+meridian, k ≈ k0 (1 + x²/2R²) away from it; Snyder 1987, USGS Professional Paper 1395, from
+memory)."""
 
 
 @dataclass(frozen=True)
@@ -53,19 +61,20 @@ class StratumAreas:
 
 def read_layer(path: Path, *, layer: str | None, columns: list[str], what: str) -> gpd.GeoDataFrame:
     """Read a vector layer GDAL can open and check its columns, CRS and geometries."""
-    try:
-        frame = gpd.read_file(path, layer=layer, engine="pyogrio")
-    except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, ValueError) as exc:
-        raise SpatialError(f"cannot read {what}: {exc}", source=path) from None
+    frame = _open_layer(path, layer, what)
     if frame.empty:
         raise SpatialError(f"{what} has no features", source=path, expected="polygons")
     for column in columns:
         if column not in frame.columns:
+            attributes = [str(c) for c in frame.columns if c != "geometry"]
+            close = closest_name(column, attributes)
             raise SpatialError(
-                f"{what} has no column {column!r}",
+                f"{what} has no column {column!r}"
+                + (f"; did you mean to name {close!r} {column!r}?" if close else ""),
                 source=path,
+                location=f"attribute {column!r}",
                 expected=f"attribute {column!r}",
-                found="attributes " + ", ".join(repr(c) for c in frame.columns if c != "geometry"),
+                found="attributes " + ", ".join(map(repr, attributes)),
             )
     if frame.crs is None:
         raise SpatialError(
@@ -75,7 +84,93 @@ def read_layer(path: Path, *, layer: str | None, columns: list[str], what: str) 
             found="none",
         )
     _check_geometries(frame, path, what)
+    _check_geographic_range(frame, path, what)
     return frame
+
+
+def _open_layer(path: Path, layer: str | None, what: str) -> gpd.GeoDataFrame:
+    if layer is None:
+        layer = _only_spatial_layer(path, what)
+    try:
+        frame = gpd.read_file(path, layer=layer, engine="pyogrio")
+    except pyogrio.errors.DataLayerError as exc:
+        names = _layer_names(path)
+        if layer is None or layer in names or not names:
+            raise SpatialError(f"cannot read {what}: {exc}", source=path) from None
+        raise SpatialError(
+            f"the file has no layer {layer!r}",
+            source=path,
+            location=f"layer {layer!r}",
+            expected="one of the file's layers: " + ", ".join(map(repr, names)),
+            found=repr(layer),
+        ) from None
+    except (pyogrio.errors.DataSourceError, ValueError) as exc:
+        detail = str(exc)
+        if "not recognized as being in a supported file format" in detail:
+            detail = "not a vector format GDAL can read"
+        raise SpatialError(
+            f"cannot read {what}: {detail}",
+            source=path,
+            expected="a vector layer (GeoPackage preferred)",
+        ) from None
+    if not isinstance(frame, gpd.GeoDataFrame):
+        raise SpatialError(
+            f"{what} has no geometries",
+            source=path,
+            expected="a vector layer of polygons (GeoPackage preferred)",
+            found="a table without geometries",
+        )
+    return frame
+
+
+def _layer_names(path: Path, *, spatial_only: bool = False) -> list[str]:
+    try:
+        layers = pyogrio.list_layers(path)
+    except (pyogrio.errors.DataSourceError, ValueError):
+        return []
+    return [str(name) for name, kind in layers if kind is not None or not spatial_only]
+
+
+def _only_spatial_layer(path: Path, what: str) -> str | None:
+    """The one layer with geometries when no layer is named; refuse a choice of several.
+
+    Tables without geometries (e.g. the styles a GIS saves in a GeoPackage) do not count.
+    """
+    spatial = _layer_names(path, spatial_only=True)
+    if len(spatial) > 1:
+        raise SpatialError(
+            f"the file holds {len(spatial)} layers and the project file names none for the {what}",
+            source=path,
+            expected="the layer to use named in the project file (units_layer, strata_layer, "
+            "…): one of " + ", ".join(map(repr, spatial)),
+            found="no layer name",
+        )
+    return spatial[0] if spatial else None
+
+
+def _check_geographic_range(frame: gpd.GeoDataFrame, path: Path, what: str) -> None:
+    """A layer labelled geographic must have longitudes and latitudes (a mislabelled CRS?)."""
+    if not CRS.from_user_input(frame.crs).is_geographic:
+        return
+    bounds = frame.geometry.bounds
+    outside = (
+        (bounds["minx"] < -180.0)
+        | (bounds["maxx"] > 360.0)
+        | (bounds["miny"] < -90.0)
+        | (bounds["maxy"] > 90.0)
+    ).to_numpy()
+    if outside.any():
+        first = bounds[outside].iloc[0]
+        raise SpatialError(
+            f"{what} has coordinates that are not longitudes and latitudes, yet its CRS is "
+            f"geographic ({CRS.from_user_input(frame.crs).to_string()}); "
+            "the layer's CRS is probably wrong",
+            source=path,
+            location=_feature(frame, outside),
+            expected="longitude -180..360 and latitude -90..90, or the layer's true CRS",
+            found=f"x {first['minx']:.6g}..{first['maxx']:.6g}, "
+            f"y {first['miny']:.6g}..{first['maxy']:.6g}",
+        )
 
 
 def read_units(path: Path, layer: str | None) -> gpd.GeoDataFrame:
@@ -141,7 +236,7 @@ def _require_numbers(
             source=path,
             location=_feature(frame, bad),
             expected=f"a number {bounds}",
-            found=repr(frame[column][bad].iloc[0]),
+            found=repr(plain_value(frame[column][bad].iloc[0])),
         )
     frame[column] = values
 
@@ -185,17 +280,45 @@ def _feature(frame: gpd.GeoDataFrame, mask: np.ndarray) -> str:
 
 
 def choose_area_crs(units: gpd.GeoDataFrame) -> tuple[CRS, str]:
-    """Pick the CRS areas are computed in, and say why."""
+    """Pick the CRS areas are computed in, and say why.
+
+    The units layer's CRS when it is projected, in metres, and nearly equal-area over the
+    units (areal scale within ``AREAL_SCALE_TOLERANCE`` of 1 at the centre and corners of
+    their extent); otherwise a Lambert azimuthal equal-area projection centred on the units.
+    A CRS in feet, or Web Mercator (areal scale 1/cos²φ, 1.6 at 38° N), would give wrong
+    hectares.
+    """
     crs = CRS.from_user_input(units.crs)
-    if crs.is_projected:
-        return crs, f"the units layer's projected CRS ({crs.to_string()})"
     lon, lat = _centre_lon_lat(units)
+    if crs.is_projected:
+        problem = _area_problem(crs, units)
+        if problem is None:
+            return crs, f"the units layer's projected CRS ({crs.to_string()})"
+        why = f"the units layer's CRS ({crs.to_string()}) {problem}"
+    else:
+        why = "the units layer is geographic"
     laea = CRS.from_proj4(f"+proj=laea +lat_0={lat:.6f} +lon_0={lon:.6f} +datum=WGS84 +units=m")
     reason = (
-        "the units layer is geographic, so areas use a Lambert azimuthal equal-area "
+        f"{why}, so areas use a Lambert azimuthal equal-area "
         f"projection centred on the units ({lat:.4f}, {lon:.4f})"
     )
     return laea, reason
+
+
+def _area_problem(crs: CRS, units: gpd.GeoDataFrame) -> str | None:
+    """Why ``crs`` (projected) would give wrong areas over ``units``, or None."""
+    axis_units = {axis.unit_name for axis in crs.axis_info}
+    if any(axis.unit_conversion_factor != 1.0 for axis in crs.axis_info):
+        return "is not in metres (" + ", ".join(sorted(axis_units)) + ")"
+    west, south, east, north = units.to_crs("EPSG:4326").total_bounds
+    lon = np.array([west, east, west, east, (west + east) / 2.0])
+    lat = np.array([south, south, north, north, (south + north) / 2.0])
+    factors = Proj(crs).get_factors(lon, lat, errcheck=False)
+    scale = np.asarray(factors.areal_scale, dtype=float)
+    worst = float(np.max(np.abs(scale - 1.0))) if np.isfinite(scale).all() else np.inf
+    if worst > AREAL_SCALE_TOLERANCE:
+        return f"changes areas by up to {worst:.1%} over the units"
+    return None
 
 
 def _centre_lon_lat(units: gpd.GeoDataFrame) -> tuple[float, float]:
@@ -224,6 +347,7 @@ def check_no_overlaps(frame: gpd.GeoDataFrame, id_column: str, path: Path, what:
         raise SpatialError(
             f"{what} overlap: {id_column} {a!r} and {b!r} share {shared[first] / M2_PER_HA:.4g} ha",
             source=path,
+            location=f"features {left[first] + 1} and {right[first] + 1} (of {len(frame)})",
             expected="polygons that do not overlap (shared edges are fine)",
             found="overlapping polygons",
         )

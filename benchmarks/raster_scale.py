@@ -1,0 +1,261 @@
+"""Raster-scale benchmark: `nutricap estimate` on a synthetic landscape of about N cells.
+
+    python benchmarks/raster_scale.py --cells 40000000
+
+Builds once (cached in benchmarks/.cache/, git-ignored) a landscape invented for the benchmark:
+a square grid of 30 m cells (EPSG:32612) with 6 forage-class biomass rasters [kg/ha] and a
+snow-depth raster [cm] (float32, tiled 512 × 512, DEFLATE, as written by GDAL's defaults for
+a compressed tiled GeoTIFF), 200 management units (Voronoi cells of random points) and 4
+vegetation strata. Then measures, in this order:
+
+(a) the read floor: every raster read once, window by window, with rasterio in one thread
+    (the same windows and GDAL settings as nutricap; a first untimed read warms the page
+    cache, so every timed step reads from memory);
+(b) `nutricap estimate` on it (report included), in a child process (wall time, interpreter
+    start included); its peak RSS is read with resource.getrusage(RUSAGE_CHILDREN) right
+    after the estimate runs, before any other child runs, so the data building here does not
+    count;
+(c) per-unit class sums of the 6 forage rasters by exactextract (`exact_extract(..., "sum")`),
+    in a child process as well (wall time, interpreter start included).
+
+Each is run ``--repeat`` times (default 3) and the fastest run is kept, since the machine
+may be shared. The last line printed is exactly
+``cells=N ratio_to_read_floor=R ratio_to_exactextract=E peak_rss_mb=M`` with R = (b)/(a),
+E = (b)/(c) and M the peak RSS of (b) [MB].
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import resource
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import rasterio
+import shapely
+from rasterio.transform import from_origin
+from rasterio.windows import Window
+
+from nutricap.landscape.rasters import grid_windows, read_grid, streaming_env
+
+ROOT = Path(__file__).resolve().parent
+CACHE = ROOT / ".cache"
+SEED = 20260415
+CRS = "EPSG:32612"
+CELL_M = 30.0
+WEST, NORTH = 400_000.0, 5_000_000.0
+CLASSES = ("sagebrush", "bitterbrush", "mahogany", "rabbitbrush", "wheatgrass", "forbs")
+HEIGHTS_CM = (60, 90, 150, 50, 40, 10)  # invented for the benchmark
+N_UNITS = 200
+STRATA = ("steppe", "shrubland", "woodland", "meadow")
+BLOCK = 512
+FORAGE_TABLE = """forage_class,growth_form,de_kcal_per_g,cp_pct,allowable_use,key,height_cm
+sagebrush,browse,2.75,10.5,0.5,true,60
+bitterbrush,browse,2.45,8.0,0.5,true,90
+mahogany,browse,2.35,8.5,0.5,false,150
+rabbitbrush,browse,2.30,7.0,0.4,false,50
+wheatgrass,grass,2.10,4.5,0.4,false,40
+forbs,forb,2.60,10.0,0.5,false,10
+"""
+PROJECT = """# Invented for the benchmark.
+[project]
+name = "Raster-scale benchmark (invented)"
+species = "mule deer"
+season = "winter"
+season_days = 120
+
+[inputs]
+forage_classes = "forage_classes.csv"
+plots = "plots.csv"
+animal_classes = "animals.csv"
+units = "units.gpkg"
+strata = "strata.gpkg"
+
+[target]
+diet_de_min_kcal_per_g = 2.4
+
+[rasters]
+biomass = { BIOMASS }
+
+[availability]
+snow_depth = "snow_depth.tif"
+"""
+
+
+def layer_names() -> list[str]:
+    return [*CLASSES, "snow_depth"]
+
+
+def build(folder: Path, cells: int) -> None:
+    """Write the invented landscape into ``folder`` (skipped when complete)."""
+    done = folder / "COMPLETE"
+    if done.exists():
+        return
+    folder.mkdir(parents=True, exist_ok=True)
+    side = int(round(np.sqrt(cells)))
+    transform = from_origin(WEST, NORTH, CELL_M, CELL_M)
+    rng = np.random.default_rng(SEED)
+    for number, name in enumerate(layer_names()):
+        started = time.perf_counter()
+        _write_layer(folder / f"{name}.tif", side, transform, number, rng)
+        print(f"built {name}.tif in {time.perf_counter() - started:.1f} s", file=sys.stderr)
+    _write_vectors(folder, side, rng)
+    _write_tables(folder, rng)
+    done.write_text("ok\n")
+
+
+def _write_layer(path: Path, side: int, transform, number: int, rng) -> None:
+    profile = {
+        "driver": "GTiff",
+        "width": side,
+        "height": side,
+        "count": 1,
+        "dtype": "float32",
+        "crs": CRS,
+        "transform": transform,
+        "tiled": True,
+        "blockxsize": BLOCK,
+        "blockysize": BLOCK,
+        "compress": "deflate",
+        "nodata": -9999.0,
+        "bigtiff": "IF_SAFER",
+    }
+    with rasterio.open(path, "w", **profile) as dst:
+        for row0 in range(0, side, BLOCK):
+            rows = min(BLOCK, side - row0)
+            y = np.arange(row0, row0 + rows, dtype=np.float32)[:, None] / side
+            x = np.arange(side, dtype=np.float32)[None, :] / side
+            if number < len(CLASSES):
+                wave = np.sin(6.0 * x + number) * np.cos(5.0 * y - number)
+                values = 150.0 + 120.0 * wave + rng.normal(0.0, 25.0, (rows, side))
+                values = np.maximum(values, 0.0)
+                if number == 0:  # a lake without data, invented
+                    lake = (x - 0.3) ** 2 + (y - 0.6) ** 2 < 0.002
+                    values = np.where(lake, -9999.0, values)
+            else:
+                values = np.maximum(80.0 * y + 10.0 * np.sin(9.0 * x), 0.0) + 0.0 * x
+            dst.write(values.astype(np.float32), 1, window=Window(0, row0, side, rows))
+
+
+def _voronoi(points: np.ndarray, frame) -> np.ndarray:
+    diagram = shapely.voronoi_polygons(shapely.multipoints(points), extend_to=frame)
+    return shapely.intersection(shapely.get_parts(diagram), frame)
+
+
+def _write_vectors(folder: Path, side: int, rng) -> None:
+    east, south = WEST + side * CELL_M, NORTH - side * CELL_M
+    frame = shapely.box(WEST, south, east, NORTH)
+    inner = shapely.box(WEST + 45.0, south + 45.0, east - 45.0, NORTH - 45.0)
+
+    def random_points(n):
+        return np.column_stack([rng.uniform(WEST, east, n), rng.uniform(south, NORTH, n)])
+
+    units = shapely.intersection(_voronoi(random_points(N_UNITS), frame), inner)
+    gpd.GeoDataFrame(
+        {"unit_id": [f"U{i:03d}" for i in range(len(units))]}, geometry=units, crs=CRS
+    ).to_file(folder / "units.gpkg", driver="GPKG")
+    patches = _voronoi(random_points(12), frame)
+    names = np.array(STRATA)[np.arange(len(patches)) % len(STRATA)]
+    strata = gpd.GeoDataFrame({"stratum": names}, geometry=patches, crs=CRS)
+    strata.dissolve("stratum").reset_index().to_file(folder / "strata.gpkg", driver="GPKG")
+
+
+def _write_tables(folder: Path, rng) -> None:
+    (folder / "forage_classes.csv").write_text(FORAGE_TABLE)
+    (folder / "animals.csv").write_text("animal_class,body_mass_kg,share,state\n"
+                                        "doe,65,1.0,maintenance\n")  # fmt: skip
+    rows = [
+        (f"{stratum[:2]}{plot}", stratum, name, round(float(rng.uniform(20, 300)), 1))
+        for stratum in STRATA
+        for plot in range(3)
+        for name in CLASSES
+    ]
+    pd.DataFrame(rows, columns=["plot_id", "stratum", "forage_class", "biomass_kg_per_ha"]).to_csv(
+        folder / "plots.csv", index=False
+    )
+    biomass = ", ".join(f'{name} = "{name}.tif"' for name in CLASSES)
+    (folder / "project.toml").write_text(PROJECT.replace("BIOMASS", biomass))
+
+
+def read_floor(folder: Path) -> float:
+    """Seconds to read every raster once, window by window, in one thread."""
+    paths = [folder / f"{name}.tif" for name in layer_names()]
+    windows = grid_windows(read_grid(paths[0], "grid"))
+    started = time.perf_counter()
+    with streaming_env():
+        for path in paths:
+            with rasterio.open(path) as src:
+                for window in windows:
+                    src.read(1, window=window)
+    return time.perf_counter() - started
+
+
+def run_estimate(folder: Path) -> tuple[float, float]:
+    """Wall seconds and peak RSS [MB] of `nutricap estimate` in a child process."""
+    out = folder.parent / "out"
+    command = [sys.executable, "-m", "nutricap", "estimate", str(folder / "project.toml")]
+    command += ["--out", str(out), "--overwrite", "--quiet"]
+    started = time.perf_counter()
+    subprocess.run(command, check=True, stdout=subprocess.DEVNULL)
+    seconds = time.perf_counter() - started
+    peak_kb = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss  # kB on Linux
+    return seconds, peak_kb / 1024.0
+
+
+EXACTEXTRACT = """
+import sys, time
+import geopandas as gpd
+from exactextract import exact_extract
+folder = sys.argv[1]
+names = sys.argv[2:]
+units = gpd.read_file(folder + "/units.gpkg")
+started = time.perf_counter()
+sums = exact_extract([f"{folder}/{n}.tif" for n in names], units, ["sum"],
+                     include_cols=["unit_id"], output="pandas")
+print(f"{time.perf_counter() - started:.3f}", sums.shape[0])
+"""
+
+
+def run_exactextract(folder: Path) -> tuple[float, str]:
+    """Wall seconds of exactextract's per-unit sums in a child process, and its own report."""
+    command = [sys.executable, "-c", EXACTEXTRACT, str(folder), *CLASSES]
+    started = time.perf_counter()
+    done = subprocess.run(command, check=True, capture_output=True, text=True)
+    return time.perf_counter() - started, done.stdout.strip()
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--cells", type=int, required=True, help="about how many cells")
+    parser.add_argument("--repeat", type=int, default=3, help="runs of each step (fastest kept)")
+    args = parser.parse_args()
+    folder = CACHE / f"cells_{args.cells}" / "inputs"
+    build(folder, args.cells)
+    side = int(round(np.sqrt(args.cells)))
+    load = os.getloadavg()[0]
+    read_floor(folder)  # warm the page cache
+    floor = min(read_floor(folder) for _ in range(args.repeat))
+    estimate_s, peak_mb = min(run_estimate(folder) for _ in range(args.repeat))
+    peak_mb = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0
+    extract_s, extract_report = min(run_exactextract(folder) for _ in range(args.repeat))
+    print(
+        f"grid {side} x {side} = {side * side:,} cells; read floor {floor:.2f} s; estimate "
+        f"{estimate_s:.2f} s; exactextract {extract_s:.2f} s (its own timer, units: "
+        f"{extract_report}); best of {args.repeat}; 1-min load before the run {load:.2f}, "
+        f"after {os.getloadavg()[0]:.2f}",
+        file=sys.stderr,
+    )
+    print(
+        f"cells={args.cells} ratio_to_read_floor={estimate_s / floor:.2f} "
+        f"ratio_to_exactextract={estimate_s / extract_s:.2f} peak_rss_mb={peak_mb:.0f}"
+    )
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,511 @@
+"""The bad-input corpus: broken copies of the invented example project and what each must say.
+
+Every case is a ``Case(name, recipe, pattern)``. ``recipe(folder)`` breaks a fresh copy of the
+example project in ``folder`` (``project.toml`` and the files it names); the run
+``nutricap estimate folder/project.toml --out OUT --quiet`` (and ``check``) must then exit 2
+with one line on stderr matching ``pattern`` — the file and the row, column, feature or key —
+and write nothing. A few cases are valid inputs that look suspicious (``exit_code=0``): the
+pattern is then searched in stdout and ``verify(folder, table, reference)`` checks the
+``capacity_by_unit.csv`` written against the unbroken example's table.
+
+Real broken files live in ``files/``; everything else is a mutation. Every number here is
+invented for the example, except the checks in the ``verify`` functions, which name their
+source. To add a case: append one ``Case`` line below (see DEVELOPERS.md).
+"""
+
+from __future__ import annotations
+
+import shutil
+import warnings
+from collections.abc import Callable
+from dataclasses import dataclass
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pyogrio
+import rasterio
+from affine import Affine
+from pyproj import Geod
+from rasterio.transform import from_origin
+from shapely.affinity import translate
+from shapely.geometry import Point, Polygon
+
+FILES = Path(__file__).parent / "files"
+GRID = from_origin(452_000.0, 4_291_000.0, 100.0, 100.0)
+"""A 100-m grid over the example's 15 × 10 km extent (ORIGIN_X_M, ... in nutricap/example.py)."""
+SHIFTED_GRID = from_origin(452_050.0, 4_291_000.0, 100.0, 100.0)
+""":data:`GRID` moved by half a cell."""
+Recipe = Callable[[Path], None]
+
+
+@dataclass(frozen=True)
+class Case:
+    """One broken input and the message (or valid result) it must produce."""
+
+    name: str
+    recipe: Recipe
+    pattern: str
+    exit_code: int = 2
+    verify: Callable[[Path, pd.DataFrame, pd.DataFrame], None] | None = None
+    known_gap: str | None = None
+    """Why nutricap does not yet behave as the case asks (the test is then a strict xfail)."""
+
+
+# --- recipes ---------------------------------------------------------------------------------
+
+
+def steps(*recipes: Recipe) -> Recipe:
+    """Several recipes applied in turn."""
+
+    def recipe(folder: Path) -> None:
+        for each in recipes:
+            each(folder)
+
+    return recipe
+
+
+def edit_csv(name: str, change: Callable[[pd.DataFrame], pd.DataFrame]) -> Recipe:
+    """Read ``name`` as text cells, apply ``change``, write it back."""
+
+    def recipe(folder: Path) -> None:
+        table = pd.read_csv(folder / name, dtype=str, keep_default_na=False)
+        change(table).to_csv(folder / name, index=False)
+
+    return recipe
+
+
+def set_cell(name: str, row: int, column: str, value: str) -> Recipe:
+    """Set a cell; ``row`` is the spreadsheet row (the header is row 1)."""
+
+    def change(table: pd.DataFrame) -> pd.DataFrame:
+        table.loc[row - 2, column] = value
+        return table
+
+    return edit_csv(name, change)
+
+
+def rename_column(name: str, old: str, new: str) -> Recipe:
+    return edit_csv(name, lambda table: table.rename(columns={old: new}))
+
+
+def drop_column(name: str, column: str) -> Recipe:
+    return edit_csv(name, lambda table: table.drop(columns=[column]))
+
+
+def copy_row(name: str, row: int, **changes: str) -> Recipe:
+    """Append a copy of spreadsheet row ``row`` with some cells changed."""
+
+    def change(table: pd.DataFrame) -> pd.DataFrame:
+        extra = table.iloc[[row - 2]].assign(**changes)
+        return pd.concat([table, extra], ignore_index=True)
+
+    return edit_csv(name, change)
+
+
+def drop_rows(name: str, column: str, value: str) -> Recipe:
+    return edit_csv(name, lambda table: table[table[column] != value])
+
+
+def replace_text(name: str, old: str, new: str, count: int = 1) -> Recipe:
+    """Replace the first ``count`` occurrences of ``old`` (which must be there)."""
+
+    def recipe(folder: Path) -> None:
+        text = (folder / name).read_text(encoding="utf-8")
+        if old not in text:
+            raise AssertionError(f"recipe: {old!r} not in {name}")
+        (folder / name).write_text(text.replace(old, new, count), encoding="utf-8")
+
+    return recipe
+
+
+def set_key(section: str, line: str) -> Recipe:
+    """Add ``line`` at the top of the project file's ``[section]``."""
+    return replace_text("project.toml", f"[{section}]\n", f"[{section}]\n{line}\n")
+
+
+def use_file(source: str, name: str) -> Recipe:
+    """Replace ``name`` by the real broken file ``files/source``."""
+    return lambda folder: shutil.copyfile(FILES / source, folder / name)
+
+
+def insert_line(name: str, row: int, line: str) -> Recipe:
+    """Insert a text line so that it becomes spreadsheet row ``row``."""
+
+    def recipe(folder: Path) -> None:
+        lines = (folder / name).read_text(encoding="utf-8").splitlines()
+        lines.insert(row - 1, line)
+        (folder / name).write_text("\n".join(lines) + "\n", encoding="utf-8")
+
+    return recipe
+
+
+def rewrite_bytes(name: str, change: Callable[[bytes], bytes]) -> Recipe:
+    def recipe(folder: Path) -> None:
+        (folder / name).write_bytes(change((folder / name).read_bytes()))
+
+    return recipe
+
+
+def write_raster(
+    path: Path,
+    *,
+    value: float = 150.0,
+    dtype: str = "float32",
+    bands: int = 1,
+    transform: Affine = GRID,
+    crs: str = "EPSG:32612",
+    nodata: float | None = -1.0,
+) -> None:
+    """A constant raster of 100 × 150 cells (a value invented for the example)."""
+    values = np.full((bands, 100, 150), value, dtype=dtype)
+    profile = {"driver": "GTiff", "height": 100, "width": 150, "count": bands, "dtype": dtype}
+    with rasterio.open(path, "w", **profile, crs=crs, transform=transform, nodata=nodata) as dst:
+        dst.write(values)
+
+
+def biomass_rasters(**layers: dict) -> Recipe:
+    """Add a ``[rasters]`` section: forage class → keyword arguments of :func:`write_raster`."""
+
+    def recipe(folder: Path) -> None:
+        for name, options in layers.items():
+            write_raster(folder / f"{name}.tif", **options)
+        entries = ", ".join(f'{name} = "{name}.tif"' for name in layers)
+        with (folder / "project.toml").open("a", encoding="utf-8") as file:
+            file.write(f"\n[rasters]\nbiomass = {{ {entries} }}\n")
+
+    return recipe
+
+
+def edit_layer(name: str, change: Callable[[gpd.GeoDataFrame], gpd.GeoDataFrame]) -> Recipe:
+    """Read the one layer of ``name`` (GeoPackage), apply ``change``, write a new file."""
+
+    def recipe(folder: Path) -> None:
+        path = folder / name
+        frame = change(gpd.read_file(path))
+        path.unlink()
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # e.g. "'crs' was not provided": on purpose here
+            frame.to_file(path, layer=path.stem, driver="GPKG")
+
+    return recipe
+
+
+def add_layer(name: str, layer: str) -> Recipe:
+    """Add a copy of the file's layer under another name (a second layer in one file)."""
+
+    def recipe(folder: Path) -> None:
+        gpd.read_file(folder / name).to_file(folder / name, layer=layer, driver="GPKG")
+
+    return recipe
+
+
+def add_styles_table(name: str) -> Recipe:
+    """Add a table without geometries, as a GIS does when it saves its styles in the file."""
+
+    def recipe(folder: Path) -> None:
+        styles = pd.DataFrame({"styleName": ["default"], "styleQML": ["<qgis/>"]})
+        pyogrio.write_dataframe(styles, folder / name, layer="layer_styles")
+
+    return recipe
+
+
+def set_geometry(row: int, make: Callable[[object], object]) -> Callable:
+    """Replace feature ``row`` (1-based) by ``make(old geometry)``."""
+
+    def change(frame: gpd.GeoDataFrame) -> gpd.GeoDataFrame:
+        frame.loc[row - 1, "geometry"] = make(frame.geometry.iloc[row - 1])
+        return frame
+
+    return change
+
+
+def bow_tie(geometry) -> Polygon:
+    """A self-intersecting quadrilateral over the old polygon's bounds (invalid)."""
+    west, south, east, north = geometry.bounds
+    return Polygon([(west, south), (east, north), (east, south), (west, north)])
+
+
+# --- checks of valid results -----------------------------------------------------------------
+
+
+def same_as_reference(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> None:
+    """The table equals the unbroken example's (both read from the CSV written)."""
+    pd.testing.assert_frame_equal(table, reference)
+
+
+def true_areas(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> None:
+    """Unit areas are geodesic areas; capacity per km² is unchanged by the layer's CRS.
+
+    Independent check: pyproj.Geod (Karney 2013 algorithm) on the WGS 84 ellipsoid. The
+    density does not depend on the area CRS because forage scales with area.
+    """
+    units = gpd.read_file(folder / "units.gpkg").to_crs("EPSG:4326")
+    geod = Geod(ellps="WGS84")
+    geodesic_ha = [abs(geod.geometry_area_perimeter(g)[0]) / 10_000 for g in units.geometry]
+    expected = pd.Series(geodesic_ha, index=units["unit_id"])
+    np.testing.assert_allclose(table["area_ha"], expected[table["unit_id"]], rtol=1e-5)
+    np.testing.assert_allclose(table["ncc_per_km2"], reference["ncc_per_km2"], rtol=1e-4)
+
+
+def nothing_meets_target(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> None:
+    """No diet reaches the target: NCC 0 and the reason 'intake'; the ECC is unchanged."""
+    assert (table["ncc_animals"] == 0).all(), table["ncc_animals"]
+    assert (table["limiting_factor"] == "intake").all(), table["limiting_factor"]
+    pd.testing.assert_series_equal(table["ecc_animals"], reference["ecc_animals"])
+
+
+# --- the corpus ------------------------------------------------------------------------------
+
+P, F, A = "plots.csv", "forage_classes.csv", "animal_classes.csv"
+U, S = "units.gpkg", "strata.gpkg"
+ROW1 = r": row 1 \(header\): "
+RASTER_KEY = r"big_sagebrush\.tif: key 'rasters\.biomass\.big_sagebrush': "
+NO_CURRENT_ANIMALS = edit_layer(U, lambda g: g.drop(columns=["current_animals"]))
+
+CASES = [
+    # Columns missing, renamed, repeated, or named with the wrong unit.
+    Case("plots: column renamed", rename_column(P, "forage_class", "Forage Class"),
+         r"plots\.csv" + ROW1 + r"missing column 'forage_class'; did you mean to name "
+         r"'Forage Class'"),
+    Case("forage classes: column dropped", drop_column(F, "allowable_use"),
+         r"forage_classes\.csv" + ROW1 + r"missing column 'allowable_use'"),
+    Case("plots: mass in kg, not g", rename_column(P, "dry_mass_g", "dry_mass_kg"),
+         r"plots\.csv" + ROW1 + r"unknown column 'dry_mass_kg'; did you mean 'dry_mass_g'\?"),
+    Case("plots: g/m² where kg/ha expected",
+         steps(rename_column(P, "dry_mass_g", "biomass_g_per_m2"), drop_column(P, "frame_area_m2")),
+         r"plots\.csv" + ROW1 + r"unknown column 'biomass_g_per_m2'; did you mean "
+         r"'biomass_kg_per_ha'\?"),
+    Case("forage classes: optional column misspelt", rename_column(F, "tannin", "tanin"),
+         r"forage_classes\.csv" + ROW1 + r"unknown column 'tanin'; did you mean 'tannin'\?"),
+    Case("forage classes: column twice", replace_text(F, ",allowable_use,", ",cp_pct,"),
+         r"forage_classes\.csv: row 1 \(header\), column 6: column 'cp_pct' appears twice"),
+    Case("units: id attribute renamed",
+         edit_layer(U, lambda g: g.rename(columns={"unit_id": "UnitID"})),
+         r"units\.gpkg: attribute 'unit_id': units layer has no column 'unit_id'; did you mean "
+         r"to name 'UnitID'"),
+    # Wrong units and absurd values.
+    Case("plots: frame area of 0", set_cell(P, 5, "frame_area_m2", "0"),
+         r"plots\.csv: row 5, column 'frame_area_m2': value out of range \(expected a number > 0"),
+    Case("plots: mass in mg (absurd biomass)", set_cell(P, 3, "dry_mass_g", "28000"),
+         r"plots\.csv: row 3, columns 'dry_mass_g'/'frame_area_m2': biomass out of range"),
+    Case("plots: negative mass", set_cell(P, 7, "dry_mass_g", "-3.5"),
+         r"plots\.csv: row 7, column 'dry_mass_g': value out of range .*found -3\.5"),
+    Case("plots: NaN mass", set_cell(P, 4, "dry_mass_g", "NaN"),
+         r"plots\.csv: row 4, column 'dry_mass_g': not a number .*found 'NaN'"),
+    Case("forage classes: DE above 5 kcal/g", set_cell(F, 3, "de_kcal_per_g", "24.5"),
+         r"forage_classes\.csv: row 3, column 'de_kcal_per_g': value out of range "
+         r"\(expected a number > 0 and <= 5"),
+    Case("forage classes: allowable use in percent", set_cell(F, 2, "allowable_use", "50"),
+         r"forage_classes\.csv: row 2, column 'allowable_use': value out of range "
+         r"\(expected a number >= 0 and <= 1"),
+    Case("forage classes: digestibility as a fraction", set_cell(F, 6, "dmd_pct", "0.48"),
+         r"forage_classes\.csv: row 6, column 'dmd_pct': a value of 1 % or less"),
+    Case("forage classes: infinite crude protein", set_cell(F, 4, "cp_pct", "inf"),
+         r"forage_classes\.csv: row 4, column 'cp_pct': value out of range"),
+    Case("forage classes: no energy value", set_cell(F, 2, "de_kcal_per_g", ""),
+         r"forage_classes\.csv: row 2, columns 'de_kcal_per_g'/'dmd_pct': no energy value"),
+    Case("animal classes: body mass of 0", set_cell(A, 3, "body_mass_kg", "0"),
+         r"animal_classes\.csv: row 3, column 'body_mass_kg': value out of range "
+         r"\(expected a number > 0"),
+    Case("animal classes: shares in percent", set_cell(A, 2, "share", "60"),
+         r"animal_classes\.csv: row 2, column 'share': value out of range"),
+    Case("animal classes: shares add to 1.2", set_cell(A, 4, "share", "0.3"),
+         r"animal_classes\.csv: column 'share': herd shares do not add up to 1 .*found sum 1\.2"),
+    Case("animal classes: unknown state", set_cell(A, 2, "state", "lactaton"),
+         r"animal_classes\.csv: row 2, column 'state': unknown nutritional state 'lactaton'"),
+    Case("strata: accessible fraction above 1",
+         edit_layer(S, lambda g: g.assign(accessible_fraction=[1.5] + [1.0] * (len(g) - 1))),
+         r"strata\.gpkg: feature 1 \(of 70\): strata layer has a bad accessible_fraction "
+         r"\(expected a number between 0 and 1; found 1\.5\)"),
+    Case("units: negative current animals",
+         edit_layer(U, lambda g: g.assign(current_animals=[10, 20, -5, 40, 50, 60])),
+         r"units\.gpkg: feature 3 \(of 6\): units layer has a bad current_animals"),
+    # Duplicate ids.
+    Case("plots: plot × class twice", copy_row(P, 2), r"plots\.csv: row \d+, column "
+         r"'plot_id', 'forage_class': duplicate entry \(expected each combination once; "
+         r"found plot_id='P001', forage_class='big_sagebrush' again\)"),
+    Case("forage classes: class twice", copy_row(F, 3, cp_pct="9"),
+         r"forage_classes\.csv: row 13, column 'forage_class', 'stratum': duplicate entry"),
+    Case("animal classes: class twice", copy_row(A, 2, share="0"),
+         r"animal_classes\.csv: row 5, column 'animal_class': duplicate entry"),
+    Case("units: id twice",
+         edit_layer(U, lambda g: g.assign(unit_id=g["unit_id"].where(g.index != 4, "Coldmarrow"))),
+         r"units\.gpkg: feature 5 \(of 6\): duplicate unit_id .*found 'Coldmarrow'"),
+    Case("plots: plot in two strata", set_cell(P, 3, "stratum", "aspen"),
+         r"plots\.csv: row 3, column 'stratum': plot recorded in two strata"),
+    # Forage classes and strata that do not match between tables and map.
+    Case("plots: class not in the quality table", set_cell(P, 6, "forage_class", "sagebrsh"),
+         r"plots\.csv: row 6, column 'forage_class': unknown forage_class 'sagebrsh'"),
+    Case("forage classes: class never on a plot (valid, supply 0)",
+         copy_row(F, 2, forage_class="winterfat"),
+         r"note: forage classes in the forage-class table never recorded on a plot "
+         r"\(supply 0\): winterfat", exit_code=0, verify=same_as_reference),
+    Case("forage classes: without the optional growth_form (valid)",
+         drop_column(F, "growth_form"), r"Total NCC", exit_code=0, verify=same_as_reference),
+    Case("forage classes: stratum row without a general row",
+         copy_row(F, 2, forage_class="winterfat", stratum="aspen"),
+         r"forage_classes\.csv: row 13, column 'forage_class': stratum-specific row for a class "
+         r"without a general row"),
+    Case("plots: stratum not on the map",
+         edit_csv(P, lambda t: t.replace({"stratum": {"sagebrush_steppe": "sagebrush"}})),
+         r"plots\.csv: row 2, column 'stratum': unknown stratum 'sagebrush'; did you mean"),
+    Case("strata: stratum without plots", drop_rows(P, "stratum", "grass_meadow"),
+         r"strata\.gpkg: attribute 'stratum': stratum 'grass_meadow' is on the map but has "
+         r"no plots"),
+    # Geometry: overlaps, units off the map, invalid and empty shapes, CRS.
+    Case("units: two units overlap",
+         edit_layer(U, set_geometry(2, lambda g: g.buffer(250))),
+         r"units\.gpkg: features 1 and 2 \(of 6\): units overlap: unit_id 'Flintwhistle' and "
+         r"'Coldmarrow'"),
+    Case("strata: polygons overlap",
+         edit_layer(S, set_geometry(1, lambda g: g.buffer(400))),
+         r"strata\.gpkg: features \d+ and \d+ \(of 70\): strata polygons overlap"),
+    Case("units: a unit on no stratum",
+         edit_layer(U, set_geometry(4, lambda g: translate(g, xoff=80_000))),
+         r"units\.gpkg: attribute 'unit_id': unit 'Rimgrass' does not overlap any vegetation "
+         r"stratum"),
+    Case("units: self-intersecting polygon", edit_layer(U, set_geometry(2, bow_tie)),
+         r"units\.gpkg: feature 2 \(of 6\): units layer has an invalid geometry "
+         r"\(Self-intersection"),
+    Case("strata: empty geometry", edit_layer(S, set_geometry(3, lambda g: Polygon())),
+         r"strata\.gpkg: feature 3 \(of 70\): strata layer has an empty geometry"),
+    Case("units: points, not polygons",
+         edit_layer(U, lambda g: g.set_geometry([Point(c.x, c.y) for c in g.centroid])),
+         r"units\.gpkg: feature 1 \(of 6\): units layer has a non-polygon geometry "
+         r".*found Point"),
+    Case("strata: no features", edit_layer(S, lambda g: g.iloc[:0]),
+         r"strata\.gpkg: strata layer has no features"),
+    Case("units: no CRS", edit_layer(U, lambda g: g.set_crs(None, allow_override=True)),
+         r"units\.gpkg: units layer has no coordinate reference system"),
+    Case("units: projected coordinates labelled geographic",
+         edit_layer(U, lambda g: g.set_crs("EPSG:4326", allow_override=True)),
+         r"units\.gpkg: feature 1 \(of 6\): units layer has coordinates that are not "
+         r"longitudes and latitudes, yet its CRS is geographic"),
+    Case("units: geographic CRS (valid: equal-area areas)",
+         edit_layer(U, lambda g: g.to_crs("EPSG:4326")),
+         r"Total NCC", exit_code=0, verify=true_areas),
+    Case("units: CRS in US survey feet (valid: equal-area areas)",
+         edit_layer(U, lambda g: g.to_crs("EPSG:3566")),
+         r"Total NCC", exit_code=0, verify=true_areas),
+    Case("units: Web Mercator (valid: equal-area areas)",
+         edit_layer(U, lambda g: g.to_crs("EPSG:3857")),
+         r"Total NCC", exit_code=0, verify=true_areas),
+    Case("strata: not a vector file", rewrite_bytes(S, lambda b: b"not a geopackage"),
+         r"strata\.gpkg: cannot read strata layer: not a vector format GDAL can read"),
+    Case("units: a table, not a layer", replace_text("project.toml", '"units.gpkg"',
+                                                     '"counts.csv"'),
+         r"counts\.csv: units layer has no geometries"),
+    Case("units: two layers and none named", add_layer(U, "units_2019"),
+         r"units\.gpkg: the file holds 2 layers and the project file names none for the units "
+         r"layer .*one of 'units', 'units_2019'"),
+    Case("units: one layer and a table of styles (valid)", add_styles_table(U),
+         r"Total NCC", exit_code=0, verify=same_as_reference),
+    Case("units: layer name misspelt", set_key("inputs", 'units_layer = "unit"'),
+         r"units\.gpkg: layer 'unit': the file has no layer 'unit' .*one of the file's layers: "
+         r"'units'"),
+    # The project file.
+    Case("project: TOML syntax error", use_file("project_syntax_error.toml", "project.toml"),
+         r"project\.toml: TOML syntax error: .*\(at line 4, column \d+\)"),
+    Case("project: unknown key", replace_text("project.toml", "protein = true", "protien = true"),
+         r"project\.toml: 1 problem: unknown key 'target\.protien'; did you mean 'protein'\?"),
+    Case("project: unknown section", replace_text("project.toml", "[pooling]", "[poolng]"),
+         r"project\.toml: 1 problem: unknown key 'poolng'; did you mean 'pooling'\?"),
+    Case("project: unknown key in a scenario",
+         replace_text("project.toml", "first_year = 2026", "first_yaer = 2026"),
+         r"project\.toml: 2 problems: missing key 'scenarios\.juniper_thinning\.first_year'; "
+         r"unknown key 'scenarios\.juniper_thinning\.first_yaer'; did you mean 'first_year'\?"),
+    Case("project: path does not exist", replace_text("project.toml", '"plots.csv"', '"plot.csv"'),
+         r"project\.toml: input file for key 'inputs\.plots' does not exist .*found /.*/plot\.csv"),
+    Case("project: input is a folder",
+         steps(lambda folder: (folder / "plots").mkdir(),
+               replace_text("project.toml", '"plots.csv"', '"plots"')),
+         r"/plots: plots table is a folder, not a file"),
+    Case("project: season of 0 days", replace_text("project.toml", "season_days = 120",
+                                                   "season_days = 0"),
+         r"project\.toml: 1 problem: key 'project\.season_days': Input should be greater than 0"),
+    Case("project: pooling mode misspelt", replace_text("project.toml", 'mode = "unit"',
+                                                        'mode = "units"'),
+         r"project\.toml: 1 problem: key 'pooling\.mode': .*\(found 'units'\)"),
+    Case("project: target class not in the herd",
+         replace_text("project.toml", 'animal_class = "adult_female"', 'animal_class = "doe"'),
+         r"project\.toml: key 'target\.animal_class': target animal class 'doe' is not in the "
+         r"animal-class table"),
+    Case("project: code is not run",
+         replace_text("project.toml", 'species = "mule deer"',
+                      'species = __import__("os").system("echo run")'),
+         r"project\.toml: TOML syntax error: Invalid value \(at line 4"),
+    Case("project: not UTF-8",
+         rewrite_bytes("project.toml", lambda b: b.replace(b"mule deer", b"chevreuil \xe9")),
+         r"project\.toml: line 4: project file is not UTF-8 text"),
+    # A target no forage can meet: a valid result of zero, with the reason.
+    Case("target: diet no forage can meet (valid: NCC 0, 'intake')",
+         set_key("target", "diet_de_min_kcal_per_g = 4.5"),
+         r"Total NCC 0 animals", exit_code=0, verify=nothing_meets_target),
+    # Encodings and separators: refused clearly (decision in nutricap/tables.py).
+    Case("animal classes: latin-1 file", use_file("animal_classes_latin1.csv", A),
+         r"animal_classes\.csv: row 3: animal-class table is not UTF-8 text .*re-save the file "
+         r"as UTF-8"),
+    Case("plots: UTF-16 file", rewrite_bytes(P, lambda b: b.decode("utf-8").encode("utf-16")),
+         r"plots\.csv: row 1: plots table is not UTF-8 text"),
+    Case("forage classes: semicolons and decimal commas",
+         use_file("forage_classes_semicolon.csv", F),
+         r"forage_classes\.csv: row 1: forage-class table is separated by semicolons "
+         r"\(expected comma-separated values with a decimal point"),
+    Case("plots: tab-separated", rewrite_bytes(P, lambda b: b.replace(b",", b"\t")),
+         r"plots\.csv: row 1: plots table is separated by tabs"),
+    Case("forage classes: decimal comma in a comma file",
+         replace_text(F, "bitterbrush,browse,2.45,", "bitterbrush,browse,2,45,"),
+         r"forage_classes\.csv: row 3: more values than the header has columns "
+         r"\(expected 9 values .*found 10 values\)"),
+    Case("plots: UTF-8 with byte-order mark (valid)",
+         rewrite_bytes(P, lambda b: b"\xef\xbb\xbf" + b),
+         r"Total NCC", exit_code=0, verify=same_as_reference),
+    # Half-finished files.
+    Case("plots: header only", rewrite_bytes(P, lambda b: b.split(b"\n")[0] + b"\n"),
+         r"plots\.csv: row 2: plots table has a header but no data rows"),
+    Case("animal classes: empty file", rewrite_bytes(A, lambda b: b""),
+         r"animal_classes\.csv: row 1: animal-class table is empty"),
+    Case("plots: empty row in the middle", insert_line(P, 6, ""),
+         r"plots\.csv: row 6: empty row between data rows"),
+    Case("plots: empty rows at the end (valid)", rewrite_bytes(P, lambda b: b + b"\n,,,,\n\n"),
+         r"Total NCC", exit_code=0, verify=same_as_reference),
+    Case("plots: blank stratum", set_cell(P, 9, "stratum", " "),
+         r"plots\.csv: row 9, column 'stratum': empty value"),
+    # Rasters ([rasters] biomass layers over the example's extent).
+    Case("rasters: misaligned by half a cell",
+         biomass_rasters(juniper={}, big_sagebrush={"transform": SHIFTED_GRID}),
+         r"big_sagebrush\.tif: key 'rasters\.biomass\.big_sagebrush': raster is not on the grid "
+         r"of the first raster layer .*shifted by 0\.500"),
+    Case("rasters: all nodata", biomass_rasters(juniper={"value": -1.0}),
+         r"units\.gpkg: attribute 'unit_id': unit 'Flintwhistle' has no cell with data in every "
+         r"raster layer .*rasters\.biomass\.juniper"),
+    Case("rasters: grid in a geographic CRS",
+         biomass_rasters(juniper={"crs": "EPSG:4326",
+                                  "transform": from_origin(-111.55, 38.8, 0.001, 0.001)}),
+         r"juniper\.tif: key 'rasters\.biomass\.juniper': the raster that defines the grid has "
+         r"a geographic CRS"),
+    Case("rasters: not a raster",
+         steps(biomass_rasters(juniper={}), rewrite_bytes("juniper.tif", lambda b: b"II*\0")),
+         r"juniper\.tif: key 'rasters\.biomass\.juniper': cannot read raster"),
+    Case("rasters: complex data type",
+         biomass_rasters(juniper={}, big_sagebrush={"dtype": "complex64"}), RASTER_KEY,
+         known_gap="a complex raster is read as its real part"),
+    Case("rasters: three bands (an RGB image)",
+         biomass_rasters(juniper={}, big_sagebrush={"dtype": "uint8", "bands": 3,
+                                                    "nodata": None}), RASTER_KEY,
+         known_gap="only band 1 of a multi-band raster is read, silently"),
+    Case("rasters: absurd biomass (1e9 kg/ha)",
+         biomass_rasters(juniper={}, big_sagebrush={"value": 1e9}), RASTER_KEY,
+         known_gap="raster biomass has no upper bound (the plots table has 100,000 kg/ha)"),
+    Case("rasters: negative biomass",
+         biomass_rasters(juniper={}, big_sagebrush={"value": -5, "dtype": "int16"}), RASTER_KEY,
+         known_gap="refused later by the solver, with a message naming neither file nor key"),
+    Case("counts: column misspelt",
+         steps(NO_CURRENT_ANIMALS, rename_column("counts.csv", "count", "counts")),
+         r"counts\.csv" + ROW1 + r"missing column 'count'; did you mean to name 'counts'"),
+    Case("counts: a unit without counts",
+         steps(NO_CURRENT_ANIMALS, drop_rows("counts.csv", "unit_id", "Wrenfall")),
+         r"counts\.csv: column 'unit_id': no count for unit 'Wrenfall'"),
+]

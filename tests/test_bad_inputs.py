@@ -1,0 +1,97 @@
+"""The bad-input corpus (tests/bad_inputs/cases.py) through the command line.
+
+Each case breaks a fresh copy of the invented example project. ``check`` and ``estimate`` must
+then exit 2 with exactly one line on stderr that names the file (in full) and the row, column,
+feature or key, show no traceback, warn nothing, write no output folder and leave every input
+file as it was. Cases marked valid must exit 0 and pass their own check of the table.
+"""
+
+import hashlib
+import re
+import shutil
+import warnings
+
+import pandas as pd
+import pytest
+from bad_inputs import CASES_RUN
+from bad_inputs.cases import CASES
+
+from nutricap.cli import main
+
+# Warnings the command line does not show by default (Python's default warning filters).
+HIDDEN_WARNINGS = (DeprecationWarning, PendingDeprecationWarning, ImportWarning, ResourceWarning)
+
+
+def _run(capsys, argv):
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        code = main([str(arg) for arg in argv])
+    shown = [w for w in caught if not issubclass(w.category, HIDDEN_WARNINGS)]
+    captured = capsys.readouterr()
+    return code, captured.out, captured.err, shown
+
+
+def _snapshot(folder):
+    return {
+        path.relative_to(folder): hashlib.sha256(path.read_bytes()).hexdigest()
+        for path in sorted(folder.rglob("*"))
+        if path.is_file()
+    }
+
+
+@pytest.fixture(scope="module")
+def reference_table(example_project, tmp_path_factory):
+    """capacity_by_unit.csv of the unbroken example (inputs invented for the example)."""
+    out = tmp_path_factory.mktemp("reference") / "results"
+    assert main(["estimate", str(example_project), "--out", str(out), "--quiet"]) == 0
+    return pd.read_csv(out / "capacity_by_unit.csv")
+
+
+def test_corpus_is_large_and_named_once():
+    names = [case.name for case in CASES]
+    assert len(names) >= 30
+    assert len(set(names)) == len(names)
+
+
+def _param(case):
+    if case.known_gap is None:
+        return pytest.param(case, id=case.name)
+    # Only a failed assertion counts as the gap; a broken recipe must fail the test.
+    reason = f"known gap: {case.known_gap}"
+    gap = pytest.mark.xfail(strict=True, raises=AssertionError, reason=reason)
+    return pytest.param(case, id=case.name, marks=gap)
+
+
+@pytest.mark.parametrize("case", [_param(case) for case in CASES])
+def test_case(case, example_project, tmp_path, capsys, request):
+    request.config.stash.setdefault(CASES_RUN, []).append(case.name)
+    folder = (tmp_path / "inputs").resolve()
+    shutil.copytree(example_project.parent, folder)
+    case.recipe(folder)
+    project, out = folder / "project.toml", tmp_path / "results"
+    before = _snapshot(folder)
+    capsys.readouterr()
+    messages = []
+    for argv in (("check", project, "--quiet"), ("estimate", project, "--out", out, "--quiet")):
+        code, stdout, stderr, shown = _run(capsys, argv)
+        assert code == case.exit_code, (argv[0], stderr or stdout)
+        assert "Traceback" not in stderr + stdout
+        assert not shown, [str(w.message) for w in shown]
+        if case.exit_code == 0:
+            assert stderr == ""
+            assert re.search(" OK " if argv[0] == "check" else case.pattern, stdout), stdout
+            continue
+        lines = stderr.splitlines()
+        assert len(lines) == 1, stderr
+        assert lines[0].startswith("nutricap: error: "), lines[0]
+        assert re.search(case.pattern, lines[0]), lines[0]
+        assert str(folder) in lines[0], "the file is named in full"
+        messages.append(lines[0])
+    assert _snapshot(folder) == before, "inputs changed"
+    if case.exit_code == 0:
+        table = pd.read_csv(out / "capacity_by_unit.csv")
+        case.verify(folder, table, request.getfixturevalue("reference_table"))
+    else:
+        assert not out.exists()
+        assert messages[0] == messages[1], "check and estimate say the same"
+        assert [p.name for p in tmp_path.iterdir()] == ["inputs"], "nothing written beside"

@@ -1,0 +1,506 @@
+"""Tests of nutricap.landscape.grid_supply: the streamed raster path end to end.
+
+Every number in the small landscapes below is invented for the example; the checks compare
+the streamed sums with independent computations (a whole-array numpy pass, exactextract's
+coverage-weighted zonal sums, shapely areas) and with conservation identities.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pytest
+import rasterio
+import shapely
+from rasterio.transform import from_origin
+from shapely.geometry import Polygon, box
+
+from nutricap.cli import main
+from nutricap.errors import InputError, SpatialError
+from nutricap.project import load_project
+from nutricap.workflow import estimate, run_estimate
+
+CRS = "EPSG:32612"
+CELL_M = 30.0
+WEST, NORTH = 500_000.0, 4_800_000.0
+ROWS, COLS = 200, 300
+CELL_HA = CELL_M * CELL_M / 10_000.0  # 0.09 ha (SI definitions)
+TRANSFORM = from_origin(WEST, NORTH, CELL_M, CELL_M)
+SOUTH, EAST = NORTH - ROWS * CELL_M, WEST + COLS * CELL_M
+
+# Forage classes, invented for the example: sage and shrub from biomass rasters, grass from the
+# strata plots, forb from the index raster (calibrated).
+FORAGE_CLASSES = """forage_class,growth_form,de_kcal_per_g,cp_pct,allowable_use,key,height_cm
+forb,forb,2.6,10,0.5,false,10
+grass,grass,2.0,5,0.5,false,30
+sage,browse,2.7,10,0.5,true,60
+shrub,browse,2.4,8,0.5,false,150
+"""
+ANIMALS = "animal_class,body_mass_kg,share,state\ndoe,65,1.0,maintenance\n"
+PLOTS = """plot_id,stratum,forage_class,biomass_kg_per_ha
+A1,upland,grass,120
+A2,upland,grass,80
+A3,upland,sage,400
+B1,lowland,grass,300
+B2,lowland,grass,260
+"""
+
+
+def _write_raster(path: Path, values: np.ndarray, nodata=None, transform=TRANSFORM, crs=CRS):
+    profile = {
+        "driver": "GTiff",
+        "height": values.shape[0],
+        "width": values.shape[1],
+        "count": 1,
+        "dtype": values.dtype.name,
+        "crs": crs,
+        "transform": transform,
+        "tiled": True,
+        "blockxsize": 32,
+        "blockysize": 32,
+        "compress": "deflate",
+        "nodata": nodata,
+    }
+    with rasterio.open(path, "w", **profile) as dst:
+        dst.write(values, 1)
+
+
+def _fields():
+    """Smooth invented fields on the grid (row, column)."""
+    row, col = np.mgrid[0:ROWS, 0:COLS].astype(np.float32)
+    sage = 200 + 150 * np.sin(col / 37.0) * np.cos(row / 23.0)
+    shrub = 80 + 0.5 * col
+    index = 0.2 + 0.6 * (row / ROWS)
+    snow = np.where(col < 100, 0.0, np.where(col < 200, 40.0, 200.0)).astype(np.float32)
+    return sage.astype(np.float32), shrub.astype(np.float32), index.astype(np.float32), snow
+
+
+def _units() -> gpd.GeoDataFrame:
+    """Four units whose edges cut through cells (invented for the example)."""
+    x_mid, y_mid = WEST + 4_507.0, NORTH - 2_993.0
+    shapes = [
+        box(WEST + 10.0, y_mid, x_mid, NORTH - 17.0),
+        box(x_mid, y_mid, EAST - 7.0, NORTH - 17.0),
+        Polygon([(WEST + 10.0, SOUTH + 22.0), (x_mid, SOUTH + 22.0), (x_mid, y_mid),
+                 (WEST + 10.0, y_mid - 777.0)]),
+        box(x_mid, SOUTH + 22.0, EAST - 7.0, y_mid),
+    ]  # fmt: skip
+    return gpd.GeoDataFrame({"unit_id": ["Ashgrove", "Bleakmere", "Cobbleford", "Duskvale"]},
+                            geometry=shapes, crs=CRS)  # fmt: skip
+
+
+def _strata(cover_all: bool) -> gpd.GeoDataFrame:
+    y_cut = NORTH - 3_321.0
+    north = box(WEST - 100, y_cut, EAST + 100, NORTH + 100)
+    south = box(WEST - 100, SOUTH - 100, EAST + 100, y_cut)
+    if not cover_all:
+        south = south.difference(box(WEST + 6_000, SOUTH + 300, WEST + 7_500, SOUTH + 1_800))
+    return gpd.GeoDataFrame({"stratum": ["upland", "lowland"]}, geometry=[north, south], crs=CRS)
+
+
+def write_landscape(folder: Path, *, cover_all: bool = True, nodata_patch: bool = True) -> dict:
+    """Write the small invented raster landscape; return paths and arrays."""
+    folder.mkdir(parents=True, exist_ok=True)
+    sage, shrub, index, snow = _fields()
+    if nodata_patch:
+        sage[150:170, 40:60] = -9999.0
+    _write_raster(folder / "sage.tif", sage, nodata=-9999.0)
+    _write_raster(folder / "shrub.tif", shrub)
+    _write_raster(folder / "index.tif", index, nodata=-1.0)
+    _write_raster(folder / "snow.tif", snow, nodata=-1.0)
+    _units().to_file(folder / "units.gpkg", driver="GPKG")
+    _strata(cover_all).to_file(folder / "strata.gpkg", driver="GPKG")
+    (folder / "forage_classes.csv").write_text(FORAGE_CLASSES)
+    (folder / "animals.csv").write_text(ANIMALS)
+    (folder / "plots.csv").write_text(PLOTS)
+    rows = np.arange(12)
+    # Calibration plots (invented): forb biomass rising with the index, with scatter.
+    plot_rows = 10 + rows * 15
+    x = WEST + (20 + rows * 20) * CELL_M + CELL_M / 2
+    y = NORTH - plot_rows * CELL_M - CELL_M / 2
+    forb = 50 + 400 * index[plot_rows, 20 + rows * 20] + np.where(rows % 2, 15.0, -15.0)
+    pd.DataFrame(
+        {"plot_id": [f"C{i}" for i in rows], "x": x, "y": y, "forage_class": "forb",
+         "biomass_kg_per_ha": forb}
+    ).to_csv(folder / "calibration_plots.csv", index=False)  # fmt: skip
+    return {"sage": sage, "shrub": shrub, "index": index, "snow": snow}
+
+
+def project_text(rasters: str = "", availability: str = "", pooling: str = "unit") -> str:
+    return f"""
+[project]
+name = "Test range (invented)"
+species = "mule deer"
+season = "winter"
+season_days = 100
+
+[inputs]
+forage_classes = "forage_classes.csv"
+plots = "plots.csv"
+animal_classes = "animals.csv"
+units = "units.gpkg"
+strata = "strata.gpkg"
+
+[target]
+diet_de_min_kcal_per_g = 2.3
+
+[pooling]
+mode = "{pooling}"
+
+{rasters}
+
+{availability}
+"""
+
+
+RASTERS = """[rasters]
+biomass = { sage = "sage.tif", shrub = "shrub.tif" }
+window_size = 64
+
+[rasters.calibrated]
+index = "index.tif"
+plots = "calibration_plots.csv"
+groups = { forbs = ["forb"] }
+model = "linear"
+"""
+SNOW = """[availability]
+snow_depth = "snow.tif"
+"""
+
+
+@pytest.fixture(scope="module")
+def landscape(tmp_path_factory) -> Path:
+    folder = tmp_path_factory.mktemp("grid") / "inputs"
+    write_landscape(folder)
+    return folder
+
+
+def _project(folder: Path, text: str, name: str = "project.toml"):
+    path = folder / name
+    path.write_text(text)
+    return load_project(path)
+
+
+def _grid_run(folder: Path, rasters: str, availability: str = "", pooling: str = "unit"):
+    return estimate(_project(folder, project_text(rasters, availability, pooling)))
+
+
+def _cell_centres():
+    rows, cols = np.mgrid[0:ROWS, 0:COLS]
+    return WEST + (cols + 0.5) * CELL_M, NORTH - (rows + 0.5) * CELL_M
+
+
+def _membership(frame: gpd.GeoDataFrame) -> np.ndarray:
+    """Index of the polygon holding each cell centre, -1 for none (shapely point-in-polygon)."""
+    x, y = _cell_centres()
+    owner = np.full((ROWS, COLS), -1)
+    for number, shape in enumerate(frame.geometry):
+        owner[shapely.contains_xy(shape, x, y)] = number
+    return owner
+
+
+def _read(folder: Path, name: str):
+    with rasterio.open(folder / f"{name}.tif") as src:
+        values = src.read(1, masked=True)
+    return values.filled(np.nan).astype(float)
+
+
+def _whole_array_available(folder: Path, result) -> np.ndarray:
+    """(units, strata, classes) forage left by the snow rule [kg], computed in one numpy pass
+    over whole arrays in float64, with cell membership from shapely instead of GDAL."""
+    units = _membership(gpd.read_file(folder / "units.gpkg"))
+    strata_frame = gpd.read_file(folder / "strata.gpkg")
+    names = sorted(strata_frame["stratum"])  # ["lowland", "upland"]
+    lookup = np.array([names.index(name) for name in strata_frame["stratum"]] + [-1])
+    stratum = lookup[_membership(strata_frame)]
+    sage, shrub, index, snow = (_read(folder, n) for n in ("sage", "shrub", "index", "snow"))
+    model = result.grid.calibration_report.iloc[0]
+    low, high = (
+        model.index_min - 0.1 * (model.index_max - model.index_min),
+        model.index_max + 0.1 * (model.index_max - model.index_min),
+    )
+    forb = np.maximum(model.intercept + model.slope * np.clip(index, low, high), 0.0)
+    # Plot means (PLOTS above, zeros for classes a plot did not record): upland grass
+    # (120 + 80 + 0) / 3, lowland grass (300 + 260) / 2.
+    grass = np.where(stratum == names.index("upland"), 200.0 / 3.0, 280.0)
+    heights = {"forb": 10.0, "grass": 30.0, "sage": 60.0, "shrub": 150.0}
+    gross = {"forb": forb, "grass": grass, "sage": sage, "shrub": shrub}
+    valid = (
+        (units >= 0) & (stratum >= 0) & np.isfinite(sage) & np.isfinite(index) & np.isfinite(snow)
+    )
+    expected = np.zeros((4, 2, 4))
+    for column, name in enumerate(sorted(gross)):
+        kg = gross[name] * np.clip(1.0 - snow / heights[name], 0.0, 1.0) * CELL_HA
+        for u in range(4):
+            for s in range(2):
+                cells = valid & (units == u) & (stratum == s)
+                expected[u, s, column] = kg[cells].sum()
+    return expected
+
+
+@pytest.mark.parametrize("window_size", [16, 32, 96, 16384])
+def test_streaming_equals_one_whole_array_pass(landscape, window_size):
+    rasters = RASTERS.replace("window_size = 64", f"window_size = {window_size}")
+    result = _grid_run(landscape, rasters, SNOW)
+    available = result.problem.available_kg.reshape(4, 2, 4)
+    assert list(result.problem.items.forage_class[:4]) == ["forb", "grass", "sage", "shrub"]
+    expected = _whole_array_available(landscape, result)
+    # float32 per-cell arithmetic in the streamed pass: agreement to 1e-5 relative.
+    np.testing.assert_allclose(available, expected, rtol=1e-5, atol=1e-3)
+    assert expected.sum() > 1e5
+
+
+def _exactextract_sums(folder: Path, name: str, units: gpd.GeoDataFrame):
+    from exactextract import exact_extract
+
+    table = exact_extract(str(folder / f"{name}.tif"), units, ["sum", "coverage", "values"],
+                          include_cols=["unit_id"], output="pandas")  # fmt: skip
+    partial = [np.sum(v[(c > 0) & (c < 1)]) for v, c in zip(table["values"], table["coverage"])]
+    return table["sum"].to_numpy(), np.array(partial)
+
+
+@pytest.mark.parametrize("aligned", [False, True])
+def test_unit_class_sums_match_exactextract(tmp_path, aligned):
+    folder = tmp_path / "inputs"
+    write_landscape(folder, nodata_patch=False)
+    units = _units()
+    if aligned:  # edges on cell edges: every cell is wholly in or out of a unit
+        edges = [(1, 90, 1, 150), (1, 90, 150, 299), (90, 199, 1, 150), (90, 199, 150, 299)]
+        units.geometry = [
+            box(WEST + 30 * c0, NORTH - 30 * r1, WEST + 30 * c1, NORTH - 30 * r0)
+            for r0, r1, c0, c1 in edges
+        ]
+        units.to_file(folder / "units.gpkg", driver="GPKG")
+    rasters = '[rasters]\nbiomass = { sage = "sage.tif", shrub = "shrub.tif" }\nwindow_size = 32\n'
+    result = _grid_run(folder, rasters)
+    by_unit = result.problem.available_kg.reshape(4, 2, 4).sum(axis=1)
+    for column, name in [(2, "sage"), (3, "shrub")]:
+        reference, partial = _exactextract_sums(folder, name, units)
+        ours = by_unit[:, column] / CELL_HA
+        # exactextract (an independent zonal library) weights each cell by the share of it
+        # inside the unit; here a cell counts wholly when its centre is inside. The two can
+        # differ by at most the values of the partly covered cells; with edges on cell edges
+        # they must agree to float32 precision.
+        tolerance = partial + 1e-6 * reference
+        assert (np.abs(ours - reference) <= tolerance).all()
+        if aligned:
+            assert partial.sum() == 0
+            np.testing.assert_allclose(ours, reference, rtol=1e-6)
+        else:
+            assert (partial < 0.05 * reference).all()  # the bound is tight enough to mean much
+
+
+def _rewrite(folder: Path, name: str, values, **kwargs):
+    _write_raster(folder / f"{name}.tif", values.astype(np.float32), **kwargs)
+
+
+def test_snow_removes_everything_when_deeper_than_every_class(tmp_path):
+    folder = tmp_path / "inputs"
+    write_landscape(folder)
+    _rewrite(folder, "snow", np.full((ROWS, COLS), 0.0), nodata=-1.0)
+    bare = _grid_run(folder, RASTERS, SNOW)
+    without_rule = _grid_run(folder, RASTERS)
+    # Bare ground: the snow rule removes nothing.
+    np.testing.assert_allclose(
+        bare.problem.available_kg, without_rule.problem.available_kg, rtol=1e-6
+    )
+    _rewrite(folder, "snow", np.full((ROWS, COLS), 151.0), nodata=-1.0)
+    deep = _grid_run(folder, RASTERS, SNOW)
+    # Snow deeper than the tallest class (150 cm): nothing is left.
+    assert deep.problem.available_kg.sum() == 0.0
+    report = deep.grid.rules_report.set_index(["unit_id", "rule"])
+    removed = report.loc[("all units", "snow"), "forage_removed_kg"]
+    assert removed == pytest.approx(without_rule.problem.available_kg.sum(), rel=1e-5)
+    assert report.loc[("all units", "snow"), "forage_removed_pct"] == pytest.approx(100.0)
+
+
+EXCLUDED = box(WEST + 1_000, NORTH - 2_000, WEST + 2_513, NORTH - 1_007)
+RULES_TEXT = """[availability]
+snow_depth = "snow.tif"
+slope = "slope.tif"
+distance_to_water = "water.tif"
+min_forage_kg_per_ha = 150
+exclusions = ["private.gpkg"]
+"""
+
+
+def test_every_rule_reported_and_forage_conserved(tmp_path):
+    folder = tmp_path / "inputs"
+    write_landscape(folder)
+    row, col = np.mgrid[0:ROWS, 0:COLS]
+    _rewrite(folder, "slope", (row % 70).astype(float))  # 0-69 % (invented)
+    _rewrite(folder, "water", col * 20.0)  # 0-5980 m from water (invented)
+    gpd.GeoDataFrame({"name": ["ranch"]}, geometry=[EXCLUDED], crs=CRS).to_file(
+        folder / "private.gpkg", driver="GPKG"
+    )
+    no_rules = _grid_run(folder, RASTERS)
+    ruled = _grid_run(folder, RASTERS, RULES_TEXT)
+    report = ruled.grid.rules_report
+    assert list(report["rule"].unique()) == [
+        "nodata", "exclusions", "snow", "min_forage", "slope", "distance_to_water"
+    ]  # fmt: skip
+    per_unit = report[report["unit_id"] != "all units"].groupby("unit_id", sort=False)
+    removed = per_unit["forage_removed_kg"].sum(min_count=1).to_numpy()
+    left = ruled.problem.available_kg.sum(axis=1)
+    # Conservation: forage left + forage removed by the rules = forage without the rules.
+    np.testing.assert_allclose(left + removed, no_rules.problem.available_kg.sum(axis=1), rtol=1e-5)
+    # The excluded area: cells whose centre is in the polygon and in a unit with data, counted
+    # independently with shapely (cell-centre rule).
+    x, y = _cell_centres()
+    inside = shapely.contains_xy(EXCLUDED, x, y) & (_membership(_units()) >= 0)
+    sage = _read(folder, "sage")
+    excluded_ha = (inside & np.isfinite(sage)).sum() * CELL_HA
+    got = report[(report["unit_id"] == "all units") & (report["rule"] == "exclusions")]
+    assert got["area_ha"].iloc[0] == pytest.approx(excluded_ha)
+
+
+def test_patch_pooling(landscape):
+    unit = _grid_run(landscape, RASTERS, SNOW).by_unit.set_index("unit_id")
+    patch_result = _grid_run(landscape, RASTERS, SNOW, pooling="patch")
+    patch = patch_result.by_unit.set_index("unit_id")
+    # Rows: the unit × stratum pairs that hold cell centres (counted with shapely).
+    units, strata = _membership(_units()), _membership(_strata(True))
+    pairs = sorted({(u, s) for u, s in zip(units.ravel(), strata.ravel()) if u >= 0 and s >= 0})
+    assert patch_result.problem.row_unit.tolist() == [u for u, _ in pairs]
+    # Each patch meeting the diet alone is a restriction of the pooled problem (Hobbs & Swift
+    # 1985): patch NCC ≤ unit NCC; ECC does not depend on pooling.
+    assert (patch["ncc_animal_days"] <= unit["ncc_animal_days"] * (1 + 1e-9)).all()
+    np.testing.assert_allclose(patch["ecc_animal_days"], unit["ecc_animal_days"], rtol=1e-9)
+
+
+def test_calibration_warning_says_how_much_area(landscape):
+    result = _grid_run(landscape, RASTERS, SNOW)
+    row = result.grid.calibration_report.iloc[0]
+    index = _read(landscape, "index")
+    low = row.index_min - 0.1 * (row.index_max - row.index_min)
+    high = row.index_max + 0.1 * (row.index_max - row.index_min)
+    mapped = (_membership(_units()) >= 0) & np.isfinite(_read(landscape, "sage"))
+    beyond = mapped & ((index < low) | (index > high))
+    # Cells counted independently with numpy; the note names the group and the area.
+    assert row.area_beyond_margin_ha == pytest.approx(beyond.sum() * CELL_HA)
+    assert row.area_beyond_margin_ha > 0
+    assert any(
+        note.startswith("WARNING: calibrated forage group 'forbs'")
+        and f"{row.area_beyond_margin_ha:,.1f} ha" in note
+        for note in result.notes
+    )
+
+
+def test_outputs_density_and_manifest(landscape, tmp_path):
+    out = tmp_path / "results"
+    project = _project(landscape, project_text(RASTERS, SNOW))
+    result = run_estimate(project, out, report=False)
+    assert {"availability_rules.csv", "calibration.csv", "capacity_density.tif"} <= {
+        p.name for p in out.iterdir()
+    }
+    with rasterio.open(out / "capacity_density.tif") as src:
+        assert src.profile["tiled"] and src.compression is not None
+        density = src.read(1, masked=True)
+    units = _membership(_units())
+    assert density.mask[units < 0].all()  # nodata outside the units
+    # Σ density × cell area over a unit's cells = the unit's NCC (definition of the map).
+    table = result.by_unit
+    for number, unit_id in enumerate(table["unit_id"]):
+        total = density[units == number].sum() * CELL_HA
+        expected = table.loc[table["unit_id"] == unit_id, "ncc_animal_days"].iloc[0]
+        assert total == pytest.approx(expected, rel=1e-4)
+    manifest = json.loads((out / "run.json").read_text())
+    assert str((landscape / "sage.tif").resolve()) in manifest["inputs"]
+    assert manifest["derived"]["raster_path"]["grid"]["cell_area_ha"] == pytest.approx(CELL_HA)
+    rules = pd.read_csv(out / "availability_rules.csv")
+    assert {"unit_id", "rule", "area_ha", "forage_removed_kg"} <= set(rules.columns)
+
+
+def test_resample_on_request(tmp_path):
+    folder = tmp_path / "inputs"
+    write_landscape(folder)
+    _, _, _, snow = _fields()
+    shifted = from_origin(WEST + 15.0, NORTH, CELL_M, CELL_M)
+    _rewrite(folder, "snow", snow, nodata=-1.0, transform=shifted)
+    with pytest.raises(SpatialError, match="availability.snow_depth"):
+        _grid_run(folder, RASTERS, SNOW)
+    result = _grid_run(
+        folder, RASTERS.replace("[rasters]", '[rasters]\nresample = "nearest"'), SNOW
+    )
+    assert any("resampled onto the grid by nearest" in note for note in result.notes)
+    assert result.grid.describe()["resampled_layers"] == {"availability.snow_depth": "nearest"}
+
+
+def _cli_case(tmp_path, change):
+    folder = tmp_path / "inputs"
+    write_landscape(folder)
+    text = change(folder)
+    (folder / "project.toml").write_text(text)
+    return folder
+
+
+def _misaligned(folder):
+    _rewrite(folder, "snow", _fields()[3], nodata=-1.0,
+             transform=from_origin(WEST + 10.0, NORTH, CELL_M, CELL_M))  # fmt: skip
+    return project_text(RASTERS, SNOW)
+
+
+def _crs_mismatch(folder):
+    _rewrite(folder, "shrub", _fields()[1], crs="EPSG:32613")
+    return project_text(RASTERS, SNOW)
+
+
+def _all_nodata_unit(folder):
+    sage = _fields()[0]
+    sage[_membership(_units()) == 1] = -9999.0  # every cell of the second unit
+    _rewrite(folder, "sage", sage, nodata=-9999.0)
+    return project_text(RASTERS, SNOW)
+
+
+def _plots_off_the_index(folder):
+    plots = pd.read_csv(folder / "calibration_plots.csv")
+    plots.loc[3, "x"] = WEST - 5_000.0
+    plots.to_csv(folder / "calibration_plots.csv", index=False)
+    return project_text(RASTERS, SNOW)
+
+
+def _unknown_class(folder):
+    return project_text(RASTERS.replace("shrub = ", "shrubs = "), SNOW)
+
+
+def _snow_without_heights(folder):
+    (folder / "forage_classes.csv").write_text(FORAGE_CLASSES.replace(",150\n", ",\n"))
+    return project_text(RASTERS, SNOW)
+
+
+@pytest.mark.parametrize(
+    ("change", "message"),
+    [
+        (_misaligned, r"snow.tif: key 'availability.snow_depth': raster is not on the grid"),
+        (_crs_mismatch, r"shrub.tif: key 'rasters.biomass.shrub'.*found CRS EPSG:32613"),
+        (_all_nodata_unit, r"unit 'Bleakmere' has no cell with data.*sage.tif\) has data on 0 %"),
+        (_plots_off_the_index, r"plot 'C3'.*does not cover 1 of 12 calibration plots"),
+        (_unknown_class, r"key 'rasters.biomass': forage class 'shrubs' is not in the"),
+        (_snow_without_heights, r"forage class 'shrub' has no height_cm"),
+    ],
+)
+def test_bad_raster_inputs_exit_2_with_one_message(tmp_path, capsys, change, message):
+    folder = _cli_case(tmp_path, change)
+    out = tmp_path / "results"
+    code = main(["estimate", str(folder / "project.toml"), "--out", str(out), "--quiet"])
+    error = capsys.readouterr().err
+    assert code == 2
+    assert len(error.strip().splitlines()) == 1
+    assert re.search(message, error), error
+    assert not out.exists()
+
+
+def test_a_window_reader_failure_is_not_swallowed(landscape, monkeypatch):
+    from nutricap.landscape import grid_supply
+
+    def broken(self, window):
+        raise InputError("broken reader (test)")
+
+    monkeypatch.setattr(grid_supply.WindowReader, "__call__", broken)
+    with pytest.raises(InputError, match="broken reader"):
+        _grid_run(landscape, RASTERS, SNOW)

@@ -1,0 +1,325 @@
+"""Safe writes and input safety: staged outputs, refused output folders, interrupted runs.
+
+Runs use a private copy of the invented example project. The kill test starts
+``python -m nutricap estimate`` in a subprocess and kills it (SIGKILL) while it writes its
+staging folder; the previous results must stay byte-identical.
+"""
+
+import hashlib
+import json
+import os
+import shutil
+import signal
+import subprocess
+import sys
+import time
+
+import pytest
+
+from nutricap import outputs
+from nutricap.cli import main
+from nutricap.errors import OutputError
+from nutricap.outputs import check_output_folder, recover_interrupted, staged_folder
+
+KILL_ATTEMPTS = 3
+POLL_S = 0.002
+START_TIMEOUT_S = 120.0
+
+
+@pytest.fixture()
+def project(example_project, tmp_path):
+    """A private copy of the example project (inputs invented for the example)."""
+    folder = tmp_path / "inputs"
+    shutil.copytree(example_project.parent, folder)
+    return folder / example_project.name
+
+
+def _run(capsys, *argv):
+    code = main([str(a) for a in argv])
+    captured = capsys.readouterr()
+    return code, captured.out, captured.err
+
+
+def _digest(folder):
+    """Relative path → SHA-256 of every file under ``folder`` (hashlib, independent)."""
+    return {
+        str(path.relative_to(folder)): hashlib.sha256(path.read_bytes()).hexdigest()
+        for path in sorted(folder.rglob("*"))
+        if path.is_file()
+    }
+
+
+def _tables_of(digest):
+    """The CSV tables of a digest (run.json and the GeoPackage hold the time of the run)."""
+    return {name: value for name, value in digest.items() if name.endswith(".csv")}
+
+
+def _tables(folder):
+    return _tables_of(_digest(folder))
+
+
+def _hidden_leftovers(folder, name="results"):
+    return sorted(p.name for p in folder.iterdir() if p.name.startswith(f".{name}."))
+
+
+def _refused(capsys, argv, words):
+    code, _, err = _run(capsys, *argv)
+    lines = err.strip().splitlines()
+    assert code == 2 and len(lines) == 1 and "Traceback" not in err, err
+    assert words in lines[0], lines[0]
+    return lines[0]
+
+
+# --- output folders that are refused ---------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    "where", ["input folder", "inside the input folder", "contains the input folder"]
+)
+def test_out_related_to_an_input_folder_is_refused(project, capsys, where):
+    folder = project.parent
+    out = {
+        "input folder": folder,
+        "inside the input folder": folder / "results",
+        "contains the input folder": folder.parent,
+    }[where]
+    before = _digest(folder.parent)
+    line = _refused(capsys, ("estimate", project, "--out", out, "--overwrite", "--quiet"), "input")
+    assert str(out.resolve()) in line
+    assert _digest(folder.parent) == before
+    assert not (folder / "results").exists()
+
+
+def test_out_is_the_project_file(project, capsys):
+    before = _digest(project.parent)
+    _refused(capsys, ("estimate", project, "--out", project, "--overwrite", "--quiet"), "input")
+    assert _digest(project.parent) == before
+
+
+def test_out_is_a_file(project, tmp_path, capsys):
+    target = tmp_path / "notes.txt"
+    target.write_text("field notes\n")
+    _refused(capsys, ("estimate", project, "--out", target, "--quiet"), "the output path is a file")
+    assert target.read_text() == "field notes\n"
+
+
+def test_existing_results_replaced_only_with_overwrite(project, tmp_path, capsys):
+    out = tmp_path / "results"
+    assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
+    first = _digest(out)
+    _refused(capsys, ("estimate", project, "--out", out, "--quiet"), "--overwrite")
+    assert _digest(out) == first
+    (out / "stale.txt").write_text("from an older run\n")
+    code, _, _ = _run(capsys, "estimate", project, "--out", out, "--overwrite", "--quiet",
+                      "--no-report")  # fmt: skip
+    assert code == 0
+    assert not (out / "stale.txt").exists(), "the folder was replaced, not written into"
+    assert _tables(out) == _tables_of(first)
+    assert _hidden_leftovers(tmp_path) == []
+
+
+def test_overwrite_never_replaces_a_folder_of_other_files(project, tmp_path, capsys):
+    out = tmp_path / "my_documents"
+    out.mkdir()
+    (out / "thesis.docx").write_bytes(b"irreplaceable")
+    _refused(
+        capsys,
+        ("estimate", project, "--out", out, "--overwrite", "--quiet", "--no-report"),
+        "not nutricap results",
+    )
+    assert [p.name for p in out.iterdir()] == ["thesis.docx"]
+    assert (out / "thesis.docx").read_bytes() == b"irreplaceable"
+    assert _hidden_leftovers(tmp_path, "my_documents") == []
+
+
+def test_empty_existing_folder_is_used_without_overwrite(project, tmp_path, capsys):
+    out = tmp_path / "results"
+    out.mkdir()
+    assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
+    assert (out / "capacity_by_unit.csv").is_file()
+
+
+# --- failures part-way leave the previous results ---------------------------------------------
+
+
+@pytest.mark.parametrize("failure", [RuntimeError, KeyboardInterrupt])
+def test_failure_while_writing_keeps_previous_results(project, tmp_path, capsys, monkeypatch,
+                                                      failure):  # fmt: skip
+    out = tmp_path / "results"
+    assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
+    first = _digest(out)
+    import nutricap.workflow
+
+    written = []
+
+    def fail_after_tables(table, units, path):
+        written.extend(p.name for p in path.parent.iterdir())
+        raise failure("simulated failure while writing")
+
+    monkeypatch.setattr(nutricap.workflow, "write_geopackage", fail_after_tables)
+    if failure is KeyboardInterrupt:
+        code, _, err = _run(capsys, "estimate", project, "--out", out, "--overwrite", "--quiet")
+        assert code == 130 and len(err.strip().splitlines()) == 1 and "interrupted" in err
+    else:
+        with pytest.raises(RuntimeError):
+            main(["estimate", str(project), "--out", str(out), "--overwrite", "--quiet"])
+    assert "capacity_by_unit.csv" in written, "the failure came part-way through writing"
+    assert _digest(out) == first
+    assert _hidden_leftovers(tmp_path) == []
+
+
+def test_bad_input_with_overwrite_keeps_previous_results(project, tmp_path, capsys):
+    out = tmp_path / "results"
+    assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
+    first = _digest(out)
+    plots = project.parent / "plots.csv"
+    plots.write_text(plots.read_text().replace(",21.5,", ",-21.5,", 1))
+    _refused(capsys, ("estimate", project, "--out", out, "--overwrite", "--quiet"), "row 2")
+    assert _digest(out) == first
+
+
+def _staging_with_a_file(parent):
+    for folder in parent.glob(".results.partial-*"):
+        try:
+            if any(folder.iterdir()):
+                return folder
+        except FileNotFoundError:  # renamed into place meanwhile
+            return None
+    return None
+
+
+def _start_and_kill_while_writing(project, out):
+    """Run estimate in a subprocess and SIGKILL it once its staging folder holds a file.
+
+    Returns True when killed part-way, False when the run finished first.
+    """
+    command = [sys.executable, "-m", "nutricap", "estimate", str(project), "--out", str(out),
+               "--overwrite", "--quiet"]  # fmt: skip
+    process = subprocess.Popen(command, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    deadline = time.monotonic() + START_TIMEOUT_S
+    try:
+        while process.poll() is None and time.monotonic() < deadline:
+            if _staging_with_a_file(out.parent) is not None:
+                process.send_signal(signal.SIGKILL)
+                process.wait()
+                return True
+            time.sleep(POLL_S)
+    finally:
+        if process.poll() is None:
+            process.kill()
+        process.wait()
+        process.stderr.close()
+    assert process.returncode == 0, "the run ended with an error before it could be killed"
+    return False
+
+
+@pytest.mark.skipif(os.name != "posix", reason="SIGKILL is POSIX")
+def test_killed_run_leaves_previous_results_and_next_run_tidies_up(project, tmp_path, capsys):
+    out = tmp_path / "results"
+    assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
+    first = _digest(out)
+    killed = any(_start_and_kill_while_writing(project, out) for _ in range(KILL_ATTEMPTS))
+    if not killed:
+        pytest.fail(f"each of {KILL_ATTEMPTS} runs finished before its staging folder was seen")
+    assert _digest(out) == first, "the previous results changed"
+    stale = _hidden_leftovers(tmp_path)
+    assert stale and all(".partial-" in name for name in stale), stale
+    # The next run to the same folder removes the dead run's staging folder.
+    assert _run(capsys, "estimate", project, "--out", out, "--overwrite", "--quiet",
+                "--no-report")[0] == 0  # fmt: skip
+    assert _hidden_leftovers(tmp_path) == []
+    assert _tables(out) == _tables_of(first)
+
+
+# --- leftovers of interrupted runs ------------------------------------------------------------
+
+
+def _dead_pid():
+    """The id of a process that has ended (and been reaped)."""
+    process = subprocess.Popen([sys.executable, "-c", "pass"])
+    process.wait()
+    return process.pid
+
+
+def _results(folder, text):
+    folder.mkdir()
+    (folder / "run.json").write_text(text)
+    return folder
+
+
+@pytest.mark.skipif(os.name != "posix", reason="process ids are checked the POSIX way")
+def test_kill_between_the_two_renames_is_undone(tmp_path):
+    # Killed after the old results were renamed aside and before the new ones took their place.
+    out = tmp_path / "results"
+    pid = _dead_pid()
+    old = _results(tmp_path / f".results.old-{outputs._host()}-{pid}", "previous")
+    partial = _results(tmp_path / f".results.partial-{outputs._host()}-{pid}-abc123", "new")
+    touched = recover_interrupted(out)
+    assert sorted(touched) == sorted([old, partial])
+    assert (out / "run.json").read_text() == "previous"
+    assert _hidden_leftovers(tmp_path) == []
+
+
+@pytest.mark.skipif(os.name != "posix", reason="process ids are checked the POSIX way")
+def test_stale_old_folder_removed_when_new_results_are_in_place(tmp_path):
+    out = _results(tmp_path / "results", "new")
+    _results(tmp_path / f".results.old-{outputs._host()}-{_dead_pid()}", "previous")
+    check_output_folder(out, [], overwrite=True)
+    assert (out / "run.json").read_text() == "new"
+    assert _hidden_leftovers(tmp_path) == []
+
+
+def test_leftovers_of_running_processes_and_other_machines_are_kept(tmp_path):
+    out = tmp_path / "results"
+    mine = _results(tmp_path / f".results.partial-{outputs._host()}-{os.getpid()}-abc", "x")
+    other = _results(tmp_path / f".results.partial-otherhost-{_dead_pid()}-abc", "x")
+    assert recover_interrupted(out) == []
+    assert mine.is_dir() and other.is_dir() and not out.exists()
+
+
+def test_staged_folder_removes_its_staging_on_failure(tmp_path):
+    out = tmp_path / "results"
+    with pytest.raises(ValueError), staged_folder(out) as staging:
+        (staging / "capacity_by_unit.csv").write_text("half")
+        raise ValueError("simulated")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_staged_folder_refuses_a_folder_without_results(tmp_path):
+    out = tmp_path / "photos"
+    out.mkdir()
+    (out / "a.jpg").write_bytes(b"jpeg")
+    with pytest.raises(OutputError, match="not nutricap results"), staged_folder(out):
+        pytest.fail("must not be reached")
+    assert [p.name for p in tmp_path.iterdir()] == ["photos"]
+
+
+# --- input safety --------------------------------------------------------------------------
+
+
+def test_paths_resolved_from_the_project_file_and_reported_in_full(project, tmp_path, capsys,
+                                                                   monkeypatch):  # fmt: skip
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    monkeypatch.chdir(elsewhere)
+    relative = os.path.relpath(project, elsewhere)
+    code, out, _ = _run(capsys, "check", relative, "--quiet")
+    assert code == 0 and str(project.resolve()) in out
+    plots = project.parent / "plots.csv"
+    plots.write_text(plots.read_text().replace(",21.5,", ",-21.5,", 1))
+    line = _refused(capsys, ("check", relative, "--quiet"), "row 2, column 'dry_mass_g'")
+    assert str(plots.resolve()) in line
+    assert list(elsewhere.iterdir()) == []
+
+
+def test_project_file_values_are_data_never_code(project, tmp_path, capsys):
+    marker = tmp_path / "was_run"
+    attempts = f"__import__('os').system('touch {marker}') $(touch {marker}) `touch {marker}`"
+    text = project.read_text(encoding="utf-8").replace(
+        'species = "mule deer"', f"species = {json.dumps(attempts)}"
+    )
+    project.write_text(text, encoding="utf-8")
+    out = tmp_path / "results"
+    assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
+    assert not marker.exists()
+    assert "__import__('os').system" in (out / "capacity_by_unit.md").read_text(encoding="utf-8")
