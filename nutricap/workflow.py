@@ -138,6 +138,8 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     say("computing the herd's requirements")
     herd = herd_requirement(inputs.animals, project)
     target = diet_target(inputs.animals, project)
+    if target.dp_min_pct is not None:
+        _require_protein_values(inputs.forage_classes, project)
     say("solving capacity per unit")
     solution = solve(problem, herd, target, project)
     by_unit = unit_table(problem, solution, areas, herd, days)
@@ -160,7 +162,9 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
         season_days=days,
         uncertainty=uncertainty,
         trend=trend,
-        notes=_supply_notes(supply, inputs.plots) + (grid.notes if grid is not None else []),
+        notes=_supply_notes(supply, inputs.plots)
+        + _unreachable_notes(by_unit)
+        + (grid.notes if grid is not None else []),
         grid=grid,
     )
 
@@ -542,6 +546,32 @@ def unit_class_table(problem: CapacityProblem, solution: Solution) -> pd.DataFra
         }
     )
     return frame.groupby(["unit_id", "forage_class"], as_index=False, sort=False).sum()
+
+
+def _require_protein_values(forage_classes: pd.DataFrame, project: Project) -> None:
+    """With a protein target, every forage class needs its crude protein."""
+    blank = forage_classes["cp_pct"].isna().to_numpy()
+    if blank.any():
+        index = int(np.flatnonzero(blank)[0])
+        raise TableError(
+            "crude protein missing while the target requires digestible protein",
+            source=project.input_path("forage_classes"),
+            location=f"row {spreadsheet_row(index)}, column 'cp_pct'",
+            expected="crude protein in percent of dry matter (or protein = false in [target])",
+            found="an empty cell",
+        )
+
+
+def _unreachable_notes(by_unit: pd.DataFrame) -> list[str]:
+    """Units whose NCC is zero because no mix of their forage reaches the target diet."""
+    unreachable = by_unit.loc[by_unit["limiting_factor"] == "intake", "unit_id"].tolist()
+    if not unreachable:
+        return []
+    return [
+        "no mix of the available forage reaches the target diet in unit(s) "
+        + ", ".join(map(str, unreachable))
+        + ": their NCC is 0 (limiting factor 'intake')"
+    ]
 
 
 def _supply_notes(supply: StratumSupply, plots: pd.DataFrame) -> list[str]:

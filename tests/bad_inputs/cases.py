@@ -442,7 +442,11 @@ CASES = [
     # A target no forage can meet: a valid result of zero, with the reason.
     Case("target: diet no forage can meet (valid: NCC 0, 'intake')",
          set_key("target", "diet_de_min_kcal_per_g = 4.5"),
-         r"Total NCC 0 animals", exit_code=0, verify=nothing_meets_target),
+         r"no mix of the available forage reaches the target diet", exit_code=0,
+         verify=nothing_meets_target),
+    Case("forage classes: crude protein blank while protein is required",
+         set_cell(F, 4, "cp_pct", ""),
+         r"forage_classes\.csv: row 4, column 'cp_pct': crude protein missing"),
     # Encodings and separators: refused clearly (decision in nutricap/tables.py).
     Case("animal classes: latin-1 file", use_file("animal_classes_latin1.csv", A),
          r"animal_classes\.csv: row 3: animal-class table is not UTF-8 text .*re-save the file "
