@@ -18,6 +18,7 @@ import pandas as pd
 from nutricap.assess import assess_use, current_animals_from_counts
 from nutricap.errors import InputError, ProjectFileError, TableError
 from nutricap.inputs import read_animal_classes, read_forage_classes, read_plots
+from nutricap.landscape.density import piece_density, write_piece_density
 from nutricap.landscape.grid_supply import GridResult, grid_outputs_alongside, grid_problem
 from nutricap.landscape.plots import StratumSupply, plot_biomass_matrix, stratum_supply
 from nutricap.landscape.vectors import (
@@ -632,6 +633,11 @@ def write_estimate(
         write_csv(result.uncertainty.sensitivity, folder / "sensitivity.csv")
     write_geopackage(result.by_unit, result.units, folder / "capacity_by_unit.gpkg")
     eaten_kg, intake = result.solution.ncc.eaten_kg, result.herd.intake_kg_per_day
+    if result.grid is None and result.areas.pieces is not None:
+        density = piece_density(result.problem, eaten_kg, result.areas.pieces, intake)
+        write_piece_density(
+            result.areas.pieces, density, result.units, folder / "capacity_density.tif"
+        )
     # Raster outputs (capacity_density.tif: a second streamed pass) are written alongside.
     with grid_outputs_alongside(result.grid, result.problem, eaten_kg, intake, folder):
         context = [
