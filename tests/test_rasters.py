@@ -192,3 +192,19 @@ def test_layer_stack_reads_every_layer(tmp_path):
         layers = stack.read(grid_windows(grid, 16)[1])
     np.testing.assert_array_equal(layers["b"][0], 2 * layers["a"][0])
     assert stack.resampled == {"a": None, "b": None}
+
+
+def test_burning_in_worker_threads_agrees_with_the_main_thread(tmp_path):
+    from concurrent.futures import ThreadPoolExecutor
+
+    grid = read_grid(write(tmp_path / "grid.tif", field()), "grid")
+    shapes = [
+        shapely.box(WEST + 40 * i, NORTH - 900, WEST + 40 * i + 333, NORTH - 20) for i in range(5)
+    ]
+    burner = ShapeBurner(shapes, [1, 2, 3, 4, 5], "int32")
+    windows = grid_windows(grid, 16)
+    alone = [burner.burn(window, grid) for window in windows]
+    with ThreadPoolExecutor(max_workers=2) as pool:
+        threaded = list(pool.map(lambda window: burner.burn(window, grid), windows))
+    for one, other in zip(alone, threaded):
+        np.testing.assert_array_equal(one, other)

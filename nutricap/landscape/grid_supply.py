@@ -65,6 +65,8 @@ from nutricap.report.tables import write_csv
 
 Progress = Callable[[str], None]
 DENSITY_NODATA = -9999.0
+COMPRESSION_LEVEL = {"zstd": {"zstd_level": 1}, "deflate": {"zlevel": 1}}
+"""Fast levels for capacity_density.tif: float noise compresses little better at high levels."""
 WORKERS = 2  # threads that read and compute windows (the machines in view have 2 cores)
 CHUNK_CELLS = 131_072
 """Cells computed at a time within a window: the arrays of a chunk stay in the CPU cache."""
@@ -554,6 +556,7 @@ def stream_windows(
         file=sys.stderr,
         disable=not show_progress,
     )
+
     def work(window: Window) -> WindowSums:
         return window_sums(setup, reader(window))
 
@@ -1038,6 +1041,7 @@ def write_capacity_density(
         "blockxsize": 256,
         "blockysize": 256,
         "compress": result.compression,
+        **COMPRESSION_LEVEL[result.compression],
         "bigtiff": "IF_SAFER",
         "num_threads": 2,
     }
@@ -1055,6 +1059,7 @@ def write_capacity_density(
         bar.update()
 
     with streaming_env(), rasterio.open(path, "w", **profile) as dst:
+        dst.update_tags(units="animal-days per hectare (NCC)")
         with ThreadPoolExecutor(max_workers=1) as writer:  # compresses while the next is computed
             pending = None
             for window, chunks in result.cache.windows(result.windows, n_classes):

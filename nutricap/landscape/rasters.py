@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import math
 import threading
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -27,7 +28,7 @@ import shapely
 from affine import Affine
 from pyproj import CRS
 from rasterio.enums import MaskFlags, Resampling
-from rasterio.errors import RasterioIOError
+from rasterio.errors import NotGeoreferencedWarning, RasterioIOError
 from rasterio.vrt import WarpedVRT
 from rasterio.windows import Window
 
@@ -40,6 +41,15 @@ GDAL_CACHE_MB = 64
 """GDAL's block cache while streaming [MB]; small and fixed so memory does not grow."""
 ALIGNMENT_TOLERANCE_CELLS = 1e-3
 """Largest misfit of two grids' cell edges, in cells, that still counts as aligned."""
+# rasterio (1.4) warns once per thread, on the first rasterize outside the main thread, that
+# its in-memory dataset "has no geotransform"; the burnt cells are right (checked against the
+# main thread and against shapely in tests/test_rasters.py), so this one message is silenced.
+warnings.filterwarnings(
+    "ignore",
+    message="Dataset has no geotransform",
+    category=NotGeoreferencedWarning,
+    module="rasterio.features",
+)
 RESAMPLING = {
     "nearest": Resampling.nearest,
     "bilinear": Resampling.bilinear,
@@ -227,22 +237,31 @@ class GridLayer:
     def read(self, window: Window) -> tuple[np.ndarray, np.ndarray]:
         """Values (float32) and validity (bool) of the grid cells in ``window``."""
         shape = (int(window.height), int(window.width))
-        values = np.zeros(shape, dtype=np.float32)
-        valid = np.zeros(shape, dtype=bool)
         inner, target = self._intersection(window)
         if inner is None:
-            return values, valid
+            return np.zeros(shape, dtype=np.float32), np.zeros(shape, dtype=bool)
         part = self.dataset.read(1, window=inner, out_dtype=np.float32)
-        ok = np.ones(part.shape, dtype=bool)
-        if self.nodata is not None and not np.isnan(self.nodata):
-            ok &= part != np.float32(self.nodata)
-        if self.is_float:
-            ok &= ~np.isnan(part)
-        if self.per_dataset_mask:
-            ok &= self.dataset.read_masks(1, window=inner) > 0
+        ok = self._valid(part, inner)
+        if part.shape == shape:
+            return part, ok
+        values = np.zeros(shape, dtype=np.float32)
+        valid = np.zeros(shape, dtype=bool)
         values[target] = part
         valid[target] = ok
         return values, valid
+
+    def _valid(self, part: np.ndarray, inner: Window) -> np.ndarray:
+        """Cells with data: not the nodata value, not NaN, not masked."""
+        ok = None
+        if self.nodata is not None and not np.isnan(self.nodata):
+            ok = part != np.float32(self.nodata)
+        if self.is_float and np.isnan(np.add.reduce(part, axis=None)):  # a NaN somewhere
+            finite = ~np.isnan(part)
+            ok = finite if ok is None else ok & finite
+        if self.per_dataset_mask:
+            unmasked = self.dataset.read_masks(1, window=inner) > 0
+            ok = unmasked if ok is None else ok & unmasked
+        return np.ones(part.shape, dtype=bool) if ok is None else ok
 
     def _intersection(self, window: Window):
         """The part of ``window`` this layer covers: (layer window, slices into the window)."""
