@@ -273,7 +273,7 @@ def layer_specs(project) -> list[LayerSpec]:
     rasters = [
         key for key in keys if not key.endswith((".plots", "_table")) and ".exclusions." not in key
     ]
-    return [LayerSpec(key, paths[key]) for key in rasters]
+    return [LayerSpec.for_key(key, paths[key]) for key in rasters]
 
 
 def _general_classes(forage_classes: pd.DataFrame) -> pd.DataFrame:

@@ -182,10 +182,35 @@ def alignment_problem(grid: Grid, src) -> tuple[str, str] | None:
 
 @dataclass(frozen=True)
 class LayerSpec:
-    """A raster layer of the project: its project key and file."""
+    """A raster layer of the project: its project key and file, and its valid range.
+
+    Values outside ``minimum``–``maximum`` (where given) in cells with data are refused
+    with the file, key and cell named; ``meaning`` says what the values are.
+    """
 
     key: str
     path: Path
+    minimum: float | None = None
+    maximum: float | None = None
+    meaning: str = ""
+
+    @classmethod
+    def for_key(cls, key: str, path: Path) -> LayerSpec:
+        """The spec of project key ``key`` with the valid range of its kind of layer."""
+        for prefix, (low, high, meaning) in VALUE_RANGES.items():
+            if key.startswith(prefix):
+                return cls(key, path, low, high, meaning)
+        return cls(key, path)
+
+
+VALUE_RANGES = {
+    "rasters.biomass.": (0.0, 100_000.0, "dry biomass in kg/ha"),
+    "availability.snow_depth": (0.0, 10_000.0, "snow depth in cm"),
+    "availability.slope": (0.0, 10_000.0, "slope in percent"),
+    "availability.distance_to_water": (0.0, 1e7, "distance to water in m"),
+}
+"""Physically possible values of each kind of layer (the same bounds as the plots table's
+100,000 kg/ha for biomass; the others only catch wrong units or corrupt files)."""
 
 
 class GridLayer:
@@ -229,10 +254,34 @@ class GridLayer:
                 resampling=RESAMPLING[resample],
             )
             self.resampled_by = resample
+        self._check_bands_and_type()
         self.nodata = self.dataset.nodata
         flags = self.dataset.mask_flag_enums[0]
         self.per_dataset_mask = MaskFlags.per_dataset in flags or MaskFlags.alpha in flags
         self.is_float = np.dtype(self.dataset.dtypes[0]).kind == "f"
+
+    def _check_bands_and_type(self) -> None:
+        """Refuse rasters whose values cannot be one number per cell."""
+        path, key = self.spec.path, self.spec.key
+        if self.src.count != 1:
+            self.close()
+            raise SpatialError(
+                f"raster has {self.src.count} bands",
+                source=path,
+                location=f"key {key!r}",
+                expected="a single-band raster (one value per cell)",
+                found=f"{self.src.count} bands; save the band you mean as its own GeoTIFF",
+            )
+        kind = np.dtype(self.src.dtypes[0]).kind
+        if kind not in "uif":
+            self.close()
+            raise SpatialError(
+                "raster values are not real numbers",
+                source=path,
+                location=f"key {key!r}",
+                expected="an integer or floating-point raster",
+                found=f"data type {self.src.dtypes[0]}",
+            )
 
     def read(self, window: Window) -> tuple[np.ndarray, np.ndarray]:
         """Values (float32) and validity (bool) of the grid cells in ``window``."""
@@ -242,6 +291,7 @@ class GridLayer:
             return np.zeros(shape, dtype=np.float32), np.zeros(shape, dtype=bool)
         part = self.dataset.read(1, window=inner, out_dtype=np.float32)
         ok = self._valid(part, inner)
+        self._check_range(part, ok, inner)
         if part.shape == shape:
             return part, ok
         values = np.zeros(shape, dtype=np.float32)
@@ -249,6 +299,27 @@ class GridLayer:
         values[target] = part
         valid[target] = ok
         return values, valid
+
+    def _check_range(self, part: np.ndarray, ok: np.ndarray, inner: Window) -> None:
+        """Refuse a value outside the layer's possible range, naming the first such cell."""
+        spec = self.spec
+        if spec.minimum is None:
+            return
+        low, high = part.min(initial=np.inf, where=ok), part.max(initial=-np.inf, where=ok)
+        if low >= spec.minimum and high <= spec.maximum:
+            return
+        bad = ok & ((part < spec.minimum) | (part > spec.maximum))
+        row, col = (int(i) for i in np.argwhere(bad)[0])
+        raise SpatialError(
+            "raster value out of range",
+            source=spec.path,
+            location=(
+                f"key {spec.key!r}, cell row {int(inner.row_off) + row}, "
+                f"column {int(inner.col_off) + col}"
+            ),
+            expected=f"{spec.meaning} between {spec.minimum:g} and {spec.maximum:g}",
+            found=f"{float(part[row, col]):g}",
+        )
 
     def _valid(self, part: np.ndarray, inner: Window) -> np.ndarray:
         """Cells with data: not the nodata value, not NaN, not masked."""
