@@ -10,6 +10,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import geopandas as gpd
 import numpy as np
@@ -37,8 +38,6 @@ from nutricap.problem import (
     solve_problem,
 )
 from nutricap.project import Project
-from nutricap.report.figures import figure_png, scenario_figure
-from nutricap.report.html import ReportExtras, write_report
 from nutricap.report.tables import markdown_table, write_csv, write_geopackage, write_json
 from nutricap.scenarios import (
     Scenario,
@@ -48,16 +47,20 @@ from nutricap.scenarios import (
 )
 from nutricap.science import energetics
 from nutricap.science.forage_quality import mixed_diet_quality
-from nutricap.science.population import logistic_trajectory
 from nutricap.sensitivity import input_groups
 from nutricap.tables import spreadsheet_row
-from nutricap.trend import TOTAL_LABEL, analyse_series, read_counts, select_series
 from nutricap.uncertainty import (
     BootstrapResult,
     add_intervals,
     bootstrap_capacity,
     one_at_a_time,
 )
+
+if TYPE_CHECKING:
+    from nutricap.report.html import ReportExtras
+
+# Matplotlib (the report) and scipy.stats (the trend) take about a second to import; they are
+# imported in the functions that need them, so a run that needs neither does not pay for them.
 
 Progress = Callable[[str], None]
 HA_PER_KM2 = 100.0
@@ -309,6 +312,9 @@ TREND_LEVEL = 0.95
 
 def counts_trend(project: Project, say: Progress) -> dict | None:
     """Trend figures of the project's counts (the total over units), with the fitted curve."""
+    from nutricap.science.population import logistic_trajectory
+    from nutricap.trend import TOTAL_LABEL, analyse_series, read_counts, select_series
+
     path = project.input_path("counts")
     if path is None:
         return None
@@ -336,6 +342,8 @@ def current_animals(project: Project, areas: StratumAreas) -> np.ndarray | None:
     """Current animals per unit: the units layer's column, else the latest count, else None."""
     if "current_animals" in areas.units.columns:
         return areas.units["current_animals"].to_numpy(dtype=float)
+    from nutricap.trend import read_counts
+
     counts_path = project.input_path("counts")
     if counts_path is None:
         return None
@@ -657,6 +665,8 @@ def write_estimate(
         )
         write_json(manifest, folder / "run.json")
         if report:
+            from nutricap.report.html import write_report
+
             write_report(
                 folder / "report.html",
                 result,
@@ -671,6 +681,8 @@ def report_extras(
 ) -> ReportExtras:
     """What the report shows beside the estimate: sensitivity, intervals, scenario."""
     uncertainty = result.uncertainty
+    from nutricap.report.html import ReportExtras
+
     return ReportExtras(
         scenario_table=scenario_table,
         sensitivity_table=uncertainty.sensitivity,
@@ -810,6 +822,8 @@ def run_compare(
     with staged_folder(out) as staging:
         write_estimate(result, project, staging, report=report, scenario_table=table)
         write_csv(table, staging / "scenario_by_unit.csv")
+        from nutricap.report.figures import figure_png, scenario_figure
+
         chart = figure_png(scenario_figure(table, per_unit=True))
         (staging / "scenario_by_unit.png").write_bytes(chart)
     return result, table

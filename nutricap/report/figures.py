@@ -83,7 +83,7 @@ def figure_png(figure: Figure, *, dpi: int = PNG_DPI) -> bytes:
         The PNG file's bytes.
     """
     buffer = io.BytesIO()
-    figure.savefig(buffer, format="png", dpi=dpi, bbox_inches="tight", pad_inches=0.08,
+    figure.savefig(buffer, format="png", dpi=dpi,
                    metadata={"Software": None})
     return buffer.getvalue()
 

@@ -38,7 +38,6 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy.optimize import linprog
 
 from nutricap.errors import InputError
 
@@ -339,6 +338,10 @@ def _linprog_solution(
     Each unit is scaled by its largest allowed amount so that HiGHS's absolute tolerances act
     on numbers of order 1; the multipliers lam, mu are those of the scaled problem.
     """
+    # Imported here: SciPy's optimizer costs ~0.4 s to import and is needed only for the
+    # rare units the exact vertex method cannot settle (tied qualities).
+    from scipy.optimize import linprog
+
     eaten = np.zeros_like(allowed)
     lam, mu = np.zeros(len(allowed)), np.zeros(len(allowed))
     for u in range(len(allowed)):
