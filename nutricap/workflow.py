@@ -8,7 +8,7 @@ Writing files is left to :mod:`nutricap.report.tables`.
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import asdict, dataclass, field, replace
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -17,10 +17,9 @@ import numpy as np
 import pandas as pd
 
 from nutricap.assess import assess_use, current_animals_from_counts
-from nutricap.errors import InputError, ProjectFileError, TableError
+from nutricap.errors import InputError, TableError
 from nutricap.inputs import read_animal_classes, read_forage_classes, read_plots
-from nutricap.landscape.density import piece_density, write_piece_density
-from nutricap.landscape.grid_supply import GridResult, grid_outputs_alongside, grid_problem
+from nutricap.landscape.grid_supply import GridResult, grid_problem
 from nutricap.landscape.plots import StratumSupply, plot_biomass_matrix, stratum_supply
 from nutricap.landscape.vectors import (
     StratumAreas,
@@ -28,7 +27,6 @@ from nutricap.landscape.vectors import (
     read_strata,
     read_units,
 )
-from nutricap.manifest import build_manifest
 from nutricap.outputs import check_output_folder, staged_folder
 from nutricap.problem import (
     CapacityProblem,
@@ -38,7 +36,15 @@ from nutricap.problem import (
     solve_problem,
 )
 from nutricap.project import Project
-from nutricap.report.tables import markdown_table, write_csv, write_geopackage, write_json
+from nutricap.report.bundle import write_estimate
+from nutricap.report.tables import write_csv
+from nutricap.requirements import (
+    DietTarget,
+    diet_target,
+    herd_requirement,
+    require_protein_values,
+)
+from nutricap.results import supply_notes, unit_class_table, unit_table, unreachable_notes
 from nutricap.scenarios import (
     Scenario,
     load_scenario,
@@ -46,9 +52,7 @@ from nutricap.scenarios import (
     years_since_latest_treatment,
 )
 from nutricap.science import energetics
-from nutricap.science.forage_quality import mixed_diet_quality
 from nutricap.sensitivity import input_groups
-from nutricap.tables import spreadsheet_row
 from nutricap.uncertainty import (
     BootstrapResult,
     add_intervals,
@@ -57,32 +61,12 @@ from nutricap.uncertainty import (
 )
 
 if TYPE_CHECKING:
-    from nutricap.report.html import ReportExtras
+    pass
 
 # Matplotlib (the report) and scipy.stats (the trend) take about a second to import; they are
 # imported in the functions that need them, so a run that needs neither does not pay for them.
 
 Progress = Callable[[str], None]
-HA_PER_KM2 = 100.0
-
-
-@dataclass(frozen=True)
-class DietTarget:
-    """The minimum diet quality of the target nutritional state.
-
-    Attributes
-    ----------
-    de_min_kcal_per_g : float
-        Minimum digestible energy of the diet [kcal/g DM].
-    dp_min_pct : float or None
-        Minimum digestible protein of the diet [% DM], None when protein is not required.
-    derivation : str
-        How the thresholds were obtained, in words (for the report and manifest).
-    """
-
-    de_min_kcal_per_g: float
-    dp_min_pct: float | None
-    derivation: str
 
 
 @dataclass(frozen=True)
@@ -143,7 +127,7 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     herd = herd_requirement(inputs.animals, project)
     target = diet_target(inputs.animals, project)
     if target.dp_min_pct is not None:
-        _require_protein_values(inputs.forage_classes, project)
+        require_protein_values(inputs.forage_classes, project)
     say("solving capacity per unit")
     solution = solve(problem, herd, target, project)
     by_unit = unit_table(problem, solution, areas, herd, days)
@@ -166,8 +150,8 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
         season_days=days,
         uncertainty=uncertainty,
         trend=trend,
-        notes=_supply_notes(supply, inputs.plots)
-        + _unreachable_notes(by_unit)
+        notes=supply_notes(supply, inputs.plots)
+        + unreachable_notes(by_unit)
         + (grid.notes if grid is not None else []),
         grid=grid,
     )
@@ -396,208 +380,6 @@ def _require_units_on_map(areas: StratumAreas, project: Project) -> None:
         )
 
 
-def _check_states(animals: pd.DataFrame, project: Project) -> None:
-    season = project.config.project.season
-    for index, state in animals["state"].items():
-        try:
-            energetics.state_parameters(state, season)
-        except InputError as exc:
-            raise TableError(
-                exc.message,
-                source=project.input_path("animal_classes"),
-                location=f"row {spreadsheet_row(index)}, column 'state'",
-                expected=exc.expected,
-                found=repr(state),
-            ) from None
-
-
-def herd_requirement(animals: pd.DataFrame, project: Project) -> energetics.HerdRequirement:
-    """The average animal of the herd; a class's ``intake_kg_per_day`` overrides the model."""
-    _check_states(animals, project)
-    season = project.config.project.season
-    mass = animals["body_mass_kg"].to_numpy()
-    herd = energetics.herd_requirement(
-        mass, animals["share"].to_numpy(), animals["state"].tolist(), season
-    )
-    override = animals["intake_kg_per_day"].to_numpy(dtype=float)
-    if np.isnan(override).all():
-        return herd
-    modelled = np.array(
-        [
-            energetics.max_dry_matter_intake_kg_per_day(m, s, season)
-            for m, s in zip(mass, animals["state"])
-        ]
-    )
-    intake = np.where(np.isnan(override), modelled, override)
-    shares = animals["share"].to_numpy() / animals["share"].sum()
-    return energetics.HerdRequirement(
-        de_kcal_per_day=herd.de_kcal_per_day,
-        maintenance_de_kcal_per_day=herd.maintenance_de_kcal_per_day,
-        intake_kg_per_day=float(np.sum(shares * intake)),
-        dp_g_per_day=herd.dp_g_per_day,
-        animal_unit_equivalent=herd.animal_unit_equivalent,
-    )
-
-
-def diet_target(animals: pd.DataFrame, project: Project) -> DietTarget:
-    """Minimum diet DE (and DP) of the target state: given, or requirement ÷ intake.
-
-    Hobbs & Swift (1985): the diet must supply the daily requirement within
-    the daily dry-matter intake, so its minimum quality is requirement ÷ intake.
-    """
-    target = project.config.target
-    given_de, given_dp = target.diet_de_min_kcal_per_g, target.diet_dp_min_pct
-    derive_dp = target.protein and given_dp is None
-    if given_de is not None and not derive_dp:
-        return DietTarget(given_de, given_dp, "diet thresholds given in the project file")
-    if target.animal_class is None or target.state is None:
-        raise ProjectFileError(
-            "protein = true needs animal_class and state, or an explicit diet_dp_min_pct",
-            source=project.path,
-            location="section [target]",
-        )
-    row = _target_class(animals, project)
-    season = project.config.project.season
-    mass = float(row["body_mass_kg"])
-    intake = float(row["intake_kg_per_day"])
-    if np.isnan(intake):
-        intake = float(energetics.max_dry_matter_intake_kg_per_day(mass, target.state, season))
-    de_requirement = float(energetics.daily_de_requirement_kcal_per_day(mass, target.state, season))
-    de_min = given_de or float(energetics.required_diet_de_kcal_per_g(de_requirement, intake))
-    dp_min = given_dp
-    if derive_dp:
-        dp_requirement = energetics.daily_dp_requirement_g_per_day(mass, target.state, season)
-        dp_min = float(energetics.required_diet_dp_pct(dp_requirement, intake))
-    derivation = (
-        f"{target.animal_class} ({mass:g} kg) in state {target.state!r}, season {season!r}: "
-        f"DE requirement {de_requirement:,.0f} kcal/day over intake {intake:.3g} kg DM/day"
-    )
-    return DietTarget(de_min, dp_min, derivation)
-
-
-def _target_class(animals: pd.DataFrame, project: Project) -> pd.Series:
-    name = project.config.target.animal_class
-    matches = animals[animals["animal_class"] == name]
-    if matches.empty:
-        raise ProjectFileError(
-            f"target animal class {name!r} is not in the animal-class table",
-            source=project.path,
-            location="key 'target.animal_class'",
-            expected="one of " + ", ".join(map(repr, animals["animal_class"])),
-            found=repr(name),
-        )
-    return matches.iloc[0]
-
-
-def unit_table(
-    problem: CapacityProblem,
-    solution: Solution,
-    areas: StratumAreas,
-    herd: energetics.HerdRequirement,
-    season_days: float,
-) -> pd.DataFrame:
-    """The per-unit capacity table (the contract columns first)."""
-    ncc = solution.ncc
-    unit_ids = problem.unit_ids
-    area_ha = areas.units["area_ha"].to_numpy()
-    stratum_ha = areas.by_unit_stratum.groupby("unit_id")[["area_ha", "accessible_ha"]].sum()
-    row_forage_kg = problem.available_kg.sum(axis=1)
-    ncc_days = problem.sum_by_unit(ncc.animal_days)
-    ecc_days = problem.sum_by_unit(solution.ecc_animal_days)
-    eaten = problem.sum_by_unit(ncc.eaten_kg)
-    deciding = _deciding_rows(row_forage_kg, problem.row_unit, unit_ids.size)
-    marginal = ncc.marginal_item[deciding]
-    table = pd.DataFrame(
-        {
-            "unit_id": unit_ids,
-            "area_ha": area_ha,
-            "available_forage_kg": problem.sum_by_unit(row_forage_kg),
-            "ncc_animal_days": ncc_days,
-            "ncc_animals": ncc_days / season_days,
-            "ecc_animal_days": ecc_days,
-            "ecc_animals": ecc_days / season_days,
-            "allowable_use_animals": problem.sum_by_unit(solution.allowable_use_animal_days)
-            / season_days,
-            "limiting_factor": ncc.limiting_factor[deciding],
-            "ncc_per_km2": ncc_days / season_days / (area_ha / HA_PER_KM2),
-            "mapped_ha": stratum_ha["area_ha"].reindex(unit_ids).to_numpy(),
-            "accessible_ha": stratum_ha["accessible_ha"].reindex(unit_ids).to_numpy(),
-            "marginal_forage_class": np.where(
-                marginal >= 0, problem.items.forage_class[np.maximum(marginal, 0)], ""
-            ),
-            "diet_de_kcal_per_g": mixed_diet_quality(eaten, problem.items.de_kcal_per_g),
-            "diet_dp_pct": mixed_diet_quality(eaten, problem.items.dp_pct),
-            "ecc_per_km2": ecc_days / season_days / (area_ha / HA_PER_KM2),
-            "ncc_aum": energetics.animal_unit_months(ncc_days, herd.animal_unit_equivalent),
-        }
-    )
-    return table
-
-
-def _deciding_rows(row_forage_kg: np.ndarray, row_unit: np.ndarray, n_units: int) -> np.ndarray:
-    """For each unit, the problem row holding most of its forage (the row itself in unit mode)."""
-    order = np.lexsort((-row_forage_kg, row_unit))
-    first = np.unique(row_unit[order], return_index=True)[1]
-    deciding = np.zeros(n_units, dtype=int)
-    deciding[row_unit[order][first]] = order[first]
-    return deciding
-
-
-def unit_class_table(problem: CapacityProblem, solution: Solution) -> pd.DataFrame:
-    """Available and NCC-eaten forage per unit and forage class [kg]."""
-    n_items = problem.items.size
-    frame = pd.DataFrame(
-        {
-            "unit_id": np.repeat(problem.unit_ids, n_items),
-            "forage_class": np.tile(problem.items.forage_class, problem.unit_ids.size),
-            "available_kg": problem.sum_by_unit(problem.available_kg).ravel(),
-            "ncc_eaten_kg": problem.sum_by_unit(solution.ncc.eaten_kg).ravel(),
-        }
-    )
-    return frame.groupby(["unit_id", "forage_class"], as_index=False, sort=False).sum()
-
-
-def _require_protein_values(forage_classes: pd.DataFrame, project: Project) -> None:
-    """With a protein target, every forage class needs its crude protein."""
-    blank = forage_classes["cp_pct"].isna().to_numpy()
-    if blank.any():
-        index = int(np.flatnonzero(blank)[0])
-        raise TableError(
-            "crude protein missing while the target requires digestible protein",
-            source=project.input_path("forage_classes"),
-            location=f"row {spreadsheet_row(index)}, column 'cp_pct'",
-            expected="crude protein in percent of dry matter (or protein = false in [target])",
-            found="an empty cell",
-        )
-
-
-def _unreachable_notes(by_unit: pd.DataFrame) -> list[str]:
-    """Units whose NCC is zero because no mix of their forage reaches the target diet."""
-    unreachable = by_unit.loc[by_unit["limiting_factor"] == "intake", "unit_id"].tolist()
-    if not unreachable:
-        return []
-    return [
-        "no mix of the available forage reaches the target diet in unit(s) "
-        + ", ".join(map(str, unreachable))
-        + ": their NCC is 0 (limiting factor 'intake')"
-    ]
-
-
-def _supply_notes(supply: StratumSupply, plots: pd.DataFrame) -> list[str]:
-    """Things the user should know that are not errors."""
-    notes = []
-    never = sorted(set(supply.classes) - set(plots["forage_class"]))
-    if never:
-        notes.append(
-            "forage classes in the forage-class table never recorded on a plot (supply 0): "
-            + ", ".join(never)
-        )
-    single = [s for s, n in zip(supply.strata, supply.n_plots) if n == 1]
-    if single:
-        notes.append("strata with a single plot (no standard error): " + ", ".join(single))
-    return notes
-
-
 def run_estimate(
     project: Project,
     out: Path,
@@ -616,133 +398,6 @@ def run_estimate(
     with staged_folder(out) as staging:
         write_estimate(result, project, staging, report=report)
     return result
-
-
-def write_estimate(
-    result: Estimate,
-    project: Project,
-    folder: Path,
-    *,
-    report: bool = True,
-    scenario_table: pd.DataFrame | None = None,
-) -> None:
-    """Write the tables, the manifest and (unless ``report=False``) the HTML report."""
-    config = project.config
-    totals = totals_table(result)
-    write_csv(result.by_unit, folder / "capacity_by_unit.csv")
-    write_csv(totals, folder / "capacity_totals.csv")
-    write_csv(result.by_unit_class, folder / "capacity_by_unit_class.csv")
-    write_csv(result.supply.table(), folder / "supply_by_stratum.csv")
-    if result.use_by_class is not None:
-        write_csv(result.use_by_class, folder / "use_by_unit_class.csv")
-    if result.trend is not None:
-        write_json(result.trend, folder / "trend.json")
-    if result.uncertainty.sensitivity is not None:
-        write_csv(result.uncertainty.sensitivity, folder / "sensitivity.csv")
-    write_geopackage(result.by_unit, result.units, folder / "capacity_by_unit.gpkg")
-    eaten_kg, intake = result.solution.ncc.eaten_kg, result.herd.intake_kg_per_day
-    if result.grid is None and result.areas.pieces is not None:
-        density = piece_density(result.problem, eaten_kg, result.areas.pieces, intake)
-        write_piece_density(
-            result.areas.pieces, density, result.units, folder / "capacity_density.tif"
-        )
-    # Raster outputs (capacity_density.tif: a second streamed pass) are written alongside.
-    with grid_outputs_alongside(result.grid, result.problem, eaten_kg, intake, folder):
-        context = [
-            f"{config.project.species}, {config.project.name}; "
-            f"season of {result.season_days:g} days.",
-            f"Target diet: {target_words(result.target)}.",
-            *[_total_words(row) for row in totals.itertuples()],
-        ]
-        markdown = markdown_table(result.by_unit, title="Capacity by unit", context_lines=context)
-        (folder / "capacity_by_unit.md").write_text(markdown, encoding="utf-8")
-        manifest = build_manifest(
-            command="estimate",
-            project_path=project.path,
-            input_paths=project.input_paths(),
-            settings=config.model_dump(mode="json"),
-            derived=_derived_values(result),
-        )
-        write_json(manifest, folder / "run.json")
-        if report:
-            from nutricap.report.html import write_report
-
-            write_report(
-                folder / "report.html",
-                result,
-                project=project,
-                manifest=manifest,
-                extras=report_extras(result, project, scenario_table),
-            )
-
-
-def report_extras(
-    result: Estimate, project: Project, scenario_table: pd.DataFrame | None
-) -> ReportExtras:
-    """What the report shows beside the estimate: sensitivity, intervals, scenario."""
-    uncertainty = result.uncertainty
-    from nutricap.report.html import ReportExtras
-
-    return ReportExtras(
-        scenario_table=scenario_table,
-        sensitivity_table=uncertainty.sensitivity,
-        interval_level=uncertainty.bootstrap.level if uncertainty.bootstrap else None,
-        trend=result.trend,
-        sensitivity_change=uncertainty.change or None,
-    )
-
-
-def target_words(target: DietTarget) -> str:
-    """The target diet in words: thresholds and how they were obtained."""
-    protein = f", DP ≥ {target.dp_min_pct:.2f} %" if target.dp_min_pct is not None else ""
-    return f"DE ≥ {target.de_min_kcal_per_g:.3f} kcal/g DM{protein} ({target.derivation})"
-
-
-def totals_table(result: Estimate) -> pd.DataFrame:
-    """Total NCC, ECC and allowable-use capacity over all units [animals], with intervals."""
-    table = result.by_unit
-    rows = pd.DataFrame(
-        {
-            "figure": ["ncc", "ecc", "allowable_use"],
-            "total_animals": [
-                table["ncc_animals"].sum(),
-                table["ecc_animals"].sum(),
-                table["allowable_use_animals"].sum(),
-            ],
-        }
-    )
-    bootstrap = result.uncertainty.bootstrap
-    if bootstrap is not None:
-        intervals = bootstrap.total_intervals(result.season_days)
-        rows["total_animals_lo"] = [intervals[name][0] for name in rows["figure"]]
-        rows["total_animals_hi"] = [intervals[name][1] for name in rows["figure"]]
-        rows["interval_level"] = bootstrap.level
-    return rows
-
-
-def _total_words(row) -> str:
-    names = {"ncc": "NCC", "ecc": "ECC", "allowable_use": "Capacity at allowable use"}
-    words = f"{names[row.figure]}, all units: {row.total_animals:,.0f} animals"
-    if hasattr(row, "total_animals_lo"):
-        words += (
-            f" ({row.interval_level:.0%} bootstrap interval "
-            f"{row.total_animals_lo:,.0f}–{row.total_animals_hi:,.0f})"
-        )
-    return words + "."
-
-
-def _derived_values(result: Estimate) -> dict:
-    return {
-        "diet_de_min_kcal_per_g": result.target.de_min_kcal_per_g,
-        "diet_dp_min_pct": result.target.dp_min_pct,
-        "target_derivation": result.target.derivation,
-        "herd": asdict(result.herd),
-        "season_days": result.season_days,
-        "area_crs": result.areas.area_crs.to_string(),
-        "area_crs_reason": result.areas.area_crs_reason,
-        "notes": result.notes,
-        **({"raster_path": result.grid.describe()} if result.grid is not None else {}),
-    }
 
 
 def compare(project: Project, scenario_name: str, progress: Progress | None = None):

@@ -103,7 +103,7 @@ def project(example_project):
 
 @pytest.fixture(scope="module")
 def manifest(project, example_estimate):
-    """The manifest as workflow.write_estimate builds it."""
+    """The manifest as nutricap.report.bundle.write_estimate builds it."""
     return build_manifest(
         command="estimate",
         project_path=project.path,

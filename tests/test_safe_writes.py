@@ -16,6 +16,7 @@ import time
 
 import pytest
 
+import nutricap.report.bundle
 from nutricap import outputs
 from nutricap.cli import main
 from nutricap.errors import OutputError
@@ -148,15 +149,13 @@ def test_failure_while_writing_keeps_previous_results(project, tmp_path, capsys,
     out = tmp_path / "results"
     assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
     first = _digest(out)
-    import nutricap.workflow
-
     written = []
 
     def fail_after_tables(table, units, path):
         written.extend(p.name for p in path.parent.iterdir())
         raise failure("simulated failure while writing")
 
-    monkeypatch.setattr(nutricap.workflow, "write_geopackage", fail_after_tables)
+    monkeypatch.setattr(nutricap.report.bundle, "write_geopackage", fail_after_tables)
     if failure is KeyboardInterrupt:
         code, _, err = _run(capsys, "estimate", project, "--out", out, "--overwrite", "--quiet")
         assert code == 130 and len(err.strip().splitlines()) == 1 and "interrupted" in err

@@ -13,13 +13,14 @@ import pytest
 
 from nutricap.problem import CapacityProblem, ForageItems, solve_problem
 from nutricap.project import load_project
+from nutricap.results import totals_table
 from nutricap.uncertainty import (
     bootstrap_capacity,
     one_at_a_time,
     percentile_interval,
     resample_stratum_means,
 )
-from nutricap.workflow import estimate, totals_table
+from nutricap.workflow import estimate
 
 
 def _items(strata, classes):

@@ -1,0 +1,133 @@
+"""Writing an estimate: every table, the density raster, the manifest and the report.
+
+Formats and writes what the workflow computed, into a folder the caller
+provides (a staging folder, see :mod:`nutricap.outputs`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import pandas as pd
+
+from nutricap.landscape.density import piece_density, write_piece_density
+from nutricap.landscape.grid_supply import grid_outputs_alongside
+from nutricap.manifest import build_manifest
+from nutricap.project import Project
+from nutricap.report.tables import markdown_table, write_csv, write_geopackage, write_json
+from nutricap.requirements import DietTarget
+from nutricap.results import totals_table
+
+if TYPE_CHECKING:
+    from nutricap.report.html import ReportExtras
+    from nutricap.workflow import Estimate
+
+# Matplotlib takes about a second to import: the report modules are imported only when a
+# report or chart is written.
+
+
+def write_estimate(
+    result: Estimate,
+    project: Project,
+    folder: Path,
+    *,
+    report: bool = True,
+    scenario_table: pd.DataFrame | None = None,
+) -> None:
+    """Write the tables, the manifest and (unless ``report=False``) the HTML report."""
+    config = project.config
+    totals = totals_table(result)
+    write_csv(result.by_unit, folder / "capacity_by_unit.csv")
+    write_csv(totals, folder / "capacity_totals.csv")
+    write_csv(result.by_unit_class, folder / "capacity_by_unit_class.csv")
+    write_csv(result.supply.table(), folder / "supply_by_stratum.csv")
+    if result.use_by_class is not None:
+        write_csv(result.use_by_class, folder / "use_by_unit_class.csv")
+    if result.trend is not None:
+        write_json(result.trend, folder / "trend.json")
+    if result.uncertainty.sensitivity is not None:
+        write_csv(result.uncertainty.sensitivity, folder / "sensitivity.csv")
+    write_geopackage(result.by_unit, result.units, folder / "capacity_by_unit.gpkg")
+    eaten_kg, intake = result.solution.ncc.eaten_kg, result.herd.intake_kg_per_day
+    if result.grid is None and result.areas.pieces is not None:
+        density = piece_density(result.problem, eaten_kg, result.areas.pieces, intake)
+        write_piece_density(
+            result.areas.pieces, density, result.units, folder / "capacity_density.tif"
+        )
+    # Raster outputs (capacity_density.tif: a second streamed pass) are written alongside.
+    with grid_outputs_alongside(result.grid, result.problem, eaten_kg, intake, folder):
+        context = [
+            f"{config.project.species}, {config.project.name}; "
+            f"season of {result.season_days:g} days.",
+            f"Target diet: {target_words(result.target)}.",
+            *[_total_words(row) for row in totals.itertuples()],
+        ]
+        markdown = markdown_table(result.by_unit, title="Capacity by unit", context_lines=context)
+        (folder / "capacity_by_unit.md").write_text(markdown, encoding="utf-8")
+        manifest = build_manifest(
+            command="estimate",
+            project_path=project.path,
+            input_paths=project.input_paths(),
+            settings=config.model_dump(mode="json"),
+            derived=_derived_values(result),
+        )
+        write_json(manifest, folder / "run.json")
+        if report:
+            from nutricap.report.html import write_report
+
+            write_report(
+                folder / "report.html",
+                result,
+                project=project,
+                manifest=manifest,
+                extras=report_extras(result, project, scenario_table),
+            )
+
+
+def report_extras(
+    result: Estimate, project: Project, scenario_table: pd.DataFrame | None
+) -> ReportExtras:
+    """What the report shows beside the estimate: sensitivity, intervals, scenario."""
+    uncertainty = result.uncertainty
+    from nutricap.report.html import ReportExtras
+
+    return ReportExtras(
+        scenario_table=scenario_table,
+        sensitivity_table=uncertainty.sensitivity,
+        interval_level=uncertainty.bootstrap.level if uncertainty.bootstrap else None,
+        trend=result.trend,
+        sensitivity_change=uncertainty.change or None,
+    )
+
+
+def target_words(target: DietTarget) -> str:
+    """The target diet in words: thresholds and how they were obtained."""
+    protein = f", DP ≥ {target.dp_min_pct:.2f} %" if target.dp_min_pct is not None else ""
+    return f"DE ≥ {target.de_min_kcal_per_g:.3f} kcal/g DM{protein} ({target.derivation})"
+
+
+def _total_words(row) -> str:
+    names = {"ncc": "NCC", "ecc": "ECC", "allowable_use": "Capacity at allowable use"}
+    words = f"{names[row.figure]}, all units: {row.total_animals:,.0f} animals"
+    if hasattr(row, "total_animals_lo"):
+        words += (
+            f" ({row.interval_level:.0%} bootstrap interval "
+            f"{row.total_animals_lo:,.0f}–{row.total_animals_hi:,.0f})"
+        )
+    return words + "."
+
+
+def _derived_values(result: Estimate) -> dict:
+    return {
+        "diet_de_min_kcal_per_g": result.target.de_min_kcal_per_g,
+        "diet_dp_min_pct": result.target.dp_min_pct,
+        "target_derivation": result.target.derivation,
+        "herd": asdict(result.herd),
+        "season_days": result.season_days,
+        "area_crs": result.areas.area_crs.to_string(),
+        "area_crs_reason": result.areas.area_crs_reason,
+        "notes": result.notes,
+        **({"raster_path": result.grid.describe()} if result.grid is not None else {}),
+    }

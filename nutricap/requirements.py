@@ -1,0 +1,144 @@
+"""The herd's requirements and the target diet of a project.
+
+The target diet is the minimum diet quality at which the target animal class,
+in the target state, meets its requirement within its intake (Hobbs & Swift
+1985): requirement ÷ intake, unless the project file gives the thresholds.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from nutricap.errors import InputError, ProjectFileError, TableError
+from nutricap.project import Project
+from nutricap.science import energetics
+from nutricap.tables import spreadsheet_row
+
+
+@dataclass(frozen=True)
+class DietTarget:
+    """The minimum diet quality of the target nutritional state.
+
+    Attributes
+    ----------
+    de_min_kcal_per_g : float
+        Minimum digestible energy of the diet [kcal/g DM].
+    dp_min_pct : float or None
+        Minimum digestible protein of the diet [% DM], None when protein is not required.
+    derivation : str
+        How the thresholds were obtained, in words (for the report and manifest).
+    """
+
+    de_min_kcal_per_g: float
+    dp_min_pct: float | None
+    derivation: str
+
+
+def _check_states(animals: pd.DataFrame, project: Project) -> None:
+    season = project.config.project.season
+    for index, state in animals["state"].items():
+        try:
+            energetics.state_parameters(state, season)
+        except InputError as exc:
+            raise TableError(
+                exc.message,
+                source=project.input_path("animal_classes"),
+                location=f"row {spreadsheet_row(index)}, column 'state'",
+                expected=exc.expected,
+                found=repr(state),
+            ) from None
+
+
+def herd_requirement(animals: pd.DataFrame, project: Project) -> energetics.HerdRequirement:
+    """The average animal of the herd; a class's ``intake_kg_per_day`` overrides the model."""
+    _check_states(animals, project)
+    season = project.config.project.season
+    mass = animals["body_mass_kg"].to_numpy()
+    herd = energetics.herd_requirement(
+        mass, animals["share"].to_numpy(), animals["state"].tolist(), season
+    )
+    override = animals["intake_kg_per_day"].to_numpy(dtype=float)
+    if np.isnan(override).all():
+        return herd
+    modelled = np.array(
+        [
+            energetics.max_dry_matter_intake_kg_per_day(m, s, season)
+            for m, s in zip(mass, animals["state"])
+        ]
+    )
+    intake = np.where(np.isnan(override), modelled, override)
+    shares = animals["share"].to_numpy() / animals["share"].sum()
+    return energetics.HerdRequirement(
+        de_kcal_per_day=herd.de_kcal_per_day,
+        maintenance_de_kcal_per_day=herd.maintenance_de_kcal_per_day,
+        intake_kg_per_day=float(np.sum(shares * intake)),
+        dp_g_per_day=herd.dp_g_per_day,
+        animal_unit_equivalent=herd.animal_unit_equivalent,
+    )
+
+
+def diet_target(animals: pd.DataFrame, project: Project) -> DietTarget:
+    """Minimum diet DE (and DP) of the target state: given, or requirement ÷ intake.
+
+    Hobbs & Swift (1985): the diet must supply the daily requirement within
+    the daily dry-matter intake, so its minimum quality is requirement ÷ intake.
+    """
+    target = project.config.target
+    given_de, given_dp = target.diet_de_min_kcal_per_g, target.diet_dp_min_pct
+    derive_dp = target.protein and given_dp is None
+    if given_de is not None and not derive_dp:
+        return DietTarget(given_de, given_dp, "diet thresholds given in the project file")
+    if target.animal_class is None or target.state is None:
+        raise ProjectFileError(
+            "protein = true needs animal_class and state, or an explicit diet_dp_min_pct",
+            source=project.path,
+            location="section [target]",
+        )
+    row = _target_class(animals, project)
+    season = project.config.project.season
+    mass = float(row["body_mass_kg"])
+    intake = float(row["intake_kg_per_day"])
+    if np.isnan(intake):
+        intake = float(energetics.max_dry_matter_intake_kg_per_day(mass, target.state, season))
+    de_requirement = float(energetics.daily_de_requirement_kcal_per_day(mass, target.state, season))
+    de_min = given_de or float(energetics.required_diet_de_kcal_per_g(de_requirement, intake))
+    dp_min = given_dp
+    if derive_dp:
+        dp_requirement = energetics.daily_dp_requirement_g_per_day(mass, target.state, season)
+        dp_min = float(energetics.required_diet_dp_pct(dp_requirement, intake))
+    derivation = (
+        f"{target.animal_class} ({mass:g} kg) in state {target.state!r}, season {season!r}: "
+        f"DE requirement {de_requirement:,.0f} kcal/day over intake {intake:.3g} kg DM/day"
+    )
+    return DietTarget(de_min, dp_min, derivation)
+
+
+def _target_class(animals: pd.DataFrame, project: Project) -> pd.Series:
+    name = project.config.target.animal_class
+    matches = animals[animals["animal_class"] == name]
+    if matches.empty:
+        raise ProjectFileError(
+            f"target animal class {name!r} is not in the animal-class table",
+            source=project.path,
+            location="key 'target.animal_class'",
+            expected="one of " + ", ".join(map(repr, animals["animal_class"])),
+            found=repr(name),
+        )
+    return matches.iloc[0]
+
+
+def require_protein_values(forage_classes: pd.DataFrame, project: Project) -> None:
+    """With a protein target, every forage class needs its crude protein."""
+    blank = forage_classes["cp_pct"].isna().to_numpy()
+    if blank.any():
+        index = int(np.flatnonzero(blank)[0])
+        raise TableError(
+            "crude protein missing while the target requires digestible protein",
+            source=project.input_path("forage_classes"),
+            location=f"row {spreadsheet_row(index)}, column 'cp_pct'",
+            expected="crude protein in percent of dry matter (or protein = false in [target])",
+            found="an empty cell",
+        )

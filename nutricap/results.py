@@ -1,0 +1,140 @@
+"""Assembling results: the per-unit and per-class tables, totals and notes.
+
+Turns a solved :class:`~nutricap.problem.CapacityProblem` into the tables of
+the output contract; formats nothing and writes nothing.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+import numpy as np
+import pandas as pd
+
+from nutricap.landscape.plots import StratumSupply
+from nutricap.landscape.vectors import StratumAreas
+from nutricap.problem import CapacityProblem, Solution
+from nutricap.science import energetics
+from nutricap.science.forage_quality import mixed_diet_quality
+
+if TYPE_CHECKING:
+    from nutricap.workflow import Estimate
+
+HA_PER_KM2 = 100.0
+
+
+def unit_table(
+    problem: CapacityProblem,
+    solution: Solution,
+    areas: StratumAreas,
+    herd: energetics.HerdRequirement,
+    season_days: float,
+) -> pd.DataFrame:
+    """The per-unit capacity table (the contract columns first)."""
+    ncc = solution.ncc
+    unit_ids = problem.unit_ids
+    area_ha = areas.units["area_ha"].to_numpy()
+    stratum_ha = areas.by_unit_stratum.groupby("unit_id")[["area_ha", "accessible_ha"]].sum()
+    row_forage_kg = problem.available_kg.sum(axis=1)
+    ncc_days = problem.sum_by_unit(ncc.animal_days)
+    ecc_days = problem.sum_by_unit(solution.ecc_animal_days)
+    eaten = problem.sum_by_unit(ncc.eaten_kg)
+    deciding = _deciding_rows(row_forage_kg, problem.row_unit, unit_ids.size)
+    marginal = ncc.marginal_item[deciding]
+    table = pd.DataFrame(
+        {
+            "unit_id": unit_ids,
+            "area_ha": area_ha,
+            "available_forage_kg": problem.sum_by_unit(row_forage_kg),
+            "ncc_animal_days": ncc_days,
+            "ncc_animals": ncc_days / season_days,
+            "ecc_animal_days": ecc_days,
+            "ecc_animals": ecc_days / season_days,
+            "allowable_use_animals": problem.sum_by_unit(solution.allowable_use_animal_days)
+            / season_days,
+            "limiting_factor": ncc.limiting_factor[deciding],
+            "ncc_per_km2": ncc_days / season_days / (area_ha / HA_PER_KM2),
+            "mapped_ha": stratum_ha["area_ha"].reindex(unit_ids).to_numpy(),
+            "accessible_ha": stratum_ha["accessible_ha"].reindex(unit_ids).to_numpy(),
+            "marginal_forage_class": np.where(
+                marginal >= 0, problem.items.forage_class[np.maximum(marginal, 0)], ""
+            ),
+            "diet_de_kcal_per_g": mixed_diet_quality(eaten, problem.items.de_kcal_per_g),
+            "diet_dp_pct": mixed_diet_quality(eaten, problem.items.dp_pct),
+            "ecc_per_km2": ecc_days / season_days / (area_ha / HA_PER_KM2),
+            "ncc_aum": energetics.animal_unit_months(ncc_days, herd.animal_unit_equivalent),
+        }
+    )
+    return table
+
+
+def _deciding_rows(row_forage_kg: np.ndarray, row_unit: np.ndarray, n_units: int) -> np.ndarray:
+    """For each unit, the problem row holding most of its forage (the row itself in unit mode)."""
+    order = np.lexsort((-row_forage_kg, row_unit))
+    first = np.unique(row_unit[order], return_index=True)[1]
+    deciding = np.zeros(n_units, dtype=int)
+    deciding[row_unit[order][first]] = order[first]
+    return deciding
+
+
+def unit_class_table(problem: CapacityProblem, solution: Solution) -> pd.DataFrame:
+    """Available and NCC-eaten forage per unit and forage class [kg]."""
+    n_items = problem.items.size
+    frame = pd.DataFrame(
+        {
+            "unit_id": np.repeat(problem.unit_ids, n_items),
+            "forage_class": np.tile(problem.items.forage_class, problem.unit_ids.size),
+            "available_kg": problem.sum_by_unit(problem.available_kg).ravel(),
+            "ncc_eaten_kg": problem.sum_by_unit(solution.ncc.eaten_kg).ravel(),
+        }
+    )
+    return frame.groupby(["unit_id", "forage_class"], as_index=False, sort=False).sum()
+
+
+def unreachable_notes(by_unit: pd.DataFrame) -> list[str]:
+    """Units whose NCC is zero because no mix of their forage reaches the target diet."""
+    unreachable = by_unit.loc[by_unit["limiting_factor"] == "intake", "unit_id"].tolist()
+    if not unreachable:
+        return []
+    return [
+        "no mix of the available forage reaches the target diet in unit(s) "
+        + ", ".join(map(str, unreachable))
+        + ": their NCC is 0 (limiting factor 'intake')"
+    ]
+
+
+def supply_notes(supply: StratumSupply, plots: pd.DataFrame) -> list[str]:
+    """Things the user should know that are not errors."""
+    notes = []
+    never = sorted(set(supply.classes) - set(plots["forage_class"]))
+    if never:
+        notes.append(
+            "forage classes in the forage-class table never recorded on a plot (supply 0): "
+            + ", ".join(never)
+        )
+    single = [s for s, n in zip(supply.strata, supply.n_plots) if n == 1]
+    if single:
+        notes.append("strata with a single plot (no standard error): " + ", ".join(single))
+    return notes
+
+
+def totals_table(result: Estimate) -> pd.DataFrame:
+    """Total NCC, ECC and allowable-use capacity over all units [animals], with intervals."""
+    table = result.by_unit
+    rows = pd.DataFrame(
+        {
+            "figure": ["ncc", "ecc", "allowable_use"],
+            "total_animals": [
+                table["ncc_animals"].sum(),
+                table["ecc_animals"].sum(),
+                table["allowable_use_animals"].sum(),
+            ],
+        }
+    )
+    bootstrap = result.uncertainty.bootstrap
+    if bootstrap is not None:
+        intervals = bootstrap.total_intervals(result.season_days)
+        rows["total_animals_lo"] = [intervals[name][0] for name in rows["figure"]]
+        rows["total_animals_hi"] = [intervals[name][1] for name in rows["figure"]]
+        rows["interval_level"] = bootstrap.level
+    return rows
