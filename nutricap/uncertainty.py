@@ -100,10 +100,21 @@ def resample_stratum_means(
     return means
 
 
+def means_of_plots(
+    plot_biomass_kg_per_ha: np.ndarray, plot_stratum: np.ndarray, n_strata: int
+) -> np.ndarray:
+    """Sample mean per stratum and class [kg/ha]; 0 for strata without plots."""
+    sums = np.zeros((n_strata, plot_biomass_kg_per_ha.shape[1]))
+    np.add.at(sums, plot_stratum, plot_biomass_kg_per_ha)
+    counts = np.bincount(plot_stratum, minlength=n_strata)[:, None]
+    return np.divide(sums, counts, out=np.zeros_like(sums), where=counts > 0)
+
+
 def bootstrap_capacity(
     problem: CapacityProblem,
     plot_biomass_kg_per_ha: np.ndarray,
     plot_stratum: np.ndarray,
+    labels: tuple[list[str], list[str]],
     solve_rows: SolveRows,
     *,
     replicates: int,
@@ -112,16 +123,40 @@ def bootstrap_capacity(
 ) -> BootstrapResult:
     """Stratified bootstrap of NCC, ECC and allowable-use capacity per unit.
 
-    ``plot_biomass_kg_per_ha`` columns are the forage classes in the order in
-    which items repeat within a stratum (``problem.items`` is stratum-major:
-    item = stratum × classes + class).
+    Parameters
+    ----------
+    problem : CapacityProblem
+        The problem as estimated from the plot means.
+    plot_biomass_kg_per_ha : array, shape (plots, classes) [kg/ha]
+        Biomass of each plot-sampled class on each plot (0 where not found).
+    plot_stratum : int array, shape (plots,)
+        Index of each plot's stratum in ``labels[0]``.
+    labels : (strata, classes)
+        Names of the strata and of the columns of ``plot_biomass_kg_per_ha``.
+    solve_rows : callable
+        Solves a problem (all replicates are stacked into one).
+
+    Notes
+    -----
+    The available forage of an item grown on stratum s and sampled by plots is
+    proportional to the stratum's plot mean (hectares × mean, or on the grid the
+    sum over cells of the mean × each cell's availability), so a replicate's
+    forage is the estimate's × (replicate mean ÷ sample mean). Items not sampled
+    by plots (raster classes) keep their forage. On the grid, the minimum-density
+    rule makes this proportionality approximate (stated in docs/methods.md).
     """
+    strata, classes = labels
     rng = np.random.default_rng(seed)
-    n_strata = len(problem.strata)
-    means = resample_stratum_means(plot_biomass_kg_per_ha, plot_stratum, n_strata, replicates, rng)
-    biomass = means.reshape(replicates, -1)
-    column = pd.Index(problem.strata).get_indexer(problem.items.patch_type)
-    available = problem.row_stratum_ha[None, :, column] * biomass[:, None, :]
+    means = resample_stratum_means(
+        plot_biomass_kg_per_ha, plot_stratum, len(strata), replicates, rng
+    )
+    base = means_of_plots(plot_biomass_kg_per_ha, plot_stratum, len(strata))
+    ratio = np.divide(means, base, out=np.ones_like(means), where=base > 0)
+    s = pd.Index(strata).get_indexer(problem.items.stratum)
+    c = pd.Index(classes).get_indexer(problem.items.forage_class)
+    sampled = (s >= 0) & (c >= 0) & (problem.items.variant == "")
+    item_ratio = np.where(sampled, ratio[:, np.maximum(s, 0), np.maximum(c, 0)], 1.0)
+    available = problem.available_kg[None, :, :] * item_ratio[:, None, :]
     rows = problem.row_unit.size
     stacked = replace(
         problem,

@@ -221,13 +221,17 @@ def assess_uncertainty(
     """Stratified bootstrap over plots and the one-at-a-time sensitivity of total NCC."""
     settings = project.config.uncertainty
     bootstrap = None
-    if settings.bootstrap_replicates > 0 and problem.row_stratum_ha is not None:
+    if settings.bootstrap_replicates > 0:
         say(f"bootstrap over plots: {settings.bootstrap_replicates} replicates")
-        wide = plot_biomass_matrix(inputs.plots, supply.classes)
+        classes = plot_sampled_classes(project, supply.classes)
+        wide = plot_biomass_matrix(inputs.plots, classes)
+        plot_stratum = pd.Index(supply.strata).get_indexer(wide["stratum"])
+        on_map = plot_stratum >= 0
         bootstrap = bootstrap_capacity(
             problem,
-            wide[supply.classes].to_numpy(),
-            pd.Index(supply.strata).get_indexer(wide["stratum"]),
+            wide.loc[on_map, classes].to_numpy(),
+            plot_stratum[on_map],
+            (supply.strata, classes),
             lambda rows: solve(rows, herd, target, project),
             replicates=settings.bootstrap_replicates,
             level=settings.interval_level,
@@ -238,6 +242,17 @@ def assess_uncertainty(
         say(f"sensitivity of total NCC to ±{settings.sensitivity_change:.0%} changes")
         sensitivity = sensitivity_table(project, inputs.animals, problem, herd, target)
     return Uncertainty(bootstrap, sensitivity, settings.sensitivity_change)
+
+
+def plot_sampled_classes(project: Project, classes: list[str]) -> list[str]:
+    """The forage classes whose supply comes from clip plots (not from rasters)."""
+    rasters = project.config.rasters
+    if rasters is None:
+        return list(classes)
+    on_rasters = set(rasters.biomass)
+    if rasters.calibrated is not None:
+        on_rasters |= set(rasters.calibrated.classes())
+    return [name for name in classes if name not in on_rasters]
 
 
 def sensitivity_table(

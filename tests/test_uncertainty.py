@@ -16,6 +16,7 @@ from nutricap.project import load_project
 from nutricap.results import totals_table
 from nutricap.uncertainty import (
     bootstrap_capacity,
+    means_of_plots,
     one_at_a_time,
     percentile_interval,
     resample_stratum_means,
@@ -41,15 +42,26 @@ def _items(strata, classes):
     )
 
 
-def _problem(hectares):
-    strata = ["a", "b"]
+STRATA, CLASSES = ["a", "b"], ["browse", "grass"]
+
+
+def _problem(hectares, values, stratum):
+    """The problem as estimated: hectares × the plots' stratum means."""
+    means = means_of_plots(values, stratum, 2)
+    hectares = np.asarray(hectares, dtype=float)
     return CapacityProblem(
         unit_ids=np.array(["u1", "u2"]),
         row_unit=np.array([0, 1]),
-        items=_items(strata, ["browse", "grass"]),
-        available_kg=np.zeros((2, 4)),
-        row_stratum_ha=np.asarray(hectares, dtype=float),
-        strata=strata,
+        items=_items(STRATA, CLASSES),
+        available_kg=hectares[:, [0, 0, 1, 1]] * means.ravel()[None, :],
+        row_stratum_ha=hectares,
+        strata=STRATA,
+    )
+
+
+def _bootstrap(hectares, values, stratum, **options):
+    return bootstrap_capacity(
+        _problem(hectares, values, stratum), values, stratum, (STRATA, CLASSES), _solve, **options
     )
 
 
@@ -81,44 +93,53 @@ def test_bootstrap_variance_of_a_mean_matches_theory():
 
 def test_identical_plots_collapse_the_interval():
     values = np.tile([[120.0, 300.0]], (10, 1))
-    result = bootstrap_capacity(
-        _problem([[100, 50], [0, 200]]),
-        values,
-        np.repeat([0, 1], 5),
-        _solve,
-        replicates=200,
-        level=0.9,
-        seed=1,
+    result = _bootstrap(
+        [[100, 50], [0, 200]], values, np.repeat([0, 1], 5), replicates=200, level=0.9, seed=1
     )
     for days in result.replicate_animal_days.values():
         assert np.ptp(days, axis=0).max() == pytest.approx(0.0, abs=1e-9)
 
 
 def test_one_plot_per_stratum_collapses_to_the_point_estimate():
-    values = np.array([[120.0, 300.0], [80.0, 40.0]])
-    problem = _problem([[100, 50], [0, 200]])
-    result = bootstrap_capacity(
-        problem, values, np.array([0, 1]), _solve, replicates=100, level=0.9, seed=1
-    )
+    values, stratum = np.array([[120.0, 300.0], [80.0, 40.0]]), np.array([0, 1])
+    result = _bootstrap([[100, 50], [0, 200]], values, stratum, replicates=100, level=0.9, seed=1)
+    # The point estimate, built independently: hectares × the single plot of each stratum.
+    hectares = np.array([[100.0, 50.0], [0.0, 200.0]])
     point = replace(
-        problem, available_kg=problem.row_stratum_ha[:, [0, 0, 1, 1]] * values.ravel()[None, :]
+        _problem(hectares, values, stratum),
+        available_kg=hectares[:, [0, 0, 1, 1]] * values.ravel()[None, :],
     )
     lo, hi = result.unit_intervals(1.0)["ncc"]
     np.testing.assert_allclose(lo, _solve(point).ncc.animal_days)
     np.testing.assert_allclose(hi, _solve(point).ncc.animal_days)
 
 
+def test_replicates_equal_hectares_times_resampled_means():
+    rng = np.random.default_rng(3)
+    values, stratum = _plots(rng, 7)
+    hectares = np.array([[100.0, 50.0], [30.0, 200.0]])
+    result = _bootstrap(hectares, values, stratum, replicates=20, level=0.9, seed=9)
+    # Independent route: redraw with the same seed and build each replicate directly.
+    means = resample_stratum_means(values, stratum, 2, 20, np.random.default_rng(9))
+    for b in range(20):
+        direct = replace(
+            _problem(hectares, values, stratum),
+            available_kg=hectares[:, [0, 0, 1, 1]] * means[b].ravel()[None, :],
+        )
+        np.testing.assert_allclose(
+            result.replicate_animal_days["ncc"][b], _solve(direct).ncc.animal_days, rtol=1e-9
+        )
+
+
 def test_interval_shrinks_as_one_over_root_n_when_plots_are_duplicated():
     rng = np.random.default_rng(5)
     values, stratum = _plots(rng, 12)
-    problem = _problem([[100, 50], [30, 200]])
     width = {}
     for copies in (1, 4):
-        result = bootstrap_capacity(
-            problem,
+        result = _bootstrap(
+            [[100, 50], [30, 200]],
             np.repeat(values, copies, axis=0),
             np.repeat(stratum, copies),
-            _solve,
             replicates=4000,
             level=0.9,
             seed=2,
@@ -133,8 +154,8 @@ def test_bootstrap_is_reproducible_with_its_seed():
     rng = np.random.default_rng(8)
     values, stratum = _plots(rng, 6)
     runs = [
-        bootstrap_capacity(
-            _problem([[10, 5], [3, 20]]), values, stratum, _solve, replicates=50, level=0.9, seed=42
+        _bootstrap(
+            [[10, 5], [3, 20]], values, stratum, replicates=50, level=0.9, seed=42
         ).replicate_animal_days["ncc"]
         for _ in range(2)
     ]
