@@ -49,20 +49,37 @@ def package_versions() -> dict[str, str]:
     return found
 
 
+def input_checksums(paths) -> dict[str, dict]:
+    """SHA-256 and size of every existing file among ``paths``, by path (sorted)."""
+    files = sorted({Path(path) for path in paths})
+    return {
+        str(path): {"sha256": sha256_of_file(path), "bytes": path.stat().st_size}
+        for path in files
+        if path.is_file()
+    }
+
+
 def build_manifest(
-    *, command: str, project_path: Path, input_paths: dict[str, Path], settings: dict, derived: dict
+    *,
+    command: str,
+    project_path: Path,
+    input_paths: dict[str, Path],
+    settings: dict,
+    derived: dict,
+    checksums: dict[str, dict] | None = None,
 ) -> dict:
-    """Assemble the manifest dictionary (JSON-serialisable)."""
-    files = {path for path in input_paths.values()} | {project_path}
+    """Assemble the manifest dictionary (JSON-serialisable).
+
+    ``checksums`` (from :func:`input_checksums`) may be computed ahead, e.g. while the
+    estimate runs; otherwise they are computed here.
+    """
+    if checksums is None:
+        checksums = input_checksums([project_path, *input_paths.values()])
     return {
         "command": command,
         "started_utc": dt.datetime.now(dt.UTC).isoformat(timespec="seconds"),
         "project_file": str(project_path),
-        "inputs": {
-            str(path): {"sha256": sha256_of_file(path), "bytes": path.stat().st_size}
-            for path in sorted(files)
-            if path.is_file()
-        },
+        "inputs": checksums,
         "settings": settings,
         "derived": derived,
         "versions": package_versions(),

@@ -405,9 +405,8 @@ def run_estimate(
 ) -> Estimate:
     """Estimate ``project`` and write every output into ``out`` atomically."""
     say = progress or (lambda message: None)
-    out = check_output_folder(
-        out, [project.path, *project.input_paths().values()], overwrite=overwrite
-    )
+    inputs = [project.path, *project.input_paths().values()]
+    out = check_output_folder(out, inputs, overwrite=overwrite)
     result = estimate(project, progress)
     say(f"writing outputs to {out}")
     with staged_folder(out) as staging:

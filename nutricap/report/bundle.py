@@ -35,6 +35,7 @@ def write_estimate(
     *,
     report: bool = True,
     scenario_table: pd.DataFrame | None = None,
+    checksums: dict[str, dict] | None = None,
 ) -> None:
     """Write the tables, the manifest and (unless ``report=False``) the HTML report."""
     config = project.config
@@ -72,6 +73,7 @@ def write_estimate(
             input_paths=project.input_paths(),
             settings=config.model_dump(mode="json"),
             derived=_derived_values(result),
+            checksums=checksums,
         )
         write_json(manifest, folder / "run.json")
         if report:
