@@ -1,5 +1,6 @@
 """Shared fixtures: the invented example landscape, written once per test session."""
 
+import shutil
 from pathlib import Path
 
 import pytest
@@ -18,6 +19,14 @@ def example_project(tmp_path_factory) -> Path:
     """Path of the example project file (inputs invented for the example)."""
     folder = tmp_path_factory.mktemp("example") / "landscape"
     return write_example_landscape(folder)
+
+
+@pytest.fixture()
+def project(example_project, tmp_path) -> Path:
+    """A private copy of the example project, safe to break (inputs invented for the example)."""
+    folder = tmp_path / "inputs"
+    shutil.copytree(example_project.parent, folder)
+    return folder / example_project.name
 
 
 @pytest.fixture(scope="session")

@@ -1,7 +1,6 @@
 """Tests of the command line: exit codes, one-line messages, nothing written on error."""
 
 import re
-import shutil
 
 import geopandas as gpd
 import pandas as pd
@@ -9,14 +8,6 @@ import pytest
 from shapely.affinity import translate
 
 from nutricap.cli import main
-
-
-@pytest.fixture()
-def project(example_project, tmp_path):
-    """A private copy of the example project (inputs invented for the example)."""
-    folder = tmp_path / "inputs"
-    shutil.copytree(example_project.parent, folder)
-    return folder / example_project.name
 
 
 def _run(capsys, *argv):

@@ -8,7 +8,6 @@ staging folder; the previous results must stay byte-identical.
 import hashlib
 import json
 import os
-import shutil
 import signal
 import subprocess
 import sys
@@ -25,14 +24,6 @@ from nutricap.outputs import check_output_folder, recover_interrupted, staged_fo
 KILL_ATTEMPTS = 3
 POLL_S = 0.002
 START_TIMEOUT_S = 120.0
-
-
-@pytest.fixture()
-def project(example_project, tmp_path):
-    """A private copy of the example project (inputs invented for the example)."""
-    folder = tmp_path / "inputs"
-    shutil.copytree(example_project.parent, folder)
-    return folder / example_project.name
 
 
 def _run(capsys, *argv):

@@ -6,7 +6,6 @@ interpolation. The example's responses are invented for the example and are
 never used as check values.
 """
 
-import shutil
 
 import geopandas as gpd
 import numpy as np
@@ -29,13 +28,6 @@ def test_response_interpolation_hand_computed():
     assert float(response_at(years, values, 0, untreated=1.0)) == pytest.approx(2.0)
     assert float(response_at(years, values, 11, untreated=1.0)) == 1.0  # after the last year
     assert float(response_at(years, values, -1, untreated=1.0)) == 1.0  # not yet treated
-
-
-@pytest.fixture()
-def project(example_project, tmp_path):
-    folder = tmp_path / "inputs"
-    shutil.copytree(example_project.parent, folder)
-    return folder / example_project.name
 
 
 def _ncc_change(project_file, scenario):
