@@ -214,9 +214,30 @@ def _print_summary(result, out: Path) -> None:
     print(shown.to_string(index=False, float_format=lambda v: f"{v:,.0f}"))
     ncc, ecc = table["ncc_animals"].sum(), table["ecc_animals"].sum()
     print(f"Total NCC {ncc:,.0f} animals; ECC {ecc:,.0f}.")
+    _print_flags(table)
     for note in result.notes:
         print(f"note: {note}")
+    report = Path(out) / "report.html"
+    if report.exists():
+        print(f"Report: {report}")
     print(f"CAUTION: {CAUTION}")
+
+
+def _print_flags(table) -> None:
+    """One line per unit whose current numbers exceed NCC or over-use a key forage class."""
+    if "current_animals" not in table.columns:
+        return
+    flagged = table[table["overuse"] | table["above_ncc"]]
+    for row in flagged.itertuples():
+        reasons = []
+        if row.above_ncc:
+            reasons.append(f"{row.current_animals:,.0f} animals > NCC {row.ncc_animals:,.0f}")
+        if row.overuse:
+            reasons.append(
+                f"{row.key_class} used {row.key_use_fraction:.0%} > allowable "
+                f"{row.key_allowable_use:.0%}"
+            )
+        print(f"flag: unit {row.unit_id}: " + "; ".join(reasons) + " (advisory)")
 
 
 def main(argv: Sequence[str] | None = None) -> int:

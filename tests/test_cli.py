@@ -49,6 +49,8 @@ def test_check_writes_nothing(project, capsys):
 def test_demo_runs(tmp_path, capsys):
     code, out, _ = _run(capsys, "demo", "--out", tmp_path / "demo", "--quiet")
     assert code == 0
+    # The example's over-stocked unit (invented for the example) is flagged in the summary.
+    assert "flag: unit Petrelhollow" in out and "report.html" in out
     assert (tmp_path / "demo" / "results" / "capacity_by_unit.csv").is_file()
 
 
