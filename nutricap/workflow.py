@@ -52,7 +52,9 @@ from nutricap.scenarios import (
     years_since_latest_treatment,
 )
 from nutricap.science import energetics
+from nutricap.science.population import logistic_trajectory
 from nutricap.sensitivity import input_groups
+from nutricap.trend import TOTAL_LABEL, analyse_series, read_counts, select_series
 from nutricap.uncertainty import (
     BootstrapResult,
     add_intervals,
@@ -63,8 +65,8 @@ from nutricap.uncertainty import (
 if TYPE_CHECKING:
     pass
 
-# Matplotlib (the report) and scipy.stats (the trend) take about a second to import; they are
-# imported in the functions that need them, so a run that needs neither does not pay for them.
+# Matplotlib (the report) takes about half a second to import; it is imported where a report
+# or chart is written (SciPy likewise, inside the science functions that need it).
 
 Progress = Callable[[str], None]
 
@@ -86,6 +88,8 @@ class Estimate:
     season_days: float
     uncertainty: Uncertainty = field(default_factory=lambda: Uncertainty())
     trend: dict | None = None
+    forage_classes: pd.DataFrame | None = None
+    animals: pd.DataFrame | None = None
     notes: list[str] = field(default_factory=list)
     grid: GridResult | None = None
 
@@ -99,6 +103,7 @@ class Inputs:
     animals: pd.DataFrame
     units: gpd.GeoDataFrame
     strata: gpd.GeoDataFrame
+    counts: pd.DataFrame | None = None
 
 
 def estimate(project: Project, progress: Progress | None = None) -> Estimate:
@@ -134,8 +139,10 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     uncertainty = assess_uncertainty(project, inputs, supply, problem, herd, target, say)
     if uncertainty.bootstrap is not None:
         by_unit = add_intervals(by_unit, uncertainty.bootstrap, days)
-    by_unit, use_by_class = assess_current_use(project, areas, problem, by_unit, herd, say)
-    trend = counts_trend(project, say)
+    by_unit, use_by_class = assess_current_use(
+        project, inputs.counts, areas, problem, by_unit, herd, say
+    )
+    trend = counts_trend(project, inputs.counts, say)
     return Estimate(
         by_unit=by_unit,
         use_by_class=use_by_class,
@@ -150,6 +157,8 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
         season_days=days,
         uncertainty=uncertainty,
         trend=trend,
+        forage_classes=inputs.forage_classes,
+        animals=inputs.animals,
         notes=supply_notes(supply, inputs.plots)
         + unreachable_notes(by_unit)
         + (grid.notes if grid is not None else []),
@@ -167,7 +176,9 @@ def read_inputs(project: Project, say: Progress) -> Inputs:
     say("reading layers")
     units = read_units(project.input_path("units"), config.inputs.units_layer)
     strata = read_strata(project.input_path("strata"), config.inputs.strata_layer)
-    return Inputs(forage_classes, plots, animals, units, strata)
+    counts_path = project.input_path("counts")
+    counts = read_counts(counts_path) if counts_path is not None else None
+    return Inputs(forage_classes, plots, animals, units, strata, counts)
 
 
 def build_supply(
@@ -284,6 +295,7 @@ def sensitivity_table(
 
 def assess_current_use(
     project: Project,
+    counts: pd.DataFrame | None,
     areas: StratumAreas,
     problem: CapacityProblem,
     by_unit: pd.DataFrame,
@@ -291,7 +303,7 @@ def assess_current_use(
     say: Progress,
 ) -> tuple[pd.DataFrame, pd.DataFrame | None]:
     """Overuse columns when current numbers are known; the table unchanged otherwise."""
-    current = current_animals(project, areas)
+    current = current_animals(project, counts, areas)
     if current is None:
         return by_unit, None
     say("assessing current use")
@@ -309,16 +321,13 @@ TREND_LEVEL = 0.95
 """Confidence level of the trend figures shown beside the capacity (as `nutricap trend`)."""
 
 
-def counts_trend(project: Project, say: Progress) -> dict | None:
+def counts_trend(project: Project, counts: pd.DataFrame | None, say: Progress) -> dict | None:
     """Trend figures of the project's counts (the total over units), with the fitted curve."""
-    from nutricap.science.population import logistic_trajectory
-    from nutricap.trend import TOTAL_LABEL, analyse_series, read_counts, select_series
-
-    path = project.input_path("counts")
-    if path is None:
+    if counts is None:
         return None
+    path = project.input_path("counts")
     say("population trend of the counts")
-    series = select_series(read_counts(path), path, None)
+    series = select_series(counts, path, None)
     name = TOTAL_LABEL if TOTAL_LABEL in series else next(iter(series))
     frame = series[name]
     figures = analyse_series(frame, TREND_LEVEL)
@@ -337,18 +346,16 @@ def counts_trend(project: Project, say: Progress) -> dict | None:
     return figures
 
 
-def current_animals(project: Project, areas: StratumAreas) -> np.ndarray | None:
+def current_animals(
+    project: Project, counts: pd.DataFrame | None, areas: StratumAreas
+) -> np.ndarray | None:
     """Current animals per unit: the units layer's column, else the latest count, else None."""
     if "current_animals" in areas.units.columns:
         return areas.units["current_animals"].to_numpy(dtype=float)
-    from nutricap.trend import read_counts
-
-    counts_path = project.input_path("counts")
-    if counts_path is None:
+    if counts is None:
         return None
-    latest = current_animals_from_counts(
-        read_counts(counts_path), areas.units["unit_id"].to_numpy()
-    )
+    counts_path = project.input_path("counts")
+    latest = current_animals_from_counts(counts, areas.units["unit_id"].to_numpy())
     missing = np.isnan(latest)
     if missing.all():
         return None

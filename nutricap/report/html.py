@@ -7,8 +7,8 @@ file opens anywhere with no network and no other file. The template is
 ``nutricap/report/templates/report.html.j2`` (Jinja2, autoescaping on).
 
 Nothing here computes capacity: the module arranges and formats the numbers it
-is handed. It reads the project's forage-class and animal-class tables (with the
-same readers as the estimate) only to list every parameter with its provenance.
+is handed, including the forage-class and animal-class tables as the estimate read
+them (to list every parameter with its provenance).
 """
 
 from __future__ import annotations
@@ -29,7 +29,6 @@ import numpy as np
 import pandas as pd
 
 from nutricap.cautions import CAUTION
-from nutricap.inputs import read_animal_classes, read_forage_classes
 from nutricap.report import figures
 from nutricap.science import energetics, forage_quality, population, supply
 from nutricap.trend import TREND_CAUTIONS
@@ -103,8 +102,7 @@ def render_report(
         The HTML text.
     """
     extras = extras or ReportExtras()
-    animals = read_animal_classes(project.input_path("animal_classes"))
-    forage = read_forage_classes(project.input_path("forage_classes"))
+    animals, forage = estimate.animals, estimate.forage_classes
     context = {
         "caution": CAUTION,
         "header": _header(estimate, project, manifest),
