@@ -5,7 +5,6 @@ unit's NCC animal-days from the solver, exactly for the pieces and within the
 rasterisation error for the raster (cells burnt by centre; the grid is 10 m).
 """
 
-import shutil
 
 import numpy as np
 import pandas as pd
@@ -36,10 +35,8 @@ def test_piece_density_conserves_ncc(example_estimate):
     )
 
 
-def test_patch_pooling_density_conserves_ncc(example_project, tmp_path):
-    folder = tmp_path / "inputs"
-    shutil.copytree(example_project.parent, folder)
-    project_file = folder / example_project.name
+def test_patch_pooling_density_conserves_ncc(project):
+    project_file = project
     project_file.write_text(project_file.read_text().replace('mode = "unit"', 'mode = "patch"'))
     result = estimate(load_project(project_file))
     density = piece_density(

@@ -5,7 +5,6 @@ External checks: the bootstrap variance of a sample mean is (n−1)/n · s²/n
 percentile-interval width of a mean shrinks as 1/√n (standard sampling theory).
 """
 
-import shutil
 from dataclasses import replace
 
 import numpy as np
@@ -177,10 +176,8 @@ def test_tornado_table_sorted_by_range():
     assert table.loc[0, "high_change_animals"] == pytest.approx(10.0)
 
 
-def test_example_intervals_bracket_point_and_sensitivity_present(example_project, tmp_path):
-    folder = tmp_path / "inputs"
-    shutil.copytree(example_project.parent, folder)
-    project_file = folder / example_project.name
+def test_example_intervals_bracket_point_and_sensitivity_present(project):
+    project_file = project
     text = project_file.read_text().replace(
         "bootstrap_replicates = 1000", "bootstrap_replicates = 300"
     )

@@ -7,7 +7,6 @@ never the values themselves.
 
 import hashlib
 import json
-import shutil
 
 import geopandas as gpd
 import numpy as np
@@ -58,14 +57,8 @@ def test_eaten_respects_allowable_use(example_estimate):
     assert (table["ncc_eaten_kg"] <= table["available_kg"] + 1e-6).all()
 
 
-def _copy_example(example_project, tmp_path):
-    folder = tmp_path / "inputs"
-    shutil.copytree(example_project.parent, folder)
-    return folder / example_project.name
-
-
-def test_patch_pooling_never_exceeds_unit_pooling(example_project, tmp_path):
-    project_file = _copy_example(example_project, tmp_path)
+def test_patch_pooling_never_exceeds_unit_pooling(project):
+    project_file = project
     unit = estimate(load_project(project_file)).by_unit.set_index("unit_id")
     text = project_file.read_text().replace('mode = "unit"', 'mode = "patch"')
     project_file.write_text(text)
@@ -76,8 +69,8 @@ def test_patch_pooling_never_exceeds_unit_pooling(example_project, tmp_path):
     pd.testing.assert_series_equal(patch["ecc_animal_days"], unit["ecc_animal_days"], rtol=1e-9)
 
 
-def test_row_order_of_plots_does_not_matter(example_project, tmp_path):
-    project_file = _copy_example(example_project, tmp_path)
+def test_row_order_of_plots_does_not_matter(project):
+    project_file = project
     before = estimate(load_project(project_file)).by_unit
     plots = pd.read_csv(project_file.parent / "plots.csv")
     plots.sample(frac=1.0, random_state=3).to_csv(project_file.parent / "plots.csv", index=False)
