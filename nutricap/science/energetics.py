@@ -34,8 +34,7 @@ import pandas as pd
 from numpy.typing import ArrayLike
 
 from nutricap.errors import InputError, TableError
-
-FloatOrArray = float | np.ndarray
+from nutricap.science._checks import FloatOrArray, as_output, checked_array
 
 # --- constants -------------------------------------------------------------------------------
 
@@ -86,54 +85,8 @@ _PACKAGED_TABLE = "nutricap/data/nutritional_states.csv"
 # --- input checks ----------------------------------------------------------------------------
 
 
-def _checked_array(
-    values: ArrayLike,
-    name: str,
-    *,
-    minimum: float | None = None,
-    maximum: float | None = None,
-    minimum_exclusive: bool = False,
-) -> np.ndarray:
-    """Return ``values`` as a float array, or raise InputError naming ``name``.
-
-    Values must be finite and within ``[minimum, maximum]`` (``(minimum, maximum]`` when
-    ``minimum_exclusive``). Shared by the science modules for their public-boundary checks.
-    """
-    try:
-        array = np.asarray(values, dtype=float)
-    except (TypeError, ValueError) as error:
-        raise InputError(f"{name} must be numeric", found=repr(values)) from error
-    bad = ~np.isfinite(array)
-    if minimum is not None:
-        bad |= (array <= minimum) if minimum_exclusive else (array < minimum)
-    if maximum is not None:
-        bad |= array > maximum
-    if np.any(bad):
-        raise InputError(
-            f"{name} is out of range",
-            expected=_range_text(minimum, maximum, minimum_exclusive),
-            found=f"{array[bad].flat[0]:g}",
-        )
-    return array
-
-
-def _range_text(minimum: float | None, maximum: float | None, exclusive: bool) -> str:
-    """Describe the accepted range in words for an error message."""
-    parts = []
-    if minimum is not None:
-        parts.append(f"{'>' if exclusive else '>='} {minimum:g}")
-    if maximum is not None:
-        parts.append(f"<= {maximum:g}")
-    return "a finite number " + " and ".join(parts) if parts else "a finite number"
-
-
-def _as_output(array: np.ndarray) -> FloatOrArray:
-    """Return a Python float for a 0-d result, the array otherwise."""
-    return float(array) if np.ndim(array) == 0 else array
-
-
 def _positive_mass(body_mass_kg: ArrayLike) -> np.ndarray:
-    return _checked_array(body_mass_kg, "body_mass_kg", minimum=0.0, minimum_exclusive=True)
+    return checked_array(body_mass_kg, "body_mass_kg", minimum=0.0, minimum_exclusive=True)
 
 
 # --- metabolism ------------------------------------------------------------------------------
@@ -165,7 +118,7 @@ def metabolic_body_size_kg075(body_mass_kg: ArrayLike) -> FloatOrArray:
     >>> metabolic_body_size_kg075(16.0)
     8.0
     """
-    return _as_output(_positive_mass(body_mass_kg) ** METABOLIC_EXPONENT)
+    return as_output(_positive_mass(body_mass_kg) ** METABOLIC_EXPONENT)
 
 
 def basal_metabolic_rate_kcal_per_day(body_mass_kg: ArrayLike) -> FloatOrArray:
@@ -218,7 +171,7 @@ def metabolizable_energy_from_digestible(de_kcal: ArrayLike) -> FloatOrArray:
     ----------
     National Research Council nutrient-requirement volumes (ME/DE = 0.82).
     """
-    return _as_output(ME_PER_DE * _checked_array(de_kcal, "de_kcal", minimum=0.0))
+    return as_output(ME_PER_DE * checked_array(de_kcal, "de_kcal", minimum=0.0))
 
 
 def digestible_energy_from_metabolizable(me_kcal: ArrayLike) -> FloatOrArray:
@@ -242,7 +195,7 @@ def digestible_energy_from_metabolizable(me_kcal: ArrayLike) -> FloatOrArray:
     ----------
     National Research Council nutrient-requirement volumes (ME/DE = 0.82).
     """
-    return _as_output(_checked_array(me_kcal, "me_kcal", minimum=0.0) / ME_PER_DE)
+    return as_output(checked_array(me_kcal, "me_kcal", minimum=0.0) / ME_PER_DE)
 
 
 # --- parameter table -------------------------------------------------------------------------
@@ -285,7 +238,9 @@ def check_nutritional_states(
     missing = [column for column in STATE_TABLE_COLUMNS if column not in table.columns]
     if missing:
         raise TableError(
-            "missing columns", source=source, expected=", ".join(STATE_TABLE_COLUMNS),
+            "missing columns",
+            source=source,
+            expected=", ".join(STATE_TABLE_COLUMNS),
             found=", ".join(map(str, table.columns)),
         )
     clean = table.copy()
@@ -305,8 +260,11 @@ def _checked_column(table: pd.DataFrame, column: str, source: str) -> pd.Series:
     if bad.any():
         row = int(np.flatnonzero(bad.to_numpy())[0])
         raise TableError(
-            "bad parameter value", source=source, location=f"row {row + 2}, column {column}",
-            expected="a positive number", found=repr(table[column].iloc[row]),
+            "bad parameter value",
+            source=source,
+            location=f"row {row + 2}, column {column}",
+            expected="a positive number",
+            found=repr(table[column].iloc[row]),
         )
     return values
 
@@ -319,14 +277,19 @@ def _check_state_keys(table: pd.DataFrame, source: str) -> None:
             raise TableError("blank state", source=source, location=location)
         if season not in SEASONS:
             raise TableError(
-                "unknown season", source=source, location=f"{location}, column season",
-                expected="one of " + ", ".join(SEASONS), found=repr(season),
+                "unknown season",
+                source=source,
+                location=f"{location}, column season",
+                expected="one of " + ", ".join(SEASONS),
+                found=repr(season),
             )
     duplicated = table.duplicated(["state", "season"])
     if duplicated.any():
         row = int(np.flatnonzero(duplicated.to_numpy())[0])
         raise TableError(
-            "state and season repeat an earlier row", source=source, location=f"row {row + 2}",
+            "state and season repeat an earlier row",
+            source=source,
+            location=f"row {row + 2}",
         )
 
 
@@ -348,9 +311,7 @@ def load_nutritional_states() -> pd.DataFrame:
 NUTRITIONAL_STATES: pd.DataFrame = load_nutritional_states()
 
 
-def state_parameters(
-    state: str, season: str = "any", *, table: pd.DataFrame | None = None
-) -> dict:
+def state_parameters(state: str, season: str = "any", *, table: pd.DataFrame | None = None) -> dict:
     """Look up the parameters of one nutritional state.
 
     Parameters
@@ -398,7 +359,8 @@ def _state_key(state: str, table: pd.DataFrame) -> str:
     if key not in known:
         raise InputError(
             f"unknown nutritional state {state!r}",
-            expected="one of the known states " + ", ".join(known), found=repr(state),
+            expected="one of the known states " + ", ".join(known),
+            found=repr(state),
         )
     return key
 
@@ -407,7 +369,8 @@ def _season_key(season: str) -> str:
     key = _normalise_season(season)
     if key not in SEASONS:
         raise InputError(
-            f"unknown season {season!r}", expected="one of " + ", ".join(SEASONS),
+            f"unknown season {season!r}",
+            expected="one of " + ", ".join(SEASONS),
             found=repr(season),
         )
     return key
@@ -563,10 +526,10 @@ def required_diet_de_kcal_per_g(
     >>> required_diet_de_kcal_per_g(3000.0, 1.25)
     2.4
     """
-    requirement = _checked_array(
+    requirement = checked_array(
         de_requirement_kcal_per_day, "de_requirement_kcal_per_day", minimum=0.0
     )
-    return _as_output(requirement / _intake_grams(intake_kg_per_day))
+    return as_output(requirement / _intake_grams(intake_kg_per_day))
 
 
 def required_diet_dp_pct(
@@ -594,12 +557,12 @@ def required_diet_dp_pct(
     ----------
     Hobbs, N.T. & Swift, D.M. 1985. J. Wildl. Manage. 49:814-822.
     """
-    requirement = _checked_array(dp_requirement_g_per_day, "dp_requirement_g_per_day", minimum=0.0)
-    return _as_output(100.0 * requirement / _intake_grams(intake_kg_per_day))
+    requirement = checked_array(dp_requirement_g_per_day, "dp_requirement_g_per_day", minimum=0.0)
+    return as_output(100.0 * requirement / _intake_grams(intake_kg_per_day))
 
 
 def _intake_grams(intake_kg_per_day: ArrayLike) -> np.ndarray:
-    intake = _checked_array(
+    intake = checked_array(
         intake_kg_per_day, "intake_kg_per_day", minimum=0.0, minimum_exclusive=True
     )
     return 1000.0 * intake
@@ -638,12 +601,10 @@ def animal_unit_equivalent(body_mass_kg: ArrayLike) -> FloatOrArray:
     0.125
     """
     ratio = _positive_mass(body_mass_kg) / ANIMAL_UNIT_BODY_MASS_KG
-    return _as_output(ratio**METABOLIC_EXPONENT)
+    return as_output(ratio**METABOLIC_EXPONENT)
 
 
-def animal_unit_months(
-    animal_days: ArrayLike, animal_unit_equivalent: ArrayLike
-) -> FloatOrArray:
+def animal_unit_months(animal_days: ArrayLike, animal_unit_equivalent: ArrayLike) -> FloatOrArray:
     """Animal-unit months from animal-days.
 
     Parameters
@@ -663,9 +624,9 @@ def animal_unit_months(
     ``AUM = animal_days * AUE / 30`` (one AUM = 30 animal-unit days, i.e. 26 lb x 30 =
     780 lb oven-dry forage; NRCS NRPH, see the module constants for what was read).
     """
-    days = _checked_array(animal_days, "animal_days", minimum=0.0)
-    aue = _checked_array(animal_unit_equivalent, "animal_unit_equivalent", minimum=0.0)
-    return _as_output(days * aue / DAYS_PER_ANIMAL_UNIT_MONTH)
+    days = checked_array(animal_days, "animal_days", minimum=0.0)
+    aue = checked_array(animal_unit_equivalent, "animal_unit_equivalent", minimum=0.0)
+    return as_output(days * aue / DAYS_PER_ANIMAL_UNIT_MONTH)
 
 
 # --- herd average --------------------------------------------------------------------------
@@ -769,11 +730,12 @@ def herd_requirement(
 
 def _share_weights(share: ArrayLike, count: int) -> np.ndarray:
     """Shares normalised to sum 1; InputError for a bad length, a negative or a zero sum."""
-    weights = np.atleast_1d(_checked_array(share, "share", minimum=0.0))
+    weights = np.atleast_1d(checked_array(share, "share", minimum=0.0))
     if weights.shape != (count,):
         raise InputError(
             "share must give one value per animal class",
-            expected=f"{count} values", found=f"{weights.size} values",
+            expected=f"{count} values",
+            found=f"{weights.size} values",
         )
     total = weights.sum()
     if total <= 0.0:
@@ -786,6 +748,7 @@ def _class_states(state: str | Sequence[str], count: int) -> list[str]:
     if len(states) != count:
         raise InputError(
             "state must give one value per animal class",
-            expected=f"{count} values", found=f"{len(states)} values",
+            expected=f"{count} values",
+            found=f"{len(states)} values",
         )
     return states

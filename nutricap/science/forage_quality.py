@@ -16,7 +16,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from nutricap.errors import InputError
-from nutricap.science.energetics import FloatOrArray, _as_output, _checked_array
+from nutricap.science._checks import FloatOrArray, as_output, checked_array
 
 #: Typical gross energy of forage dry matter [kcal/g] (Robbins 1993; from memory: most forages
 #: lie near 4.4-4.5 kcal/g, more for resinous or waxy browse).
@@ -35,7 +35,7 @@ ROBBINS_1987_DP_COEFFICIENTS = {
 
 
 def _percent(values: ArrayLike, name: str) -> np.ndarray:
-    return _checked_array(values, name, minimum=0.0, maximum=100.0)
+    return checked_array(values, name, minimum=0.0, maximum=100.0)
 
 
 def digestible_energy_kcal_per_g(
@@ -70,10 +70,10 @@ def digestible_energy_kcal_per_g(
     2.2
     """
     digestibility = _percent(dmd_pct, "dmd_pct") / 100.0
-    gross = _checked_array(
+    gross = checked_array(
         gross_energy_kcal_per_g, "gross_energy_kcal_per_g", minimum=0.0, minimum_exclusive=True
     )
-    return _as_output(gross * digestibility)
+    return as_output(gross * digestibility)
 
 
 def digestible_protein_pct(
@@ -114,10 +114,10 @@ def digestible_protein_pct(
     5.413
     """
     crude = _percent(cp_pct, "cp_pct")
-    tannin = _checked_array(tannin_bsa_mg_per_mg, "tannin_bsa_mg_per_mg", minimum=0.0)
+    tannin = checked_array(tannin_bsa_mg_per_mg, "tannin_bsa_mg_per_mg", minimum=0.0)
     c = ROBBINS_1987_DP_COEFFICIENTS
     linear = c["intercept_pct"] + c["cp_slope"] * crude + c["bsa_slope_pct_per_mg_per_mg"] * tannin
-    return _as_output(np.maximum(linear, 0.0))
+    return as_output(np.maximum(linear, 0.0))
 
 
 def mixed_diet_quality(eaten_kg: ArrayLike, quality: ArrayLike) -> FloatOrArray:
@@ -151,7 +151,7 @@ def mixed_diet_quality(eaten_kg: ArrayLike, quality: ArrayLike) -> FloatOrArray:
     >>> mixed_diet_quality([1.0, 3.0], [2.0, 3.0])
     2.75
     """
-    mass = np.atleast_1d(_checked_array(eaten_kg, "eaten_kg", minimum=0.0))
+    mass = np.atleast_1d(checked_array(eaten_kg, "eaten_kg", minimum=0.0))
     try:
         value = np.asarray(quality, dtype=float)
     except (TypeError, ValueError) as error:
@@ -173,4 +173,4 @@ def mixed_diet_quality(eaten_kg: ArrayLike, quality: ArrayLike) -> FloatOrArray:
     total = weight.sum(axis=-1)
     weighted = (weight * np.where(eaten, value, 0.0)).sum(axis=-1)
     mean = np.divide(weighted, total, out=np.zeros_like(total), where=total > 0.0)
-    return _as_output(mean)
+    return as_output(mean)
