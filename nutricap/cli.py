@@ -131,28 +131,35 @@ def _add_trend(commands) -> None:
 
 
 def run_estimate_command(args: argparse.Namespace) -> int:
+    from nutricap.manifest import BackgroundChecksums
     from nutricap.project import load_project
-    from nutricap.workflow import run_estimate
 
     progress = StepPrinter(args.quiet)
     project = load_project(args.project)
+    checksums = BackgroundChecksums(project.files())  # while the libraries are imported
+    from nutricap.workflow import run_estimate
+
     result = run_estimate(
         project,
         args.out,
         overwrite=args.overwrite,
         report=not args.no_report,
         progress=progress,
+        checksums=checksums,
     )
     _print_summary(result, args.out)
     return EXIT_OK
 
 
 def run_compare_command(args: argparse.Namespace) -> int:
+    from nutricap.manifest import BackgroundChecksums
     from nutricap.project import load_project
-    from nutricap.workflow import run_compare
 
     progress = StepPrinter(args.quiet)
     project = load_project(args.project)
+    checksums = BackgroundChecksums(project.files())  # while the libraries are imported
+    from nutricap.workflow import run_compare
+
     result, table = run_compare(
         project,
         args.scenario,
@@ -160,6 +167,7 @@ def run_compare_command(args: argparse.Namespace) -> int:
         overwrite=args.overwrite,
         report=not args.no_report,
         progress=progress,
+        checksums=checksums,
     )
     totals = table.groupby("year")[["ncc_animals_baseline", "ncc_animals_scenario"]].sum()
     print(f"Scenario {args.scenario!r}: total NCC by year (baseline → scenario)")

@@ -9,6 +9,7 @@ from __future__ import annotations
 import datetime as dt
 import hashlib
 import platform
+import threading
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 
@@ -26,7 +27,8 @@ PACKAGES = (
     "rasterio",
     "pydantic",
 )
-CHUNK_BYTES = 1 << 20
+CHUNK_BYTES = 8 << 20
+"""Bytes hashed per read (large, so a background hashing thread seldom waits for the GIL)."""
 
 
 def sha256_of_file(path: Path) -> str:
@@ -36,6 +38,35 @@ def sha256_of_file(path: Path) -> str:
         while chunk := stream.read(CHUNK_BYTES):
             digest.update(chunk)
     return digest.hexdigest()
+
+
+class BackgroundChecksums:
+    """:func:`input_checksums` of ``paths``, computed in a background thread from the start.
+
+    Reading files and hashing them release the GIL, so the checksums are computed on a core
+    that is otherwise idle while the interpreter imports the libraries and reads the tables
+    and layers. The thread is a daemon: a run that stops early (bad input) exits at once.
+    """
+
+    def __init__(self, paths) -> None:
+        self.paths = [Path(path) for path in paths]
+        self._result: dict[str, dict] | None = None
+        self._error: BaseException | None = None
+        self._thread = threading.Thread(target=self._run, name="nutricap-checksums", daemon=True)
+        self._thread.start()
+
+    def _run(self) -> None:
+        try:
+            self._result = input_checksums(self.paths)
+        except BaseException as error:  # raised again in the caller's thread by result()
+            self._error = error
+
+    def result(self) -> dict[str, dict]:
+        """The checksums (waits for the thread); an error of the thread is raised here."""
+        self._thread.join()
+        if self._error is not None:
+            raise self._error
+        return self._result
 
 
 def package_versions() -> dict[str, str]:

@@ -189,6 +189,10 @@ class Project:
         found.update({key: (self.folder / path).resolve() for key, path in layers.items()})
         return found
 
+    def files(self) -> list[Path]:
+        """The project file and every input file: what a run reads and its manifest lists."""
+        return [self.path, *self.input_paths().values()]
+
 
 def load_project(path: str | Path) -> Project:
     """Read and validate a project file; raise :class:`ProjectFileError` on any problem."""

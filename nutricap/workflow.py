@@ -27,6 +27,7 @@ from nutricap.landscape.vectors import (
     read_strata,
     read_units,
 )
+from nutricap.manifest import BackgroundChecksums
 from nutricap.outputs import check_output_folder, staged_folder
 from nutricap.problem import (
     CapacityProblem,
@@ -409,15 +410,20 @@ def run_estimate(
     overwrite: bool = False,
     report: bool = True,
     progress: Progress | None = None,
+    checksums: BackgroundChecksums | None = None,
 ) -> Estimate:
-    """Estimate ``project`` and write every output into ``out`` atomically."""
+    """Estimate ``project`` and write every output into ``out`` atomically.
+
+    ``checksums`` of :meth:`Project.files` for the manifest may be started by the caller
+    (as early as possible); otherwise they start here, beside the estimate.
+    """
     say = progress or (lambda message: None)
-    inputs = [project.path, *project.input_paths().values()]
-    out = check_output_folder(out, inputs, overwrite=overwrite)
+    out = check_output_folder(out, project.files(), overwrite=overwrite)
+    checksums = checksums or BackgroundChecksums(project.files())
     result = estimate(project, progress)
     say(f"writing outputs to {out}")
     with staged_folder(out) as staging:
-        write_estimate(result, project, staging, report=report)
+        write_estimate(result, project, staging, report=report, checksums=checksums)
     return result
 
 
@@ -487,16 +493,21 @@ def run_compare(
     overwrite: bool = False,
     report: bool = True,
     progress: Progress | None = None,
+    checksums: BackgroundChecksums | None = None,
 ) -> tuple[Estimate, pd.DataFrame]:
-    """Estimate, run the scenario, and write everything (plus the scenario table and chart)."""
+    """Estimate, run the scenario, and write everything (plus the scenario table and chart).
+
+    ``checksums`` as in :func:`run_estimate`.
+    """
     say = progress or (lambda message: None)
-    out = check_output_folder(
-        out, [project.path, *project.input_paths().values()], overwrite=overwrite
-    )
+    out = check_output_folder(out, project.files(), overwrite=overwrite)
+    checksums = checksums or BackgroundChecksums(project.files())
     result, table = compare(project, scenario_name, progress)
     say(f"writing outputs to {out}")
     with staged_folder(out) as staging:
-        write_estimate(result, project, staging, report=report, scenario_table=table)
+        write_estimate(
+            result, project, staging, report=report, scenario_table=table, checksums=checksums
+        )
         write_csv(table, staging / "scenario_by_unit.csv")
         from nutricap.report.figures import figure_png, scenario_figure
 

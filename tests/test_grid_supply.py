@@ -299,9 +299,11 @@ def _rewrite(folder: Path, name: str, values, **kwargs):
     _write_raster(folder / f"{name}.tif", values.astype(np.float32), **kwargs)
 
 
-def test_snow_removes_everything_when_deeper_than_every_class(tmp_path):
+@pytest.mark.parametrize("cover_all", [True, False], ids=["strata cover all", "strata hole"])
+def test_snow_removes_everything_when_deeper_than_every_class(tmp_path, cover_all):
+    """Only mapped cells (in a unit and a stratum) count, also in the rules report."""
     folder = tmp_path / "inputs"
-    write_landscape(folder)
+    write_landscape(folder, cover_all=cover_all)
     _rewrite(folder, "snow", np.full((ROWS, COLS), 0.0), nodata=-1.0)
     bare = _grid_run(folder, RASTERS, SNOW)
     without_rule = _grid_run(folder, RASTERS)

@@ -67,6 +67,8 @@ Progress = Callable[[str], None]
 DENSITY_NODATA = -9999.0
 COMPRESSION_LEVEL = {"zstd": {"zstd_level": 1}, "deflate": {"zlevel": 1}}
 """Fast levels for capacity_density.tif: float noise compresses little better at high levels."""
+GIL_TURN_S = 0.0002
+"""Longest wait of a thread for the GIL while the density pass runs beside the report [s]."""
 WORKERS = 2  # threads that read and compute windows (the machines in view have 2 cores)
 CHUNK_CELLS = 131_072
 """Cells computed at a time within a window: the arrays of a chunk stay in the CPU cache."""
@@ -178,8 +180,10 @@ class Totals:
 class CellCache:
     """Per-cell results of the first pass, kept in a temporary file for the density pass.
 
-    The file (key int32 + forage of every class float32 per cell) is removed by
-    :meth:`remove`, or when the object is garbage-collected, or at exit.
+    One record per window, in the order of the windows: the key of every cell (int32), then
+    the forage left of each class in every cell (float32, class by class), cells in the
+    window's row-major order. The file is removed by :meth:`remove`, or when the object is
+    garbage-collected, or at exit.
     """
 
     def __init__(self) -> None:
@@ -188,27 +192,28 @@ class CellCache:
         self._finalizer = weakref.finalize(self, shutil.rmtree, self.folder, True)
         self._stream = open(self.path, "wb")  # noqa: SIM115 - closed in finish()
 
-    def append(self, keys: np.ndarray, kg_per_ha: np.ndarray) -> None:
-        self._stream.write(np.ascontiguousarray(keys, dtype=np.int32))
-        self._stream.write(np.ascontiguousarray(kg_per_ha, dtype=np.float32))
+    def append_window(self, chunks: list[tuple[np.ndarray, np.ndarray]]) -> None:
+        """Write one window from its chunks of whole rows, in order: (keys, forage left)."""
+        for keys, _ in chunks:
+            self._stream.write(np.ascontiguousarray(keys, dtype=np.int32))
+        for column in range(chunks[0][1].shape[0]):
+            for _, kg_per_ha in chunks:
+                self._stream.write(np.ascontiguousarray(kg_per_ha[column], dtype=np.float32))
 
     def finish(self) -> None:
         self._stream.close()
 
     def windows(
         self, windows: list[Window], n_classes: int
-    ) -> Iterator[tuple[Window, list[tuple[int, int, np.ndarray, np.ndarray]]]]:
-        """Yield each window with its chunks (rows, keys, forage), in the order written."""
+    ) -> Iterator[tuple[Window, np.ndarray, np.ndarray]]:
+        """Yield each window with its cells' keys (cells,) and forage left (classes, cells)."""
         with open(self.path, "rb") as stream:
             for window in windows:
-                height, width = int(window.height), int(window.width)
-                chunks = []
-                for first, last in chunk_rows(height, width):
-                    n = (last - first) * width
-                    keys = np.frombuffer(stream.read(4 * n), dtype=np.int32)
-                    kg = np.frombuffer(stream.read(4 * n * n_classes), dtype=np.float32)
-                    chunks.append((first, last, keys, kg.reshape(n_classes, n)))
-                yield window, chunks
+                n = int(window.height) * int(window.width)
+                record = stream.read(4 * n * (1 + n_classes))
+                keys = np.frombuffer(record, dtype=np.int32, count=n)
+                kg = np.frombuffer(record, dtype=np.float32, offset=4 * n)
+                yield window, keys, kg.reshape(n_classes, n)
 
     def remove(self) -> None:
         self._finalizer()
@@ -426,8 +431,10 @@ def chunk_sums(setup: GridSetup, data: WindowData) -> WindowSums:
     valid = _valid_cells(setup, data, mapped)
     layout = layout_of(setup)
     stacked = np.empty((layout.rows, units.size), dtype=np.float32)
+    lacking = stacked[layout.nodata]
+    np.greater(mapped, valid, out=lacking)  # mapped without data in some layer
     gross = stacked[layout.gross]
-    calibration_cells = _gross_biomass(setup, data, polygons, valid, gross)
+    calibration_cells = _gross_biomass(setup, data, polygons, valid, lacking > 0, gross)
     outcome = rules_mod.apply_rules(
         gross,
         setup.rules,
@@ -441,7 +448,6 @@ def chunk_sums(setup: GridSetup, data: WindowData) -> WindowSums:
         distance_to_water_m=_layer(data, setup.water_key),
         out=stacked[: layout.rules_end],
     )
-    np.greater(mapped, valid, out=stacked[layout.nodata])  # mapped without data
     run_keys, run_cells, run_sums = _run_sums(key, stacked, data.units.shape)
     cell_keys = np.where(valid, key, setup.dump_key).astype(np.int32)
     cells = [(cell_keys, outcome.available_kg_per_ha)]
@@ -469,24 +475,27 @@ def _layer(data: WindowData, key: str | None) -> np.ndarray | None:
     return None if key is None else data.layers[key][0].ravel()
 
 
-def _gross_biomass(setup: GridSetup, data: WindowData, polygons, valid, gross) -> np.ndarray:
-    """Standing biomass of every class in every cell into ``gross`` [kg/ha], 0 without data.
+def _gross_biomass(setup: GridSetup, data: WindowData, polygons, valid, lacking, gross):
+    """Standing biomass of every class in every cell into ``gross`` [kg/ha].
 
-    Layer values are finite everywhere (see :func:`_valid_cells`). Returns the calibration
-    counts (beyond range, beyond margin, predicted below zero) per calibrated group.
+    Layer values are finite everywhere (see :func:`_valid_cells`). Mapped cells without data
+    in some layer (``lacking``) get 0; cells outside the units or strata keep their values,
+    since their keys are left out of every total and of the density map. Returns the
+    calibration counts (beyond range, beyond margin, predicted below zero) per calibrated
+    group.
     """
-    valid_share = valid.astype(np.float32)
     for column in setup.strata_columns:
-        np.multiply(setup.polygon_biomass[:, column][polygons], valid_share, out=gross[column])
+        np.take(setup.polygon_biomass[:, column], polygons, out=gross[column])
     for column, key in setup.direct.items():
-        np.multiply(data.layers[key][0].ravel(), valid_share, out=gross[column])
+        np.copyto(gross[column], data.layers[key][0].ravel())
     counts = np.zeros((len(setup.calibrated), 3), dtype=np.int64)
     if setup.calibrated:
         index = data.layers[setup.index_key][0].ravel()
         for number, group in enumerate(setup.calibrated):
             predicted, counts[number] = _predict_group(group, index, valid)
-            predicted *= valid_share
             gross[group.class_index] = group.shares[:, None] * predicted[None, :]
+    if lacking.any():
+        gross[:, lacking] = np.float32(0.0)
     return counts
 
 
@@ -570,8 +579,7 @@ def stream_windows(
                 queue.append(pool.submit(work, following))
             totals.add(part)
             if cache is not None:
-                for keys, kg_per_ha in part.cells:
-                    cache.append(keys, kg_per_ha)
+                cache.append_window(part.cells)
             bar.update()
     bar.close()
 
@@ -780,7 +788,7 @@ def _assemble(
     items = build_forage_items(full_supply, forage_classes)
     problem, row_of_key = _problem(units_table, available_kg, mapped_ha, items, mode)
     areas = _areas(units_table, full_supply.strata, mapped_ha, accessible_ha, crs_reason)
-    report = _rules_report(units_table, setup.rules, sums, layout, cell_ha)
+    report = _rules_report(units_table, setup.rules, sums[:, :n_strata], layout, cell_ha)
     calibration = _calibration_report(
         calibration_report, totals.calibration_cells, cell_ha, project
     )
@@ -997,11 +1005,18 @@ def density_coefficients(
 
 
 def _density(keys: np.ndarray, kg_per_ha: np.ndarray, per_class: np.ndarray, dump: int):
-    """Animal-days per ha of each cell: Σ_c kg_c × coefficient[key, c]; nodata at ``dump``."""
+    """Animal-days per ha of each cell: Σ_c kg_c × coefficient[key, c]; nodata at ``dump``.
+
+    Whole windows at a time, so that the thread computing it seldom needs the GIL (the
+    report is drawn in the main thread meanwhile).
+    """
     index = keys.astype(np.intp)
     density = np.zeros(keys.size, dtype=np.float32)
+    term = np.empty(keys.size, dtype=np.float32)
     for column in range(per_class.shape[0]):
-        density += kg_per_ha[column] * np.take(per_class[column], index)
+        np.take(per_class[column], index, out=term)
+        term *= kg_per_ha[column]
+        density += term
     density[index == dump] = DENSITY_NODATA
     return density
 
@@ -1062,10 +1077,9 @@ def write_capacity_density(
         dst.update_tags(units="animal-days per hectare (NCC)")
         with ThreadPoolExecutor(max_workers=1) as writer:  # compresses while the next is computed
             pending = None
-            for window, chunks in result.cache.windows(result.windows, n_classes):
-                density = np.empty((int(window.height), int(window.width)), dtype=np.float32)
-                for first, last, keys, kg in chunks:
-                    density[first:last].flat = _density(keys, kg, per_class, dump)
+            for window, keys, kg in result.cache.windows(result.windows, n_classes):
+                density = _density(keys, kg, per_class, dump)
+                density = density.reshape(int(window.height), int(window.width))
                 if pending is not None:
                     pending.result()
                 pending = writer.submit(write, window, density)
@@ -1091,7 +1105,7 @@ def grid_outputs_alongside(
     if result is None:
         yield
         return
-    with ThreadPoolExecutor(max_workers=1) as pool:
+    with _short_gil_turns(), ThreadPoolExecutor(max_workers=1) as pool:
         writing = pool.submit(
             write_grid_outputs, result, problem, eaten_kg, intake_kg_per_day, folder
         )
@@ -1101,6 +1115,22 @@ def grid_outputs_alongside(
             wait([writing])
             raise
         writing.result()
+
+
+@contextmanager
+def _short_gil_turns(seconds: float = GIL_TURN_S) -> Iterator[None]:
+    """Let a waiting thread take the GIL after ``seconds`` instead of Python's 5 ms default.
+
+    The main thread draws the report (Python code that holds the GIL) while the density pass
+    runs numpy calls that each need the GIL briefly; with 5 ms turns the density thread spends
+    most of its time waiting for them.
+    """
+    before = sys.getswitchinterval()
+    sys.setswitchinterval(seconds)
+    try:
+        yield
+    finally:
+        sys.setswitchinterval(before)
 
 
 def write_grid_outputs(

@@ -303,8 +303,10 @@ class GridLayer:
     def _check_range(self, part: np.ndarray, ok: np.ndarray, inner: Window) -> None:
         """Refuse a value outside the layer's possible range, naming the first such cell."""
         spec = self.spec
-        if spec.minimum is None:
+        if spec.minimum is None or part.size == 0:
             return
+        if part.min() >= spec.minimum and part.max() <= spec.maximum:
+            return  # every value in range, nodata included (no masked pass needed)
         low, high = part.min(initial=np.inf, where=ok), part.max(initial=-np.inf, where=ok)
         if low >= spec.minimum and high <= spec.maximum:
             return

@@ -14,7 +14,7 @@ import pandas as pd
 
 from nutricap.landscape.density import piece_density, write_piece_density
 from nutricap.landscape.grid_supply import grid_outputs_alongside
-from nutricap.manifest import build_manifest
+from nutricap.manifest import BackgroundChecksums, build_manifest
 from nutricap.project import Project
 from nutricap.report.tables import markdown_table, write_csv, write_geopackage, write_json
 from nutricap.requirements import DietTarget
@@ -35,9 +35,12 @@ def write_estimate(
     *,
     report: bool = True,
     scenario_table: pd.DataFrame | None = None,
-    checksums: dict[str, dict] | None = None,
+    checksums: BackgroundChecksums | None = None,
 ) -> None:
-    """Write the tables, the manifest and (unless ``report=False``) the HTML report."""
+    """Write the tables, the manifest and (unless ``report=False``) the HTML report.
+
+    ``checksums`` of the inputs, when started ahead; otherwise computed here.
+    """
     config = project.config
     totals = totals_table(result)
     write_csv(result.by_unit, folder / "capacity_by_unit.csv")
@@ -73,7 +76,7 @@ def write_estimate(
             input_paths=project.input_paths(),
             settings=config.model_dump(mode="json"),
             derived=_derived_values(result),
-            checksums=checksums,
+            checksums=None if checksums is None else checksums.result(),
         )
         write_json(manifest, folder / "run.json")
         if report:
