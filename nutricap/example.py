@@ -49,8 +49,15 @@ STOCKING_FACTOR = {
 # ``dmd_pct`` is given instead. ``tannin`` in mg bovine serum albumin precipitated per mg
 # forage.
 FORAGE_CLASS_COLUMNS = (
-    "forage_class", "growth_form", "de_kcal_per_g", "dmd_pct", "cp_pct",
-    "allowable_use", "key", "height_cm", "tannin",
+    "forage_class",
+    "growth_form",
+    "de_kcal_per_g",
+    "dmd_pct",
+    "cp_pct",
+    "allowable_use",
+    "key",
+    "height_cm",
+    "tannin",
 )
 FORAGE_CLASSES = (
     ("big_sagebrush", "browse", 2.75, np.nan, 10.5, 0.50, True, 60.0, 0.01),
@@ -69,51 +76,79 @@ FORAGE_CLASSES = (
 # Mean winter standing crop by stratum and forage class [kg/ha], invented for the example.
 STRATUM_MIX_KG_PER_HA = {
     "sagebrush_steppe": {
-        "big_sagebrush": 120, "bitterbrush": 35, "rabbitbrush": 45, "cheatgrass": 80,
-        "bluebunch_wheatgrass": 90, "sandberg_bluegrass": 45, "winter_forbs": 15,
+        "big_sagebrush": 120,
+        "bitterbrush": 35,
+        "rabbitbrush": 45,
+        "cheatgrass": 80,
+        "bluebunch_wheatgrass": 90,
+        "sandberg_bluegrass": 45,
+        "winter_forbs": 15,
     },
     "mountain_shrub": {
-        "bitterbrush": 90, "mountain_mahogany": 100, "serviceberry": 80,
-        "big_sagebrush": 50, "bluebunch_wheatgrass": 70, "winter_forbs": 20,
+        "bitterbrush": 90,
+        "mountain_mahogany": 100,
+        "serviceberry": 80,
+        "big_sagebrush": 50,
+        "bluebunch_wheatgrass": 70,
+        "winter_forbs": 20,
     },
     "juniper_woodland": {
-        "juniper": 220, "big_sagebrush": 40, "mountain_mahogany": 30, "cheatgrass": 70,
+        "juniper": 220,
+        "big_sagebrush": 40,
+        "mountain_mahogany": 30,
+        "cheatgrass": 70,
         "sandberg_bluegrass": 30,
     },
     "aspen": {
-        "aspen_twigs": 130, "serviceberry": 70, "winter_forbs": 40, "bluebunch_wheatgrass": 60,
+        "aspen_twigs": 130,
+        "serviceberry": 70,
+        "winter_forbs": 40,
+        "bluebunch_wheatgrass": 60,
     },
     "grass_meadow": {
-        "bluebunch_wheatgrass": 320, "sandberg_bluegrass": 140, "winter_forbs": 60,
+        "bluebunch_wheatgrass": 320,
+        "sandberg_bluegrass": 140,
+        "winter_forbs": 60,
         "cheatgrass": 50,
     },
     "burned_shrub": {
-        "cheatgrass": 380, "rabbitbrush": 60, "sandberg_bluegrass": 80, "winter_forbs": 45,
+        "cheatgrass": 380,
+        "rabbitbrush": 60,
+        "sandberg_bluegrass": 80,
+        "winter_forbs": 45,
         "bitterbrush": 12,
     },
 }
 STRATA = tuple(STRATUM_MIX_KG_PER_HA)
 # Probability of each stratum in the low, middle and high third of the terrain index.
-STRATUM_PROBABILITY = np.array([
-    # sage  mshrub  juniper  aspen  meadow  burned
-    [0.50, 0.00, 0.10, 0.00, 0.15, 0.25],
-    [0.30, 0.25, 0.35, 0.00, 0.00, 0.10],
-    [0.00, 0.45, 0.10, 0.30, 0.15, 0.00],
-])
+STRATUM_PROBABILITY = np.array(
+    [
+        # sage  mshrub  juniper  aspen  meadow  burned
+        [0.50, 0.00, 0.10, 0.00, 0.15, 0.25],
+        [0.30, 0.25, 0.35, 0.00, 0.00, 0.10],
+        [0.00, 0.45, 0.10, 0.30, 0.15, 0.00],
+    ]
+)
 PLOTS_PER_STRATUM = {
-    "sagebrush_steppe": 80, "mountain_shrub": 60, "juniper_woodland": 50,
-    "aspen": 30, "grass_meadow": 35, "burned_shrub": 45,
+    "sagebrush_steppe": 80,
+    "mountain_shrub": 60,
+    "juniper_woodland": 50,
+    "aspen": 30,
+    "grass_meadow": 35,
+    "burned_shrub": 45,
 }
 FRAME_AREA_M2 = {"grass_meadow": 0.25, "burned_shrub": 0.25}  # others: 1.0 m2
 PRESENCE_PROBABILITY = 0.85
 BIOMASS_LOG_SD = 0.6
 
-ANIMAL_CLASSES = pd.DataFrame({
-    "animal_class": ["adult_female", "fawn", "adult_male"],
-    "body_mass_kg": [65.0, 35.0, 80.0],
-    "share": [0.6, 0.3, 0.1],
-    "state": ["gestation", "growth", "maintenance"],
-})
+ANIMAL_CLASSES = pd.DataFrame(
+    {
+        "animal_class": ["adult_female", "fawn", "adult_male"],
+        "body_mass_kg": [65.0, 35.0, 80.0],
+        "share": [0.6, 0.3, 0.1],
+        "state": ["gestation", "growth", "maintenance"],
+    }
+)
 # Daily dry-matter intake of an average deer, used only to size the invented herds
 # [kg/day] (common practice: about 2.5 % of a 65-kg doe's body mass).
 HERD_SIZING_INTAKE_KG_PER_DAY = 1.6
@@ -208,8 +243,11 @@ def make_strata(rng: np.random.Generator) -> gpd.GeoDataFrame:
     A rock outcrop is cut out and left unmapped; a few steep high cells get an
     ``accessible_fraction`` below 1.
     """
-    seeds = rng.uniform([ORIGIN_X_M, ORIGIN_Y_M], [ORIGIN_X_M + WIDTH_M, ORIGIN_Y_M + HEIGHT_M],
-                        size=(N_STRATA_CELLS, 2))
+    seeds = rng.uniform(
+        [ORIGIN_X_M, ORIGIN_Y_M],
+        [ORIGIN_X_M + WIDTH_M, ORIGIN_Y_M + HEIGHT_M],
+        size=(N_STRATA_CELLS, 2),
+    )
     index = terrain_index(seeds, rng)
     band = np.minimum((index * 3).astype(int), 2)
     strata = [STRATA[rng.choice(len(STRATA), p=STRATUM_PROBABILITY[b])] for b in band]
@@ -270,11 +308,16 @@ def usable_forage_kg(units: gpd.GeoDataFrame, strata: gpd.GeoDataFrame) -> pd.Se
     Σ over classes of mean standing crop × ``allowable_use`` [kg].
     """
     use = make_forage_classes().set_index("forage_class")["allowable_use"]
-    usable_kg_ha = {s: sum(m * use[c] for c, m in mix.items())
-                    for s, mix in STRATUM_MIX_KG_PER_HA.items()}
+    usable_kg_ha = {
+        s: sum(m * use[c] for c, m in mix.items()) for s, mix in STRATUM_MIX_KG_PER_HA.items()
+    }
     pieces = gpd.overlay(units, strata, how="intersection", keep_geom_type=True)
-    kg = (pieces.geometry.area / 1e4 * pieces["accessible_fraction"]
-          * pieces["stratum"].map(usable_kg_ha))
+    kg = (
+        pieces.geometry.area
+        / 1e4
+        * pieces["accessible_fraction"]
+        * pieces["stratum"].map(usable_kg_ha)
+    )
     return kg.groupby(pieces["unit_id"]).sum().reindex(units["unit_id"])
 
 
@@ -306,8 +349,13 @@ def make_counts(rng: np.random.Generator, units: gpd.GeoDataFrame) -> pd.DataFra
 # pattern (browse and herbs rising for some years after juniper removal; sagebrush killed
 # and herbs flushing after fire) follows published reviews from memory, not their numbers.
 RESPONSE_COLUMNS = (
-    "treatment", "forage_class", "growth_form", "years_since",
-    "biomass_multiplier", "de_shift_kcal_per_g", "cp_shift_pct",
+    "treatment",
+    "forage_class",
+    "growth_form",
+    "years_since",
+    "biomass_multiplier",
+    "de_shift_kcal_per_g",
+    "cp_shift_pct",
 )
 RESPONSES = (
     ("thinning", "juniper", "", 0, 0.1, 0.0, 0.0),
@@ -350,8 +398,9 @@ last_year = 2042
 """
 
 
-def make_treatments(strata: gpd.GeoDataFrame, stratum: str, count: int, inset_m: float,
-                    treatment: str, year: int) -> gpd.GeoDataFrame:
+def make_treatments(
+    strata: gpd.GeoDataFrame, stratum: str, count: int, inset_m: float, treatment: str, year: int
+) -> gpd.GeoDataFrame:
     """Treatment polygons: the ``count`` largest polygons of ``stratum``, inset by ``inset_m``."""
     stands = strata[strata["stratum"] == stratum]
     largest = stands.loc[stands.geometry.area.sort_values(ascending=False).index[:count]]
@@ -391,8 +440,10 @@ def write_example_landscape(folder: Path, seed: int = SEED) -> Path:
     thinning = make_treatments(strata, "juniper_woodland", 3, 100.0, "thinning", 2027)
     burn = make_treatments(strata, "sagebrush_steppe", 2, 150.0, "prescribed_burn", 2028)
     layers = (
-        (units, "units"), (strata, "strata"),
-        (thinning, "treatments_thinning"), (burn, "treatments_burn"),
+        (units, "units"),
+        (strata, "strata"),
+        (thinning, "treatments_thinning"),
+        (burn, "treatments_burn"),
     )
     for frame, name in layers:
         path = folder / f"{name}.gpkg"

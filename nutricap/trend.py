@@ -34,8 +34,12 @@ COUNT_COLUMNS = [
     Column("unit_id", "text", required=False, meaning="management unit the count belongs to"),
     Column("year", meaning="calendar year of the count, a whole number such as 2019"),
     Column("count", above=0, meaning="animals counted (or a count index) that year, > 0"),
-    Column("removals", required=False, minimum=0,
-           meaning="animals removed after that year's count and before the next; 0 when none"),
+    Column(
+        "removals",
+        required=False,
+        minimum=0,
+        meaning="animals removed after that year's count and before the next; 0 when none",
+    ),
 ]
 
 TREND_CAUTIONS = (
@@ -55,30 +59,46 @@ ROW_CONVENTION = "rows are spreadsheet rows: the header is row 1, the first data
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     """Add the ``trend`` command's arguments to ``parser``."""
-    parser.add_argument("counts", type=Path,
-                        help="counts CSV with columns year, count (optional unit_id, removals)")
-    parser.add_argument("--unit", metavar="ID",
-                        help="analyse this unit only (default: each unit and their total)")
-    parser.add_argument("--project", metavar="PROJECT.toml", type=Path,
-                        help="set the figures beside the NCC and ECC estimated for this project")
+    parser.add_argument(
+        "counts", type=Path, help="counts CSV with columns year, count (optional unit_id, removals)"
+    )
+    parser.add_argument(
+        "--unit", metavar="ID", help="analyse this unit only (default: each unit and their total)"
+    )
+    parser.add_argument(
+        "--project",
+        metavar="PROJECT.toml",
+        type=Path,
+        help="set the figures beside the NCC and ECC estimated for this project",
+    )
     parser.add_argument("--json", action="store_true", help="print one JSON object, not text")
-    parser.add_argument("--out", metavar="DIR", type=Path,
-                        help=f"also write {JSON_NAME} into DIR (never an input folder)")
-    parser.add_argument("--level", type=float, default=0.95,
-                        help="confidence level of the intervals (default 0.95)")
+    parser.add_argument(
+        "--out",
+        metavar="DIR",
+        type=Path,
+        help=f"also write {JSON_NAME} into DIR (never an input folder)",
+    )
+    parser.add_argument(
+        "--level", type=float, default=0.95, help="confidence level of the intervals (default 0.95)"
+    )
     shown = parser.epilog or ""
     notes = [ROW_CONVENTION[0].upper() + ROW_CONVENTION[1:] + "."]
     notes += [caution for caution in TREND_CAUTIONS if caution not in shown]
-    text = "\n".join(textwrap.fill(note, 88, initial_indent="- ", subsequent_indent="  ")
-                     for note in notes)
+    text = "\n".join(
+        textwrap.fill(note, 88, initial_indent="- ", subsequent_indent="  ") for note in notes
+    )
     parser.epilog = f"{shown}\n\n{text}" if shown else text
 
 
 def run(args: argparse.Namespace) -> int:
     """Run the ``trend`` command; return 0, raise :class:`InputError` on bad input."""
     if not 0.0 < args.level < 1.0:
-        raise InputError("confidence level out of range", source="--level",
-                         expected="a number between 0 and 1, e.g. 0.95", found=repr(args.level))
+        raise InputError(
+            "confidence level out of range",
+            source="--level",
+            expected="a number between 0 and 1, e.g. 0.95",
+            found=repr(args.level),
+        )
     counts_path = Path(args.counts)
     table = read_counts(counts_path)
     series = select_series(table, counts_path, args.unit)
@@ -110,8 +130,12 @@ def read_counts(path: Path) -> pd.DataFrame:
     """
     table = read_csv_table(path, COUNT_COLUMNS, what="counts table")
     if table.empty:
-        raise TableError("counts table has no data rows", source=path,
-                         expected="one row per year counted", found="only a header")
+        raise TableError(
+            "counts table has no data rows",
+            source=path,
+            expected="one row per year counted",
+            found="only a header",
+        )
     table["row"] = [spreadsheet_row(index) for index in range(len(table))]
     _check_whole_years(table, path)
     if "unit_id" not in table.columns:
@@ -127,9 +151,13 @@ def _check_whole_years(table: pd.DataFrame, path: Path) -> None:
     fractional = years != np.round(years)
     if fractional.any():
         index = int(np.flatnonzero(fractional)[0])
-        raise TableError("year is not a whole number", source=path,
-                         location=f"row {table['row'].iloc[index]}, column 'year'",
-                         expected="a calendar year such as 2019", found=repr(float(years[index])))
+        raise TableError(
+            "year is not a whole number",
+            source=path,
+            location=f"row {table['row'].iloc[index]}, column 'year'",
+            expected="a calendar year such as 2019",
+            found=repr(float(years[index])),
+        )
     table["year"] = years.astype(int)
 
 
@@ -140,9 +168,11 @@ def _check_one_count_per_year(table: pd.DataFrame, path: Path) -> None:
         same = table[(table["unit_id"] == second["unit_id"]) & (table["year"] == second["year"])]
         unit = f" for unit {second['unit_id']!r}" if second["unit_id"] else ""
         raise TableError(
-            f"year {int(second['year'])} appears twice{unit}", source=path,
+            f"year {int(second['year'])} appears twice{unit}",
+            source=path,
             location=f"rows {int(same['row'].iloc[0])} and {int(second['row'])}, column 'year'",
-            expected="one count per unit and year", found="two rows",
+            expected="one count per unit and year",
+            found="two rows",
         )
 
 
@@ -156,29 +186,42 @@ def select_series(table: pd.DataFrame, path: Path, unit: str | None) -> dict[str
         return {unit or TOTAL_LABEL: _checked_length(table, path, "the file")}
     units = list(dict.fromkeys(table["unit_id"]))
     if TOTAL_LABEL in units and len(units) > 1:
-        raise TableError(f"unit id {TOTAL_LABEL!r} is kept for the sum over units", source=path,
-                         location="column 'unit_id'", expected="another unit id",
-                         found=repr(TOTAL_LABEL))
+        raise TableError(
+            f"unit id {TOTAL_LABEL!r} is kept for the sum over units",
+            source=path,
+            location="column 'unit_id'",
+            expected="another unit id",
+            found=repr(TOTAL_LABEL),
+        )
     if unit is not None:
         if unit not in units:
-            raise TableError(f"unit {unit!r} is not in the counts table", source=path,
-                             location="column 'unit_id'", expected="one of " + ", ".join(units),
-                             found=repr(unit))
+            raise TableError(
+                f"unit {unit!r} is not in the counts table",
+                source=path,
+                location="column 'unit_id'",
+                expected="one of " + ", ".join(units),
+                found=repr(unit),
+            )
         units = [unit]
     series = {
         name: _checked_length(table[table["unit_id"] == name], path, f"unit {name!r}")
         for name in units
     }
     if len(series) > 1:
-        series[TOTAL_LABEL] = _checked_length(_total(table), path, "the total over units "
-                                              "(years in which every unit was counted)")
+        series[TOTAL_LABEL] = _checked_length(
+            _total(table), path, "the total over units (years in which every unit was counted)"
+        )
     return series
 
 
 def _total(table: pd.DataFrame) -> pd.DataFrame:
     n_units = table["unit_id"].nunique()
-    grouped = table.groupby("year").agg(count=("count", "sum"), removals=("removals", "sum"),
-                                        units=("unit_id", "nunique"), row=("row", "min"))
+    grouped = table.groupby("year").agg(
+        count=("count", "sum"),
+        removals=("removals", "sum"),
+        units=("unit_id", "nunique"),
+        row=("row", "min"),
+    )
     complete = grouped[grouped["units"] == n_units].reset_index()
     complete["unit_id"] = TOTAL_LABEL
     if table["removals"].isna().all():
@@ -191,9 +234,11 @@ def _checked_length(frame: pd.DataFrame, path: Path, what: str) -> pd.DataFrame:
     if len(frame) < population.MIN_COUNTS_TREND:
         years = ", ".join(str(year) for year in frame["year"]) or "none"
         raise TableError(
-            f"too few counts for a trend in {what}", source=path, location="column 'count'",
+            f"too few counts for a trend in {what}",
+            source=path,
+            location="column 'count'",
             expected=f"at least {population.MIN_COUNTS_TREND} yearly counts "
-                     f"({population.MIN_COUNTS_LOGISTIC} for the logistic fit)",
+            f"({population.MIN_COUNTS_LOGISTIC} for the logistic fit)",
             found=f"{len(frame)} (years {years})",
         )
     return frame.reset_index(drop=True)
@@ -217,10 +262,15 @@ def analyse_series(frame: pd.DataFrame, level: float) -> dict:
         "latest_year": int(years[-1]),
         "latest_count": float(counts[-1]),
         "intervals": [
-            {"from_year": int(a), "to_year": int(b), "lambda_per_year": float(x),
-             "r_per_year": float(r)}
-            for a, b, x, r in zip(years[:-1], years[1:], lam,
-                                  population.exponential_rate(lam), strict=True)
+            {
+                "from_year": int(a),
+                "to_year": int(b),
+                "lambda_per_year": float(x),
+                "r_per_year": float(r),
+            }
+            for a, b, x, r in zip(
+                years[:-1], years[1:], lam, population.exponential_rate(lam), strict=True
+            )
         ],
         "r_mean": growth.r_mean,
         "r_ci": list(growth.r_ci),
@@ -233,11 +283,22 @@ def analyse_series(frame: pd.DataFrame, level: float) -> dict:
 
 def _logistic_figures(years, counts, removals, level) -> dict:
     if counts.size < population.MIN_COUNTS_LOGISTIC:
-        reason = (f"logistic not fitted: at least {population.MIN_COUNTS_LOGISTIC} counts are "
-                  f"needed, found {counts.size}")
-        return {"K": None, "K_ci": None, "r_max": None, "r_max_ci": None,
-                "ceiling_evidence": False, "ceiling_reason": reason, "logistic_method": None,
-                "msy_level": None, "msy_yield": None, "phase": None}
+        reason = (
+            f"logistic not fitted: at least {population.MIN_COUNTS_LOGISTIC} counts are "
+            f"needed, found {counts.size}"
+        )
+        return {
+            "K": None,
+            "K_ci": None,
+            "r_max": None,
+            "r_max_ci": None,
+            "ceiling_evidence": False,
+            "ceiling_reason": reason,
+            "logistic_method": None,
+            "msy_level": None,
+            "msy_yield": None,
+            "phase": None,
+        }
     fit = population.fit_logistic(years, counts, removals=removals, level=level)
     ceiling = fit.K is not None
     return {
@@ -288,10 +349,13 @@ def _add_capacity(result: dict, capacity: pd.DataFrame, source: Path) -> None:
 def _rows(capacity: pd.DataFrame, units: list[str], source: Path) -> pd.DataFrame:
     missing = [name for name in units if name not in capacity.index]
     if missing:
-        raise InputError(f"unit {missing[0]!r} of the counts is not in the capacity estimate",
-                         source=source, location="units layer, column 'unit_id'",
-                         expected="one of " + ", ".join(capacity.index),
-                         found=repr(missing[0]))
+        raise InputError(
+            f"unit {missing[0]!r} of the counts is not in the capacity estimate",
+            source=source,
+            location="units layer, column 'unit_id'",
+            expected="one of " + ", ".join(capacity.index),
+            found=repr(missing[0]),
+        )
     return capacity.loc[units]
 
 
@@ -330,15 +394,18 @@ def build_payload(result: dict, counts_path: Path, level: float) -> dict:
     main = TOTAL_LABEL if TOTAL_LABEL in result and len(result) > 1 else next(iter(result))
     payload = {"series": main, **result[main]}
     if len(result) > 1:
-        payload["units"] = {label: figures for label, figures in result.items()
-                            if label != TOTAL_LABEL}
-    payload.update({
-        "level": level,
-        "counts_file": str(counts_path),
-        "counts_sha256": sha256_of_file(counts_path),
-        "versions": package_versions(),
-        "cautions": list(TREND_CAUTIONS),
-    })
+        payload["units"] = {
+            label: figures for label, figures in result.items() if label != TOTAL_LABEL
+        }
+    payload.update(
+        {
+            "level": level,
+            "counts_file": str(counts_path),
+            "counts_sha256": sha256_of_file(counts_path),
+            "versions": package_versions(),
+            "cautions": list(TREND_CAUTIONS),
+        }
+    )
     return _json_ready(payload)
 
 
@@ -357,8 +424,9 @@ def _json_ready(value):
 def _write_atomically(target: Path, text: str) -> None:
     """Write ``text`` to a temporary file beside ``target``, then move it into place."""
     target.parent.mkdir(parents=True, exist_ok=True)
-    handle, temporary = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".partial",
-                                         dir=target.parent)
+    handle, temporary = tempfile.mkstemp(
+        prefix=f".{target.name}.", suffix=".partial", dir=target.parent
+    )
     try:
         with os.fdopen(handle, "w", encoding="utf-8") as stream:
             stream.write(text)
@@ -389,14 +457,21 @@ def format_text(payload: dict) -> str:
 
 def _series_lines(label: str, f: dict, level: float) -> list[str]:
     pct = f"{100 * level:g}%"
-    lines = [f"Series: {label}, {f['years'][0]}–{f['latest_year']}, {len(f['years'])} counts; "
-             f"latest count {_animals(f['latest_count'])} ({f['latest_year']})",
-             "  interval     λ per year   r per year"]
-    lines += [f"  {i['from_year']}–{i['to_year']}    {i['lambda_per_year']:8.3f}   "
-              f"{i['r_per_year']:+9.3f}" for i in f["intervals"]]
-    lines.append(f"  mean r = {f['r_mean']:+.3f} per year ({pct} interval {f['r_ci'][0]:+.3f} to "
-                 f"{f['r_ci'][1]:+.3f}); λ = {f['lambda_mean']:.3f} ({f['lambda_ci'][0]:.3f} to "
-                 f"{f['lambda_ci'][1]:.3f})")
+    lines = [
+        f"Series: {label}, {f['years'][0]}–{f['latest_year']}, {len(f['years'])} counts; "
+        f"latest count {_animals(f['latest_count'])} ({f['latest_year']})",
+        "  interval     λ per year   r per year",
+    ]
+    lines += [
+        f"  {i['from_year']}–{i['to_year']}    {i['lambda_per_year']:8.3f}   "
+        f"{i['r_per_year']:+9.3f}"
+        for i in f["intervals"]
+    ]
+    lines.append(
+        f"  mean r = {f['r_mean']:+.3f} per year ({pct} interval {f['r_ci'][0]:+.3f} to "
+        f"{f['r_ci'][1]:+.3f}); λ = {f['lambda_mean']:.3f} ({f['lambda_ci'][0]:.3f} to "
+        f"{f['lambda_ci'][1]:.3f})"
+    )
     lines += _logistic_lines(f, pct)
     if "capacity" in f:
         lines += _capacity_lines(f["capacity"])
@@ -406,12 +481,15 @@ def _series_lines(label: str, f: dict, level: float) -> list[str]:
 def _logistic_lines(f: dict, pct: str) -> list[str]:
     if f["r_max"] is None:
         return [f"  logistic: {f['ceiling_reason']}"]
-    r_ci = (f" ({f['r_max_ci'][0]:.3f} to {f['r_max_ci'][1]:.3f})"
-            if f["r_max_ci"] is not None else "")
+    r_ci = (
+        f" ({f['r_max_ci'][0]:.3f} to {f['r_max_ci'][1]:.3f})" if f["r_max_ci"] is not None else ""
+    )
     if f["K"] is None:
-        return [f"  logistic: K = none; {f['ceiling_reason']}",
-                f"  r_max = {f['r_max']:.3f} per year{r_ci} (growth at the densities seen); "
-                "K/2 and the sustained yield are not given without a ceiling"]
+        return [
+            f"  logistic: K = none; {f['ceiling_reason']}",
+            f"  r_max = {f['r_max']:.3f} per year{r_ci} (growth at the densities seen); "
+            "K/2 and the sustained yield are not given without a ceiling",
+        ]
     return [
         f"  logistic: K = {_animals(f['K'])} animals ({pct} interval {_animals(f['K_ci'][0])} to "
         f"{_animals(f['K_ci'][1])}); r_max = {f['r_max']:.3f} per year{r_ci}",

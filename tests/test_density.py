@@ -5,7 +5,6 @@ unit's NCC animal-days from the solver, exactly for the pieces and within the
 rasterisation error for the raster (cells burnt by centre; the grid is 10 m).
 """
 
-
 import numpy as np
 import pandas as pd
 import pytest

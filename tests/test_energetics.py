@@ -358,10 +358,16 @@ def test_herd_of_identical_classes_equals_single_class(mass, count, state, seaso
     )
     herd = en.herd_requirement([mass] * count, shares, [state] * count, season)
     single = en.herd_requirement([mass], [1.0], state, season)
-    for field in ("de_kcal_per_day", "maintenance_de_kcal_per_day", "intake_kg_per_day",
-                  "dp_g_per_day", "animal_unit_equivalent"):
+    for field in (
+        "de_kcal_per_day",
+        "maintenance_de_kcal_per_day",
+        "intake_kg_per_day",
+        "dp_g_per_day",
+        "animal_unit_equivalent",
+    ):
         assert math.isclose(getattr(herd, field), getattr(single, field), rel_tol=1e-9)
     assert math.isclose(
-        single.de_kcal_per_day, en.daily_de_requirement_kcal_per_day(mass, state, season),
+        single.de_kcal_per_day,
+        en.daily_de_requirement_kcal_per_day(mass, state, season),
         rel_tol=1e-12,
     )

@@ -22,19 +22,30 @@ from nutricap import example
 from nutricap.project import load_project
 
 CSV_FILES = (
-    "forage_classes.csv", "plots.csv", "animal_classes.csv", "counts.csv",
+    "forage_classes.csv",
+    "plots.csv",
+    "animal_classes.csv",
+    "counts.csv",
     "treatment_responses.csv",
 )
 LAYERS = {
-    "units.gpkg": "units", "strata.gpkg": "strata",
-    "treatments_thinning.gpkg": "treatments_thinning", "treatments_burn.gpkg": "treatments_burn",
+    "units.gpkg": "units",
+    "strata.gpkg": "strata",
+    "treatments_thinning.gpkg": "treatments_thinning",
+    "treatments_burn.gpkg": "treatments_burn",
 }
 ALL_FILES = {*CSV_FILES, *LAYERS, "project.toml"}
 # Column contract of SPEC.md ("Inputs"); the energy pair de_kcal_per_g | dmd_pct is
 # checked separately.
 CONTRACT_COLUMNS = {
-    "forage_classes.csv": {"forage_class", "growth_form", "cp_pct", "allowable_use", "key",
-                           "height_cm"},
+    "forage_classes.csv": {
+        "forage_class",
+        "growth_form",
+        "cp_pct",
+        "allowable_use",
+        "key",
+        "height_cm",
+    },
     "plots.csv": {"plot_id", "stratum", "forage_class", "dry_mass_g", "frame_area_m2"},
     "animal_classes.csv": {"animal_class", "body_mass_kg", "share", "state"},
     "counts.csv": {"unit_id", "year", "count"},
@@ -115,12 +126,19 @@ def test_layer_names_and_crs(first: Path) -> None:
 def test_project_file_follows_the_schema(first: Path) -> None:
     raw = tomllib.loads((first / "project.toml").read_text(encoding="utf-8"))
     assert set(raw) == {
-        "project", "inputs", "target", "forage_use", "pooling", "uncertainty", "scenarios",
+        "project",
+        "inputs",
+        "target",
+        "forage_use",
+        "pooling",
+        "uncertainty",
+        "scenarios",
     }
     assert raw["project"]["season"] == "winter"
     assert raw["project"]["season_days"] == example.SEASON_DAYS
     scenario_files = {
-        name for section in raw["scenarios"].values()
+        name
+        for section in raw["scenarios"].values()
         for name in (section["treatments"], section["responses"])
     }
     assert set(raw["inputs"].values()) | scenario_files == ALL_FILES - {"project.toml"}

@@ -54,7 +54,9 @@ def test_dp_coefficients():
     # Robbins et al. 1987 (from memory): DP = -3.87 + 0.9283 CP - 11.82 BSA.
     c = fq.ROBBINS_1987_DP_COEFFICIENTS
     assert (c["intercept_pct"], c["cp_slope"], c["bsa_slope_pct_per_mg_per_mg"]) == (
-        -3.87, 0.9283, -11.82
+        -3.87,
+        0.9283,
+        -11.82,
     )
 
 
@@ -85,8 +87,10 @@ def test_dp_clipped_at_zero():
     assert fq.digestible_protein_pct(4.2) > 0.0
 
 
-@pytest.mark.parametrize(("cp", "bsa", "name"), [(-1.0, 0.0, "cp_pct"), (101.0, 0.0, "cp_pct"),
-                                                 (10.0, -0.1, "tannin_bsa_mg_per_mg")])
+@pytest.mark.parametrize(
+    ("cp", "bsa", "name"),
+    [(-1.0, 0.0, "cp_pct"), (101.0, 0.0, "cp_pct"), (10.0, -0.1, "tannin_bsa_mg_per_mg")],
+)
 def test_dp_rejects_bad_inputs(cp, bsa, name):
     with pytest.raises(InputError, match=name):
         fq.digestible_protein_pct(cp, bsa)

@@ -41,14 +41,16 @@ def test_r_is_ln_lambda_textbook_identity():
     # natural logarithm of 2 (standard mathematical constant).
     assert pop.exponential_rate(2.0) == pytest.approx(0.6931471805599453, abs=1e-12)
     assert pop.exponential_rate(0.5) == pytest.approx(-0.6931471805599453, abs=1e-12)
-    np.testing.assert_allclose(pop.exponential_rate([1.0, 2.0, 0.5]), [0.0, 0.693147, -0.693147],
-                               atol=1e-6)
+    np.testing.assert_allclose(
+        pop.exponential_rate([1.0, 2.0, 0.5]), [0.0, 0.693147, -0.693147], atol=1e-6
+    )
 
 
 def test_lambda_is_ratio_of_successive_counts():
     # λ_t = N_{t+1}/N_t by definition (textbook): 200/100 = 2, 100/200 = 0.5.
-    np.testing.assert_allclose(pop.finite_rate_of_increase([2001, 2002, 2003], [100, 200, 100]),
-                               [2.0, 0.5])
+    np.testing.assert_allclose(
+        pop.finite_rate_of_increase([2001, 2002, 2003], [100, 200, 100]), [2.0, 0.5]
+    )
 
 
 def test_gap_year_gives_same_rates_as_complete_exact_exponential():
@@ -68,13 +70,16 @@ def test_gap_year_gives_same_rates_as_complete_exact_exponential():
 
 def test_unsorted_years_are_sorted():
     # Sorted: 2001 → 200, 2002 → 100, 2003 → 100, so λ = 100/200, 100/100.
-    np.testing.assert_allclose(pop.finite_rate_of_increase([2003, 2001, 2002], [100, 200, 100]),
-                               [0.5, 1.0])
+    np.testing.assert_allclose(
+        pop.finite_rate_of_increase([2003, 2001, 2002], [100, 200, 100]), [0.5, 1.0]
+    )
 
 
 @settings(max_examples=50, deadline=None)
-@given(st.lists(st.floats(1.0, 1e5), min_size=2, max_size=12),
-       st.lists(st.integers(1, 4), min_size=11, max_size=11))
+@given(
+    st.lists(st.floats(1.0, 1e5), min_size=2, max_size=12),
+    st.lists(st.integers(1, 4), min_size=11, max_size=11),
+)
 def test_interval_rates_telescope_to_overall_change(counts, gaps):
     # Product of λ_i^(k_i) equals N_last/N_first (telescoping product; identity).
     years = np.concatenate([[1990], 1990 + np.cumsum(gaps[: len(counts) - 1])])
@@ -123,8 +128,12 @@ def test_mean_growth_rate_interval_covers_at_its_level():
 def test_msy_matches_numerical_maximum_of_surplus(r_max, K):
     # Schaefer (1954): surplus r N (1 − N/K) peaks at N = K/2 with yield r K/4. Independent
     # check: maximise the surplus numerically with scipy.optimize.minimize_scalar.
-    best = optimize.minimize_scalar(lambda n: -r_max * n * (1.0 - n / K), bounds=(0.0, K),
-                                    method="bounded", options={"xatol": 1e-9 * K})
+    best = optimize.minimize_scalar(
+        lambda n: -r_max * n * (1.0 - n / K),
+        bounds=(0.0, K),
+        method="bounded",
+        options={"xatol": 1e-9 * K},
+    )
     assert pop.msy_level(K) == pytest.approx(best.x, rel=1e-6)
     assert pop.msy_yield(r_max, K) == pytest.approx(-best.fun, rel=1e-9)
 
@@ -155,7 +164,7 @@ def test_logistic_fit_exact_with_gaps_and_removals():
     removals = np.where(np.arange(20) % 3 == 0, 30.0, 0.0)
     years, counts = simulate_logistic(0.35, 1500.0, 120.0, 20, removals=removals)
     keep = ~np.isin(years, [2005, 2013])  # years without removals (a missing year's removals
-    assert not removals[~keep].any()       # are taken as 0 by the fit)
+    assert not removals[~keep].any()  # are taken as 0 by the fit)
     fit = pop.fit_logistic(years[keep], counts[keep], removals=removals[keep])
     assert fit.K == pytest.approx(1500.0, rel=1e-6)
     assert fit.r_max == pytest.approx(0.35, rel=1e-6)
@@ -190,8 +199,9 @@ def test_false_ceilings_on_exponential_series_are_rare():
     # about 2.5 % of series; the Wald interval is somewhat liberal here (docs/trend.md), so
     # the check is a ceiling on the rate, not equality.
     false_ceilings = sum(
-        pop.fit_logistic(*simulate_logistic(0.15, np.inf, 100.0, 15, sd=0.05, seed=seed))
-        .ceiling_evidence
+        pop.fit_logistic(
+            *simulate_logistic(0.15, np.inf, 100.0, 15, sd=0.05, seed=seed)
+        ).ceiling_evidence
         for seed in range(100)
     )
     assert false_ceilings <= 12
@@ -267,8 +277,10 @@ def test_population_phase_thresholds():
         (lambda: pop.mean_growth_rate([2000, 2001], [10, 12]), "at least 3"),
         (lambda: pop.fit_logistic(np.arange(4), [10, 12, 14, 16]), "at least 5"),
         (lambda: pop.fit_logistic([0, 1, 2.5, 3, 4], [10, 12, 14, 16, 17]), "whole years"),
-        (lambda: pop.fit_logistic(np.arange(5), np.arange(1, 6), removals=[0, -1, 0, 0, 0]),
-         "removals"),
+        (
+            lambda: pop.fit_logistic(np.arange(5), np.arange(1, 6), removals=[0, -1, 0, 0, 0]),
+            "removals",
+        ),
         (lambda: pop.mean_growth_rate(np.arange(5), np.arange(1, 6), level=1.5), "level"),
         (lambda: pop.mean_growth_rate(np.arange(5), np.arange(1, 5)), "differ in length"),
         (lambda: pop.exponential_rate(-1.0), "λ > 0"),

@@ -31,12 +31,33 @@ from nutricap.report.html import ReportExtras, is_flag, render_report, write_rep
 from nutricap.science.energetics import NUTRITIONAL_STATES
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), file signature
-VOID_ELEMENTS = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta",
-                 "source", "track", "wbr"}  # HTML Living Standard, "void elements"
+VOID_ELEMENTS = {
+    "area",
+    "base",
+    "br",
+    "col",
+    "embed",
+    "hr",
+    "img",
+    "input",
+    "link",
+    "meta",
+    "source",
+    "track",
+    "wbr",
+}  # HTML Living Standard, "void elements"
 EXTERNAL = re.compile(r"^\s*(https?:|//|file:)", re.IGNORECASE)
-USE_COLUMNS = ["current_animals", "demand_kg", "key_class", "key_use_fraction",
-               "key_allowable_use", "overuse", "reduction_for_key_use_animals", "above_ncc",
-               "reduction_for_ncc_animals"]
+USE_COLUMNS = [
+    "current_animals",
+    "demand_kg",
+    "key_class",
+    "key_use_fraction",
+    "key_allowable_use",
+    "overuse",
+    "reduction_for_key_use_animals",
+    "above_ncc",
+    "reduction_for_ncc_animals",
+]
 
 
 class Page(HTMLParser):
@@ -140,27 +161,47 @@ def invented_scenario(unit_ids) -> pd.DataFrame:
     rows = []
     for unit in unit_ids:
         for year in range(2026, 2031):
-            gain = 50.0 * np.exp(-(year - 2027) ** 2 / 2.0)
-            rows.append({"unit_id": unit, "scenario": "spring burn", "year": year,
-                         "years_since_treatment": year - 2026, "ncc_animals_baseline": 100.0,
-                         "ncc_animals_scenario": 100.0 + gain, "change_animals": gain})
+            gain = 50.0 * np.exp(-((year - 2027) ** 2) / 2.0)
+            rows.append(
+                {
+                    "unit_id": unit,
+                    "scenario": "spring burn",
+                    "year": year,
+                    "years_since_treatment": year - 2026,
+                    "ncc_animals_baseline": 100.0,
+                    "ncc_animals_scenario": 100.0 + gain,
+                    "change_animals": gain,
+                }
+            )
     return pd.DataFrame(rows)
 
 
 def invented_sensitivity() -> pd.DataFrame:
     """Tornado table (values invented for the test)."""
-    return pd.DataFrame({"input": ["intake", "diet DE threshold", "biomass"],
-                         "low_change_animals": [120.0, 800.0, -90.0],
-                         "high_change_animals": [-100.0, -650.0, 95.0]})
+    return pd.DataFrame(
+        {
+            "input": ["intake", "diet DE threshold", "biomass"],
+            "low_change_animals": [120.0, 800.0, -90.0],
+            "high_change_animals": [-100.0, -650.0, 95.0],
+        }
+    )
 
 
 def invented_trend(K: float | None) -> dict:
     """A count series with a fitted curve (values invented for the test)."""
     years = list(range(2014, 2024))
     fitted = [900.0 / (1.0 + 8.0 * np.exp(-0.5 * (y - 2014))) for y in years]
-    return {"series": "total", "years": years, "counts": [f * 1.04 for f in fitted],
-            "fitted_years": years, "fitted_counts": fitted, "K": K, "r_mean": 0.21,
-            "r_ci": [0.15, 0.27], "ceiling_reason": "invented for the test"}
+    return {
+        "series": "total",
+        "years": years,
+        "counts": [f * 1.04 for f in fitted],
+        "fitted_years": years,
+        "fitted_counts": fitted,
+        "K": K,
+        "r_mean": 0.21,
+        "r_ci": [0.15, 0.27],
+        "ceiling_reason": "invented for the test",
+    }
 
 
 @pytest.fixture(scope="module")
@@ -206,8 +247,9 @@ def test_report_starts_with_doctype(base_html):
 @pytest.mark.parametrize("which", ["base", "full"])
 def test_no_external_references(which, base_html, full_html, base_page, full_page):
     html, page = (base_html, base_page) if which == "base" else (full_html, full_page)
-    external = [(tag, name, value[:60]) for tag, name, value in page.attributes
-                if EXTERNAL.match(value)]
+    external = [
+        (tag, name, value[:60]) for tag, name, value in page.attributes if EXTERNAL.match(value)
+    ]
     assert external == []
     assert "@import" not in html
     assert not re.search(r"url\(\s*['\"]?(https?:|//|file:)", html, re.IGNORECASE)
@@ -248,8 +290,22 @@ def test_optional_sections_only_when_given(base_page, full_page):
 
 
 def test_sections_in_order(full_html):
-    order = ["caution-top", "inputs", "diet", "map", "capacity", "use", "scenario", "trend",
-             "units", "supply", "methods", "parameters", "manifest", "caution-end"]
+    order = [
+        "caution-top",
+        "inputs",
+        "diet",
+        "map",
+        "capacity",
+        "use",
+        "scenario",
+        "trend",
+        "units",
+        "supply",
+        "methods",
+        "parameters",
+        "manifest",
+        "caution-end",
+    ]
     positions = [full_html.index(f'id="{name}"') for name in order]
     assert positions == sorted(positions)
 
@@ -290,10 +346,20 @@ def test_unit_table_totals_use_thousands_separators(base_page, plain_estimate):
 
 def test_methods_cite_every_source(base_page):
     text = base_page.plain_text
-    for source in ("Kleiber", "70 · W^0.75", "ME / 0.82", "Robbins, C.T. 1993",
-                   "Robbins, C.T., Hanley", "Hobbs, N.T. & Swift, D.M. 1985",
-                   "Hanley, T.A. & Rogers, J.J. 1989", "PNW-RN-485", "Holechek, J.L. 1988",
-                   "National Range and Pasture Handbook", "AUM", "B = 10 · m / A"):
+    for source in (
+        "Kleiber",
+        "70 · W^0.75",
+        "ME / 0.82",
+        "Robbins, C.T. 1993",
+        "Robbins, C.T., Hanley",
+        "Hobbs, N.T. & Swift, D.M. 1985",
+        "Hanley, T.A. & Rogers, J.J. 1989",
+        "PNW-RN-485",
+        "Holechek, J.L. 1988",
+        "National Range and Pasture Handbook",
+        "AUM",
+        "B = 10 · m / A",
+    ):
         assert source in text, source
 
 
@@ -306,8 +372,7 @@ def test_parameter_table_shows_state_sources_and_inputs(base_page):
 
 
 def test_manifest_in_collapsible_block(base_html, manifest):
-    details = re.search(r'<section id="manifest">.*?<details>(.*?)</details>', base_html,
-                        re.DOTALL)
+    details = re.search(r'<section id="manifest">.*?<details>(.*?)</details>', base_html, re.DOTALL)
     assert details is not None
     for name, version in manifest["versions"].items():
         assert name in details.group(1) and version in details.group(1)
@@ -334,8 +399,9 @@ def test_use_section_flags(plain_estimate, project, manifest):
 
 def test_use_section_with_current_numbers_only(plain_estimate, project, manifest):
     table = plain_estimate.by_unit.assign(current_animals=100.0)  # invented for the test
-    html = render_report(dataclasses.replace(plain_estimate, by_unit=table), project=project,
-                         manifest=manifest)
+    html = render_report(
+        dataclasses.replace(plain_estimate, by_unit=table), project=project, manifest=manifest
+    )
     assert "Current animal numbers were given" in parse(html).plain_text
 
 
@@ -358,8 +424,7 @@ def test_text_is_escaped(plain_estimate, project, manifest):
 
 def test_trend_without_ceiling(plain_estimate, project, manifest):
     extras = ReportExtras(trend=invented_trend(K=None))
-    page = parse(render_report(plain_estimate, project=project, manifest=manifest,
-                               extras=extras))
+    page = parse(render_report(plain_estimate, project=project, manifest=manifest, extras=extras))
     text = page.plain_text
     assert "no evidence of a ceiling" in text
     assert "Counts are usually indices" in text
@@ -373,9 +438,19 @@ def test_write_report(tmp_path, plain_estimate, project, manifest):
     assert page.errors == [] and CAUTION in page.plain_text
 
 
-@pytest.mark.parametrize("value, flagged", [(True, True), (False, False), (np.bool_(True), True),
-                                            (None, False), (float("nan"), False), ("", False),
-                                            ("no", False), ("use above allowable", True)])
+@pytest.mark.parametrize(
+    "value, flagged",
+    [
+        (True, True),
+        (False, False),
+        (np.bool_(True), True),
+        (None, False),
+        (float("nan"), False),
+        ("", False),
+        ("no", False),
+        ("use above allowable", True),
+    ],
+)
 def test_is_flag(value, flagged):
     assert is_flag(value) is flagged
 
@@ -394,9 +469,11 @@ def legend_texts(ax) -> list[str]:
 
 
 def test_ncc_density_map():
-    units = gpd.GeoDataFrame({"unit_id": ["North", "South"]},
-                             geometry=[box(0, 1000, 1000, 2000), box(0, 0, 1000, 1000)],
-                             crs="EPSG:32612")
+    units = gpd.GeoDataFrame(
+        {"unit_id": ["North", "South"]},
+        geometry=[box(0, 1000, 1000, 2000), box(0, 0, 1000, 1000)],
+        crs="EPSG:32612",
+    )
     by_unit = pd.DataFrame({"unit_id": ["North", "South"], "ncc_per_km2": [12.0, 30.0]})
     figure = figures.ncc_density_map(units, by_unit)
     check_png(figure)
@@ -408,8 +485,14 @@ def test_ncc_density_map():
 
 
 def capacity_frame(intervals: bool) -> pd.DataFrame:
-    frame = pd.DataFrame({"unit_id": ["A", "B"], "ncc_animals": [100.0, 250.0],
-                          "ecc_animals": [400.0, 900.0], "allowable_use_animals": [200.0, 500.0]})
+    frame = pd.DataFrame(
+        {
+            "unit_id": ["A", "B"],
+            "ncc_animals": [100.0, 250.0],
+            "ecc_animals": [400.0, 900.0],
+            "allowable_use_animals": [200.0, 500.0],
+        }
+    )
     if intervals:
         for name in ("ncc_animals", "ecc_animals", "allowable_use_animals"):
             frame[f"{name}_lo"] = frame[name] * 0.8
@@ -419,8 +502,7 @@ def capacity_frame(intervals: bool) -> pd.DataFrame:
 
 @pytest.mark.parametrize("intervals", [False, True])
 def test_capacity_figure(intervals):
-    figure = figures.capacity_figure(capacity_frame(intervals), season_days=120,
-                                     interval_level=0.9)
+    figure = figures.capacity_figure(capacity_frame(intervals), season_days=120, interval_level=0.9)
     check_png(figure)
     ax = figure.axes[0]
     bars = [c for c in ax.containers if isinstance(c, ErrorbarContainer)]
@@ -430,9 +512,14 @@ def test_capacity_figure(intervals):
 
 
 def test_capacity_figure_limits_units():
-    frame = pd.DataFrame({"unit_id": [f"U{i}" for i in range(10)],
-                          "ncc_animals": np.arange(10.0), "ecc_animals": np.arange(10.0) * 4,
-                          "allowable_use_animals": np.arange(10.0) * 2})
+    frame = pd.DataFrame(
+        {
+            "unit_id": [f"U{i}" for i in range(10)],
+            "ncc_animals": np.arange(10.0),
+            "ecc_animals": np.arange(10.0) * 4,
+            "allowable_use_animals": np.arange(10.0) * 2,
+        }
+    )
     figure = figures.capacity_figure(frame, max_units=4)
     ticks = [t.get_text() for t in figure.axes[0].get_yticklabels()]
     assert sorted(ticks) == ["U6", "U7", "U8", "U9"]  # the four largest ECC
@@ -440,20 +527,32 @@ def test_capacity_figure_limits_units():
 
 
 def test_population_trend_figure_with_ceiling():
-    figure = figures.population_trend_figure([2020, 2021, 2022], [100, 150, 190],
-                                             [2020, 2021, 2022], [105, 145, 185], 400.0,
-                                             300.0, 900.0)
+    figure = figures.population_trend_figure(
+        [2020, 2021, 2022],
+        [100, 150, 190],
+        [2020, 2021, 2022],
+        [105, 145, 185],
+        400.0,
+        300.0,
+        900.0,
+    )
     check_png(figure)
     texts = legend_texts(figure.axes[0])
-    for label in ("K (fitted ceiling): 400", "K/2 (maximum sustained yield level): 200",
-                  "NCC from forage: 300", "ECC from forage: 900", "Fitted logistic"):
+    for label in (
+        "K (fitted ceiling): 400",
+        "K/2 (maximum sustained yield level): 200",
+        "NCC from forage: 300",
+        "ECC from forage: 900",
+        "Fitted logistic",
+    ):
         assert label in texts
     assert figure.axes[0].get_ylabel().endswith("]")
 
 
 def test_population_trend_figure_without_ceiling():
-    figure = figures.population_trend_figure([2020, 2021, 2022], [100, 150, 190], None, None,
-                                             None, 300.0, None)
+    figure = figures.population_trend_figure(
+        [2020, 2021, 2022], [100, 150, 190], None, None, None, 300.0, None
+    )
     ax = figure.axes[0]
     texts = legend_texts(ax)
     assert not any(text.startswith("K") for text in texts)
@@ -494,7 +593,12 @@ def test_tornado_sorted_by_range():
 
 
 def test_tornado_limits_inputs():
-    table = pd.DataFrame({"input": list("abcdef"), "low_change_animals": -np.arange(6.0),
-                          "high_change_animals": np.arange(6.0)})
+    table = pd.DataFrame(
+        {
+            "input": list("abcdef"),
+            "low_change_animals": -np.arange(6.0),
+            "high_change_animals": np.arange(6.0),
+        }
+    )
     figure = figures.tornado_figure(table, max_inputs=3)
     assert sorted(t.get_text() for t in figure.axes[0].get_yticklabels()) == ["d", "e", "f"]

@@ -24,17 +24,26 @@ TIMEOUT_S = 60
 WINDOW = (1200, 3000)
 
 pytestmark = pytest.mark.skipif(
-    BROWSER is None, reason="no Chromium or Chrome executable on the PATH "
+    BROWSER is None,
+    reason="no Chromium or Chrome executable on the PATH "
     f"(looked for {', '.join(BROWSERS)}); install one, e.g. apt-get install chromium",
 )
 
 
 def run_browser(tmp_path, *arguments: str) -> subprocess.CompletedProcess:
-    command = [BROWSER, "--headless", "--no-sandbox", "--disable-gpu", "--hide-scrollbars",
-               "--disable-dev-shm-usage", "--no-first-run", "--disable-extensions",
-               f"--user-data-dir={tmp_path / 'profile'}", *arguments]
-    return subprocess.run(command, capture_output=True, text=True, timeout=TIMEOUT_S,
-                          check=False)
+    command = [
+        BROWSER,
+        "--headless",
+        "--no-sandbox",
+        "--disable-gpu",
+        "--hide-scrollbars",
+        "--disable-dev-shm-usage",
+        "--no-first-run",
+        "--disable-extensions",
+        f"--user-data-dir={tmp_path / 'profile'}",
+        *arguments,
+    ]
+    return subprocess.run(command, capture_output=True, text=True, timeout=TIMEOUT_S, check=False)
 
 
 @pytest.fixture(scope="module")
@@ -46,14 +55,18 @@ def report_file(tmp_path_factory, full_html):  # noqa: F811
 
 def near(pixels: np.ndarray, hex_colour: str, tolerance: int = 24) -> int:
     """Number of pixels within ``tolerance`` (per channel) of ``hex_colour``."""
-    target = np.array([int(hex_colour[i:i + 2], 16) for i in (1, 3, 5)])
+    target = np.array([int(hex_colour[i : i + 2], 16) for i in (1, 3, 5)])
     return int(np.all(np.abs(pixels[..., :3].astype(int) - target) <= tolerance, axis=-1).sum())
 
 
 def test_screenshot_shows_the_figures(tmp_path, report_file):
     shot = tmp_path / "report.png"
-    result = run_browser(tmp_path, f"--screenshot={shot}",
-                         f"--window-size={WINDOW[0]},{WINDOW[1]}", report_file.as_uri())
+    result = run_browser(
+        tmp_path,
+        f"--screenshot={shot}",
+        f"--window-size={WINDOW[0]},{WINDOW[1]}",
+        report_file.as_uri(),
+    )
     assert shot.is_file() and shot.stat().st_size > 0, result.stderr[-2000:]
     pixels = np.asarray(Image.open(shot).convert("RGB"))
     assert pixels.shape[:2] == (WINDOW[1], WINDOW[0])

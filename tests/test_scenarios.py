@@ -6,7 +6,6 @@ interpolation. The example's responses are invented for the example and are
 never used as check values.
 """
 
-
 import geopandas as gpd
 import numpy as np
 import pandas as pd

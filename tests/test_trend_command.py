@@ -63,9 +63,13 @@ B,2018,120
 def test_json_has_required_keys_and_the_fit_of_an_exact_series(tmp_path, capsys):
     # Exact logistic (r_max 0.3, K 900, 10 removed in even years; invented) with 2013
     # missing (a year without removals: a missing year's removals are taken as 0).
-    rows = [row for row in logistic_rows(0.3, 900.0, 150.0, range(2005, 2021),
-                                         lambda year: 10.0 * (year % 2 == 0))
-            if row[0] != 2013]
+    rows = [
+        row
+        for row in logistic_rows(
+            0.3, 900.0, 150.0, range(2005, 2021), lambda year: 10.0 * (year % 2 == 0)
+        )
+        if row[0] != 2013
+    ]
     text = "year,count,removals\n" + "".join(f"{y},{n!r},{h}\n" for y, n, h in rows)
     counts = write_csv(tmp_path / "in", text)
     payload = json.loads(run_trend([counts, "--json"], capsys))
@@ -86,8 +90,16 @@ def test_text_output_has_figures_and_cautions(tmp_path, capsys):
     out = run_trend([counts, "--unit", "A"], capsys)
     # λ 2014→2015 = 120/100 = 1.200, r = ln 1.2 = 0.182 (definition; hand arithmetic).
     assert "1.200" in out and "+0.182" in out
-    for words in ("mean r =", "λ =", "logistic:", "indices", "weak evidence of K",
-                  "must be entered if known", "never replace", "spreadsheet rows"):
+    for words in (
+        "mean r =",
+        "λ =",
+        "logistic:",
+        "indices",
+        "weak evidence of K",
+        "must be entered if known",
+        "never replace",
+        "spreadsheet rows",
+    ):
         assert words in out
 
 
@@ -131,16 +143,19 @@ def test_short_series_gets_rates_but_no_logistic(tmp_path, capsys):
         ("year,animals\n2014,10\n2015,11\n2016,12\n", ["row 1", "missing column 'count'"]),
         ("year,count\n2014,10\n2015,11\n", ["'count'", "at least 3", "found 2"]),
         ("year,count,removals\n2014,10,0\n2015,11,-1\n2016,12,0\n", ["row 3", "'removals'"]),
-        ("unit_id,year,count\nA,2014,10\nA,2015,11\nA,2016,12\nB,2014,3\n",
-         ["unit 'B'", "at least 3"]),
+        (
+            "unit_id,year,count\nA,2014,10\nA,2015,11\nA,2016,12\nB,2014,3\n",
+            ["unit 'B'", "at least 3"],
+        ),
         ("unit_id,year,count\nA,2014,10\n,2015,11\nA,2016,12\n", ["row 3", "'unit_id'"]),
         ("year,count\n", ["no data rows"]),
     ],
 )
 def test_bad_counts_give_one_clear_message(tmp_path, text, words):
     counts = write_csv(tmp_path / "in", text)
-    args = argparse.Namespace(counts=counts, unit=None, project=None, json=False, out=None,
-                              level=0.95)
+    args = argparse.Namespace(
+        counts=counts, unit=None, project=None, json=False, out=None, level=0.95
+    )
     with pytest.raises(TableError) as caught:
         trend.run(args)
     message = str(caught.value)
@@ -151,8 +166,9 @@ def test_bad_counts_give_one_clear_message(tmp_path, text, words):
 
 def test_unknown_unit_and_bad_level(tmp_path):
     counts = write_csv(tmp_path / "in", TWO_UNITS)
-    args = argparse.Namespace(counts=counts, unit="Z", project=None, json=False, out=None,
-                              level=0.95)
+    args = argparse.Namespace(
+        counts=counts, unit="Z", project=None, json=False, out=None, level=0.95
+    )
     with pytest.raises(TableError, match="unit 'Z'.*expected one of A, B"):
         trend.run(args)
     args.unit, args.level = None, 95.0
@@ -170,8 +186,9 @@ def test_out_writes_trend_json_and_leaves_no_temporary_file(tmp_path, capsys):
 
 def test_out_refuses_the_counts_folder(tmp_path):
     counts = write_csv(tmp_path / "in", TWO_UNITS)
-    args = argparse.Namespace(counts=counts, unit=None, project=None, json=True,
-                              out=tmp_path / "in", level=0.95)
+    args = argparse.Namespace(
+        counts=counts, unit=None, project=None, json=True, out=tmp_path / "in", level=0.95
+    )
     with pytest.raises(OutputError, match="input folder"):
         trend.run(args)
     assert not (tmp_path / "in" / "trend.json").exists()
@@ -179,12 +196,14 @@ def test_out_refuses_the_counts_folder(tmp_path):
 
 # --- beside NCC and ECC (the workflow is replaced by a fake) ----------------------------
 
-CAPACITY = pd.DataFrame({
-    "unit_id": ["A", "B", "C"],
-    "ncc_animals": [150.0, 100.0, 40.0],
-    "ecc_animals": [300.0, 250.0, 90.0],
-    "area_ha": [1.0, 1.0, 1.0],
-})
+CAPACITY = pd.DataFrame(
+    {
+        "unit_id": ["A", "B", "C"],
+        "ncc_animals": [150.0, 100.0, 40.0],
+        "ecc_animals": [300.0, 250.0, 90.0],
+        "area_ha": [1.0, 1.0, 1.0],
+    }
+)
 
 
 @pytest.fixture
@@ -194,10 +213,8 @@ def fake_workflow(tmp_path, monkeypatch):
     project = types.SimpleNamespace(path=project_file, input_paths=lambda: {})
     load = mock.Mock(return_value=project)
     estimate = mock.Mock(return_value=types.SimpleNamespace(by_unit=CAPACITY))
-    monkeypatch.setitem(sys.modules, "nutricap.project",
-                        types.SimpleNamespace(load_project=load))
-    monkeypatch.setitem(sys.modules, "nutricap.workflow",
-                        types.SimpleNamespace(estimate=estimate))
+    monkeypatch.setitem(sys.modules, "nutricap.project", types.SimpleNamespace(load_project=load))
+    monkeypatch.setitem(sys.modules, "nutricap.workflow", types.SimpleNamespace(estimate=estimate))
     return project_file, load, estimate, project
 
 
@@ -213,8 +230,9 @@ def test_latest_count_beside_ncc_and_ecc(tmp_path, capsys, fake_workflow):
     assert total["units"] == ["A", "B"]
     assert total["ncc_animals"] == 250.0 and total["ecc_animals"] == 550.0
     assert total["latest_minus_ncc"] == 70.0 and total["latest_minus_ecc"] == -230.0
-    assert total["statement"] == ("latest count 320 (2018) is 70 above NCC (250) and "
-                                  "230 below ECC (550)")
+    assert total["statement"] == (
+        "latest count 320 (2018) is 70 above NCC (250) and 230 below ECC (550)"
+    )
     unit_a = payload["units"]["A"]["capacity"]
     assert unit_a["latest_minus_ncc"] == 50.0 and unit_a["latest_minus_ecc"] == -100.0
     text = run_trend([counts, "--project", project_file], capsys)
@@ -224,27 +242,36 @@ def test_latest_count_beside_ncc_and_ecc(tmp_path, capsys, fake_workflow):
 def test_counts_without_units_use_the_chosen_unit_or_all(tmp_path, capsys, fake_workflow):
     project_file = fake_workflow[0]
     counts = write_csv(tmp_path / "in", "year,count\n2016,30\n2017,35\n2018,40\n")
-    chosen = json.loads(run_trend([counts, "--json", "--unit", "C", "--project", project_file],
-                                  capsys))
+    chosen = json.loads(
+        run_trend([counts, "--json", "--unit", "C", "--project", project_file], capsys)
+    )
     assert chosen["series"] == "C"
-    assert chosen["capacity"]["statement"] == ("latest count 40 (2018) is equal to NCC (40) and "
-                                               "50 below ECC (90)")
+    assert chosen["capacity"]["statement"] == (
+        "latest count 40 (2018) is equal to NCC (40) and 50 below ECC (90)"
+    )
     everything = json.loads(run_trend([counts, "--json", "--project", project_file], capsys))
     assert everything["capacity"]["ncc_animals"] == 290.0  # 150 + 100 + 40
 
 
 def test_counted_unit_missing_from_capacity(tmp_path, fake_workflow):
     counts = write_csv(tmp_path / "in", TWO_UNITS.replace("B,", "D,"))
-    args = argparse.Namespace(counts=counts, unit=None, project=fake_workflow[0], json=True,
-                              out=None, level=0.95)
+    args = argparse.Namespace(
+        counts=counts, unit=None, project=fake_workflow[0], json=True, out=None, level=0.95
+    )
     with pytest.raises(InputError, match="unit 'D'.*not in the capacity estimate"):
         trend.run(args)
 
 
 def test_out_refuses_the_project_folder(tmp_path, fake_workflow):
     counts = write_csv(tmp_path / "in", TWO_UNITS)
-    args = argparse.Namespace(counts=counts, unit=None, project=fake_workflow[0], json=True,
-                              out=fake_workflow[0].parent, level=0.95)
+    args = argparse.Namespace(
+        counts=counts,
+        unit=None,
+        project=fake_workflow[0],
+        json=True,
+        out=fake_workflow[0].parent,
+        level=0.95,
+    )
     with pytest.raises(OutputError):
         trend.run(args)
 

@@ -75,25 +75,32 @@ def split_west_east(shape: Polygon, west_share: float) -> tuple[Polygon, Polygon
     """Cut ``shape`` by a north-south line at ``west_share`` of its width."""
     xmin, ymin, xmax, ymax = shape.bounds
     cut = xmin + west_share * (xmax - xmin)
-    return (shape.intersection(box(xmin, ymin, cut, ymax)),
-            shape.intersection(box(cut, ymin, xmax, ymax)))
+    return (
+        shape.intersection(box(xmin, ymin, cut, ymax)),
+        shape.intersection(box(cut, ymin, xmax, ymax)),
+    )
 
 
 def split_south_north(shape: Polygon, south_share: float) -> tuple[Polygon, Polygon]:
     """Cut ``shape`` by an east-west line at ``south_share`` of its height."""
     xmin, ymin, xmax, ymax = shape.bounds
     cut = ymin + south_share * (ymax - ymin)
-    return (shape.intersection(box(xmin, ymin, xmax, cut)),
-            shape.intersection(box(xmin, cut, xmax, ymax)))
+    return (
+        shape.intersection(box(xmin, ymin, xmax, cut)),
+        shape.intersection(box(xmin, cut, xmax, ymax)),
+    )
 
 
 def worked_example_strata() -> gpd.GeoDataFrame:
     """Two equal strata; the one with roads and brush motts is 95 % accessible."""
     open_range, with_motts = split_west_east(pasture_square(), 0.5)
     return gpd.GeoDataFrame(
-        {"stratum": ["open_range", "roads_and_motts"],
-         "accessible_fraction": [1.0, 1.0 - NONGRAZABLE_FRACTION]},
-        geometry=[open_range, with_motts], crs=CRS,
+        {
+            "stratum": ["open_range", "roads_and_motts"],
+            "accessible_fraction": [1.0, 1.0 - NONGRAZABLE_FRACTION],
+        },
+        geometry=[open_range, with_motts],
+        crs=CRS,
     )
 
 
@@ -119,26 +126,37 @@ def write_tiny_project(
     units.to_file(folder / "units.gpkg", layer="units", driver="GPKG")
     strata.to_file(folder / "strata.gpkg", layer="strata", driver="GPKG")
     plots = pd.DataFrame(
-        [(f"{stratum}_{i}", stratum, "range_forage", factor * kg_ha)
-         for stratum, kg_ha in yield_kg_per_ha.items()
-         for i, factor in enumerate((0.9, 1.1))],
+        [
+            (f"{stratum}_{i}", stratum, "range_forage", factor * kg_ha)
+            for stratum, kg_ha in yield_kg_per_ha.items()
+            for i, factor in enumerate((0.9, 1.1))
+        ],
         columns=["plot_id", "stratum", "forage_class", "biomass_kg_per_ha"],
     )
     plots.to_csv(folder / "plots.csv", index=False)
     # cp_pct is left empty: the bulletin gives none, and protein is not required below.
-    pd.DataFrame({
-        "forage_class": ["range_forage"], "growth_form": ["grass"],
-        "dmd_pct": [FORAGE_DIGESTIBILITY_PCT], "cp_pct": [""],
-        "allowable_use": [HARVEST_EFFICIENCY], "key": [True],
-    }).to_csv(folder / "forage_classes.csv", index=False)
-    pd.DataFrame({
-        "animal_class": ["stock_unit"],
-        "body_mass_kg": [round(STOCK_UNIT_MASS_LB * KG_PER_LB, 1)],  # 453.6 kg
-        "share": [1.0], "state": ["late_gestation"],
-        "intake_kg_per_day": [STOCK_UNIT_INTAKE_LB_PER_DAY * KG_PER_LB],
-    }).to_csv(folder / "animal_classes.csv", index=False)
+    pd.DataFrame(
+        {
+            "forage_class": ["range_forage"],
+            "growth_form": ["grass"],
+            "dmd_pct": [FORAGE_DIGESTIBILITY_PCT],
+            "cp_pct": [""],
+            "allowable_use": [HARVEST_EFFICIENCY],
+            "key": [True],
+        }
+    ).to_csv(folder / "forage_classes.csv", index=False)
+    pd.DataFrame(
+        {
+            "animal_class": ["stock_unit"],
+            "body_mass_kg": [round(STOCK_UNIT_MASS_LB * KG_PER_LB, 1)],  # 453.6 kg
+            "share": [1.0],
+            "state": ["late_gestation"],
+            "intake_kg_per_day": [STOCK_UNIT_INTAKE_LB_PER_DAY * KG_PER_LB],
+        }
+    ).to_csv(folder / "animal_classes.csv", index=False)
     project = folder / "project.toml"
-    project.write_text(f"""\
+    project.write_text(
+        f"""\
 [project]
 name = "B-1646 example pasture"
 species = "cattle"
@@ -162,7 +180,9 @@ cap_at_allowable_use = true
 
 [pooling]
 mode = "unit"
-""", encoding="utf-8")
+""",
+        encoding="utf-8",
+    )
     return project
 
 
@@ -170,7 +190,8 @@ mode = "unit"
 def worked_example_project(tmp_path: Path) -> Path:
     units = gpd.GeoDataFrame(
         {"unit_id": ["pasture"], "current_animals": [CURRENT_STOCK_UNITS]},
-        geometry=[pasture_square()], crs=CRS,
+        geometry=[pasture_square()],
+        crs=CRS,
     )
     strata = worked_example_strata()
     yields = dict.fromkeys(strata["stratum"], derived_yield_kg_per_ha(strata))
@@ -218,8 +239,12 @@ def test_tiny_project_files_carry_the_published_totals(worked_example_project: P
 
     assert units.geometry.area.sum() / 1e4 / HA_PER_ACRE == pytest.approx(PASTURE_ACRES, rel=1e-9)
     mean_kg_ha = plots.groupby("stratum")["biomass_kg_per_ha"].mean()
-    supply_kg = (strata.geometry.area / 1e4 * strata["accessible_fraction"]
-                 * strata["stratum"].map(mean_kg_ha)).sum()
+    supply_kg = (
+        strata.geometry.area
+        / 1e4
+        * strata["accessible_fraction"]
+        * strata["stratum"].map(mean_kg_ha)
+    ).sum()
     assert supply_kg / KG_PER_LB == pytest.approx(FORAGE_SUPPLY_LB, rel=1e-9)
     grazable_kg = supply_kg * uses.iloc[0]
     assert grazable_kg / KG_PER_LB == pytest.approx(GRAZABLE_FORAGE_LB, abs=1)
@@ -270,7 +295,8 @@ def test_pipeline_areas_agree_with_shapely(tmp_path: Path) -> None:
     west, east = split_west_east(pasture, 0.65)
     strata = gpd.GeoDataFrame(
         {"stratum": ["west", "east"], "accessible_fraction": [0.8, 1.0]},
-        geometry=[west.difference(hole), east.difference(hole)], crs=CRS,
+        geometry=[west.difference(hole), east.difference(hole)],
+        crs=CRS,
     )
     yield_kg_ha = {"west": 600.0, "east": 250.0}
     by_unit = run_pipeline(write_tiny_project(tmp_path / "areas", units, strata, yield_kg_ha))

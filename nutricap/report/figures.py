@@ -83,8 +83,7 @@ def figure_png(figure: Figure, *, dpi: int = PNG_DPI) -> bytes:
         The PNG file's bytes.
     """
     buffer = io.BytesIO()
-    figure.savefig(buffer, format="png", dpi=dpi,
-                   metadata={"Software": None})
+    figure.savefig(buffer, format="png", dpi=dpi, metadata={"Software": None})
     return buffer.getvalue()
 
 
@@ -123,11 +122,15 @@ def ncc_density_map(units: gpd.GeoDataFrame, by_unit: pd.DataFrame) -> Figure:
     values = frame["ncc_per_km2"].to_numpy(dtype=float)
     norm = _density_norm(values)
     frame.plot(
-        column="ncc_per_km2", cmap=DENSITY_CMAP, norm=norm, ax=ax, edgecolor="white",
-        linewidth=0.8, missing_kwds={"color": "#d9d9d9", "hatch": "///", "label": "no value"},
+        column="ncc_per_km2",
+        cmap=DENSITY_CMAP,
+        norm=norm,
+        ax=ax,
+        edgecolor="white",
+        linewidth=0.8,
+        missing_kwds={"color": "#d9d9d9", "hatch": "///", "label": "no value"},
     )
-    colour_bar = figure.colorbar(ScalarMappable(norm=norm, cmap=DENSITY_CMAP), ax=ax,
-                                 shrink=0.85)
+    colour_bar = figure.colorbar(ScalarMappable(norm=norm, cmap=DENSITY_CMAP), ax=ax, shrink=0.85)
     colour_bar.set_label("NCC density [animals/km²]")
     if len(frame) <= MAX_UNITS_LABELLED:
         _label_units(ax, frame)
@@ -149,8 +152,14 @@ def _label_units(ax, frame: gpd.GeoDataFrame) -> None:
     for unit_id, point in zip(frame["unit_id"], frame.geometry.representative_point()):
         if point is None or point.is_empty:
             continue
-        ax.annotate(str(unit_id), (point.x, point.y), ha="center", va="center", fontsize=8,
-                    path_effects=halo)
+        ax.annotate(
+            str(unit_id),
+            (point.x, point.y),
+            ha="center",
+            va="center",
+            fontsize=8,
+            path_effects=halo,
+        )
 
 
 def _map_axes(ax, crs) -> None:
@@ -161,8 +170,10 @@ def _map_axes(ax, crs) -> None:
         return
     code = crs.to_string()
     by_direction = {info.direction.lower(): info for info in crs.axis_info}
-    pairs = ((ax.xaxis, by_direction.get("east"), "Easting"),
-             (ax.yaxis, by_direction.get("north"), "Northing"))
+    pairs = (
+        (ax.xaxis, by_direction.get("east"), "Easting"),
+        (ax.yaxis, by_direction.get("north"), "Northing"),
+    )
     for axis, info, fallback in pairs:
         name = info.name if info is not None else fallback
         unit = info.unit_name if info is not None else "map units"
@@ -212,8 +223,15 @@ def capacity_figure(
     for offset, (column, style) in zip(offsets, CAPACITY_SERIES.items()):
         _capacity_series(ax, shown, column, rows + offset, style, interval_level)
     if "current_animals" in shown.columns:
-        ax.plot(shown["current_animals"].to_numpy(dtype=float), rows, linestyle="none",
-                marker="x", markersize=8, color=OKABE_ITO["black"], label="Current animals")
+        ax.plot(
+            shown["current_animals"].to_numpy(dtype=float),
+            rows,
+            linestyle="none",
+            marker="x",
+            markersize=8,
+            color=OKABE_ITO["black"],
+            label="Current animals",
+        )
     ax.set_yticks(rows, [str(unit) for unit in shown["unit_id"]])
     ax.set_ylabel("Management unit")
     days = f" for the {season_days:g}-day season" if season_days else ""
@@ -229,21 +247,38 @@ def capacity_figure(
     return figure
 
 
-def _capacity_series(ax, table: pd.DataFrame, column: str, rows: np.ndarray, style: tuple,
-                     interval_level: float | None) -> None:
+def _capacity_series(
+    ax,
+    table: pd.DataFrame,
+    column: str,
+    rows: np.ndarray,
+    style: tuple,
+    interval_level: float | None,
+) -> None:
     label, colour, marker = style
     values = table[column].to_numpy(dtype=float)
     low, high = f"{column}_lo", f"{column}_hi"
     if {low, high} <= set(table.columns):
-        errors = np.vstack([values - table[low].to_numpy(dtype=float),
-                            table[high].to_numpy(dtype=float) - values])
+        errors = np.vstack(
+            [values - table[low].to_numpy(dtype=float), table[high].to_numpy(dtype=float) - values]
+        )
         level = f", {100 * interval_level:g} % interval" if interval_level else ", interval"
-        ax.errorbar(values, rows, xerr=np.clip(errors, 0.0, None), fmt=marker, color=colour,
-                    ecolor=colour, elinewidth=1.2, capsize=3, markersize=6,
-                    label=label + level)
+        ax.errorbar(
+            values,
+            rows,
+            xerr=np.clip(errors, 0.0, None),
+            fmt=marker,
+            color=colour,
+            ecolor=colour,
+            elinewidth=1.2,
+            capsize=3,
+            markersize=6,
+            label=label + level,
+        )
     else:
-        ax.plot(values, rows, linestyle="none", marker=marker, color=colour, markersize=6,
-                label=label)
+        ax.plot(
+            values, rows, linestyle="none", marker=marker, color=colour, markersize=6, label=label
+        )
 
 
 # --- (3) population trend ---------------------------------------------------------------------
@@ -278,22 +313,33 @@ def population_trend_figure(
     """
     figure = _new_figure(8.0, 4.8)
     ax = figure.add_subplot()
-    ax.plot(years, counts, linestyle="none", marker="o", color=OKABE_ITO["black"],
-            label="Count (index)")
+    ax.plot(
+        years, counts, linestyle="none", marker="o", color=OKABE_ITO["black"], label="Count (index)"
+    )
     if fitted_years is not None and fitted_counts is not None:
-        ax.plot(fitted_years, fitted_counts, color=OKABE_ITO["sky_blue"], linewidth=2,
-                label="Fitted logistic")
+        ax.plot(
+            fitted_years,
+            fitted_counts,
+            color=OKABE_ITO["sky_blue"],
+            linewidth=2,
+            label="Fitted logistic",
+        )
     lines = [
         (K, "K (fitted ceiling)", OKABE_ITO["vermillion"], "-"),
-        (None if K is None else K / 2.0, "K/2 (maximum sustained yield level)",
-         OKABE_ITO["vermillion"], ":"),
+        (
+            None if K is None else K / 2.0,
+            "K/2 (maximum sustained yield level)",
+            OKABE_ITO["vermillion"],
+            ":",
+        ),
         (ncc_animals, "NCC from forage", OKABE_ITO["blue"], "--"),
         (ecc_animals, "ECC from forage", OKABE_ITO["bluish_green"], "-."),
     ]
     for value, label, colour, style in lines:
         if value is not None and math.isfinite(value):
-            ax.axhline(value, color=colour, linestyle=style, linewidth=1.5,
-                       label=f"{label}: {value:,.0f}")
+            ax.axhline(
+                value, color=colour, linestyle=style, linewidth=1.5, label=f"{label}: {value:,.0f}"
+            )
     handles, labels = ax.get_legend_handles_labels()
     title = "Counts over time beside forage capacity"
     if K is None:
@@ -357,17 +403,31 @@ def _scenario_panel(ax, table: pd.DataFrame, *, legend: bool) -> None:
     ].sum()
     baseline = totals["ncc_animals_baseline"].unstack("scenario")
     scenario = totals["ncc_animals_scenario"].unstack("scenario")
-    same = baseline.apply(lambda column: np.allclose(column, baseline.iloc[:, 0],
-                                                     equal_nan=True)).all()
+    same = baseline.apply(
+        lambda column: np.allclose(column, baseline.iloc[:, 0], equal_nan=True)
+    ).all()
     baselines = baseline.iloc[:, :1] if same else baseline
     for name, series in baselines.items():
         label = "baseline" if same else f"baseline ({name})"
-        ax.plot(series.index, series.to_numpy(), color=OKABE_ITO["black"], linestyle="--",
-                marker=".", label=label)
+        ax.plot(
+            series.index,
+            series.to_numpy(),
+            color=OKABE_ITO["black"],
+            linestyle="--",
+            marker=".",
+            label=label,
+        )
     for index, (name, series) in enumerate(scenario.items()):
         colour = OKABE_ITO[_SCENARIO_COLOURS[index % len(_SCENARIO_COLOURS)]]
-        ax.plot(series.index, series.to_numpy(), color=colour, linewidth=2, marker="o",
-                markersize=4, label=f"scenario: {name}")
+        ax.plot(
+            series.index,
+            series.to_numpy(),
+            color=colour,
+            linewidth=2,
+            marker="o",
+            markersize=4,
+            label=f"scenario: {name}",
+        )
     ax.set_xlabel("Year")
     ax.set_ylabel("NCC [animals]")
     ax.yaxis.set_major_formatter(_THOUSANDS)
@@ -380,8 +440,10 @@ def _scenario_panel(ax, table: pd.DataFrame, *, legend: bool) -> None:
 def _require_columns(table: pd.DataFrame, columns: Sequence[str], what: str) -> None:
     missing = [column for column in columns if column not in table.columns]
     if missing:
-        raise ValueError(f"{what} lacks column(s) {', '.join(missing)}; "
-                         f"found {', '.join(map(str, table.columns))}")
+        raise ValueError(
+            f"{what} lacks column(s) {', '.join(missing)}; "
+            f"found {', '.join(map(str, table.columns))}"
+        )
 
 
 # --- (5) sensitivity tornado ------------------------------------------------------------------
@@ -423,11 +485,23 @@ def tornado_figure(
     ax = figure.add_subplot()
     rows = np.arange(len(table))
     low, high = ("low value", "high value") if not change else (f"{-change:+.0%}", f"{change:+.0%}")
-    ax.barh(rows, table["low_change_animals"].to_numpy(dtype=float), height=0.6,
-            color=OKABE_ITO["sky_blue"], edgecolor=OKABE_ITO["black"], label=f"input at {low}")
-    ax.barh(rows, table["high_change_animals"].to_numpy(dtype=float), height=0.6,
-            color=OKABE_ITO["vermillion"], edgecolor=OKABE_ITO["black"], hatch="//",
-            label=f"input at {high}")
+    ax.barh(
+        rows,
+        table["low_change_animals"].to_numpy(dtype=float),
+        height=0.6,
+        color=OKABE_ITO["sky_blue"],
+        edgecolor=OKABE_ITO["black"],
+        label=f"input at {low}",
+    )
+    ax.barh(
+        rows,
+        table["high_change_animals"].to_numpy(dtype=float),
+        height=0.6,
+        color=OKABE_ITO["vermillion"],
+        edgecolor=OKABE_ITO["black"],
+        hatch="//",
+        label=f"input at {high}",
+    )
     ax.axvline(0.0, color=OKABE_ITO["black"], linewidth=1)
     ax.set_axisbelow(True)
     ax.set_yticks(rows, [str(name) for name in table["input"]])
@@ -450,8 +524,8 @@ def signed_animals(value: float, _position: int | None = None) -> str:
 
 def sort_by_range(sensitivity_table: pd.DataFrame) -> pd.DataFrame:
     """Rows sorted by |high − low| change, largest first (ties keep their order)."""
-    spread = (sensitivity_table["high_change_animals"]
-              - sensitivity_table["low_change_animals"]).abs()
+    spread = (
+        sensitivity_table["high_change_animals"] - sensitivity_table["low_change_animals"]
+    ).abs()
     order = np.argsort(-spread.to_numpy(dtype=float), kind="stable")
     return sensitivity_table.iloc[order]
-

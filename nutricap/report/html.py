@@ -108,8 +108,10 @@ def render_report(
         "header": _header(estimate, project, manifest),
         "inputs": _inputs(estimate, project, manifest, n_animal_classes=len(animals)),
         "diet": _diet(estimate),
-        "map": _figure(figures.ncc_density_map(estimate.units, estimate.by_unit),
-                       "Map of the management units shaded by NCC per square kilometre."),
+        "map": _figure(
+            figures.ncc_density_map(estimate.units, estimate.by_unit),
+            "Map of the management units shaded by NCC per square kilometre.",
+        ),
         "capacity": _capacity(estimate, extras.interval_level),
         "sensitivity": _sensitivity(extras.sensitivity_table, extras.sensitivity_change),
         "use": _use(estimate.by_unit),
@@ -212,8 +214,13 @@ def _numeric(name: str, header: str, format_value: Callable[[Any], str] = ANIMAL
     return Column(name, header, format_value, numeric=True)
 
 
-def table(frame: pd.DataFrame, columns: list[Column], *, flag: pd.Series | None = None,
-          footer: list[str] | None = None) -> dict:
+def table(
+    frame: pd.DataFrame,
+    columns: list[Column],
+    *,
+    flag: pd.Series | None = None,
+    footer: list[str] | None = None,
+) -> dict:
     """A table as plain strings for the template: headers, rows (with a flag), alignment."""
     present = [column for column in columns if column.name in frame.columns]
     flags = [False] * len(frame) if flag is None else [bool(value) for value in flag]
@@ -241,8 +248,11 @@ def _header(estimate: Estimate, project: Project, manifest: dict) -> dict:
     config = project.config
     by_unit = estimate.by_unit
     target = estimate.target
-    protein = (f" and at least {target.dp_min_pct:.2f} % digestible protein"
-               if target.dp_min_pct is not None else "")
+    protein = (
+        f" and at least {target.dp_min_pct:.2f} % digestible protein"
+        if target.dp_min_pct is not None
+        else ""
+    )
     question = (
         f"How many {config.project.species} can the {len(by_unit)} management units of "
         f"{config.project.name} carry through a {estimate.season_days:g}-day "
@@ -250,8 +260,10 @@ def _header(estimate: Estimate, project: Project, manifest: dict) -> dict:
         f"of at least {target.de_min_kcal_per_g:.3f} kcal digestible energy per g dry "
         f"matter{protein}?"
     )
-    totals = {name: ANIMALS(by_unit[name].sum())
-              for name in ("ncc_animals", "ecc_animals", "allowable_use_animals")}
+    totals = {
+        name: ANIMALS(by_unit[name].sum())
+        for name in ("ncc_animals", "ecc_animals", "allowable_use_animals")
+    }
     return {
         "project": config.project.name,
         "species": config.project.species,
@@ -279,8 +291,7 @@ def _run_date(manifest: dict) -> str:
 # --- 2. inputs --------------------------------------------------------------------------------
 
 
-def _inputs(estimate: Estimate, project: Project, manifest: dict, *,
-            n_animal_classes: int) -> dict:
+def _inputs(estimate: Estimate, project: Project, manifest: dict, *, n_animal_classes: int) -> dict:
     config = project.config
     derived = manifest.get("derived", {})
     counts = {
@@ -314,11 +325,13 @@ _POOLING = {
 def _input_files(manifest: dict, project: Project) -> list[dict]:
     rows = []
     for path, info in manifest.get("inputs", {}).items():
-        rows.append({
-            "name": _relative(Path(path), project.folder),
-            "sha256": info.get("sha256", "–"),
-            "bytes": f"{info['bytes']:,}" if "bytes" in info else "–",
-        })
+        rows.append(
+            {
+                "name": _relative(Path(path), project.folder),
+                "sha256": info.get("sha256", "–"),
+                "bytes": f"{info['bytes']:,}" if "bytes" in info else "–",
+            }
+        )
     return rows
 
 
@@ -340,8 +353,9 @@ def _diet(estimate: Estimate) -> dict:
         "derivation": target.derivation,
         "herd": {
             "Digestible-energy requirement [kcal/day]": ANIMALS(herd.de_kcal_per_day),
-            "Same herd at maintenance [kcal/day] (used for ECC)":
-                ANIMALS(herd.maintenance_de_kcal_per_day),
+            "Same herd at maintenance [kcal/day] (used for ECC)": ANIMALS(
+                herd.maintenance_de_kcal_per_day
+            ),
             "Dry-matter intake [kg DM/day]": TWO_DECIMALS(herd.intake_kg_per_day),
             "Digestible-protein requirement [g/day]": ONE_DECIMAL(herd.dp_g_per_day),
             "Diet DE the average animal needs [kcal/g DM]": THREE_DECIMALS(herd.diet_de_kcal_per_g),
@@ -358,8 +372,11 @@ INTERVAL_COLUMNS = {
     "ecc_animals": "ECC interval [animals]",
     "allowable_use_animals": "Allowable-use interval [animals]",
 }
-INTERVAL_NAMES = {"ncc_animals": "NCC", "ecc_animals": "ECC",
-                  "allowable_use_animals": "allowable-use capacity"}
+INTERVAL_NAMES = {
+    "ncc_animals": "NCC",
+    "ecc_animals": "ECC",
+    "allowable_use_animals": "allowable-use capacity",
+}
 
 
 def _has_interval(frame: pd.DataFrame, name: str) -> bool:
@@ -373,11 +390,11 @@ def _level_text(level: float | None) -> str:
 def _capacity(estimate: Estimate, level: float | None) -> dict:
     by_unit = estimate.by_unit
     intervals = [name for name in INTERVAL_COLUMNS if _has_interval(by_unit, name)]
-    chart = figures.capacity_figure(by_unit, season_days=estimate.season_days,
-                                    interval_level=level)
+    chart = figures.capacity_figure(by_unit, season_days=estimate.season_days, interval_level=level)
     return {
-        "figure": _figure(chart, "Per-unit dot chart of NCC, allowable-use capacity and ECC "
-                                 "in animals."),
+        "figure": _figure(
+            chart, "Per-unit dot chart of NCC, allowable-use capacity and ECC in animals."
+        ),
         "intervals": [INTERVAL_NAMES[name] for name in intervals],
         "level": _level_text(level),
         "shown": min(len(by_unit), figures.MAX_UNITS_CHART),
@@ -403,8 +420,15 @@ UNIT_COLUMNS = [
 ]
 
 #: Columns summed in the total row (additive over units; intervals and rates are not).
-ADDITIVE_COLUMNS = ("area_ha", "available_forage_kg", "ncc_animals", "ecc_animals",
-                    "allowable_use_animals", "ncc_aum", "current_animals")
+ADDITIVE_COLUMNS = (
+    "area_ha",
+    "available_forage_kg",
+    "ncc_animals",
+    "ecc_animals",
+    "allowable_use_animals",
+    "ncc_aum",
+    "current_animals",
+)
 
 
 def unit_table(by_unit: pd.DataFrame, level: float | None = None) -> dict:
@@ -418,9 +442,14 @@ def unit_table(by_unit: pd.DataFrame, level: float | None = None) -> dict:
                 for low, high in zip(frame[f"{name}_lo"], frame[f"{name}_hi"])
             ]
             position = next(i for i, c in enumerate(columns) if c.name == name) + 1
-            columns.insert(position, Column(f"{name}_interval",
-                                            header.replace("interval", f"{_level_text(level)} "
-                                                           "interval"), numeric=True))
+            columns.insert(
+                position,
+                Column(
+                    f"{name}_interval",
+                    header.replace("interval", f"{_level_text(level)} interval"),
+                    numeric=True,
+                ),
+            )
     present = [column for column in columns if column.name in frame.columns]
     footer = [_total_cell(frame, column) for column in present]
     footer[0] = "Total"
@@ -440,19 +469,25 @@ def _sensitivity(sensitivity_table: pd.DataFrame | None, change: float | None) -
     if sensitivity_table is None:
         return None
     ordered = figures.sort_by_range(sensitivity_table).copy()
-    ordered["range_animals"] = (ordered["high_change_animals"]
-                                - ordered["low_change_animals"]).abs()
+    ordered["range_animals"] = (
+        ordered["high_change_animals"] - ordered["low_change_animals"]
+    ).abs()
     known = ["input", "low_change_animals", "high_change_animals", "range_animals"]
     columns = [
         Column("input", "Input"),
         _numeric("low_change_animals", "Change with input low [animals]", _signed),
         _numeric("high_change_animals", "Change with input high [animals]", _signed),
         _numeric("range_animals", "Range [animals]"),
-    ] + [Column(name, name.replace("_", " "), _auto, numeric=True)
-         for name in ordered.columns if name not in known]
+    ] + [
+        Column(name, name.replace("_", " "), _auto, numeric=True)
+        for name in ordered.columns
+        if name not in known
+    ]
     return {
-        "figure": _figure(figures.tornado_figure(sensitivity_table, change=change),
-                          "Tornado chart of the change in total NCC for each input."),
+        "figure": _figure(
+            figures.tornado_figure(sensitivity_table, change=change),
+            "Tornado chart of the change in total NCC for each input.",
+        ),
         "table": table(ordered, columns),
         "change": f"±{100 * change:g} %" if change else "its low and its high value",
     }
@@ -477,8 +512,10 @@ USE_TABLE_COLUMNS = [
     _numeric("key_use_fraction", "Expected use of that class [% of available]", PERCENT),
     _numeric("key_allowable_use", "Its allowable use [%]", PERCENT),
     Column("overuse", "Use above allowable"),
-    _numeric("reduction_for_key_use_animals", "Fewer animals to bring use to allowable "
-             "[animals, advisory]"),
+    _numeric(
+        "reduction_for_key_use_animals",
+        "Fewer animals to bring use to allowable [animals, advisory]",
+    ),
     Column("above_ncc", "Numbers above NCC"),
     _numeric("reduction_for_ncc_animals", "Fewer animals to reach NCC [animals, advisory]"),
 ]
@@ -491,8 +528,11 @@ def _use(by_unit: pd.DataFrame) -> dict:
     flags = by_unit["overuse"].map(is_flag)
     if "above_ncc" in by_unit.columns:
         flags = flags | by_unit["above_ncc"].map(is_flag)
-    return {"state": "assessed", "table": table(by_unit, USE_TABLE_COLUMNS, flag=flags),
-            "flagged": int(flags.sum())}
+    return {
+        "state": "assessed",
+        "table": table(by_unit, USE_TABLE_COLUMNS, flag=flags),
+        "flagged": int(flags.sum()),
+    }
 
 
 def is_flag(value: Any) -> bool:
@@ -532,8 +572,9 @@ def _scenario(scenario_table: pd.DataFrame | None) -> dict | None:
     ].sum()
     totals["change_animals"] = totals["ncc_animals_scenario"] - totals["ncc_animals_baseline"]
     return {
-        "figure": _figure(chart, "Line chart of NCC over the years, baseline against each "
-                                 "treatment scenario."),
+        "figure": _figure(
+            chart, "Line chart of NCC over the years, baseline against each treatment scenario."
+        ),
         "per_unit_panels": units <= MAX_SCENARIO_PANELS,
         "totals": table(totals, SCENARIO_TOTAL_COLUMNS),
         "by_unit": table(scenario_table, SCENARIO_UNIT_COLUMNS),
@@ -556,12 +597,19 @@ def _trend(trend: Any, by_unit: pd.DataFrame) -> dict | None:
     ncc, ecc, area = _trend_capacity(data, by_unit)
     K = _finite_or_none(data.get("K"))
     chart = figures.population_trend_figure(
-        data["years"], data["counts"], data.get("fitted_years"), data.get("fitted_counts"),
-        K, ncc, ecc,
+        data["years"],
+        data["counts"],
+        data.get("fitted_years"),
+        data.get("fitted_counts"),
+        K,
+        ncc,
+        ecc,
     )
     return {
-        "figure": _figure(chart, "Counts over time with the fitted curve and the reference "
-                                 "lines K, K/2, NCC and ECC."),
+        "figure": _figure(
+            chart,
+            "Counts over time with the fitted curve and the reference lines K, K/2, NCC and ECC.",
+        ),
         "series": _text(data.get("series")),
         "area": area,
         "fitted": data.get("fitted_counts") is not None,
@@ -585,8 +633,11 @@ def _trend_capacity(data: dict, by_unit: pd.DataFrame) -> tuple[float | None, fl
         if source.get("ncc_animals") is not None or source.get("ecc_animals") is not None:
             units = capacity.get("units")
             area = ("units " + ", ".join(map(str, units))) if units else "the counted area"
-            return (_finite_or_none(source.get("ncc_animals")),
-                    _finite_or_none(source.get("ecc_animals")), area)
+            return (
+                _finite_or_none(source.get("ncc_animals")),
+                _finite_or_none(source.get("ecc_animals")),
+                area,
+            )
     series = data.get("series")
     rows = by_unit[by_unit["unit_id"].astype(str) == str(series)]
     if series is None or rows.empty:
@@ -786,16 +837,20 @@ TREND_METHOD = Method(
 
 def methods(*, intervals: bool, sensitivity: bool, trend: bool) -> tuple[Method, ...]:
     """The method entries of this run: the core, then those of the optional analyses."""
-    optional = ((intervals, BOOTSTRAP_METHOD), (sensitivity, SENSITIVITY_METHOD),
-                (trend, TREND_METHOD))
+    optional = (
+        (intervals, BOOTSTRAP_METHOD),
+        (sensitivity, SENSITIVITY_METHOD),
+        (trend, TREND_METHOD),
+    )
     return METHODS + tuple(method for used, method in optional if used)
 
 
 # --- 12. parameters ---------------------------------------------------------------------------
 
 
-def _parameters(estimate: Estimate, project: Project, animals: pd.DataFrame,
-                forage: pd.DataFrame) -> dict:
+def _parameters(
+    estimate: Estimate, project: Project, animals: pd.DataFrame, forage: pd.DataFrame
+) -> dict:
     season = project.config.project.season
     return {
         "states": _state_rows(animals, season, project),
@@ -826,8 +881,9 @@ def _state_rows(animals: pd.DataFrame, season: str, project: Project) -> dict:
     for name, state in pairs:
         row = energetics.state_parameters(state, season)
         users.setdefault((row["state"], row["season"]), []).append(str(name))
-    states["used_by"] = [", ".join(users.get((s, z), [])) for s, z in
-                         zip(states["state"], states["season"])]
+    states["used_by"] = [
+        ", ".join(users.get((s, z), [])) for s, z in zip(states["state"], states["season"])
+    ]
     return table(states, STATE_COLUMNS, flag=states["used_by"] != "")
 
 
@@ -849,8 +905,9 @@ def _forage_rows(forage: pd.DataFrame, project: Project) -> dict:
     frame = forage.copy()
     given = f"project input: {project.input_path('forage_classes').name}"
     derived_de = _de_from_dmd(frame)
-    frame["provenance"] = [given + ("; DE = GE × DMD / 100" if derived else "")
-                           for derived in derived_de]
+    frame["provenance"] = [
+        given + ("; DE = GE × DMD / 100" if derived else "") for derived in derived_de
+    ]
     frame["stratum"] = frame["stratum"].replace("", "all strata")
     columns = [
         Column("forage_class", "Forage class"),
@@ -869,9 +926,7 @@ def _forage_rows(forage: pd.DataFrame, project: Project) -> dict:
 
 def _de_from_dmd(frame: pd.DataFrame) -> pd.Series:
     """Rows whose DE equals GE × DMD / 100: computed by the reader (it keeps a given DE)."""
-    gross = frame["gross_energy_kcal_per_g"].fillna(
-        forage_quality.GROSS_ENERGY_KCAL_PER_G_DEFAULT
-    )
+    gross = frame["gross_energy_kcal_per_g"].fillna(forage_quality.GROSS_ENERGY_KCAL_PER_G_DEFAULT)
     computed = forage_quality.digestible_energy_kcal_per_g(
         frame["dmd_pct"].fillna(0.0).to_numpy(), gross.to_numpy()
     )
@@ -885,31 +940,60 @@ def _threshold_rows(estimate: Estimate, project: Project) -> dict:
     coefficients = forage_quality.ROBBINS_1987_DP_COEFFICIENTS
     rows = [
         ("Minimum diet DE, T [kcal/g DM]", f"{target.de_min_kcal_per_g:.3f}", target.derivation),
-        ("Minimum diet DP, P [% DM]",
-         "not constrained" if target.dp_min_pct is None else f"{target.dp_min_pct:.2f}",
-         target.derivation),
+        (
+            "Minimum diet DP, P [% DM]",
+            "not constrained" if target.dp_min_pct is None else f"{target.dp_min_pct:.2f}",
+            target.derivation,
+        ),
         ("Season length, D [days]", f"{estimate.season_days:g}", project_file),
-        ("NCC capped at allowable use", _text(config.forage_use.cap_at_allowable_use),
-         project_file),
-        ("Kleiber constant [kcal/kg^0.75/day]",
-         f"{energetics.KLEIBER_KCAL_PER_KG075_PER_DAY:g}", "Kleiber 1961"),
-        ("ME / DE [–]", f"{energetics.ME_PER_DE:g}", "NRC nutrient-requirement volumes "
-         "(from memory)"),
-        ("Default gross energy of forage [kcal/g DM]",
-         f"{forage_quality.GROSS_ENERGY_KCAL_PER_G_DEFAULT:g}", "Robbins 1993 (from memory)"),
-        ("Digestible-protein equation: intercept [%], CP slope, BSA slope [%/(mg/mg)]",
-         f"{coefficients['intercept_pct']:g}, {coefficients['cp_slope']:g}, "
-         f"{coefficients['bsa_slope_pct_per_mg_per_mg']:g}", str(coefficients["source"])),
-        ("Animal-unit body mass [kg]", f"{energetics.ANIMAL_UNIT_BODY_MASS_KG:.1f}",
-         "NRCS National Range and Pasture Handbook (1000 lb; attribution from memory)"),
-        ("Days per animal-unit month", f"{energetics.DAYS_PER_ANIMAL_UNIT_MONTH:g}",
-         "Society for Range Management 1998 glossary"),
-        ("Plot conversion [kg/ha per g/m²]", f"{supply.KG_PER_HA_PER_G_PER_M2:g}",
-         "SI unit definitions"),
+        (
+            "NCC capped at allowable use",
+            _text(config.forage_use.cap_at_allowable_use),
+            project_file,
+        ),
+        (
+            "Kleiber constant [kcal/kg^0.75/day]",
+            f"{energetics.KLEIBER_KCAL_PER_KG075_PER_DAY:g}",
+            "Kleiber 1961",
+        ),
+        (
+            "ME / DE [–]",
+            f"{energetics.ME_PER_DE:g}",
+            "NRC nutrient-requirement volumes (from memory)",
+        ),
+        (
+            "Default gross energy of forage [kcal/g DM]",
+            f"{forage_quality.GROSS_ENERGY_KCAL_PER_G_DEFAULT:g}",
+            "Robbins 1993 (from memory)",
+        ),
+        (
+            "Digestible-protein equation: intercept [%], CP slope, BSA slope [%/(mg/mg)]",
+            f"{coefficients['intercept_pct']:g}, {coefficients['cp_slope']:g}, "
+            f"{coefficients['bsa_slope_pct_per_mg_per_mg']:g}",
+            str(coefficients["source"]),
+        ),
+        (
+            "Animal-unit body mass [kg]",
+            f"{energetics.ANIMAL_UNIT_BODY_MASS_KG:.1f}",
+            "NRCS National Range and Pasture Handbook (1000 lb; attribution from memory)",
+        ),
+        (
+            "Days per animal-unit month",
+            f"{energetics.DAYS_PER_ANIMAL_UNIT_MONTH:g}",
+            "Society for Range Management 1998 glossary",
+        ),
+        (
+            "Plot conversion [kg/ha per g/m²]",
+            f"{supply.KG_PER_HA_PER_G_PER_M2:g}",
+            "SI unit definitions",
+        ),
     ]
     frame = pd.DataFrame(rows, columns=["name", "value", "provenance"])
-    columns = [Column("name", "Parameter"), Column("value", "Value", numeric=True),
-               Column("provenance", "Provenance")]
+    columns = [
+        Column("name", "Parameter"),
+        Column("value", "Value", numeric=True),
+        Column("provenance", "Provenance"),
+    ]
     return table(frame, columns)
 
 

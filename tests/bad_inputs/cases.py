@@ -266,250 +266,485 @@ NO_CURRENT_ANIMALS = edit_layer(U, lambda g: g.drop(columns=["current_animals"])
 
 CASES = [
     # Columns missing, renamed, repeated, or named with the wrong unit.
-    Case("plots: column renamed", rename_column(P, "forage_class", "Forage Class"),
-         r"plots\.csv" + ROW1 + r"missing column 'forage_class'; did you mean to name "
-         r"'Forage Class'"),
-    Case("forage classes: column dropped", drop_column(F, "allowable_use"),
-         r"forage_classes\.csv" + ROW1 + r"missing column 'allowable_use'"),
-    Case("plots: mass in kg, not g", rename_column(P, "dry_mass_g", "dry_mass_kg"),
-         r"plots\.csv" + ROW1 + r"unknown column 'dry_mass_kg'; did you mean 'dry_mass_g'\?"),
-    Case("plots: g/m² where kg/ha expected",
-         steps(rename_column(P, "dry_mass_g", "biomass_g_per_m2"), drop_column(P, "frame_area_m2")),
-         r"plots\.csv" + ROW1 + r"unknown column 'biomass_g_per_m2'; did you mean "
-         r"'biomass_kg_per_ha'\?"),
-    Case("forage classes: optional column misspelt", rename_column(F, "tannin", "tanin"),
-         r"forage_classes\.csv" + ROW1 + r"unknown column 'tanin'; did you mean 'tannin'\?"),
-    Case("forage classes: column twice", replace_text(F, ",allowable_use,", ",cp_pct,"),
-         r"forage_classes\.csv: row 1 \(header\), column 6: column 'cp_pct' appears twice"),
-    Case("units: id attribute renamed",
-         edit_layer(U, lambda g: g.rename(columns={"unit_id": "UnitID"})),
-         r"units\.gpkg: attribute 'unit_id': units layer has no column 'unit_id'; did you mean "
-         r"to name 'UnitID'"),
+    Case(
+        "plots: column renamed",
+        rename_column(P, "forage_class", "Forage Class"),
+        r"plots\.csv" + ROW1 + r"missing column 'forage_class'; did you mean to name "
+        r"'Forage Class'",
+    ),
+    Case(
+        "forage classes: column dropped",
+        drop_column(F, "allowable_use"),
+        r"forage_classes\.csv" + ROW1 + r"missing column 'allowable_use'",
+    ),
+    Case(
+        "plots: mass in kg, not g",
+        rename_column(P, "dry_mass_g", "dry_mass_kg"),
+        r"plots\.csv" + ROW1 + r"unknown column 'dry_mass_kg'; did you mean 'dry_mass_g'\?",
+    ),
+    Case(
+        "plots: g/m² where kg/ha expected",
+        steps(rename_column(P, "dry_mass_g", "biomass_g_per_m2"), drop_column(P, "frame_area_m2")),
+        r"plots\.csv" + ROW1 + r"unknown column 'biomass_g_per_m2'; did you mean "
+        r"'biomass_kg_per_ha'\?",
+    ),
+    Case(
+        "forage classes: optional column misspelt",
+        rename_column(F, "tannin", "tanin"),
+        r"forage_classes\.csv" + ROW1 + r"unknown column 'tanin'; did you mean 'tannin'\?",
+    ),
+    Case(
+        "forage classes: column twice",
+        replace_text(F, ",allowable_use,", ",cp_pct,"),
+        r"forage_classes\.csv: row 1 \(header\), column 6: column 'cp_pct' appears twice",
+    ),
+    Case(
+        "units: id attribute renamed",
+        edit_layer(U, lambda g: g.rename(columns={"unit_id": "UnitID"})),
+        r"units\.gpkg: attribute 'unit_id': units layer has no column 'unit_id'; did you mean "
+        r"to name 'UnitID'",
+    ),
     # Wrong units and absurd values.
-    Case("plots: frame area of 0", set_cell(P, 5, "frame_area_m2", "0"),
-         r"plots\.csv: row 5, column 'frame_area_m2': value out of range \(expected a number > 0"),
-    Case("plots: mass in mg (absurd biomass)", set_cell(P, 3, "dry_mass_g", "28000"),
-         r"plots\.csv: row 3, columns 'dry_mass_g'/'frame_area_m2': biomass out of range"),
-    Case("plots: negative mass", set_cell(P, 7, "dry_mass_g", "-3.5"),
-         r"plots\.csv: row 7, column 'dry_mass_g': value out of range .*found -3\.5"),
-    Case("plots: NaN mass", set_cell(P, 4, "dry_mass_g", "NaN"),
-         r"plots\.csv: row 4, column 'dry_mass_g': not a number .*found 'NaN'"),
-    Case("forage classes: DE above 5 kcal/g", set_cell(F, 3, "de_kcal_per_g", "24.5"),
-         r"forage_classes\.csv: row 3, column 'de_kcal_per_g': value out of range "
-         r"\(expected a number > 0 and <= 5"),
-    Case("forage classes: allowable use in percent", set_cell(F, 2, "allowable_use", "50"),
-         r"forage_classes\.csv: row 2, column 'allowable_use': value out of range "
-         r"\(expected a number >= 0 and <= 1"),
-    Case("forage classes: digestibility as a fraction", set_cell(F, 6, "dmd_pct", "0.48"),
-         r"forage_classes\.csv: row 6, column 'dmd_pct': a value of 1 % or less"),
-    Case("forage classes: infinite crude protein", set_cell(F, 4, "cp_pct", "inf"),
-         r"forage_classes\.csv: row 4, column 'cp_pct': value out of range"),
-    Case("forage classes: no energy value", set_cell(F, 2, "de_kcal_per_g", ""),
-         r"forage_classes\.csv: row 2, columns 'de_kcal_per_g'/'dmd_pct': no energy value"),
-    Case("animal classes: body mass of 0", set_cell(A, 3, "body_mass_kg", "0"),
-         r"animal_classes\.csv: row 3, column 'body_mass_kg': value out of range "
-         r"\(expected a number > 0"),
-    Case("animal classes: shares in percent", set_cell(A, 2, "share", "60"),
-         r"animal_classes\.csv: row 2, column 'share': value out of range"),
-    Case("animal classes: shares add to 1.2", set_cell(A, 4, "share", "0.3"),
-         r"animal_classes\.csv: column 'share': herd shares do not add up to 1 .*found sum 1\.2"),
-    Case("animal classes: unknown state", set_cell(A, 2, "state", "lactaton"),
-         r"animal_classes\.csv: row 2, column 'state': unknown nutritional state 'lactaton'"),
-    Case("strata: accessible fraction above 1",
-         edit_layer(S, lambda g: g.assign(accessible_fraction=[1.5] + [1.0] * (len(g) - 1))),
-         r"strata\.gpkg: feature 1 \(of 70\): strata layer has a bad accessible_fraction "
-         r"\(expected a number between 0 and 1; found 1\.5\)"),
-    Case("units: negative current animals",
-         edit_layer(U, lambda g: g.assign(current_animals=[10, 20, -5, 40, 50, 60])),
-         r"units\.gpkg: feature 3 \(of 6\): units layer has a bad current_animals"),
+    Case(
+        "plots: frame area of 0",
+        set_cell(P, 5, "frame_area_m2", "0"),
+        r"plots\.csv: row 5, column 'frame_area_m2': value out of range \(expected a number > 0",
+    ),
+    Case(
+        "plots: mass in mg (absurd biomass)",
+        set_cell(P, 3, "dry_mass_g", "28000"),
+        r"plots\.csv: row 3, columns 'dry_mass_g'/'frame_area_m2': biomass out of range",
+    ),
+    Case(
+        "plots: negative mass",
+        set_cell(P, 7, "dry_mass_g", "-3.5"),
+        r"plots\.csv: row 7, column 'dry_mass_g': value out of range .*found -3\.5",
+    ),
+    Case(
+        "plots: NaN mass",
+        set_cell(P, 4, "dry_mass_g", "NaN"),
+        r"plots\.csv: row 4, column 'dry_mass_g': not a number .*found 'NaN'",
+    ),
+    Case(
+        "forage classes: DE above 5 kcal/g",
+        set_cell(F, 3, "de_kcal_per_g", "24.5"),
+        r"forage_classes\.csv: row 3, column 'de_kcal_per_g': value out of range "
+        r"\(expected a number > 0 and <= 5",
+    ),
+    Case(
+        "forage classes: allowable use in percent",
+        set_cell(F, 2, "allowable_use", "50"),
+        r"forage_classes\.csv: row 2, column 'allowable_use': value out of range "
+        r"\(expected a number >= 0 and <= 1",
+    ),
+    Case(
+        "forage classes: digestibility as a fraction",
+        set_cell(F, 6, "dmd_pct", "0.48"),
+        r"forage_classes\.csv: row 6, column 'dmd_pct': a value of 1 % or less",
+    ),
+    Case(
+        "forage classes: infinite crude protein",
+        set_cell(F, 4, "cp_pct", "inf"),
+        r"forage_classes\.csv: row 4, column 'cp_pct': value out of range",
+    ),
+    Case(
+        "forage classes: no energy value",
+        set_cell(F, 2, "de_kcal_per_g", ""),
+        r"forage_classes\.csv: row 2, columns 'de_kcal_per_g'/'dmd_pct': no energy value",
+    ),
+    Case(
+        "animal classes: body mass of 0",
+        set_cell(A, 3, "body_mass_kg", "0"),
+        r"animal_classes\.csv: row 3, column 'body_mass_kg': value out of range "
+        r"\(expected a number > 0",
+    ),
+    Case(
+        "animal classes: shares in percent",
+        set_cell(A, 2, "share", "60"),
+        r"animal_classes\.csv: row 2, column 'share': value out of range",
+    ),
+    Case(
+        "animal classes: shares add to 1.2",
+        set_cell(A, 4, "share", "0.3"),
+        r"animal_classes\.csv: column 'share': herd shares do not add up to 1 .*found sum 1\.2",
+    ),
+    Case(
+        "animal classes: unknown state",
+        set_cell(A, 2, "state", "lactaton"),
+        r"animal_classes\.csv: row 2, column 'state': unknown nutritional state 'lactaton'",
+    ),
+    Case(
+        "strata: accessible fraction above 1",
+        edit_layer(S, lambda g: g.assign(accessible_fraction=[1.5] + [1.0] * (len(g) - 1))),
+        r"strata\.gpkg: feature 1 \(of 70\): strata layer has a bad accessible_fraction "
+        r"\(expected a number between 0 and 1; found 1\.5\)",
+    ),
+    Case(
+        "units: negative current animals",
+        edit_layer(U, lambda g: g.assign(current_animals=[10, 20, -5, 40, 50, 60])),
+        r"units\.gpkg: feature 3 \(of 6\): units layer has a bad current_animals",
+    ),
     # Duplicate ids.
-    Case("plots: plot × class twice", copy_row(P, 2), r"plots\.csv: row \d+, column "
-         r"'plot_id', 'forage_class': duplicate entry \(expected each combination once; "
-         r"found plot_id='P001', forage_class='big_sagebrush' again\)"),
-    Case("forage classes: class twice", copy_row(F, 3, cp_pct="9"),
-         r"forage_classes\.csv: row 13, column 'forage_class', 'stratum': duplicate entry"),
-    Case("animal classes: class twice", copy_row(A, 2, share="0"),
-         r"animal_classes\.csv: row 5, column 'animal_class': duplicate entry"),
-    Case("units: id twice",
-         edit_layer(U, lambda g: g.assign(unit_id=g["unit_id"].where(g.index != 4, "Coldmarrow"))),
-         r"units\.gpkg: feature 5 \(of 6\): duplicate unit_id .*found 'Coldmarrow'"),
-    Case("plots: plot in two strata", set_cell(P, 3, "stratum", "aspen"),
-         r"plots\.csv: row 3, column 'stratum': plot recorded in two strata"),
+    Case(
+        "plots: plot × class twice",
+        copy_row(P, 2),
+        r"plots\.csv: row \d+, column "
+        r"'plot_id', 'forage_class': duplicate entry \(expected each combination once; "
+        r"found plot_id='P001', forage_class='big_sagebrush' again\)",
+    ),
+    Case(
+        "forage classes: class twice",
+        copy_row(F, 3, cp_pct="9"),
+        r"forage_classes\.csv: row 13, column 'forage_class', 'stratum': duplicate entry",
+    ),
+    Case(
+        "animal classes: class twice",
+        copy_row(A, 2, share="0"),
+        r"animal_classes\.csv: row 5, column 'animal_class': duplicate entry",
+    ),
+    Case(
+        "units: id twice",
+        edit_layer(U, lambda g: g.assign(unit_id=g["unit_id"].where(g.index != 4, "Coldmarrow"))),
+        r"units\.gpkg: feature 5 \(of 6\): duplicate unit_id .*found 'Coldmarrow'",
+    ),
+    Case(
+        "plots: plot in two strata",
+        set_cell(P, 3, "stratum", "aspen"),
+        r"plots\.csv: row 3, column 'stratum': plot recorded in two strata",
+    ),
     # Forage classes and strata that do not match between tables and map.
-    Case("plots: class not in the quality table", set_cell(P, 6, "forage_class", "sagebrsh"),
-         r"plots\.csv: row 6, column 'forage_class': unknown forage_class 'sagebrsh'"),
-    Case("forage classes: class never on a plot (valid, supply 0)",
-         copy_row(F, 2, forage_class="winterfat"),
-         r"note: forage classes in the forage-class table never recorded on a plot "
-         r"\(supply 0\): winterfat", exit_code=0, verify=same_as_reference),
-    Case("forage classes: without the optional growth_form (valid)",
-         drop_column(F, "growth_form"), r"Total NCC", exit_code=0, verify=same_as_reference),
-    Case("forage classes: stratum row without a general row",
-         copy_row(F, 2, forage_class="winterfat", stratum="aspen"),
-         r"forage_classes\.csv: row 13, column 'forage_class': stratum-specific row for a class "
-         r"without a general row"),
-    Case("plots: stratum not on the map",
-         edit_csv(P, lambda t: t.replace({"stratum": {"sagebrush_steppe": "sagebrush"}})),
-         r"plots\.csv: row 2, column 'stratum': unknown stratum 'sagebrush'; did you mean"),
-    Case("strata: stratum without plots", drop_rows(P, "stratum", "grass_meadow"),
-         r"strata\.gpkg: attribute 'stratum': stratum 'grass_meadow' is on the map but has "
-         r"no plots"),
+    Case(
+        "plots: class not in the quality table",
+        set_cell(P, 6, "forage_class", "sagebrsh"),
+        r"plots\.csv: row 6, column 'forage_class': unknown forage_class 'sagebrsh'",
+    ),
+    Case(
+        "forage classes: class never on a plot (valid, supply 0)",
+        copy_row(F, 2, forage_class="winterfat"),
+        r"note: forage classes in the forage-class table never recorded on a plot "
+        r"\(supply 0\): winterfat",
+        exit_code=0,
+        verify=same_as_reference,
+    ),
+    Case(
+        "forage classes: without the optional growth_form (valid)",
+        drop_column(F, "growth_form"),
+        r"Total NCC",
+        exit_code=0,
+        verify=same_as_reference,
+    ),
+    Case(
+        "forage classes: stratum row without a general row",
+        copy_row(F, 2, forage_class="winterfat", stratum="aspen"),
+        r"forage_classes\.csv: row 13, column 'forage_class': stratum-specific row for a class "
+        r"without a general row",
+    ),
+    Case(
+        "plots: stratum not on the map",
+        edit_csv(P, lambda t: t.replace({"stratum": {"sagebrush_steppe": "sagebrush"}})),
+        r"plots\.csv: row 2, column 'stratum': unknown stratum 'sagebrush'; did you mean",
+    ),
+    Case(
+        "strata: stratum without plots",
+        drop_rows(P, "stratum", "grass_meadow"),
+        r"strata\.gpkg: attribute 'stratum': stratum 'grass_meadow' is on the map but has "
+        r"no plots",
+    ),
     # Geometry: overlaps, units off the map, invalid and empty shapes, CRS.
-    Case("units: two units overlap",
-         edit_layer(U, set_geometry(2, lambda g: g.buffer(250))),
-         r"units\.gpkg: features 1 and 2 \(of 6\): units overlap: unit_id 'Flintwhistle' and "
-         r"'Coldmarrow'"),
-    Case("strata: polygons overlap",
-         edit_layer(S, set_geometry(1, lambda g: g.buffer(400))),
-         r"strata\.gpkg: features \d+ and \d+ \(of 70\): strata polygons overlap"),
-    Case("units: a unit on no stratum",
-         edit_layer(U, set_geometry(4, lambda g: translate(g, xoff=80_000))),
-         r"units\.gpkg: attribute 'unit_id': unit 'Rimgrass' does not overlap any vegetation "
-         r"stratum"),
-    Case("units: self-intersecting polygon", edit_layer(U, set_geometry(2, bow_tie)),
-         r"units\.gpkg: feature 2 \(of 6\): units layer has an invalid geometry "
-         r"\(Self-intersection"),
-    Case("strata: empty geometry", edit_layer(S, set_geometry(3, lambda g: Polygon())),
-         r"strata\.gpkg: feature 3 \(of 70\): strata layer has an empty geometry"),
-    Case("units: points, not polygons",
-         edit_layer(U, lambda g: g.set_geometry([Point(c.x, c.y) for c in g.centroid])),
-         r"units\.gpkg: feature 1 \(of 6\): units layer has a non-polygon geometry "
-         r".*found Point"),
-    Case("strata: no features", edit_layer(S, lambda g: g.iloc[:0]),
-         r"strata\.gpkg: strata layer has no features"),
-    Case("units: no CRS", edit_layer(U, lambda g: g.set_crs(None, allow_override=True)),
-         r"units\.gpkg: units layer has no coordinate reference system"),
-    Case("units: projected coordinates labelled geographic",
-         edit_layer(U, lambda g: g.set_crs("EPSG:4326", allow_override=True)),
-         r"units\.gpkg: feature 1 \(of 6\): units layer has coordinates that are not "
-         r"longitudes and latitudes, yet its CRS is geographic"),
-    Case("units: geographic CRS (valid: equal-area areas)",
-         edit_layer(U, lambda g: g.to_crs("EPSG:4326")),
-         r"Total NCC", exit_code=0, verify=true_areas),
-    Case("units: CRS in US survey feet (valid: equal-area areas)",
-         edit_layer(U, lambda g: g.to_crs("EPSG:3566")),
-         r"Total NCC", exit_code=0, verify=true_areas),
-    Case("units: Web Mercator (valid: equal-area areas)",
-         edit_layer(U, lambda g: g.to_crs("EPSG:3857")),
-         r"Total NCC", exit_code=0, verify=true_areas),
-    Case("strata: not a vector file", rewrite_bytes(S, lambda b: b"not a geopackage"),
-         r"strata\.gpkg: cannot read strata layer: not a vector format GDAL can read"),
-    Case("units: a table, not a layer", replace_text("project.toml", '"units.gpkg"',
-                                                     '"counts.csv"'),
-         r"counts\.csv: units layer has no geometries"),
-    Case("units: two layers and none named", add_layer(U, "units_2019"),
-         r"units\.gpkg: the file holds 2 layers and the project file names none for the units "
-         r"layer .*one of 'units', 'units_2019'"),
-    Case("units: one layer and a table of styles (valid)", add_styles_table(U),
-         r"Total NCC", exit_code=0, verify=same_as_reference),
-    Case("units: layer name misspelt", set_key("inputs", 'units_layer = "unit"'),
-         r"units\.gpkg: layer 'unit': the file has no layer 'unit' .*one of the file's layers: "
-         r"'units'"),
+    Case(
+        "units: two units overlap",
+        edit_layer(U, set_geometry(2, lambda g: g.buffer(250))),
+        r"units\.gpkg: features 1 and 2 \(of 6\): units overlap: unit_id 'Flintwhistle' and "
+        r"'Coldmarrow'",
+    ),
+    Case(
+        "strata: polygons overlap",
+        edit_layer(S, set_geometry(1, lambda g: g.buffer(400))),
+        r"strata\.gpkg: features \d+ and \d+ \(of 70\): strata polygons overlap",
+    ),
+    Case(
+        "units: a unit on no stratum",
+        edit_layer(U, set_geometry(4, lambda g: translate(g, xoff=80_000))),
+        r"units\.gpkg: attribute 'unit_id': unit 'Rimgrass' does not overlap any vegetation "
+        r"stratum",
+    ),
+    Case(
+        "units: self-intersecting polygon",
+        edit_layer(U, set_geometry(2, bow_tie)),
+        r"units\.gpkg: feature 2 \(of 6\): units layer has an invalid geometry "
+        r"\(Self-intersection",
+    ),
+    Case(
+        "strata: empty geometry",
+        edit_layer(S, set_geometry(3, lambda g: Polygon())),
+        r"strata\.gpkg: feature 3 \(of 70\): strata layer has an empty geometry",
+    ),
+    Case(
+        "units: points, not polygons",
+        edit_layer(U, lambda g: g.set_geometry([Point(c.x, c.y) for c in g.centroid])),
+        r"units\.gpkg: feature 1 \(of 6\): units layer has a non-polygon geometry "
+        r".*found Point",
+    ),
+    Case(
+        "strata: no features",
+        edit_layer(S, lambda g: g.iloc[:0]),
+        r"strata\.gpkg: strata layer has no features",
+    ),
+    Case(
+        "units: no CRS",
+        edit_layer(U, lambda g: g.set_crs(None, allow_override=True)),
+        r"units\.gpkg: units layer has no coordinate reference system",
+    ),
+    Case(
+        "units: projected coordinates labelled geographic",
+        edit_layer(U, lambda g: g.set_crs("EPSG:4326", allow_override=True)),
+        r"units\.gpkg: feature 1 \(of 6\): units layer has coordinates that are not "
+        r"longitudes and latitudes, yet its CRS is geographic",
+    ),
+    Case(
+        "units: geographic CRS (valid: equal-area areas)",
+        edit_layer(U, lambda g: g.to_crs("EPSG:4326")),
+        r"Total NCC",
+        exit_code=0,
+        verify=true_areas,
+    ),
+    Case(
+        "units: CRS in US survey feet (valid: equal-area areas)",
+        edit_layer(U, lambda g: g.to_crs("EPSG:3566")),
+        r"Total NCC",
+        exit_code=0,
+        verify=true_areas,
+    ),
+    Case(
+        "units: Web Mercator (valid: equal-area areas)",
+        edit_layer(U, lambda g: g.to_crs("EPSG:3857")),
+        r"Total NCC",
+        exit_code=0,
+        verify=true_areas,
+    ),
+    Case(
+        "strata: not a vector file",
+        rewrite_bytes(S, lambda b: b"not a geopackage"),
+        r"strata\.gpkg: cannot read strata layer: not a vector format GDAL can read",
+    ),
+    Case(
+        "units: a table, not a layer",
+        replace_text("project.toml", '"units.gpkg"', '"counts.csv"'),
+        r"counts\.csv: units layer has no geometries",
+    ),
+    Case(
+        "units: two layers and none named",
+        add_layer(U, "units_2019"),
+        r"units\.gpkg: the file holds 2 layers and the project file names none for the units "
+        r"layer .*one of 'units', 'units_2019'",
+    ),
+    Case(
+        "units: one layer and a table of styles (valid)",
+        add_styles_table(U),
+        r"Total NCC",
+        exit_code=0,
+        verify=same_as_reference,
+    ),
+    Case(
+        "units: layer name misspelt",
+        set_key("inputs", 'units_layer = "unit"'),
+        r"units\.gpkg: layer 'unit': the file has no layer 'unit' .*one of the file's layers: "
+        r"'units'",
+    ),
     # The project file.
-    Case("project: TOML syntax error", use_file("project_syntax_error.toml", "project.toml"),
-         r"project\.toml: TOML syntax error: .*\(at line 4, column \d+\)"),
-    Case("project: unknown key", replace_text("project.toml", "protein = true", "protien = true"),
-         r"project\.toml: 1 problem: unknown key 'target\.protien'; did you mean 'protein'\?"),
-    Case("project: unknown section", replace_text("project.toml", "[pooling]", "[poolng]"),
-         r"project\.toml: 1 problem: unknown key 'poolng'; did you mean 'pooling'\?"),
-    Case("project: unknown key in a scenario",
-         replace_text("project.toml", "first_year = 2026", "first_yaer = 2026"),
-         r"project\.toml: 2 problems: missing key 'scenarios\.juniper_thinning\.first_year'; "
-         r"unknown key 'scenarios\.juniper_thinning\.first_yaer'; did you mean 'first_year'\?"),
-    Case("project: path does not exist", replace_text("project.toml", '"plots.csv"', '"plot.csv"'),
-         r"project\.toml: input file for key 'inputs\.plots' does not exist .*found /.*/plot\.csv"),
-    Case("project: input is a folder",
-         steps(lambda folder: (folder / "plots").mkdir(),
-               replace_text("project.toml", '"plots.csv"', '"plots"')),
-         r"/plots: plots table is a folder, not a file"),
-    Case("project: season of 0 days", replace_text("project.toml", "season_days = 120",
-                                                   "season_days = 0"),
-         r"project\.toml: 1 problem: key 'project\.season_days': Input should be greater than 0"),
-    Case("project: pooling mode misspelt", replace_text("project.toml", 'mode = "unit"',
-                                                        'mode = "units"'),
-         r"project\.toml: 1 problem: key 'pooling\.mode': .*\(found 'units'\)"),
-    Case("project: target class not in the herd",
-         replace_text("project.toml", 'animal_class = "adult_female"', 'animal_class = "doe"'),
-         r"project\.toml: key 'target\.animal_class': target animal class 'doe' is not in the "
-         r"animal-class table"),
-    Case("project: code is not run",
-         replace_text("project.toml", 'species = "mule deer"',
-                      'species = __import__("os").system("echo run")'),
-         r"project\.toml: TOML syntax error: Invalid value \(at line 4"),
-    Case("project: not UTF-8",
-         rewrite_bytes("project.toml", lambda b: b.replace(b"mule deer", b"chevreuil \xe9")),
-         r"project\.toml: line 4: project file is not UTF-8 text"),
+    Case(
+        "project: TOML syntax error",
+        use_file("project_syntax_error.toml", "project.toml"),
+        r"project\.toml: TOML syntax error: .*\(at line 4, column \d+\)",
+    ),
+    Case(
+        "project: unknown key",
+        replace_text("project.toml", "protein = true", "protien = true"),
+        r"project\.toml: 1 problem: unknown key 'target\.protien'; did you mean 'protein'\?",
+    ),
+    Case(
+        "project: unknown section",
+        replace_text("project.toml", "[pooling]", "[poolng]"),
+        r"project\.toml: 1 problem: unknown key 'poolng'; did you mean 'pooling'\?",
+    ),
+    Case(
+        "project: unknown key in a scenario",
+        replace_text("project.toml", "first_year = 2026", "first_yaer = 2026"),
+        r"project\.toml: 2 problems: missing key 'scenarios\.juniper_thinning\.first_year'; "
+        r"unknown key 'scenarios\.juniper_thinning\.first_yaer'; did you mean 'first_year'\?",
+    ),
+    Case(
+        "project: path does not exist",
+        replace_text("project.toml", '"plots.csv"', '"plot.csv"'),
+        r"project\.toml: input file for key 'inputs\.plots' does not exist .*found /.*/plot\.csv",
+    ),
+    Case(
+        "project: input is a folder",
+        steps(
+            lambda folder: (folder / "plots").mkdir(),
+            replace_text("project.toml", '"plots.csv"', '"plots"'),
+        ),
+        r"/plots: plots table is a folder, not a file",
+    ),
+    Case(
+        "project: season of 0 days",
+        replace_text("project.toml", "season_days = 120", "season_days = 0"),
+        r"project\.toml: 1 problem: key 'project\.season_days': Input should be greater than 0",
+    ),
+    Case(
+        "project: pooling mode misspelt",
+        replace_text("project.toml", 'mode = "unit"', 'mode = "units"'),
+        r"project\.toml: 1 problem: key 'pooling\.mode': .*\(found 'units'\)",
+    ),
+    Case(
+        "project: target class not in the herd",
+        replace_text("project.toml", 'animal_class = "adult_female"', 'animal_class = "doe"'),
+        r"project\.toml: key 'target\.animal_class': target animal class 'doe' is not in the "
+        r"animal-class table",
+    ),
+    Case(
+        "project: code is not run",
+        replace_text(
+            "project.toml", 'species = "mule deer"', 'species = __import__("os").system("echo run")'
+        ),
+        r"project\.toml: TOML syntax error: Invalid value \(at line 4",
+    ),
+    Case(
+        "project: not UTF-8",
+        rewrite_bytes("project.toml", lambda b: b.replace(b"mule deer", b"chevreuil \xe9")),
+        r"project\.toml: line 4: project file is not UTF-8 text",
+    ),
     # A target no forage can meet: a valid result of zero, with the reason.
-    Case("target: diet no forage can meet (valid: NCC 0, 'intake')",
-         set_key("target", "diet_de_min_kcal_per_g = 4.5"),
-         r"no mix of the available forage reaches the target diet", exit_code=0,
-         verify=nothing_meets_target),
-    Case("forage classes: crude protein blank while protein is required",
-         set_cell(F, 4, "cp_pct", ""),
-         r"forage_classes\.csv: row 4, column 'cp_pct': crude protein missing"),
+    Case(
+        "target: diet no forage can meet (valid: NCC 0, 'intake')",
+        set_key("target", "diet_de_min_kcal_per_g = 4.5"),
+        r"no mix of the available forage reaches the target diet",
+        exit_code=0,
+        verify=nothing_meets_target,
+    ),
+    Case(
+        "forage classes: crude protein blank while protein is required",
+        set_cell(F, 4, "cp_pct", ""),
+        r"forage_classes\.csv: row 4, column 'cp_pct': crude protein missing",
+    ),
     # Encodings and separators: refused clearly (decision in nutricap/tables.py).
-    Case("animal classes: latin-1 file", use_file("animal_classes_latin1.csv", A),
-         r"animal_classes\.csv: row 3: animal-class table is not UTF-8 text .*re-save the file "
-         r"as UTF-8"),
-    Case("plots: UTF-16 file", rewrite_bytes(P, lambda b: b.decode("utf-8").encode("utf-16")),
-         r"plots\.csv: row 1: plots table is not UTF-8 text"),
-    Case("forage classes: semicolons and decimal commas",
-         use_file("forage_classes_semicolon.csv", F),
-         r"forage_classes\.csv: row 1: forage-class table is separated by semicolons "
-         r"\(expected comma-separated values with a decimal point"),
-    Case("plots: tab-separated", rewrite_bytes(P, lambda b: b.replace(b",", b"\t")),
-         r"plots\.csv: row 1: plots table is separated by tabs"),
-    Case("forage classes: decimal comma in a comma file",
-         replace_text(F, "bitterbrush,browse,2.45,", "bitterbrush,browse,2,45,"),
-         r"forage_classes\.csv: row 3: more values than the header has columns "
-         r"\(expected 9 values .*found 10 values\)"),
-    Case("plots: UTF-8 with byte-order mark (valid)",
-         rewrite_bytes(P, lambda b: b"\xef\xbb\xbf" + b),
-         r"Total NCC", exit_code=0, verify=same_as_reference),
+    Case(
+        "animal classes: latin-1 file",
+        use_file("animal_classes_latin1.csv", A),
+        r"animal_classes\.csv: row 3: animal-class table is not UTF-8 text .*re-save the file "
+        r"as UTF-8",
+    ),
+    Case(
+        "plots: UTF-16 file",
+        rewrite_bytes(P, lambda b: b.decode("utf-8").encode("utf-16")),
+        r"plots\.csv: row 1: plots table is not UTF-8 text",
+    ),
+    Case(
+        "forage classes: semicolons and decimal commas",
+        use_file("forage_classes_semicolon.csv", F),
+        r"forage_classes\.csv: row 1: forage-class table is separated by semicolons "
+        r"\(expected comma-separated values with a decimal point",
+    ),
+    Case(
+        "plots: tab-separated",
+        rewrite_bytes(P, lambda b: b.replace(b",", b"\t")),
+        r"plots\.csv: row 1: plots table is separated by tabs",
+    ),
+    Case(
+        "forage classes: decimal comma in a comma file",
+        replace_text(F, "bitterbrush,browse,2.45,", "bitterbrush,browse,2,45,"),
+        r"forage_classes\.csv: row 3: more values than the header has columns "
+        r"\(expected 9 values .*found 10 values\)",
+    ),
+    Case(
+        "plots: UTF-8 with byte-order mark (valid)",
+        rewrite_bytes(P, lambda b: b"\xef\xbb\xbf" + b),
+        r"Total NCC",
+        exit_code=0,
+        verify=same_as_reference,
+    ),
     # Half-finished files.
-    Case("plots: header only", rewrite_bytes(P, lambda b: b.split(b"\n")[0] + b"\n"),
-         r"plots\.csv: row 2: plots table has a header but no data rows"),
-    Case("animal classes: empty file", rewrite_bytes(A, lambda b: b""),
-         r"animal_classes\.csv: row 1: animal-class table is empty"),
-    Case("plots: empty row in the middle", insert_line(P, 6, ""),
-         r"plots\.csv: row 6: empty row between data rows"),
-    Case("plots: empty rows at the end (valid)", rewrite_bytes(P, lambda b: b + b"\n,,,,\n\n"),
-         r"Total NCC", exit_code=0, verify=same_as_reference),
-    Case("plots: blank stratum", set_cell(P, 9, "stratum", " "),
-         r"plots\.csv: row 9, column 'stratum': empty value"),
+    Case(
+        "plots: header only",
+        rewrite_bytes(P, lambda b: b.split(b"\n")[0] + b"\n"),
+        r"plots\.csv: row 2: plots table has a header but no data rows",
+    ),
+    Case(
+        "animal classes: empty file",
+        rewrite_bytes(A, lambda b: b""),
+        r"animal_classes\.csv: row 1: animal-class table is empty",
+    ),
+    Case(
+        "plots: empty row in the middle",
+        insert_line(P, 6, ""),
+        r"plots\.csv: row 6: empty row between data rows",
+    ),
+    Case(
+        "plots: empty rows at the end (valid)",
+        rewrite_bytes(P, lambda b: b + b"\n,,,,\n\n"),
+        r"Total NCC",
+        exit_code=0,
+        verify=same_as_reference,
+    ),
+    Case(
+        "plots: blank stratum",
+        set_cell(P, 9, "stratum", " "),
+        r"plots\.csv: row 9, column 'stratum': empty value",
+    ),
     # Rasters ([rasters] biomass layers over the example's extent).
-    Case("rasters: misaligned by half a cell",
-         biomass_rasters(juniper={}, big_sagebrush={"transform": SHIFTED_GRID}),
-         r"big_sagebrush\.tif: key 'rasters\.biomass\.big_sagebrush': raster is not on the grid "
-         r"of the first raster layer .*shifted by 0\.500"),
-    Case("rasters: all nodata", biomass_rasters(juniper={"value": -1.0}),
-         r"units\.gpkg: attribute 'unit_id': unit 'Flintwhistle' has no cell with data in every "
-         r"raster layer .*rasters\.biomass\.juniper"),
-    Case("rasters: grid in a geographic CRS",
-         biomass_rasters(juniper={"crs": "EPSG:4326",
-                                  "transform": from_origin(-111.55, 38.8, 0.001, 0.001)}),
-         r"juniper\.tif: key 'rasters\.biomass\.juniper': the raster that defines the grid has "
-         r"a geographic CRS"),
-    Case("rasters: not a raster",
-         steps(biomass_rasters(juniper={}), rewrite_bytes("juniper.tif", lambda b: b"II*\0")),
-         r"juniper\.tif: key 'rasters\.biomass\.juniper': cannot read raster"),
-    Case("rasters: complex data type",
-         biomass_rasters(juniper={}, big_sagebrush={"dtype": "complex64"}),
-         RASTER_KEY + r".*raster values are not real numbers"),
-    Case("rasters: three bands (an RGB image)",
-         biomass_rasters(juniper={}, big_sagebrush={"dtype": "uint8", "bands": 3,
-                                                    "nodata": None}),
-         RASTER_KEY + r".*raster has 3 bands"),
-    Case("rasters: absurd biomass (1e9 kg/ha)",
-         biomass_rasters(juniper={}, big_sagebrush={"value": 1e9}),
-         RASTER_KEY[:-2] + r", cell row \d+, column \d+: raster value out of range.*found 1e\+09"),
-    Case("rasters: negative biomass",
-         biomass_rasters(juniper={}, big_sagebrush={"value": -5, "dtype": "int16"}),
-         RASTER_KEY[:-2] + r", cell row \d+, column \d+: raster value out of range.*found -5"),
-    Case("counts: column misspelt",
-         steps(NO_CURRENT_ANIMALS, rename_column("counts.csv", "count", "counts")),
-         r"counts\.csv" + ROW1 + r"missing column 'count'; did you mean to name 'counts'"),
-    Case("counts: a unit without counts",
-         steps(NO_CURRENT_ANIMALS, drop_rows("counts.csv", "unit_id", "Wrenfall")),
-         r"counts\.csv: column 'unit_id': no count for unit 'Wrenfall'"),
+    Case(
+        "rasters: misaligned by half a cell",
+        biomass_rasters(juniper={}, big_sagebrush={"transform": SHIFTED_GRID}),
+        r"big_sagebrush\.tif: key 'rasters\.biomass\.big_sagebrush': raster is not on the grid "
+        r"of the first raster layer .*shifted by 0\.500",
+    ),
+    Case(
+        "rasters: all nodata",
+        biomass_rasters(juniper={"value": -1.0}),
+        r"units\.gpkg: attribute 'unit_id': unit 'Flintwhistle' has no cell with data in every "
+        r"raster layer .*rasters\.biomass\.juniper",
+    ),
+    Case(
+        "rasters: grid in a geographic CRS",
+        biomass_rasters(
+            juniper={"crs": "EPSG:4326", "transform": from_origin(-111.55, 38.8, 0.001, 0.001)}
+        ),
+        r"juniper\.tif: key 'rasters\.biomass\.juniper': the raster that defines the grid has "
+        r"a geographic CRS",
+    ),
+    Case(
+        "rasters: not a raster",
+        steps(biomass_rasters(juniper={}), rewrite_bytes("juniper.tif", lambda b: b"II*\0")),
+        r"juniper\.tif: key 'rasters\.biomass\.juniper': cannot read raster",
+    ),
+    Case(
+        "rasters: complex data type",
+        biomass_rasters(juniper={}, big_sagebrush={"dtype": "complex64"}),
+        RASTER_KEY + r".*raster values are not real numbers",
+    ),
+    Case(
+        "rasters: three bands (an RGB image)",
+        biomass_rasters(juniper={}, big_sagebrush={"dtype": "uint8", "bands": 3, "nodata": None}),
+        RASTER_KEY + r".*raster has 3 bands",
+    ),
+    Case(
+        "rasters: absurd biomass (1e9 kg/ha)",
+        biomass_rasters(juniper={}, big_sagebrush={"value": 1e9}),
+        RASTER_KEY[:-2] + r", cell row \d+, column \d+: raster value out of range.*found 1e\+09",
+    ),
+    Case(
+        "rasters: negative biomass",
+        biomass_rasters(juniper={}, big_sagebrush={"value": -5, "dtype": "int16"}),
+        RASTER_KEY[:-2] + r", cell row \d+, column \d+: raster value out of range.*found -5",
+    ),
+    Case(
+        "counts: column misspelt",
+        steps(NO_CURRENT_ANIMALS, rename_column("counts.csv", "count", "counts")),
+        r"counts\.csv" + ROW1 + r"missing column 'count'; did you mean to name 'counts'",
+    ),
+    Case(
+        "counts: a unit without counts",
+        steps(NO_CURRENT_ANIMALS, drop_rows("counts.csv", "unit_id", "Wrenfall")),
+        r"counts\.csv: column 'unit_id': no count for unit 'Wrenfall'",
+    ),
 ]
