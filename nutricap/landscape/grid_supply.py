@@ -21,9 +21,11 @@ and windows is float64.
 
 from __future__ import annotations
 
+import os
 import shutil
 import sys
 import tempfile
+import threading
 import weakref
 from collections import deque
 from collections.abc import Callable, Iterator
@@ -47,6 +49,7 @@ from nutricap.landscape.rasters import (
     Grid,
     LayerSpec,
     LayerStack,
+    Scratch,
     ShapeBurner,
     grid_windows,
     read_grid,
@@ -126,6 +129,7 @@ class WindowData:
     units: np.ndarray  # unit code, 0 = none
     polygons: np.ndarray  # strata polygon code, 0 = none
     excluded: np.ndarray | None
+    scratch: Scratch | None = None  # the reading thread's reusable memory
 
     def rows(self, first: int, last: int) -> WindowData:
         """Rows ``first:last`` of the window (views, no copy)."""
@@ -136,18 +140,18 @@ class WindowData:
             self.units[part],
             self.polygons[part],
             None if self.excluded is None else self.excluded[part],
+            self.scratch,
         )
 
 
 @dataclass
 class WindowSums:
-    """What one window (or a chunk of it) adds to the totals, and its cells for the cache."""
+    """What one window (or a chunk of it) adds to the totals."""
 
     run_keys: np.ndarray
     run_cells: np.ndarray
     run_sums: np.ndarray  # (rows of the layout, runs) float32
     calibration_cells: np.ndarray  # (groups, 3): beyond range, beyond margin, negative
-    cells: list[tuple[np.ndarray, np.ndarray]]  # per chunk: key (dump: no data), forage left
 
     @staticmethod
     def concatenate(parts: list[WindowSums]) -> WindowSums:
@@ -156,8 +160,11 @@ class WindowSums:
             np.concatenate([part.run_cells for part in parts]),
             np.concatenate([part.run_sums for part in parts], axis=1),
             sum(part.calibration_cells for part in parts),
-            [cell for part in parts for cell in part.cells],
         )
+
+
+KeepCells = Callable[[int, np.ndarray, np.ndarray], None]
+"""Called with (first cell of the chunk in the window, keys, forage left (classes, cells))."""
 
 
 @dataclass
@@ -182,41 +189,65 @@ class CellCache:
 
     One record per window, in the order of the windows: the key of every cell (int32), then
     the forage left of each class in every cell (float32, class by class), cells in the
-    window's row-major order. The file is removed by :meth:`remove`, or when the object is
-    garbage-collected, or at exit.
+    window's row-major order. Records sit at offsets known in advance, so the worker threads
+    write their chunks themselves, in any order. The file is removed by :meth:`remove`, or
+    when the object is garbage-collected, or at exit.
     """
 
-    def __init__(self) -> None:
+    def __init__(self, windows: list[Window], n_classes: int) -> None:
+        self.windows_list = windows
+        self.n_classes = n_classes
+        cells = np.array([int(w.height) * int(w.width) for w in windows], dtype=np.int64)
+        self.cells = cells
+        self.offsets = np.concatenate([[0], np.cumsum(4 * cells * (1 + n_classes))[:-1]])
         self.folder = Path(tempfile.mkdtemp(prefix="nutricap-cells-"))
         self.path = self.folder / "cells.bin"
         self._finalizer = weakref.finalize(self, shutil.rmtree, self.folder, True)
-        self._stream = open(self.path, "wb")  # noqa: SIM115 - closed in finish()
+        self._fd = os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
 
-    def append_window(self, chunks: list[tuple[np.ndarray, np.ndarray]]) -> None:
-        """Write one window from its chunks of whole rows, in order: (keys, forage left)."""
-        for keys, _ in chunks:
-            self._stream.write(np.ascontiguousarray(keys, dtype=np.int32))
-        for column in range(chunks[0][1].shape[0]):
-            for _, kg_per_ha in chunks:
-                self._stream.write(np.ascontiguousarray(kg_per_ha[column], dtype=np.float32))
+    def writer(self, number: int) -> KeepCells:
+        """What keeps the cells of window ``number`` (see :data:`KeepCells`)."""
+        record, cells = int(self.offsets[number]), int(self.cells[number])
+
+        def keep(first: int, keys: np.ndarray, kg_per_ha: np.ndarray) -> None:
+            _write_at(self._fd, keys.astype(np.int32, copy=False), record + 4 * first)
+            for column in range(self.n_classes):
+                at = record + 4 * cells * (1 + column) + 4 * first
+                _write_at(self._fd, kg_per_ha[column].astype(np.float32, copy=False), at)
+
+        return keep
 
     def finish(self) -> None:
-        self._stream.close()
+        os.close(self._fd)
 
     def windows(
         self, windows: list[Window], n_classes: int
     ) -> Iterator[tuple[Window, np.ndarray, np.ndarray]]:
-        """Yield each window with its cells' keys (cells,) and forage left (classes, cells)."""
-        with open(self.path, "rb") as stream:
+        """Yield each window with its cells' keys (cells,) and forage left (classes, cells).
+
+        The arrays share one buffer: they are valid until the next window is yielded.
+        """
+        buffer = bytearray(int(4 * self.cells.max(initial=0) * (1 + n_classes)))
+        with open(self.path, "rb", buffering=0) as stream:
             for window in windows:
                 n = int(window.height) * int(window.width)
-                record = stream.read(4 * n * (1 + n_classes))
+                record = memoryview(buffer)[: 4 * n * (1 + n_classes)]
+                if stream.readinto(record) != len(record):
+                    raise OSError(f"temporary cell file {self.path} is shorter than expected")
                 keys = np.frombuffer(record, dtype=np.int32, count=n)
                 kg = np.frombuffer(record, dtype=np.float32, offset=4 * n)
                 yield window, keys, kg.reshape(n_classes, n)
 
     def remove(self) -> None:
         self._finalizer()
+
+
+def _write_at(fd: int, array: np.ndarray, offset: int) -> None:
+    """Write a contiguous array's bytes at ``offset`` of file ``fd`` (all of them)."""
+    data = memoryview(np.ascontiguousarray(array)).cast("B")
+    while data:
+        written = os.pwrite(fd, data, offset)
+        data, offset = data[written:], offset + written
 
 
 @dataclass
@@ -411,26 +442,36 @@ def layout_of(setup: GridSetup) -> Layout:
     return Layout(setup.n_classes, len(setup.rules.active()) - 1)
 
 
-def window_sums(setup: GridSetup, data: WindowData) -> WindowSums:
-    """Per-cell biomass → availability rules → run sums of one window (pure, no file access).
+def window_sums(setup: GridSetup, data: WindowData, keep: KeepCells | None = None) -> WindowSums:
+    """Per-cell biomass → availability rules → run sums of one window.
 
-    The window is computed in chunks of whole rows (:func:`chunk_rows`).
+    The window is computed in chunks of whole rows (:func:`chunk_rows`); ``keep`` (when given)
+    receives each chunk's cells before the next chunk reuses their memory.
     """
     height, width = data.units.shape
-    return WindowSums.concatenate(
-        [chunk_sums(setup, data.rows(first, last)) for first, last in chunk_rows(height, width)]
-    )
+    parts = []
+    for first, last in chunk_rows(height, width):
+        part, keys, kg_per_ha = chunk_sums(setup, data.rows(first, last))
+        if keep is not None:
+            keep(first * width, keys, kg_per_ha)
+        parts.append(part)
+    return WindowSums.concatenate(parts)
 
 
-def chunk_sums(setup: GridSetup, data: WindowData) -> WindowSums:
-    """:func:`window_sums` of a few rows."""
+def chunk_sums(setup: GridSetup, data: WindowData) -> tuple[WindowSums, np.ndarray, np.ndarray]:
+    """:func:`window_sums` of a few rows; also each cell's key (the dump key where the cell
+    has no data) and forage left (classes, cells) [kg/ha]."""
     units = data.units.ravel().astype(np.intp)  # burnt as int32, GDAL's fast path
     polygons = data.polygons.ravel().astype(np.intp)
     key = setup.unit_base[units] + setup.polygon_stratum[polygons]
     mapped = (units > 0) & (polygons > 0)
     valid = _valid_cells(setup, data, mapped)
     layout = layout_of(setup)
-    stacked = np.empty((layout.rows, units.size), dtype=np.float32)
+    shape = (layout.rows, units.size)
+    if data.scratch is None:
+        stacked = np.empty(shape, dtype=np.float32)
+    else:
+        stacked = data.scratch.take("chunk rows", shape, np.float32)
     lacking = stacked[layout.nodata]
     np.greater(mapped, valid, out=lacking)  # mapped without data in some layer
     gross = stacked[layout.gross]
@@ -450,8 +491,8 @@ def chunk_sums(setup: GridSetup, data: WindowData) -> WindowSums:
     )
     run_keys, run_cells, run_sums = _run_sums(key, stacked, data.units.shape)
     cell_keys = np.where(valid, key, setup.dump_key).astype(np.int32)
-    cells = [(cell_keys, outcome.available_kg_per_ha)]
-    return WindowSums(run_keys, run_cells, run_sums, calibration_cells, cells)
+    sums = WindowSums(run_keys, run_cells, run_sums, calibration_cells)
+    return sums, cell_keys, outcome.available_kg_per_ha
 
 
 def _valid_cells(setup: GridSetup, data: WindowData, mapped: np.ndarray) -> np.ndarray:
@@ -533,15 +574,27 @@ class WindowReader:
         self.stack = stack
         self.grid = grid
         self.burners = burners
+        self._local = threading.local()
 
     def __call__(self, window: Window) -> WindowData:
-        excluded = self.burners.get("exclusions")
+        """The window's data, in memory of the calling thread's :class:`Scratch` (valid until
+        the thread reads its next window)."""
+        scratch = getattr(self._local, "scratch", None)
+        if scratch is None:
+            scratch = self._local.scratch = Scratch()
+        shape = (int(window.height), int(window.width))
+        burnt = {
+            name: burner.burn(window, self.grid, scratch.take(f"burnt {name}", shape, np.int32))
+            for name, burner in self.burners.items()
+        }
+        excluded = burnt.get("exclusions")
         return WindowData(
             window=window,
-            layers=self.stack.read(window),
-            units=self.burners["units"].burn(window, self.grid),
-            polygons=self.burners["strata"].burn(window, self.grid),
-            excluded=None if excluded is None else excluded.burn(window, self.grid) > 0,
+            layers=self.stack.read(window, scratch),
+            units=burnt["units"],
+            polygons=burnt["strata"],
+            excluded=None if excluded is None else excluded > 0,
+            scratch=scratch,
         )
 
 
@@ -553,10 +606,10 @@ def stream_windows(
     cache: CellCache | None,
     show_progress: bool,
 ) -> None:
-    """First pass: windows read and computed by worker threads, added and cached in order.
+    """First pass: windows read, computed and cached by worker threads, added in order.
 
-    Reading (GDAL) and the numpy arithmetic both release the GIL, so the workers use the
-    cores; at most ``WORKERS + 1`` windows are in memory at once.
+    Reading (GDAL), the numpy arithmetic and writing the cell cache all release the GIL, so
+    the workers use the cores; each worker reuses its own memory from window to window.
     """
     bar = tqdm(
         total=len(windows),
@@ -566,20 +619,19 @@ def stream_windows(
         disable=not show_progress,
     )
 
-    def work(window: Window) -> WindowSums:
-        return window_sums(setup, reader(window))
+    def work(number: int) -> WindowSums:
+        keep = None if cache is None else cache.writer(number)
+        return window_sums(setup, reader(windows[number]), keep)
 
     with ThreadPoolExecutor(max_workers=WORKERS) as pool:
-        queue = deque(pool.submit(work, window) for window in windows[:WORKERS])
-        upcoming = iter(windows[WORKERS:])
+        queue = deque(pool.submit(work, number) for number in range(min(WORKERS, len(windows))))
+        upcoming = iter(range(WORKERS, len(windows)))
         while queue:
             part = queue.popleft().result()
             following = next(upcoming, None)
             if following is not None:
                 queue.append(pool.submit(work, following))
             totals.add(part)
-            if cache is not None:
-                cache.append_window(part.cells)
             bar.update()
     bar.close()
 
@@ -753,7 +805,7 @@ def grid_problem(
     totals = Totals(
         np.zeros(n_keys), np.zeros((n_keys, n_rows)), np.zeros((len(groups), 3), np.int64)
     )
-    cache = CellCache()
+    cache = CellCache(windows, len(classes))
     show = progress is not None and not getattr(progress, "quiet", False)
     say(f"streaming {grid.cells:,} cells in {len(windows)} windows")
     with streaming_env(), LayerStack(specs, grid, resample) as stack:
@@ -1004,21 +1056,23 @@ def density_coefficients(
     return (coefficients / intake_kg_per_day).astype(np.float32)
 
 
-def _density(keys: np.ndarray, kg_per_ha: np.ndarray, per_class: np.ndarray, dump: int):
-    """Animal-days per ha of each cell: Σ_c kg_c × coefficient[key, c]; nodata at ``dump``.
+def _density(keys, kg_per_ha, per_class, dump: int, out: np.ndarray, scratch: Scratch):
+    """Animal-days per ha of each cell into ``out``: Σ_c kg_c × coefficient[key, c]; nodata
+    at ``dump``.
 
     Whole windows at a time, so that the thread computing it seldom needs the GIL (the
     report is drawn in the main thread meanwhile).
     """
-    index = keys.astype(np.intp)
-    density = np.zeros(keys.size, dtype=np.float32)
-    term = np.empty(keys.size, dtype=np.float32)
+    index = scratch.take("key index", keys.shape, np.intp)
+    np.copyto(index, keys, casting="safe")
+    term = scratch.take("term", keys.shape, np.float32)
+    out.fill(np.float32(0.0))
     for column in range(per_class.shape[0]):
         np.take(per_class[column], index, out=term)
         term *= kg_per_ha[column]
-        density += term
-    density[index == dump] = DENSITY_NODATA
-    return density
+        out += term
+    out[keys == dump] = DENSITY_NODATA
+    return out
 
 
 def write_capacity_density(
@@ -1077,9 +1131,14 @@ def write_capacity_density(
         dst.update_tags(units="animal-days per hectare (NCC)")
         with ThreadPoolExecutor(max_workers=1) as writer:  # compresses while the next is computed
             pending = None
-            for window, keys, kg in result.cache.windows(result.windows, n_classes):
-                density = _density(keys, kg, per_class, dump)
-                density = density.reshape(int(window.height), int(window.width))
+            scratch = Scratch()
+            for number, (window, keys, kg) in enumerate(
+                result.cache.windows(result.windows, n_classes)
+            ):
+                shape = (int(window.height), int(window.width))
+                # Two buffers in turn: one is compressed and written while the other is filled.
+                density = scratch.take(f"density {number % 2}", shape, np.float32)
+                _density(keys, kg, per_class, dump, density.reshape(-1), scratch)
                 if pending is not None:
                     pending.result()
                 pending = writer.submit(write, window, density)
