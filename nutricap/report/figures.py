@@ -62,7 +62,7 @@ CAPACITY_SERIES = {
 PNG_DPI = 110
 
 #: Largest number of units drawn in the per-unit chart, and labelled on the map.
-MAX_UNITS_CHART = 60
+MAX_UNITS_CHART = 40
 MAX_UNITS_LABELLED = 30
 
 _THOUSANDS = FuncFormatter(lambda value, _position: f"{value:,.0f}")
