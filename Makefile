@@ -27,6 +27,7 @@ test: $(VENV)/.installed-test
 
 lint: $(VENV)/.installed-test
 	$(BIN)/ruff check nutricap tests benchmarks example_landscape
+	$(BIN)/ruff format --check nutricap tests benchmarks example_landscape
 
 bench: $(VENV)/.installed-test
 	$(BIN)/python benchmarks/solver.py
