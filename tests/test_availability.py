@@ -1,7 +1,8 @@
 """Tests of nutricap.landscape.availability: the per-cell availability rules.
 
 Check values come from the definitions of the rules (stated beside each), from the packaged
-Holechek (1988) table (values from memory, as its source column says), from trigonometry, and
+Holechek (1988) table (slope middle classes from memory; the rest read in a secondary source,
+as its source column says), from trigonometry, and
 from conservation identities (forage left + forage removed = standing forage).
 """
 
@@ -62,8 +63,9 @@ def test_snow_through_apply_rules():
 def test_packaged_holechek_slope_table():
     table = load_reduction_table(None, "slope")
     assert "Holechek 1988" in table.source
-    # Holechek 1988, Rangelands 10:10-14 (from memory): 0-10 % slope no reduction, 11-30 % 30 %,
-    # 31-60 % 60 %, over 60 % ungrazeable (100 %).
+    # Holechek 1988, Rangelands 10:10-14: 0-10 % slope no reduction and over 60 % ungrazeable
+    # (100 %) read in Oberlie 2008 capstone slides (slideplayer.com/slide/8233399, slide 8);
+    # 11-30 % 30 % and 31-60 % 60 % from memory.
     slopes = [0.0, 5.0, 10.0, 25.0, 30.0, 45.0, 60.0, 61.0, 120.0]
     expected = [0.0, 0.0, 0.0, 0.3, 0.3, 0.6, 0.6, 1.0, 1.0]
     np.testing.assert_allclose(table.reduction_of(slopes), expected, rtol=1e-6)
@@ -71,16 +73,18 @@ def test_packaged_holechek_slope_table():
 
 def test_packaged_holechek_water_table():
     table = load_reduction_table(None, "distance_to_water")
-    # Holechek 1988 (from memory): under 1 mile from water no reduction, 1-2 miles 50 %,
-    # over 2 miles 100 %; miles in metres by the international mile.
+    # Holechek 1988 as read in Oberlie 2008 capstone slides (slideplayer.com/slide/8233399,
+    # slide 9): under 1 mile from water no reduction, 1-2 miles 50 %, over 2 miles 100 %;
+    # miles in metres by the international mile.
     distances = [0.0, 0.5 * MILE_M, 1.0 * MILE_M, 1.5 * MILE_M, 2.0 * MILE_M, 2.5 * MILE_M]
     expected = [0.0, 0.0, 0.0, 0.5, 0.5, 1.0]
     np.testing.assert_allclose(table.reduction_of(distances), expected, rtol=1e-6)
 
 
 def test_slope_and_water_reductions_multiply():
-    # One cell at 25 % slope, 1.5 miles from water: 30 % then 50 % (Holechek 1988, from
-    # memory) applied one after the other leave 0.7 × 0.5 = 0.35 of the forage.
+    # One cell at 25 % slope, 1.5 miles from water: 30 % (Holechek 1988, from memory) then
+    # 50 % (Holechek 1988 as read in Oberlie 2008 slide 9) applied one after the other leave
+    # 0.7 × 0.5 = 0.35 of the forage.
     rules = CellRules(
         slope_table=load_reduction_table(None, "slope"),
         water_table=load_reduction_table(None, "distance_to_water"),

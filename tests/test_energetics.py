@@ -83,8 +83,9 @@ def test_bmr_scaling_law_sixteen_times_mass_is_eight_times_bmr(mass):
 
 
 def test_me_per_de_is_nrc_factor():
-    # NRC: ME = 0.82 DE (from memory; read: ME close to 82 % of DE for forages,
-    # Aust. J. Agric. Res. 18:137-147, 1967, abstract).
+    # NRC 1996, Nutrient Requirements of Beef Cattle, 7th rev. ed., p. 126 (read, nap.edu):
+    # "1 Mcal of DE is equal to 0.82 Mcal of ME"; also ME close to 82 % of DE for forages,
+    # Aust. J. Agric. Res. 18:137-147, 1967, abstract.
     assert en.ME_PER_DE == 0.82
     # 0.82 * 1000 = 820 (hand-computed).
     assert en.metabolizable_energy_from_digestible(1000.0) == pytest.approx(820.0)
@@ -107,7 +108,8 @@ def test_negative_energy_raises():
 
 def test_animal_unit_constants():
     # NRPH: 1 AU = 1000-lb cow; 26 lb oven-dry forage/day; 1 AUM = 780 lb (read in secondary
-    # sources quoting these figures; NRPH attribution from memory). 1 lb = 0.45359237 kg exactly.
+    # sources quoting these figures, e.g. Ruyle & Ogden, "What is an A.U.M.?", University of
+    # Arizona Cooperative Extension; NRPH attribution from memory). 1 lb = 0.45359237 kg exactly.
     assert en.ANIMAL_UNIT_BODY_MASS_KG == pytest.approx(453.6, abs=0.01)
     assert en.ANIMAL_UNIT_FORAGE_KG_PER_DAY == pytest.approx(11.79, abs=0.01)
     assert en.AUM_FORAGE_KG == pytest.approx(780 * 0.45359237, rel=1e-12)  # 353.80 kg

@@ -19,7 +19,8 @@ BSA = st.floats(min_value=0.0, max_value=1.0, allow_nan=False)
 
 
 def test_default_gross_energy_is_typical_forage_value():
-    # Robbins 1993 (from memory): forage gross energy about 4.4-4.5 kcal/g DM.
+    # Robbins 1993 (from memory): forage gross energy about 4.4-4.5 kcal/g DM (no readable
+    # source found; a secondary deer table, scribd.com/document/229748738, assumes 4.5).
     assert 4.3 <= fq.GROSS_ENERGY_KCAL_PER_G_DEFAULT <= 4.6
 
 
@@ -51,7 +52,9 @@ def test_de_never_exceeds_gross_energy(dmd, gross):
 
 
 def test_dp_coefficients():
-    # Robbins et al. 1987 (from memory): DP = -3.87 + 0.9283 CP - 11.82 BSA.
+    # Robbins et al. 1987: DP = -3.87 + 0.9283 CP - 11.82 BSA. The CP terms read in a secondary
+    # deer table (scribd.com/document/229748738, citing Hanley et al. 1992, Ecology 73:537-541;
+    # its font drops the digit 7: "-3.8 + 0.9283 (CP)"); the BSA slope from memory.
     c = fq.ROBBINS_1987_DP_COEFFICIENTS
     assert (c["intercept_pct"], c["cp_slope"], c["bsa_slope_pct_per_mg_per_mg"]) == (
         -3.87,

@@ -26,7 +26,11 @@ of the two-multiplier dual, and any unit that vertex search cannot certify goes 
 References
 ----------
 Hobbs, N.T. & Swift, D.M. 1985. Estimates of habitat carrying capacity incorporating explicit
-    nutritional constraints. J. Wildl. Manage. 49:814-822.
+    nutritional constraints. J. Wildl. Manage. 49:814-822. Abstract read (scilit.net): "an
+    algorithm for estimating supportable densities of herbivores consuming diets at different
+    levels of nutritional quality", forage amount and quality treated together; the linear
+    programme above is written from that description and checked by LP duality and HiGHS, not
+    against the paper's own equations, which were not read.
 Hanley, T.A. & Rogers, J.J. 1989. Estimating carrying capacity with simultaneous nutritional
     constraints. USDA Forest Service Research Note PNW-RN-485.
 Holechek, J.L. 1988. An approach for setting the stocking rate. Rangelands 10:10-14.
@@ -619,7 +623,8 @@ def allowable_use_capacity(
     References
     ----------
     Holechek, J.L. 1988. An approach for setting the stocking rate. Rangelands 10:10-14
-    (form of the equation from memory; the paper was not re-read for this module).
+    (form of the equation from memory; no readable copy of the paper was found, so it is
+    still unchecked).
 
     Examples
     --------

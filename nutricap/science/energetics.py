@@ -21,6 +21,8 @@ Robbins, C.T. 1993. Wildlife Feeding and Nutrition, 2nd ed. Academic Press, San 
 Hobbs, N.T. & Swift, D.M. 1985. Estimates of habitat carrying capacity incorporating
     explicit nutritional constraints. J. Wildl. Manage. 49:814-822.
 USDA NRCS. National Range and Pasture Handbook (animal unit, animal-unit month).
+National Research Council. 1996. Nutrient Requirements of Beef Cattle, 7th rev. ed.
+    National Academy Press, Washington, DC (ME/DE = 0.82, p. 126).
 """
 
 from __future__ import annotations
@@ -45,9 +47,11 @@ KLEIBER_KCAL_PER_KG075_PER_DAY = 70.0
 #: Exponent of metabolic body size (Kleiber 1961).
 METABOLIC_EXPONENT = 0.75
 
-#: Metabolizable / digestible energy [-] (NRC nutrient-requirement volumes, from memory; read:
-#: "ME close to 82 % of DE" for forages in "The net energy value of three subtropical forages",
-#: Aust. J. Agric. Res. 18:137-147, 1967, abstract).
+#: Metabolizable / digestible energy [-]. Read in National Research Council 1996, Nutrient
+#: Requirements of Beef Cattle, 7th rev. ed., National Academy Press, p. 126 (nap.edu OpenBook,
+#: record 9791): "1 Mcal of DE is equal to 0.82 Mcal of ME (NRC, 1976)". Also read: "ME close to
+#: 82 % of DE" for forages in "The net energy value of three subtropical forages", Aust. J.
+#: Agric. Res. 18:137-147, 1967, abstract.
 ME_PER_DE = 0.82
 
 #: Kilograms per avoirdupois pound (exact, international pound of 1959).
@@ -55,11 +59,16 @@ KG_PER_LB = 0.45359237
 
 #: NRCS animal unit: one 1000-lb (453.6 kg) cow, with or without an unweaned calf. Read in
 #: secondary sources (NDSU Dickinson REC range research reports; University of Nebraska drought
-#: centre planning pages), attributed to the National Range and Pasture Handbook from memory.
+#: centre planning pages; Ruyle & Ogden, "What is an A.U.M.?", University of Arizona
+#: Cooperative Extension, read at studylib.net/doc/10669245: a mature 1,000-pound cow eating
+#: 26 lb forage dry matter a day, citing the Society for Range Management glossary), attributed
+#: to the National Range and Pasture Handbook from memory.
 ANIMAL_UNIT_BODY_MASS_KG = 1000.0 * KG_PER_LB
 
 #: Forage of one animal unit: 26 lb oven-dry forage per day (11.79 kg). Read in the same
 #: secondary sources ("26 lbs of oven dried forage per day"); NRPH attribution from memory.
+#: Ruyle & Ogden count an AUM as 31 days x 26 lb, "about 800 pounds of air-dried forage";
+#: this library uses the 30-day AUM below.
 ANIMAL_UNIT_FORAGE_KG_PER_DAY = 26.0 * KG_PER_LB
 
 #: Days in one animal-unit month: 30 (SRM 1998 glossary, read: "a standardized period of
@@ -169,7 +178,8 @@ def metabolizable_energy_from_digestible(de_kcal: ArrayLike) -> FloatOrArray:
 
     References
     ----------
-    National Research Council nutrient-requirement volumes (ME/DE = 0.82).
+    National Research Council. 1996. Nutrient Requirements of Beef Cattle, 7th rev. ed.
+    National Academy Press, Washington, DC, p. 126 (ME/DE = 0.82, citing NRC 1976).
     """
     return as_output(ME_PER_DE * checked_array(de_kcal, "de_kcal", minimum=0.0))
 
@@ -193,7 +203,8 @@ def digestible_energy_from_metabolizable(me_kcal: ArrayLike) -> FloatOrArray:
 
     References
     ----------
-    National Research Council nutrient-requirement volumes (ME/DE = 0.82).
+    National Research Council. 1996. Nutrient Requirements of Beef Cattle, 7th rev. ed.
+    National Academy Press, Washington, DC, p. 126 (ME/DE = 0.82, citing NRC 1976).
     """
     return as_output(checked_array(me_kcal, "me_kcal", minimum=0.0) / ME_PER_DE)
 

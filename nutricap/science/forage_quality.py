@@ -19,18 +19,28 @@ from nutricap.errors import InputError
 from nutricap.science._checks import FloatOrArray, as_output, checked_array
 
 #: Typical gross energy of forage dry matter [kcal/g] (Robbins 1993; from memory: most forages
-#: lie near 4.4-4.5 kcal/g, more for resinous or waxy browse).
+#: lie near 4.4-4.5 kcal/g, more for resinous or waxy browse). Not found in a readable source;
+#: one secondary deer-requirement table (scribd.com/document/229748738) assumes 4.5 kcal/g,
+#: citing Robbins 1993.
 GROSS_ENERGY_KCAL_PER_G_DEFAULT = 4.4
 
-#: Coefficients of the digestible-protein equation of Robbins et al. (1987), from memory (the
-#: abstract, read, says digestible protein is a linear function of crude protein in low-tannin
+#: Coefficients of the digestible-protein equation of Robbins et al. (1987). The abstract (read,
+#: scilit.net) says digestible protein is a linear function of crude protein in low-tannin
 #: forages and is lowered in proportion to the tannins' protein-precipitating capacity; the
-#: numbers themselves were not read). Units: DP and CP in % of dry matter, BSA in mg/mg.
+#: paper's numbers were not read. The low-tannin line DP = -3.87 + 0.9283 CP was read in a
+#: secondary deer-requirement table ("Deer Metabolic Requirements", scribd.com/document/229748738),
+#: which attributes it to Hanley, Robbins, Hagerman & McArthur 1992, Ecology 73:537-541. That
+#: copy's font loses the digit 7: it prints "-3.8 + 0.9283 (CP)", and its own arithmetic shows
+#: the loss elsewhere (36.68 x "1.6" = 61.25 only for 1.67). The BSA slope -11.82 is
+#: from memory. Units: DP and CP in % of dry matter, BSA in mg/mg.
 ROBBINS_1987_DP_COEFFICIENTS = {
     "intercept_pct": -3.87,
     "cp_slope": 0.9283,
     "bsa_slope_pct_per_mg_per_mg": -11.82,
-    "source": "Robbins et al. 1987, Ecology 68:98-107 (coefficients from memory)",
+    "source": (
+        "Robbins et al. 1987, Ecology 68:98-107 (abstract read); -3.87 + 0.9283 CP read in a "
+        "secondary table citing Hanley et al. 1992, Ecology 73:537-541; BSA slope from memory"
+    ),
 }
 
 
@@ -97,11 +107,12 @@ def digestible_protein_pct(
 
     Notes
     -----
-    ``DP = max(0, -3.87 + 0.9283 * CP - 11.82 * BSA)`` (Robbins et al. 1987; coefficients from
-    memory). The intercept is metabolic faecal protein lost per unit intake, so the equation
-    turns negative for forage below about 4.2 % crude protein (or with enough tannin); a
-    forage cannot supply negative protein, so the result is clipped at 0. The loss such a diet
-    causes is carried by the requirement, not by the forage value.
+    ``DP = max(0, -3.87 + 0.9283 * CP - 11.82 * BSA)`` (Robbins et al. 1987; the CP terms read
+    in a secondary source citing Hanley et al. 1992, the BSA slope from memory, see
+    :data:`ROBBINS_1987_DP_COEFFICIENTS`). The intercept is metabolic faecal protein lost per
+    unit intake, so the equation turns negative for forage below about 4.2 % crude protein (or
+    with enough tannin); a forage cannot supply negative protein, so the result is clipped at
+    0. The loss such a diet causes is carried by the requirement, not by the forage value.
 
     References
     ----------
