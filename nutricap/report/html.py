@@ -735,7 +735,7 @@ METHODS = (
         "below). 0.82 converts metabolizable to digestible energy for ruminants on forage.",
         "Multipliers: Robbins, C.T. 1993. Wildlife Feeding and Nutrition, 2nd ed., Academic "
         "Press (from memory, see each row's source). ME = 0.82 · DE: National Research Council "
-        "nutrient-requirement volumes (from memory).",
+        "1996, Nutrient Requirements of Beef Cattle, 7th rev. ed., p. 126.",
     ),
     Method(
         "Intake, protein requirement and minimum diet quality",
@@ -758,7 +758,8 @@ METHODS = (
         "DP = max(0, −3.87 + 0.9283 · CP − 11.82 · BSA)    [% DM]",
         "CP is crude protein [% DM]; BSA the tannins' protein precipitation [mg/mg].",
         "Robbins, C.T., Hanley, T.A., Hagerman, A.E. et al. 1987. Ecology 68:98–107 "
-        "(coefficients from memory).",
+        "(abstract read); −3.87 + 0.9283 · CP read in a secondary table citing Hanley et al. "
+        "1992, Ecology 73:537–541; BSA slope from memory.",
     ),
     Method(
         "Nutritional carrying capacity (one nutrient)",
@@ -959,7 +960,7 @@ def _threshold_rows(estimate: Estimate, project: Project) -> dict:
         (
             "ME / DE [–]",
             f"{energetics.ME_PER_DE:g}",
-            "NRC nutrient-requirement volumes (from memory)",
+            "NRC 1996, Nutrient Requirements of Beef Cattle, p. 126",
         ),
         (
             "Default gross energy of forage [kcal/g DM]",
