@@ -1,0 +1,111 @@
+"""Formatting for the HTML report: values to cell text, tables to rows, figures to data URIs.
+
+The helpers turn what a report section is handed into plain strings for the Jinja2
+template (:mod:`nutricap.report.html`); they compute nothing.
+"""
+
+from __future__ import annotations
+
+import base64
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import pandas as pd
+
+from nutricap.report import figures
+
+if TYPE_CHECKING:
+    from matplotlib.figure import Figure
+
+
+def is_missing(value: Any) -> bool:
+    """Whether ``value`` is None or NaN (shown as '–')."""
+    if value is None:
+        return True
+    try:
+        return bool(pd.isna(value))
+    except (TypeError, ValueError):
+        return False
+
+
+def _number(digits: int, *, percent: bool = False) -> Callable[[Any], str]:
+    """Formatter with thousands separators and ``digits`` decimals; '–' for a missing value."""
+
+    def format_value(value: Any) -> str:
+        if is_missing(value):
+            return "–"
+        number = float(value) * (100.0 if percent else 1.0)
+        return f"{number:,.{digits}f}" + (" %" if percent else "")
+
+    return format_value
+
+
+def format_text(value: Any) -> str:
+    """A cell as text: '–' when missing or empty, yes/no for booleans."""
+    if is_missing(value) or value == "":
+        return "–"
+    if isinstance(value, bool | np.bool_):
+        return "yes" if value else "no"
+    return str(value)
+
+
+def format_auto(value: Any) -> str:
+    """Whole numbers as counts, other numbers to three significant digits, text as text."""
+    if isinstance(value, bool | np.bool_ | str) or is_missing(value):
+        return format_text(value)
+    if isinstance(value, int | float | np.number):
+        number = float(value)
+        return f"{number:,.0f}" if abs(number) >= 100 or number.is_integer() else f"{number:.3g}"
+    return str(value)
+
+
+ANIMALS = _number(0)
+ONE_DECIMAL = _number(1)
+TWO_DECIMALS = _number(2)
+THREE_DECIMALS = _number(3)
+PERCENT = _number(0, percent=True)
+
+
+@dataclass(frozen=True)
+class Column:
+    """A column of a rendered table: source column, header with unit, formatter."""
+
+    name: str
+    header: str
+    format: Callable[[Any], str] = format_text
+    numeric: bool = False
+
+
+def numeric_column(name: str, header: str, format_value: Callable[[Any], str] = ANIMALS) -> Column:
+    """A right-aligned column, formatted as whole animals unless told."""
+    return Column(name, header, format_value, numeric=True)
+
+
+def table(
+    frame: pd.DataFrame,
+    columns: list[Column],
+    *,
+    flag: pd.Series | None = None,
+    footer: list[str] | None = None,
+) -> dict:
+    """A table as plain strings for the template: headers, rows (with a flag), alignment."""
+    present = [column for column in columns if column.name in frame.columns]
+    flags = [False] * len(frame) if flag is None else [bool(value) for value in flag]
+    rows = [
+        {"cells": [column.format(value) for column, value in zip(present, row)], "flag": marked}
+        for row, marked in zip(frame[[c.name for c in present]].itertuples(index=False), flags)
+    ]
+    return {
+        "headers": [column.header for column in present],
+        "numeric": [column.numeric for column in present],
+        "rows": rows,
+        "footer": footer,
+    }
+
+
+def embedded_figure(figure: Figure, alt: str) -> dict:
+    """``figure`` as a base64 PNG data URI with its alt text."""
+    png = figures.figure_png(figure)
+    return {"src": "data:image/png;base64," + base64.b64encode(png).decode("ascii"), "alt": alt}

@@ -1,0 +1,159 @@
+"""The method text of the HTML report: every equation with a short explanation and its source.
+
+:func:`methods` picks the entries of one run: the core steps, then those of the optional
+analyses (bootstrap intervals, sensitivity, population trend) that were run.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from nutricap.science import population
+
+
+@dataclass(frozen=True)
+class Method:
+    """One step of the method: its equation, a short explanation and its source."""
+
+    title: str
+    equation: str
+    text: str
+    source: str
+
+
+METHODS = (
+    Method(
+        "Clip plots to forage per hectare",
+        "B = 10 · m / A    [kg DM/ha]; stratum mean x̄ = Σx/n, SE = s/√n",
+        "m is the oven-dry mass clipped in a frame [g], A the frame area [m²]; 1 g/m² = "
+        "10 kg/ha. A forage class missing from a plot counts as 0 on that plot.",
+        "SI unit definitions; sample mean and standard error (common practice).",
+    ),
+    Method(
+        "Available forage",
+        "a(unit, class) = Σ_strata accessible ha × mean kg/ha    [kg DM]",
+        "Accessible hectares come from overlaying the strata on the units in the area CRS.",
+        "Stratified estimation (common practice).",
+    ),
+    Method(
+        "Basal metabolism",
+        "BMR = 70 · W^0.75    [kcal/day], W in kg",
+        "W^0.75 is metabolic body size.",
+        "Kleiber, M. 1961. The Fire of Life. Wiley, New York.",
+    ),
+    Method(
+        "Energy requirement by nutritional state",
+        "ME = m · BMR;  DE = ME / 0.82    [kcal/day]",
+        "m is the multiple of basal metabolism for the state and season (parameter table "
+        "below). 0.82 converts metabolizable to digestible energy for ruminants on forage.",
+        "Multipliers: Robbins, C.T. 1993. Wildlife Feeding and Nutrition, 2nd ed., Academic "
+        "Press (from memory, see each row's source). ME = 0.82 · DE: National Research Council "
+        "1996, Nutrient Requirements of Beef Cattle, 7th rev. ed., p. 126.",
+    ),
+    Method(
+        "Intake, protein requirement and minimum diet quality",
+        "I = i · W^0.75 / 1000 [kg DM/day];  R_DP = p · W^0.75 [g/day];\n"
+        "q_DE = DE / (1000 · I) [kcal/g];  q_DP = 100 · R_DP / (1000 · I) [%]",
+        "The diet must supply the requirement within the intake limit. A herd is its "
+        "share-weighted average animal.",
+        "Hobbs, N.T. & Swift, D.M. 1985. J. Wildl. Manage. 49:814–822; i and p from memory "
+        "or common practice (parameter table).",
+    ),
+    Method(
+        "Digestible energy of forage",
+        "DE = GE · DMD / 100    [kcal/g DM]",
+        "Used when a forage class gives dry-matter digestibility instead of DE; GE defaults "
+        "to 4.4 kcal/g.",
+        "Robbins, C.T. 1993. Wildlife Feeding and Nutrition (from memory).",
+    ),
+    Method(
+        "Digestible protein of forage",
+        "DP = max(0, −3.87 + 0.9283 · CP − 11.82 · BSA)    [% DM]",
+        "CP is crude protein [% DM]; BSA the tannins' protein precipitation [mg/mg].",
+        "Robbins, C.T., Hanley, T.A., Hagerman, A.E. et al. 1987. Ecology 68:98–107 "
+        "(abstract read); −3.87 + 0.9283 · CP read in a secondary table citing Hanley et al. "
+        "1992, Ecology 73:537–541; BSA slope from memory.",
+    ),
+    Method(
+        "Nutritional carrying capacity (one nutrient)",
+        "maximise Σ x_i  subject to  0 ≤ x_i ≤ c_i a_i,  Σ x_i (q_i − T) ≥ 0;\n"
+        "NCC [animal-days] = Σ x_i / I;  NCC [animals] = animal-days / D",
+        "A linear programme solved exactly by sorting forage by quality and accumulating "
+        "until the diet's DE falls to the threshold T. c_i is the allowable use when NCC is "
+        "capped at allowable use, else 1; D is the season length.",
+        "Hobbs, N.T. & Swift, D.M. 1985. Estimates of habitat carrying capacity incorporating "
+        "explicit nutritional constraints. J. Wildl. Manage. 49:814–822.",
+    ),
+    Method(
+        "Two nutrients at once",
+        "… and Σ x_i (p_i − P) ≥ 0",
+        "Energy and protein constraints together, solved exactly from the vertices of the "
+        "two-multiplier dual, or by scipy.optimize.linprog (HiGHS) when that cannot certify "
+        "the optimum. The limiting factor names the binding constraint(s).",
+        "Hanley, T.A. & Rogers, J.J. 1989. Estimating carrying capacity with simultaneous "
+        "nutritional constraints. USDA Forest Service Research Note PNW-RN-485.",
+    ),
+    Method(
+        "Ecological carrying capacity (forage-quantity ceiling)",
+        "ECC [animal-days] = 1000 · Σ a_i q_i / R_maint",
+        "All forage counts, whatever its quality; R_maint is the herd's DE requirement at "
+        "maintenance [kcal/day]. The ceiling NCC is set against.",
+        "Hobbs, N.T. & Swift, D.M. 1985. J. Wildl. Manage. 49:814–822.",
+    ),
+    Method(
+        "Capacity at allowable use",
+        "AUC [animal-days] = Σ u_i a_i / I",
+        "u_i is each forage class's allowable use (the fraction that may be removed).",
+        "Holechek, J.L. 1988. An approach for setting the stocking rate. Rangelands 10:10–14.",
+    ),
+    Method(
+        "Animal units",
+        "AUE = (W / 453.6)^0.75 [AU];  AUM = animal-days · AUE / 30",
+        "One animal unit is a 1000-lb (453.6 kg) cow eating 26 lb (11.8 kg) oven-dry forage a "
+        "day; one AUM is 30 animal-unit days.",
+        "USDA NRCS National Range and Pasture Handbook (attribution from memory; values read "
+        "in secondary sources); Society for Range Management 1998 glossary (30-day AUM).",
+    ),
+    Method(
+        "Density",
+        "NCC per km² = NCC [animals] / (area [ha] / 100)",
+        "1 km² = 100 ha.",
+        "SI unit definitions.",
+    ),
+)
+
+
+BOOTSTRAP_METHOD = Method(
+    "Intervals: stratified bootstrap over plots",
+    "interval = (100·(1−level)/2, 100·(1+level)/2) percentiles of the replicate capacities",
+    "Plots are resampled with replacement within each stratum, the stratum means recomputed "
+    "and every capacity solved again for each replicate.",
+    "Efron, B. & Tibshirani, R.J. 1993. An Introduction to the Bootstrap. Chapman & Hall "
+    "(percentile intervals; stratified resampling, from memory).",
+)
+
+SENSITIVITY_METHOD = Method(
+    "Sensitivity",
+    "Δ_low = NCC(x·(1−δ)) − NCC(x);  Δ_high = NCC(x·(1+δ)) − NCC(x)    [animals]",
+    "Each input group is moved down and up by the fraction δ, one at a time, and total NCC "
+    "is solved again; inputs are ranked by |Δ_high − Δ_low|.",
+    "One-at-a-time perturbation (common practice).",
+)
+
+TREND_METHOD = Method(
+    "Population trend",
+    "λ = N(t+1)/N(t);  r = ln λ;  MSY level = K/2;  MSY = r_max·K/4",
+    population.LOGISTIC_METHOD + ".",
+    "The logistic model and maximum sustained yield (textbook population ecology); "
+    "May, R.M. 1974. Science 186:645–647 (discrete logistic, from memory).",
+)
+
+
+def methods(*, intervals: bool, sensitivity: bool, trend: bool) -> tuple[Method, ...]:
+    """The method entries of this run: the core, then those of the optional analyses."""
+    optional = (
+        (intervals, BOOTSTRAP_METHOD),
+        (sensitivity, SENSITIVITY_METHOD),
+        (trend, TREND_METHOD),
+    )
+    return METHODS + tuple(method for used, method in optional if used)

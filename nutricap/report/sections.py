@@ -1,0 +1,324 @@
+"""Sections of the HTML report drawn from the estimate itself.
+
+Header, inputs, diet and herd, capacity chart, per-unit table, use and overuse, and
+supply by stratum; each function returns the template context of its section.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import pandas as pd
+
+from nutricap.report import figures
+from nutricap.report.formatting import (
+    ANIMALS,
+    ONE_DECIMAL,
+    PERCENT,
+    THREE_DECIMALS,
+    TWO_DECIMALS,
+    Column,
+    embedded_figure,
+    is_missing,
+    numeric_column,
+    table,
+)
+
+if TYPE_CHECKING:
+    from nutricap.project import Project
+    from nutricap.workflow import Estimate
+
+
+# --- 1. header --------------------------------------------------------------------------------
+
+
+def header(estimate: Estimate, project: Project, manifest: dict) -> dict:
+    """The header: project, species, the question answered, run date, totals."""
+    config = project.config
+    by_unit = estimate.by_unit
+    target = estimate.target
+    protein = (
+        f" and at least {target.dp_min_pct:.2f} % digestible protein"
+        if target.dp_min_pct is not None
+        else ""
+    )
+    question = (
+        f"How many {config.project.species} can the {len(by_unit)} management units of "
+        f"{config.project.name} carry through a {estimate.season_days:g}-day "
+        f"{_season_name(config.project.season)}season while every animal can still eat a diet "
+        f"of at least {target.de_min_kcal_per_g:.3f} kcal digestible energy per g dry "
+        f"matter{protein}?"
+    )
+    totals = {
+        name: ANIMALS(by_unit[name].sum())
+        for name in ("ncc_animals", "ecc_animals", "allowable_use_animals")
+    }
+    return {
+        "project": config.project.name,
+        "species": config.project.species,
+        "question": question,
+        "run_date": _run_date(manifest),
+        "totals": totals,
+        "units": len(by_unit),
+    }
+
+
+def _season_name(season: str) -> str:
+    return "" if season == "any" else f"{season} "
+
+
+def _run_date(manifest: dict) -> str:
+    started = manifest.get("started_utc")
+    if started:
+        try:
+            return dt.datetime.fromisoformat(started).strftime("%Y-%m-%d %H:%M UTC")
+        except ValueError:
+            return str(started)
+    return dt.datetime.now(dt.UTC).strftime("%Y-%m-%d %H:%M UTC") + " (report written)"
+
+
+# --- 2. inputs --------------------------------------------------------------------------------
+
+
+def inputs(estimate: Estimate, project: Project, manifest: dict, *, n_animal_classes: int) -> dict:
+    """The inputs section: input files with SHA-256, counts and the settings used."""
+    config = project.config
+    derived = manifest.get("derived", {})
+    counts = {
+        "Management units": len(estimate.by_unit),
+        "Vegetation strata": len(estimate.supply.strata),
+        "Clip plots": int(np.sum(estimate.supply.n_plots)),
+        "Forage classes": len(estimate.supply.classes),
+        "Animal classes": n_animal_classes,
+    }
+    settings = {
+        "Season": f"{estimate.season_days:g} days ({config.project.season})",
+        "Area CRS": str(derived.get("area_crs", estimate.areas.area_crs.to_string())),
+        "Why this CRS": str(derived.get("area_crs_reason", estimate.areas.area_crs_reason)),
+        "Pooling": _POOLING[config.pooling.mode],
+        "NCC capped at allowable use": "yes" if config.forage_use.cap_at_allowable_use else "no",
+    }
+    return {
+        "files": _input_files(manifest, project),
+        "counts": {key: f"{value:,}" for key, value in counts.items()},
+        "settings": settings,
+        "notes": list(estimate.notes),
+    }
+
+
+_POOLING = {
+    "unit": "unit (animals mix forage across the whole unit)",
+    "patch": "patch (each unit × stratum patch must meet the diet on its own; conservative)",
+}
+
+
+def _input_files(manifest: dict, project: Project) -> list[dict]:
+    rows = []
+    for path, info in manifest.get("inputs", {}).items():
+        rows.append(
+            {
+                "name": _relative(Path(path), project.folder),
+                "sha256": info.get("sha256", "–"),
+                "bytes": f"{info['bytes']:,}" if "bytes" in info else "–",
+            }
+        )
+    return rows
+
+
+def _relative(path: Path, folder: Path) -> str:
+    try:
+        return str(path.relative_to(folder))
+    except ValueError:
+        return str(path)
+
+
+# --- 3. diet and herd -------------------------------------------------------------------------
+
+
+def diet(estimate: Estimate) -> dict:
+    """The diet section: the minimum diet quality and the herd's requirements."""
+    target, herd = estimate.target, estimate.herd
+    return {
+        "de_min": f"{target.de_min_kcal_per_g:.3f}",
+        "dp_min": None if target.dp_min_pct is None else f"{target.dp_min_pct:.2f}",
+        "derivation": target.derivation,
+        "herd": {
+            "Digestible-energy requirement [kcal/day]": ANIMALS(herd.de_kcal_per_day),
+            "Same herd at maintenance [kcal/day] (used for ECC)": ANIMALS(
+                herd.maintenance_de_kcal_per_day
+            ),
+            "Dry-matter intake [kg DM/day]": TWO_DECIMALS(herd.intake_kg_per_day),
+            "Digestible-protein requirement [g/day]": ONE_DECIMAL(herd.dp_g_per_day),
+            "Diet DE the average animal needs [kcal/g DM]": THREE_DECIMALS(herd.diet_de_kcal_per_g),
+            "Diet DP the average animal needs [% DM]": TWO_DECIMALS(herd.diet_dp_pct),
+            "Animal-unit equivalent [AU/animal]": THREE_DECIMALS(herd.animal_unit_equivalent),
+        },
+    }
+
+
+# --- 5. capacity chart and per-unit table -----------------------------------------------------
+
+INTERVAL_COLUMNS = {
+    "ncc_animals": "NCC interval [animals]",
+    "ecc_animals": "ECC interval [animals]",
+    "allowable_use_animals": "Allowable-use interval [animals]",
+}
+INTERVAL_NAMES = {
+    "ncc_animals": "NCC",
+    "ecc_animals": "ECC",
+    "allowable_use_animals": "allowable-use capacity",
+}
+
+
+def has_interval(frame: pd.DataFrame, name: str) -> bool:
+    """Whether ``frame`` has the ``<name>_lo`` and ``<name>_hi`` columns."""
+    return {f"{name}_lo", f"{name}_hi"} <= set(frame.columns)
+
+
+def _level_text(level: float | None) -> str:
+    return f"{100 * level:g} %" if level else "(level not stated)"
+
+
+def capacity(estimate: Estimate, level: float | None) -> dict:
+    """The capacity section: the per-unit capacity chart and what it shows."""
+    by_unit = estimate.by_unit
+    intervals = [name for name in INTERVAL_COLUMNS if has_interval(by_unit, name)]
+    chart = figures.capacity_figure(by_unit, season_days=estimate.season_days, interval_level=level)
+    return {
+        "figure": embedded_figure(
+            chart, "Per-unit dot chart of NCC, allowable-use capacity and ECC in animals."
+        ),
+        "intervals": [INTERVAL_NAMES[name] for name in intervals],
+        "level": _level_text(level),
+        "shown": min(len(by_unit), figures.MAX_UNITS_CHART),
+        "units": len(by_unit),
+        "current": "current_animals" in by_unit.columns,
+    }
+
+
+UNIT_COLUMNS = [
+    Column("unit_id", "Unit"),
+    numeric_column("area_ha", "Area [ha]", ONE_DECIMAL),
+    numeric_column("available_forage_kg", "Available forage [kg DM]"),
+    numeric_column("ncc_animals", "NCC [animals]"),
+    numeric_column("ecc_animals", "ECC [animals]"),
+    numeric_column("allowable_use_animals", "Allowable-use capacity [animals]"),
+    numeric_column("ncc_per_km2", "NCC [animals/km²]", ONE_DECIMAL),
+    numeric_column("ncc_aum", "NCC [AUM]"),
+    Column("limiting_factor", "Limiting factor"),
+    Column("marginal_forage_class", "Marginal forage class"),
+    numeric_column("diet_de_kcal_per_g", "Diet DE at NCC [kcal/g DM]", THREE_DECIMALS),
+    numeric_column("diet_dp_pct", "Diet DP at NCC [% DM]", TWO_DECIMALS),
+    numeric_column("current_animals", "Current animals [animals]"),
+]
+
+#: Columns summed in the total row (additive over units; intervals and rates are not).
+ADDITIVE_COLUMNS = (
+    "area_ha",
+    "available_forage_kg",
+    "ncc_animals",
+    "ecc_animals",
+    "allowable_use_animals",
+    "ncc_aum",
+    "current_animals",
+)
+
+
+def unit_table(by_unit: pd.DataFrame, level: float | None = None) -> dict:
+    """The per-unit table: main columns, interval columns when present, a total row."""
+    frame = by_unit.copy()
+    columns = list(UNIT_COLUMNS)
+    for name, header in INTERVAL_COLUMNS.items():
+        if has_interval(frame, name):
+            frame[f"{name}_interval"] = [
+                f"{ANIMALS(low)}–{ANIMALS(high)}"
+                for low, high in zip(frame[f"{name}_lo"], frame[f"{name}_hi"])
+            ]
+            position = next(i for i, c in enumerate(columns) if c.name == name) + 1
+            columns.insert(
+                position,
+                Column(
+                    f"{name}_interval",
+                    header.replace("interval", f"{_level_text(level)} interval"),
+                    numeric=True,
+                ),
+            )
+    present = [column for column in columns if column.name in frame.columns]
+    footer = [_total_cell(frame, column) for column in present]
+    footer[0] = "Total"
+    return table(frame, present, footer=footer)
+
+
+def _total_cell(frame: pd.DataFrame, column: Column) -> str:
+    if column.name in ADDITIVE_COLUMNS:
+        return column.format(frame[column.name].sum(min_count=1))
+    return ""
+
+
+# --- 6. use and overuse -----------------------------------------------------------------------
+
+USE_COLUMNS = ("current_animals", "overuse", "key_use_fraction")
+
+#: Columns of the use table, shown when present (written by :mod:`nutricap.assess`).
+USE_TABLE_COLUMNS = [
+    Column("unit_id", "Unit"),
+    numeric_column("current_animals", "Current animals [animals]"),
+    numeric_column("ncc_animals", "NCC [animals]"),
+    numeric_column("allowable_use_animals", "Allowable-use capacity [animals]"),
+    numeric_column("demand_kg", "Season demand of current animals [kg DM]"),
+    Column("key_class", "Most-used key forage class"),
+    numeric_column("key_use_fraction", "Expected use of that class [% of available]", PERCENT),
+    numeric_column("key_allowable_use", "Its allowable use [%]", PERCENT),
+    Column("overuse", "Use above allowable"),
+    numeric_column(
+        "reduction_for_key_use_animals",
+        "Fewer animals to bring use to allowable [animals, advisory]",
+    ),
+    Column("above_ncc", "Numbers above NCC"),
+    numeric_column("reduction_for_ncc_animals", "Fewer animals to reach NCC [animals, advisory]"),
+]
+
+
+def use(by_unit: pd.DataFrame) -> dict:
+    """The use section: expected use against allowable use, when assessed."""
+    if not set(USE_COLUMNS) <= set(by_unit.columns):
+        state = "current_only" if "current_animals" in by_unit.columns else "none"
+        return {"state": state, "table": None, "flagged": 0}
+    flags = by_unit["overuse"].map(is_flag)
+    if "above_ncc" in by_unit.columns:
+        flags = flags | by_unit["above_ncc"].map(is_flag)
+    return {
+        "state": "assessed",
+        "table": table(by_unit, USE_TABLE_COLUMNS, flag=flags),
+        "flagged": int(flags.sum()),
+    }
+
+
+def is_flag(value: Any) -> bool:
+    """Whether an ``overuse`` cell raises a flag: True, or a non-empty text other than no."""
+    if is_missing(value):
+        return False
+    if isinstance(value, str):
+        return value.strip().lower() not in ("", "no", "false", "none", "0", "ok")
+    return bool(value)
+
+
+# --- 10. supply by stratum --------------------------------------------------------------------
+
+SUPPLY_COLUMNS = [
+    Column("stratum", "Stratum"),
+    Column("forage_class", "Forage class"),
+    numeric_column("mean_kg_per_ha", "Mean [kg DM/ha]", ONE_DECIMAL),
+    numeric_column("se_kg_per_ha", "Standard error [kg DM/ha]", ONE_DECIMAL),
+    numeric_column("n_plots", "Plots (n)"),
+]
+
+
+def supply(estimate: Estimate) -> dict:
+    """The supply section: forage per hectare by stratum and class (absent ones omitted)."""
+    frame = estimate.supply.table()
+    absent = (frame["mean_kg_per_ha"] == 0) & (frame["n_plots"] > 0)
+    return {"table": table(frame[~absent], SUPPLY_COLUMNS), "omitted": int(absent.sum())}
