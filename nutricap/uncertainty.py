@@ -3,9 +3,11 @@
 Bootstrap (Efron & Tibshirani 1993, *An Introduction to the Bootstrap*, ch. 13
 percentile intervals; stratified resampling as in their ch. 8, from memory):
 plots are resampled with replacement *within each stratum*, the stratum means
-are recomputed, and every replicate's capacity problem is solved. The spatial
-work (overlay, hectares) is done once; all replicates are stacked into one
-problem and solved in a single vectorised call.
+are recomputed, and every replicate's capacity problem is solved. In the
+calibrated-raster mode each group's calibration plots are resampled too (pairs
+bootstrap, ch. 9) and its index → biomass model refitted. The spatial work
+(overlay, hectares, raster pass) is done once; all replicates are stacked into
+one problem and solved in a single vectorised call.
 
 Sensitivity: each input group is moved down and up by a stated fraction, one
 at a time, and the change in total NCC is recorded (a tornado table). This is
@@ -15,8 +17,9 @@ is needed.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
+from typing import Protocol
 
 import numpy as np
 import pandas as pd
@@ -25,6 +28,17 @@ from nutricap.problem import CapacityProblem, Solution
 
 FIGURES = ("ncc", "ecc", "allowable_use")
 SolveRows = Callable[[CapacityProblem], Solution]
+
+
+class ResampledForage(Protocol):
+    """Forage of some (row, item) entries of a problem under a resampled model, e.g. a
+    calibrated group (:class:`nutricap.landscape.grid_supply.CalibratedSums`)."""
+
+    rows: np.ndarray  # (entries,) problem rows
+    items: np.ndarray  # (entries,) problem items
+
+    def resampled_forage_kg(self, replicates: int, rng: np.random.Generator) -> np.ndarray:
+        """Forage of each entry in each replicate [kg], (replicates, entries)."""
 
 
 @dataclass(frozen=True)
@@ -120,6 +134,7 @@ def bootstrap_capacity(
     replicates: int,
     level: float,
     seed: int,
+    calibrated: Sequence[ResampledForage] = (),
 ) -> BootstrapResult:
     """Stratified bootstrap of NCC, ECC and allowable-use capacity per unit.
 
@@ -135,15 +150,31 @@ def bootstrap_capacity(
         Names of the strata and of the columns of ``plot_biomass_kg_per_ha``.
     solve_rows : callable
         Solves a problem (all replicates are stacked into one).
+    calibrated : sequence of ResampledForage, optional
+        The calibrated groups of the grid path (``GridResult.calibrated_sums``): their
+        entries take the forage of each replicate's refitted model.
 
     Notes
     -----
     The available forage of an item grown on stratum s and sampled by plots is
     proportional to the stratum's plot mean (hectares × mean, or on the grid the
     sum over cells of the mean × each cell's availability), so a replicate's
-    forage is the estimate's × (replicate mean ÷ sample mean). Items not sampled
-    by plots (raster classes) keep their forage. On the grid, the minimum-density
-    rule makes this proportionality approximate (stated in docs/methods.md).
+    forage is the estimate's × (replicate mean ÷ sample mean). Items of calibrated
+    groups take the forage of the group's model refitted to its resampled
+    calibration plots (pairs bootstrap); direct raster classes keep their forage.
+
+    One generator, ``numpy.random.default_rng(seed)``, draws in this order: the
+    strata plots, stratum by stratum (:func:`resample_stratum_means`), then each
+    calibrated group's plots in the order of ``calibrated``
+    (:func:`nutricap.landscape.calibration.pairs_bootstrap`). Without calibrated
+    groups only the strata plots are drawn.
+
+    On the grid both rescalings are approximations where the minimum-density rule
+    acts (it is evaluated at the point estimate); a refitted linear model is exact
+    otherwise except in cells the point estimate or the refit predicts below zero,
+    a refitted log-linear model is evaluated on index bins (error bound in
+    :func:`nutricap.landscape.calibration.binned_loglinear_forage`; see
+    docs/methods.md).
     """
     strata, classes = labels
     rng = np.random.default_rng(seed)
@@ -157,6 +188,8 @@ def bootstrap_capacity(
     sampled = (s >= 0) & (c >= 0) & (problem.items.variant == "")
     item_ratio = np.where(sampled, ratio[:, np.maximum(s, 0), np.maximum(c, 0)], 1.0)
     available = problem.available_kg[None, :, :] * item_ratio[:, None, :]
+    for group in calibrated:
+        available[:, group.rows, group.items] = group.resampled_forage_kg(replicates, rng)
     rows = problem.row_unit.size
     stacked = replace(
         problem,

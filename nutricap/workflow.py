@@ -137,7 +137,7 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     say("solving capacity per unit")
     solution = solve(problem, herd, target, project)
     by_unit = unit_table(problem, solution, areas, herd, days)
-    uncertainty = assess_uncertainty(project, inputs, supply, problem, herd, target, say)
+    uncertainty = assess_uncertainty(project, inputs, supply, problem, herd, target, say, grid)
     if uncertainty.bootstrap is not None:
         by_unit = add_intervals(by_unit, uncertainty.bootstrap, days)
     by_unit, use_by_class = assess_current_use(
@@ -229,12 +229,16 @@ def assess_uncertainty(
     herd: energetics.HerdRequirement,
     target: DietTarget,
     say: Progress,
+    grid: GridResult | None = None,
 ) -> Uncertainty:
-    """Stratified bootstrap over plots and the one-at-a-time sensitivity of total NCC."""
+    """Stratified bootstrap over plots (and over the calibration plots of the grid's
+    calibrated groups) and the one-at-a-time sensitivity of total NCC."""
     settings = project.config.uncertainty
     bootstrap = None
     if settings.bootstrap_replicates > 0:
-        say(f"bootstrap over plots: {settings.bootstrap_replicates} replicates")
+        calibrated = grid.calibrated_sums if grid is not None else []
+        models = " and calibration models" if calibrated else ""
+        say(f"bootstrap over plots{models}: {settings.bootstrap_replicates} replicates")
         classes = plot_sampled_classes(project, supply.classes)
         wide = plot_biomass_matrix(inputs.plots, classes)
         plot_stratum = pd.Index(supply.strata).get_indexer(wide["stratum"])
@@ -248,6 +252,7 @@ def assess_uncertainty(
             replicates=settings.bootstrap_replicates,
             level=settings.interval_level,
             seed=settings.seed,
+            calibrated=calibrated,
         )
     sensitivity = None
     if settings.sensitivity_change > 0:

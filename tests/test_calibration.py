@@ -2,7 +2,9 @@
 
 Fits are checked against scipy.stats.linregress, log-likelihoods against scipy.stats.norm and
 scipy.stats.lognorm, coordinates against pyproj, and the smearing factor against its
-definition (Duan 1983). Plot data are invented for the example.
+definition (Duan 1983). The pairs bootstrap's spread is checked against the ordinary
+least-squares standard errors (Draper & Smith, Applied Regression Analysis, ch. 1, from
+memory) as computed by scipy.stats.linregress. Plot data are invented for the example.
 """
 
 from __future__ import annotations
@@ -17,11 +19,15 @@ from scipy import stats
 
 from nutricap.errors import SpatialError, TableError
 from nutricap.landscape.calibration import (
+    ModelFits,
+    binned_loglinear_forage,
     class_shares,
     fit_groups,
     fit_linear,
     fit_loglinear,
+    linear_forage,
     margin_bounds,
+    pairs_bootstrap,
     read_calibration_plots,
     sample_index,
     select_model,
@@ -102,6 +108,66 @@ def test_margin_bounds():
     low, high = margin_bounds(model, 0.1)
     # Range 0.12-0.75 widened by 10 % of 0.63 on each side (arithmetic).
     assert (low, high) == pytest.approx((0.12 - 0.063, 0.75 + 0.063))
+
+
+def test_pairs_bootstrap_spread_matches_the_ols_standard_errors():
+    rng = np.random.default_rng(21)
+    x = rng.uniform(0.1, 0.9, 60)
+    y = 100.0 + 400.0 * x + rng.normal(0.0, 40.0, 60)  # homoscedastic (invented)
+    fits = pairs_bootstrap(fit_linear("g", x, y), 200, np.random.default_rng(4))
+    reference = stats.linregress(x, y)  # OLS standard errors (Draper & Smith, from memory)
+    # 200 replicates: the spread's own Monte Carlo error is about 1/√400 = 5 %; allow 20 %.
+    assert fits.slope.std(ddof=1) == pytest.approx(reference.stderr, rel=0.2)
+    assert fits.intercept.std(ddof=1) == pytest.approx(reference.intercept_stderr, rel=0.2)
+    assert (fits.smearing == 1.0).all()
+
+
+def test_pairs_bootstrap_refits_the_documented_draws():
+    model = fit_loglinear("g", INDEX, BIOMASS)
+    fits = pairs_bootstrap(model, 5, np.random.default_rng(8))
+    draws = np.random.default_rng(8).integers(0, INDEX.size, size=(5, INDEX.size))
+    for number, drawn in enumerate(draws):
+        x, log_y = INDEX[drawn], np.log(BIOMASS[drawn])
+        reference = stats.linregress(x, log_y)  # independent least squares
+        assert fits.slope[number] == pytest.approx(reference.slope, rel=1e-10)
+        assert fits.intercept[number] == pytest.approx(reference.intercept, rel=1e-10)
+        residuals = log_y - (reference.intercept + reference.slope * x)
+        # Duan (1983): each refit's smearing factor is the mean of its exp(residuals).
+        assert fits.smearing[number] == pytest.approx(np.mean(np.exp(residuals)), rel=1e-10)
+
+
+def test_pairs_bootstrap_redraws_replicates_without_a_slope():
+    # Three plots, two at one index value: a third of the draws have a single index value.
+    model = fit_linear("g", [0.2, 0.2, 0.6], [100.0, 120.0, 300.0])
+    fits = pairs_bootstrap(model, 200, np.random.default_rng(1))
+    assert np.isfinite(fits.slope).all() and np.isfinite(fits.intercept).all()
+    # With two index values least squares passes through the mean biomass at each, so every
+    # draw with both gives slope (300 − mean at 0.2)/0.4, between 450 and 500 (arithmetic).
+    assert ((fits.slope >= 450.0 - 1e-9) & (fits.slope <= 500.0 + 1e-9)).all()
+
+
+def test_linear_forage_of_sums():
+    # Two cells with share·availability 0.5 and 1 at index 0.3 and 0.7 (invented):
+    # S0 = 0.5 + 1, S1 = 0.5·0.3 + 1·0.7; a refit a* = 10, b* = 100 leaves
+    # 0.5·(10 + 30) + 1·(10 + 70) = 100 (arithmetic).
+    fits = ModelFits(np.array([10.0, -200.0]), np.array([100.0, 100.0]), np.ones(2))
+    forage = linear_forage(fits, np.array([1.5]), np.array([0.85]))
+    assert forage[:, 0] == pytest.approx([100.0, 0.0])  # the second is floored at 0
+
+
+def test_binned_loglinear_forage_is_exact_at_the_point_fit_and_scales_with_a_and_s():
+    model = fit_loglinear("g", INDEX, BIOMASS)
+    weight = np.array([[30.0, 0.0, 12.0]])
+    mean_index = np.array([[0.2, 0.0, 0.6]])
+    point = binned_loglinear_forage(model, ModelFits.of(model), weight, mean_index)
+    assert point[0, 0] == pytest.approx(42.0)
+    shifted = ModelFits(
+        np.array([model.intercept + np.log(2.0)]), np.array([model.slope]),
+        np.array([model.smearing * 1.5]),
+    )  # fmt: skip
+    # e^(a*−a) = 2 and s*/s = 1.5 scale every cell by 3 (the model's definition).
+    forage = binned_loglinear_forage(model, shifted, weight, mean_index)
+    assert forage[0, 0] == pytest.approx(126.0)
 
 
 def _plots_csv(tmp_path, text):

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import json
 import re
+from dataclasses import replace
 from pathlib import Path
 
 import geopandas as gpd
@@ -22,6 +23,8 @@ from shapely.geometry import Polygon, box
 
 from nutricap.cli import main
 from nutricap.errors import InputError, SpatialError
+from nutricap.landscape import calibration
+from nutricap.landscape.calibration import INDEX_BINS, ModelFits, margin_bounds
 from nutricap.project import load_project
 from nutricap.workflow import estimate, run_estimate
 
@@ -103,8 +106,13 @@ def _strata(cover_all: bool) -> gpd.GeoDataFrame:
     return gpd.GeoDataFrame({"stratum": ["upland", "lowland"]}, geometry=[north, south], crs=CRS)
 
 
-def write_landscape(folder: Path, *, cover_all: bool = True, nodata_patch: bool = True) -> dict:
-    """Write the small invented raster landscape; return paths and arrays."""
+def write_landscape(
+    folder: Path, *, cover_all: bool = True, nodata_patch: bool = True, noise: float = 15.0
+) -> dict:
+    """Write the small invented raster landscape; return paths and arrays.
+
+    The calibration plots lie ± ``noise`` [kg/ha] off the line 50 + 400 · index.
+    """
     folder.mkdir(parents=True, exist_ok=True)
     sage, shrub, index, snow = _fields()
     if nodata_patch:
@@ -123,7 +131,8 @@ def write_landscape(folder: Path, *, cover_all: bool = True, nodata_patch: bool 
     plot_rows = 10 + rows * 15
     x = WEST + (20 + rows * 20) * CELL_M + CELL_M / 2
     y = NORTH - plot_rows * CELL_M - CELL_M / 2
-    forb = 50 + 400 * index[plot_rows, 20 + rows * 20] + np.where(rows % 2, 15.0, -15.0)
+    forb = 50 + 400 * index[plot_rows, 20 + rows * 20].astype(float)
+    forb += np.where(rows % 2, noise, -noise)
     pd.DataFrame(
         {"plot_id": [f"C{i}" for i in rows], "x": x, "y": y, "forage_class": "forb",
          "biomass_kg_per_ha": forb}
@@ -224,7 +233,11 @@ def _whole_array_available(folder: Path, result) -> np.ndarray:
         model.index_min - 0.1 * (model.index_max - model.index_min),
         model.index_max + 0.1 * (model.index_max - model.index_min),
     )
-    forb = np.maximum(model.intercept + model.slope * np.clip(index, low, high), 0.0)
+    fitted = model.intercept + model.slope * np.clip(index, low, high)
+    if model.model == "linear":
+        forb = np.maximum(fitted, 0.0)
+    else:  # Duan (1983) back-transformation
+        forb = np.exp(fitted) * model.smearing_factor
     # Plot means (PLOTS above, zeros for classes a plot did not record): upland grass
     # (120 + 80 + 0) / 3, lowland grass (300 + 260) / 2.
     grass = np.where(stratum == names.index("upland"), 200.0 / 3.0, 280.0)
@@ -524,3 +537,122 @@ def test_bootstrap_on_the_grid_agrees_with_the_vector_path(tmp_path):
         grid.by_unit[columns].to_numpy(), expected, rtol=0.02, atol=0.01 * expected.max()
     )
     assert (grid.by_unit["ncc_animals_lo"] < grid.by_unit["ncc_animals_hi"]).all()
+
+
+# --- the calibration model's error in the bootstrap -----------------------------------------
+
+FORB = 0  # column of forb among the sorted classes
+
+
+def _forb_by_unit_stratum(result, forage_kg: np.ndarray) -> np.ndarray:
+    """(units, strata) sums [kg] of the calibrated entries' forage (one group: forbs)."""
+    (group,) = result.grid.calibrated_sums
+    n_classes = len(result.grid.classes)
+    assert (group.items % n_classes == FORB).all()
+    out = np.zeros((4, 2))
+    np.add.at(out, (result.problem.row_unit[group.rows], group.items // n_classes), forage_kg)
+    return out
+
+
+def _point_forage(result) -> np.ndarray:
+    (group,) = result.grid.calibrated_sums
+    return _forb_by_unit_stratum(result, group.forage_kg(ModelFits.of(group.model))[0])
+
+
+def _force_fit(monkeypatch, change) -> None:
+    """Make every fit return the least-squares model changed by ``change``."""
+    fitted = calibration.select_model
+
+    def forced(*args):
+        model, _ = fitted(*args)
+        return change(model), "forced by the test"
+
+    monkeypatch.setattr(calibration, "select_model", forced)
+
+
+@pytest.mark.parametrize("pooling", ["unit", "patch"])
+@pytest.mark.parametrize("kind", ["linear", "loglinear"])
+def test_calibrated_sums_at_the_point_fit_give_the_point_forage(landscape, kind, pooling):
+    result = _grid_run(landscape, RASTERS.replace('"linear"', f'"{kind}"'), SNOW, pooling)
+    # Against the whole-array numpy pass (shapely membership, float64): the forb column.
+    expected = _whole_array_available(landscape, result)[:, :, FORB]
+    np.testing.assert_allclose(_point_forage(result), expected, rtol=1e-5, atol=1e-3)
+    assert expected.sum() > 1e5
+
+
+def test_linear_sums_equal_a_second_pass_with_the_refitted_line(landscape, monkeypatch):
+    point = _grid_run(landscape, RASTERS, SNOW)
+    (group,) = point.grid.calibrated_sums
+    fits = ModelFits(np.array([80.0]), np.array([300.0]), np.array([1.0]))
+    rebuilt = _forb_by_unit_stratum(point, group.forage_kg(fits)[0])
+    _force_fit(monkeypatch, lambda model: replace(model, intercept=80.0, slope=300.0))
+    rerun = _grid_run(landscape, RASTERS, SNOW).problem.available_kg.reshape(4, 2, 4)
+    # 80 + 300·x > 0 on the whole index range, and no minimum-density rule: the sums S0, S1
+    # give the second pass's forage up to float32 rounding.
+    np.testing.assert_allclose(rebuilt, rerun[:, :, FORB], rtol=1e-5, atol=1e-3)
+    assert np.abs(rebuilt - _point_forage(point)).max() > 0.02 * rebuilt.max()
+
+
+def test_loglinear_bins_stay_within_the_hoeffding_bound(landscape, monkeypatch):
+    rasters = RASTERS.replace('"linear"', '"loglinear"')
+    point = _grid_run(landscape, rasters, SNOW)
+    (group,) = point.grid.calibrated_sums
+    model = group.model
+    da, db, ds = -0.2, 3.0, 1.1  # a refit far from the point estimate (invented)
+    changed = replace(
+        model, intercept=model.intercept + da, slope=model.slope + db, smearing=model.smearing * ds
+    )
+    binned = _forb_by_unit_stratum(point, group.forage_kg(ModelFits.of(changed))[0])
+    _force_fit(monkeypatch, lambda fitted: changed)  # the same plots, so the same model but a, b, s
+    exact = _grid_run(landscape, rasters, SNOW).problem.available_kg.reshape(4, 2, 4)[:, :, FORB]
+    low, high = margin_bounds(model, 0.1)
+    # Jensen: binned ≤ exact; Hoeffding's lemma (Hoeffding 1963): exact ≤ binned·e^(Δb²h²/8).
+    bound = np.exp((db * (high - low) / INDEX_BINS) ** 2 / 8)
+    ratio = exact[exact > 0] / binned[exact > 0]
+    assert ratio.size >= 2
+    assert (ratio >= 1 - 1e-5).all() and (ratio <= bound * (1 + 1e-5)).all()
+    assert ratio.max() > 1 + 1e-4  # the binning error is there to be bounded
+
+
+UNCERTAINTY = "[uncertainty]\nbootstrap_replicates = 200\nseed = 5\nsensitivity_change = 0\n"
+IDENTICAL_PLOTS = """plot_id,stratum,forage_class,biomass_kg_per_ha
+A1,upland,grass,100
+A2,upland,grass,100
+B1,lowland,grass,280
+B2,lowland,grass,280
+"""
+FIGURES = ("ncc", "ecc", "allowable_use")
+
+
+def _bootstrap_run(folder: Path, noise: float, plots: str | None = None):
+    write_landscape(folder, noise=noise)
+    if plots is not None:
+        (folder / "plots.csv").write_text(plots)
+    return _grid_run(folder, RASTERS, SNOW + "\n" + UNCERTAINTY)
+
+
+def test_noisier_calibration_plots_widen_the_intervals(tmp_path):
+    quiet, noisy = (_bootstrap_run(tmp_path / str(noise), noise) for noise in (15.0, 60.0))
+    with_forb = quiet.problem.available_kg.reshape(4, 2, 4)[:, :, FORB].sum(axis=1) > 0
+    assert 0 < with_forb.sum() < 4
+    for figure in FIGURES:
+        width = [
+            (run.by_unit[f"{figure}_animals_hi"] - run.by_unit[f"{figure}_animals_lo"]).to_numpy()
+            for run in (quiet, noisy)
+        ]
+        # Same seed, same draws: the refits stray four times as far from the line.
+        assert (width[1][with_forb] > 1.2 * width[0][with_forb]).all()
+        np.testing.assert_allclose(width[1][~with_forb], width[0][~with_forb], rtol=1e-9)
+
+
+@pytest.mark.filterwarnings("ignore:divide by zero encountered in log")  # AIC of a perfect fit
+def test_exact_line_and_identical_plots_collapse_the_intervals(tmp_path):
+    table = _bootstrap_run(tmp_path, 0.0, IDENTICAL_PLOTS).by_unit
+    for figure in FIGURES:
+        point = table[f"{figure}_animals"].to_numpy()
+        lo, hi = (table[f"{figure}_animals_{end}"].to_numpy() for end in ("lo", "hi"))
+        # Every refit is the same line and every replicate the same plots: lo = hi = point,
+        # up to float32 rounding of the per-cell sums.
+        np.testing.assert_allclose(hi - lo, 0.0, atol=1e-9 * point.max())
+        np.testing.assert_allclose(lo, point, rtol=1e-5)
+    assert table["ncc_animals"].max() > 100

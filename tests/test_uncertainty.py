@@ -130,6 +130,40 @@ def test_replicates_equal_hectares_times_resampled_means():
         )
 
 
+class _DrawnForage:
+    """A stand-in calibrated group: forage of its entries drawn from the generator handed."""
+
+    def __init__(self, rows, items):
+        self.rows, self.items = np.asarray(rows), np.asarray(items)
+
+    def resampled_forage_kg(self, replicates, rng):
+        return rng.uniform(0.0, 5000.0, size=(replicates, self.rows.size))
+
+
+def test_calibrated_entries_take_their_forage_after_the_strata_draws():
+    rng = np.random.default_rng(4)
+    values, stratum = _plots(rng, 6)
+    hectares = np.array([[100.0, 50.0], [30.0, 200.0]])
+    # Browse (items 0 and 2) as if calibrated; grass (items 1 and 3) sampled by the plots.
+    group = _DrawnForage(rows=[0, 0, 1, 1], items=[0, 2, 0, 2])
+    result = bootstrap_capacity(
+        _problem(hectares, values, stratum), values[:, 1:], stratum, (STRATA, ["grass"]),
+        _solve, replicates=20, level=0.9, seed=6, calibrated=[group],
+    )  # fmt: skip
+    # Independent route, the documented order of draws: strata plots, then the groups.
+    rng = np.random.default_rng(6)
+    means = resample_stratum_means(values[:, 1:], stratum, 2, 20, rng)[:, :, 0]
+    forage = rng.uniform(0.0, 5000.0, size=(20, 4))
+    for b in range(20):
+        available = np.zeros((2, 4))
+        available[:, [1, 3]] = hectares * means[b][None, :]
+        available[group.rows, group.items] = forage[b]
+        direct = replace(_problem(hectares, values, stratum), available_kg=available)
+        np.testing.assert_allclose(
+            result.replicate_animal_days["ncc"][b], _solve(direct).ncc.animal_days, rtol=1e-9
+        )
+
+
 def test_interval_shrinks_as_one_over_root_n_when_plots_are_duplicated():
     rng = np.random.default_rng(5)
     values, stratum = _plots(rng, 12)

@@ -43,7 +43,16 @@ from tqdm import tqdm
 
 from nutricap.errors import ProjectFileError, SpatialError
 from nutricap.landscape import availability as rules_mod
-from nutricap.landscape.calibration import BiomassModel, fit_groups, margin_bounds
+from nutricap.landscape.calibration import (
+    INDEX_BINS,
+    BiomassModel,
+    ModelFits,
+    binned_loglinear_forage,
+    fit_groups,
+    linear_forage,
+    margin_bounds,
+    pairs_bootstrap,
+)
 from nutricap.landscape.plots import StratumSupply, stratum_supply
 from nutricap.landscape.rasters import (
     Grid,
@@ -93,6 +102,15 @@ class CalibratedGroup:
     low: float  # index range used as fitted (plots' range ± margin)
     high: float
     clamp: bool  # clamp the index beyond [low, high] (else extrapolate)
+
+    @property
+    def class_terms(self) -> int:
+        """Rows of re-prediction sums per class (see :func:`_reprediction_terms`)."""
+        return 2 if self.model.kind == "linear" else 2 * INDEX_BINS
+
+    @property
+    def terms(self) -> int:
+        return self.class_index.size * self.class_terms
 
 
 @dataclass(frozen=True)
@@ -250,6 +268,48 @@ def _write_at(fd: int, array: np.ndarray, offset: int) -> None:
         data, offset = data[written:], offset + written
 
 
+@dataclass(frozen=True)
+class CalibratedSums:
+    """A calibrated group's forage left, by problem row and item, as sums from which a refitted
+    model's forage follows without another pass over the rasters (the model bootstrap).
+
+    Attributes
+    ----------
+    model : BiomassModel
+        The point estimate, with its calibration plots.
+    rows, items : int arrays (entries,)
+        Row and item of the capacity problem of each entry (one key × one class of the group).
+    terms : array (entries, 2) or (entries, INDEX_BINS)
+        Linear model: S0 [ha] and S1 [ha · index units] of
+        :func:`~nutricap.landscape.calibration.linear_forage`. Log-linear model: the forage
+        left in the cells of each index bin [kg].
+    mean_index : array (entries, INDEX_BINS) or None
+        Log-linear model: the forage-weighted mean index of each bin.
+    """
+
+    model: BiomassModel
+    rows: np.ndarray
+    items: np.ndarray
+    terms: np.ndarray
+    mean_index: np.ndarray | None = None
+
+    def forage_kg(self, fits: ModelFits) -> np.ndarray:
+        """Forage left of each entry under each set of parameters [kg], (replicates, entries).
+
+        Exact for a linear model whose line stays ≥ 0 on the cells and without the
+        minimum-density rule; the log-linear bins fall short by less than the bound of
+        :func:`~nutricap.landscape.calibration.binned_loglinear_forage`.
+        """
+        if self.mean_index is None:
+            return linear_forage(fits, self.terms[:, 0], self.terms[:, 1])
+        return binned_loglinear_forage(self.model, fits, self.terms, self.mean_index)
+
+    def resampled_forage_kg(self, replicates: int, rng: np.random.Generator) -> np.ndarray:
+        """:meth:`forage_kg` of ``replicates`` pairs-bootstrap refits of the model (the draws
+        from ``rng`` are those of :func:`~nutricap.landscape.calibration.pairs_bootstrap`)."""
+        return self.forage_kg(pairs_bootstrap(self.model, replicates, rng))
+
+
 @dataclass
 class GridResult:
     """The grid path's result: the capacity problem and what the rules and models did.
@@ -271,6 +331,8 @@ class GridResult:
     grid : Grid
     resampled : dict
         Layer key → resampling method (None when the layer was on the grid).
+    calibrated_sums : list of CalibratedSums
+        One per calibrated group, for the model bootstrap (empty without calibrated groups).
     """
 
     problem: CapacityProblem
@@ -288,6 +350,7 @@ class GridResult:
     classes: list[str] = field(default_factory=list)
     compression: str = "zstd"
     show_progress: bool = False
+    calibrated_sums: list[CalibratedSums] = field(default_factory=list, repr=False)
 
     def describe(self) -> dict:
         """Grid, resampling and rules in plain values, for the run manifest."""
@@ -398,14 +461,16 @@ def strata_supply(plots, strata, strata_classes, all_classes, project) -> Stratu
 @dataclass(frozen=True)
 class Layout:
     """Rows of the per-cell array summed by key: what the rules left and removed, the standing
-    forage before the rules, and the cells without data.
+    forage before the rules, the cells without data and, only when there are calibrated
+    groups, the terms from which a refitted model's forage follows.
 
     ``available`` (classes) | ``access`` | (removed, affected) per rule after ``nodata`` |
-    ``gross`` (classes) | ``nodata``.
+    ``gross`` (classes) | ``nodata`` | ``calibration`` (``n_calibration`` rows).
     """
 
     n_classes: int
     n_rules: int
+    n_calibration: int = 0
 
     @property
     def rules_end(self) -> int:
@@ -413,7 +478,7 @@ class Layout:
 
     @property
     def rows(self) -> int:
-        return self.rules_end + self.n_classes + 1
+        return self.nodata + 1 + self.n_calibration
 
     @property
     def available(self) -> slice:
@@ -435,11 +500,16 @@ class Layout:
 
     @property
     def nodata(self) -> int:
-        return self.rows - 1
+        return self.rules_end + self.n_classes
+
+    @property
+    def calibration(self) -> slice:
+        return slice(self.nodata + 1, self.rows)
 
 
 def layout_of(setup: GridSetup) -> Layout:
-    return Layout(setup.n_classes, len(setup.rules.active()) - 1)
+    terms = sum(group.terms for group in setup.calibrated)
+    return Layout(setup.n_classes, len(setup.rules.active()) - 1, terms)
 
 
 def window_sums(setup: GridSetup, data: WindowData, keep: KeepCells | None = None) -> WindowSums:
@@ -475,7 +545,9 @@ def chunk_sums(setup: GridSetup, data: WindowData) -> tuple[WindowSums, np.ndarr
     lacking = stacked[layout.nodata]
     np.greater(mapped, valid, out=lacking)  # mapped without data in some layer
     gross = stacked[layout.gross]
-    calibration_cells = _gross_biomass(setup, data, polygons, valid, lacking > 0, gross)
+    calibration_cells, predictions = _gross_biomass(
+        setup, data, polygons, valid, lacking > 0, gross
+    )
     outcome = rules_mod.apply_rules(
         gross,
         setup.rules,
@@ -489,6 +561,9 @@ def chunk_sums(setup: GridSetup, data: WindowData) -> tuple[WindowSums, np.ndarr
         distance_to_water_m=_layer(data, setup.water_key),
         out=stacked[: layout.rules_end],
     )
+    if setup.calibrated:
+        available = outcome.available_kg_per_ha
+        _reprediction_terms(setup.calibrated, predictions, available, stacked[layout.calibration])
     run_keys, run_cells, run_sums = _run_sums(key, stacked, data.units.shape)
     cell_keys = np.where(valid, key, setup.dump_key).astype(np.int32)
     sums = WindowSums(run_keys, run_cells, run_sums, calibration_cells)
@@ -523,25 +598,28 @@ def _gross_biomass(setup: GridSetup, data: WindowData, polygons, valid, lacking,
     in some layer (``lacking``) get 0; cells outside the units or strata keep their values,
     since their keys are left out of every total and of the density map. Returns the
     calibration counts (beyond range, beyond margin, predicted below zero) per calibrated
-    group.
+    group, and each group's prediction [kg/ha] and index as used (clamped or not).
     """
     for column in setup.strata_columns:
         np.take(setup.polygon_biomass[:, column], polygons, out=gross[column])
     for column, key in setup.direct.items():
         np.copyto(gross[column], data.layers[key][0].ravel())
     counts = np.zeros((len(setup.calibrated), 3), dtype=np.int64)
+    predictions = []
     if setup.calibrated:
         index = data.layers[setup.index_key][0].ravel()
         for number, group in enumerate(setup.calibrated):
-            predicted, counts[number] = _predict_group(group, index, valid)
+            predicted, used, counts[number] = _predict_group(group, index, valid)
             gross[group.class_index] = group.shares[:, None] * predicted[None, :]
+            predictions.append((predicted, used))
     if lacking.any():
         gross[:, lacking] = np.float32(0.0)
-    return counts
+    return counts, predictions
 
 
 def _predict_group(group: CalibratedGroup, index: np.ndarray, valid: np.ndarray):
-    """Group biomass [kg/ha] from the index, and cells beyond range / beyond margin / negative."""
+    """Group biomass [kg/ha] from the index, the index as used, and cells beyond range /
+    beyond margin / negative."""
     model = group.model
     beyond_range = valid & ((index < model.index_min) | (index > model.index_max))
     beyond_margin = valid & ((index < group.low) | (index > group.high))
@@ -550,7 +628,56 @@ def _predict_group(group: CalibratedGroup, index: np.ndarray, valid: np.ndarray)
     negative = valid & (fitted < 0) if model.kind == "linear" else np.zeros(1, bool)
     counts = [np.count_nonzero(beyond_range), np.count_nonzero(beyond_margin)]
     counts.append(np.count_nonzero(negative))
-    return model.predict_kg_per_ha(used), counts
+    return model.predict_kg_per_ha(used), used, counts
+
+
+def _reprediction_terms(groups: list[CalibratedGroup], predictions, available, out) -> None:
+    """Per-cell terms of the calibrated classes into the rows of ``out``, group by group,
+    class by class (``group.class_terms`` rows each); x is the index as used.
+
+    Linear model: ``available / predicted`` and ``available · x / predicted`` where the
+    prediction is above 0, else 0; summed, the S0 and S1 of
+    :func:`~nutricap.landscape.calibration.linear_forage`. Log-linear model: ``available``
+    in the row of the cell's index bin, then ``available · x`` likewise; summed, each bin's
+    forage and (÷ that forage) its weighted mean index for
+    :func:`~nutricap.landscape.calibration.binned_loglinear_forage`.
+    """
+    row = 0
+    for group, (predicted, used) in zip(groups, predictions):
+        linear = group.model.kind == "linear"
+        positive = predicted > 0 if linear else None
+        positions = None if linear else _bin_positions(group, used)
+        for column in group.class_index:
+            block = out[row : row + group.class_terms]
+            row += group.class_terms
+            if linear:
+                _linear_terms(available[column], predicted, used, positive, block)
+            else:
+                _binned_terms(available[column], used, positions, block)
+
+
+def _linear_terms(available, predicted, used, positive, out) -> None:
+    """available / predicted (where positive) and × used, into the two rows of ``out``."""
+    out[0].fill(np.float32(0.0))
+    np.divide(available, predicted, out=out[0], where=positive)
+    np.multiply(out[0], used, out=out[1])
+
+
+def _binned_terms(available, used, positions, out) -> None:
+    """available, then available × used, into the row of each cell's bin (others 0); ``out``
+    is C-contiguous (whole rows), ``positions`` from :func:`_bin_positions`."""
+    out.fill(np.float32(0.0))
+    flat = out.reshape(-1)
+    flat[positions] = available
+    flat[positions + INDEX_BINS * used.size] = available * used
+
+
+def _bin_positions(group: CalibratedGroup, used: np.ndarray) -> np.ndarray:
+    """Flat position of each cell in an (INDEX_BINS, cells) block: bin × cells + cell, with
+    INDEX_BINS equal bins of [low, high] (cells beyond fall in the end bins)."""
+    width = np.float32((group.high - group.low) / INDEX_BINS)
+    bins = np.clip(np.floor((used - np.float32(group.low)) / width), 0, INDEX_BINS - 1)
+    return bins.astype(np.intp) * used.size + np.arange(used.size)
 
 
 def _run_sums(key: np.ndarray, stacked: np.ndarray, shape: tuple[int, int]):
@@ -846,10 +973,11 @@ def _assemble(
     )
     notes = _notes(units_table, cells, without_data, cell_ha, resampled, calibration)
     stratum_of_key = np.append(np.tile(np.arange(n_strata + 1), n_units + 1), n_strata)
+    calibrated = _calibrated_sums(setup, totals.sums, cell_ha, row_of_key, stratum_of_key)
     compression = project.config.rasters.density_compression if project.config.rasters else "zstd"
     return GridResult(
         problem, areas, supply, report, calibration, notes, grid, resampled, windows, cache,
-        row_of_key, stratum_of_key, setup.classes, compression, show,
+        row_of_key, stratum_of_key, setup.classes, compression, show, calibrated,
     )  # fmt: skip
 
 
@@ -954,6 +1082,34 @@ def _problem(units_table, available_kg, mapped_ha, items, mode):
     problem = CapacityProblem(unit_ids, row_unit, items, available)
     outside = np.full(n_strata + 2, -1)  # keys outside every unit, and the no-data key
     return problem, np.append(row_of_key.ravel(), outside)
+
+
+def _calibrated_sums(setup: GridSetup, sums_by_key, cell_ha, row_of_key, stratum_of_key):
+    """One :class:`CalibratedSums` per calibrated group from the sums by key [per-cell values ×
+    cells] and the cell area [ha].
+
+    Keys map to the problem's (row, item) as in :func:`density_coefficients`: the key's row,
+    and item ``stratum × classes + class``; keys without a row are left out.
+    """
+    keys = np.flatnonzero(row_of_key[: sums_by_key.shape[0]] >= 0)
+    terms = sums_by_key[keys, layout_of(setup).calibration] * cell_ha
+    result, start = [], 0
+    for group in setup.calibrated:
+        block = terms[:, start : start + group.terms]
+        start += group.terms
+        items = stratum_of_key[keys][:, None] * setup.n_classes + group.class_index[None, :]
+        rows = np.broadcast_to(row_of_key[keys][:, None], items.shape)
+        per_entry = block.reshape(items.size, group.class_terms)  # keys × classes, row-major
+        result.append(_group_sums(group.model, rows.ravel(), items.ravel(), per_entry))
+    return result
+
+
+def _group_sums(model: BiomassModel, rows, items, terms) -> CalibratedSums:
+    if model.kind == "linear":
+        return CalibratedSums(model, rows, items, terms)
+    forage, weighted = terms[:, :INDEX_BINS], terms[:, INDEX_BINS:]
+    mean_index = np.divide(weighted, forage, out=np.zeros_like(forage), where=forage > 0)
+    return CalibratedSums(model, rows, items, forage, mean_index)
 
 
 def _areas(units_table, strata_names, mapped_ha, accessible_ha, crs_reason) -> StratumAreas:
