@@ -250,14 +250,23 @@ class CellCache:
             for window in windows:
                 n = int(window.height) * int(window.width)
                 record = memoryview(buffer)[: 4 * n * (1 + n_classes)]
-                if stream.readinto(record) != len(record):
-                    raise OSError(f"temporary cell file {self.path} is shorter than expected")
+                _read_into(stream, record, self.path)
                 keys = np.frombuffer(record, dtype=np.int32, count=n)
                 kg = np.frombuffer(record, dtype=np.float32, offset=4 * n)
                 yield window, keys, kg.reshape(n_classes, n)
 
     def remove(self) -> None:
         self._finalizer()
+
+
+def _read_into(stream, record: memoryview, path: Path) -> None:
+    """Fill ``record`` from an unbuffered binary stream (a read may return fewer bytes)."""
+    filled = 0
+    while filled < len(record):
+        count = stream.readinto(record[filled:])
+        if not count:
+            raise OSError(f"temporary cell file {path} is shorter than expected")
+        filled += count
 
 
 def _write_at(fd: int, array: np.ndarray, offset: int) -> None:
