@@ -67,7 +67,7 @@ class InputsSection(_Section):
     plots: Path
     animal_classes: Path
     units: Path
-    strata: Path
+    strata: Path | None  # polygons; may be left out when [rasters.strata] gives a raster
     units_layer: str | None = None
     strata_layer: str | None = None
     counts: Path | None = None
@@ -151,6 +151,33 @@ class ProjectConfig(_Section):
     rasters: RasterSection | None = None
     availability: AvailabilitySection | None = None
 
+    @model_validator(mode="before")
+    @classmethod
+    def _strata_raster_stands_for_polygons(cls, data: typing.Any) -> typing.Any:
+        """With ``[rasters.strata]`` the key ``inputs.strata`` may be left out (it is None);
+        without it, a missing ``inputs.strata`` is reported like any missing key."""
+        if not isinstance(data, dict):
+            return data
+        rasters, inputs = data.get("rasters"), data.get("inputs")
+        if isinstance(rasters, dict) and "strata" in rasters and isinstance(inputs, dict):
+            if "strata" not in inputs:
+                return {**data, "inputs": {**inputs, "strata": None}}
+        return data
+
+    @model_validator(mode="after")
+    def _one_strata_map(self) -> ProjectConfig:
+        if self.strata_as_raster and self.inputs.strata is not None:
+            raise ValueError(
+                "the strata are given twice: as polygons ([inputs] strata) and as a raster "
+                "([rasters.strata]); keep one"
+            )
+        return self
+
+    @property
+    def strata_as_raster(self) -> bool:
+        """Whether the strata map is a categorical raster (``[rasters.strata]``)."""
+        return self.rasters is not None and self.rasters.strata is not None
+
 
 class Project:
     """A validated project: its configuration and its file's folder.
@@ -188,6 +215,13 @@ class Project:
         layers = raster_input_paths(self.config.rasters, self.config.availability)
         found.update({key: (self.folder / path).resolve() for key, path in layers.items()})
         return found
+
+    def strata_file(self) -> Path:
+        """The strata map: the polygons of ``[inputs] strata`` or the ``[rasters.strata]``
+        raster."""
+        if self.config.strata_as_raster:
+            return (self.folder / self.config.rasters.strata.raster).resolve()
+        return self.input_path("strata")
 
     def files(self) -> list[Path]:
         """The project file and every input file: what a run reads and its manifest lists."""

@@ -103,7 +103,7 @@ class Inputs:
     plots: pd.DataFrame
     animals: pd.DataFrame
     units: gpd.GeoDataFrame
-    strata: gpd.GeoDataFrame
+    strata: gpd.GeoDataFrame | None  # None when the strata are a raster ([rasters.strata])
     counts: pd.DataFrame | None = None
 
 
@@ -176,7 +176,9 @@ def read_inputs(project: Project, say: Progress) -> Inputs:
     animals = read_animal_classes(project.input_path("animal_classes"))
     say("reading layers")
     units = read_units(project.input_path("units"), config.inputs.units_layer)
-    strata = read_strata(project.input_path("strata"), config.inputs.strata_layer)
+    strata = None  # a strata raster is read window by window on the grid path
+    if not config.strata_as_raster:
+        strata = read_strata(project.input_path("strata"), config.inputs.strata_layer)
     counts_path = project.input_path("counts")
     counts = read_counts(counts_path) if counts_path is not None else None
     return Inputs(forage_classes, plots, animals, units, strata, counts)

@@ -64,6 +64,7 @@ from nutricap.landscape.rasters import (
     read_grid,
     streaming_env,
 )
+from nutricap.landscape.strata_raster import StrataCodes, polygons_from_codes, read_strata_codes
 from nutricap.landscape.vectors import (
     M2_PER_HA,
     StratumAreas,
@@ -79,6 +80,7 @@ Progress = Callable[[str], None]
 DENSITY_NODATA = -9999.0
 COMPRESSION_LEVEL = {"zstd": {"zstd_level": 1}, "deflate": {"zlevel": 1}}
 """Fast levels for capacity_density.tif: float noise compresses little better at high levels."""
+STRATA_RASTER_KEY = "rasters.strata.raster"
 GIL_TURN_S = 0.0002
 """Longest wait of a thread for the GIL while the density pass runs beside the report [s]."""
 WORKERS = 2  # threads that read and compute windows (the machines in view have 2 cores)
@@ -379,7 +381,9 @@ def layer_specs(project) -> list[LayerSpec]:
     paths = project.input_paths()
     keys = [key for key in paths if key.startswith(("rasters.", "availability."))]
     rasters = [
-        key for key in keys if not key.endswith((".plots", "_table")) and ".exclusions." not in key
+        key
+        for key in keys
+        if not key.endswith((".plots", "_table", ".codes")) and ".exclusions." not in key
     ]
     return [LayerSpec.for_key(key, paths[key]) for key in rasters]
 
@@ -439,9 +443,44 @@ def _table(layer, table, factor: str, folder: Path):
     return rules_mod.load_reduction_table(path, factor)
 
 
-def strata_supply(plots, strata, strata_classes, all_classes, project) -> StratumSupply:
+@dataclass(frozen=True)
+class StrataMap:
+    """The strata of the grid path: polygons burnt per window, or a raster of codes.
+
+    ``names`` holds the stratum of each polygon code 1, 2, … (strata polygons in their order,
+    or rows of the codes table).
+    """
+
+    names: list[str]
+    accessible_fraction: np.ndarray | None  # per polygon code 1, 2, …; None: all 1
+    path: Path  # the strata file named in messages
+    polygons: gpd.GeoDataFrame | None = None
+    codes: StrataCodes | None = None
+
+    @property
+    def strata(self) -> list[str]:
+        """The strata of the map, sorted."""
+        return sorted(set(self.names))
+
+
+def strata_map(project, strata: gpd.GeoDataFrame | None) -> StrataMap:
+    """The project's strata map: the polygons read, or the codes table of its strata raster."""
+    if strata is not None:
+        fraction = strata["accessible_fraction"].to_numpy(dtype=np.float32)
+        return StrataMap(
+            list(strata["stratum"]),
+            fraction if (fraction < 1).any() else None,
+            project.input_path("strata"),
+            polygons=strata,
+        )
+    paths = project.input_paths()
+    codes = read_strata_codes(paths["rasters.strata.codes"])
+    return StrataMap(codes.strata, None, paths[STRATA_RASTER_KEY], codes=codes)
+
+
+def strata_supply(plots, strata: StrataMap, strata_classes, all_classes, project) -> StratumSupply:
     """Plot statistics of the strata-based classes (every plot counts, with its zeros)."""
-    map_strata = sorted(strata["stratum"].unique())
+    map_strata = strata.strata
     if not strata_classes:
         n_plots = plots.groupby("stratum")["plot_id"].nunique().reindex(map_strata, fill_value=0)
         empty = np.zeros((len(map_strata), 0))
@@ -451,7 +490,7 @@ def strata_supply(plots, strata, strata_classes, all_classes, project) -> Stratu
         all_classes,
         map_strata,
         plots_path=project.input_path("plots"),
-        strata_path=project.input_path("strata"),
+        strata_path=strata.path if strata.codes is None else strata.codes.path,
         strata_without_forage=project.config.supply.strata_without_forage,
     )
     columns = [all_classes.index(name) for name in strata_classes]
@@ -706,10 +745,17 @@ def _run_sums(key: np.ndarray, stacked: np.ndarray, shape: tuple[int, int]):
 class WindowReader:
     """Reads a window's layers and burns its polygons (runs in background threads)."""
 
-    def __init__(self, stack: LayerStack, grid: Grid, burners: dict[str, ShapeBurner]) -> None:
+    def __init__(
+        self,
+        stack: LayerStack,
+        grid: Grid,
+        burners: dict[str, ShapeBurner],
+        strata_lookup: np.ndarray | None = None,
+    ) -> None:
         self.stack = stack
         self.grid = grid
         self.burners = burners
+        self.strata_lookup = strata_lookup  # code → polygon code, with a strata raster
         self._local = threading.local()
 
     def __call__(self, window: Window) -> WindowData:
@@ -724,11 +770,18 @@ class WindowReader:
             for name, burner in self.burners.items()
         }
         excluded = burnt.get("exclusions")
+        layers = self.stack.read(window, scratch)
+        if self.strata_lookup is None:
+            polygons = burnt["strata"]
+        else:
+            codes, with_data = layers[STRATA_RASTER_KEY]
+            polygons = scratch.take("strata codes", shape, np.int32)
+            polygons_from_codes(codes, with_data, self.strata_lookup, polygons)
         return WindowData(
             window=window,
-            layers=self.stack.read(window, scratch),
+            layers=layers,
             units=burnt["units"],
-            polygons=burnt["strata"],
+            polygons=polygons,
             excluded=None if excluded is None else excluded > 0,
             scratch=scratch,
         )
@@ -815,41 +868,42 @@ def _calibrated_groups(project, calibrated, classes):
     return groups, report
 
 
-def _strata_polygons(strata: gpd.GeoDataFrame, supply: StratumSupply, classes: list[str]):
-    """Per burnt polygon code (0 = none): stratum code, plot-mean biomass, accessible fraction."""
+def _strata_polygons(strata: StrataMap, supply: StratumSupply, classes: list[str]):
+    """Per polygon code (0 = none): stratum code, plot-mean biomass, accessible fraction."""
     names = supply.strata
-    stratum = np.concatenate(([len(names)], pd.Index(names).get_indexer(strata["stratum"])))
+    stratum = np.concatenate(([len(names)], pd.Index(names).get_indexer(strata.names)))
     biomass = np.zeros((len(names) + 1, len(classes)), dtype=np.float32)  # last row: none
     for column, name in enumerate(supply.classes):
         biomass[:-1, classes.index(name)] = np.nan_to_num(supply.mean_kg_per_ha[:, column])
     polygon_biomass = biomass[stratum]
-    fraction = strata["accessible_fraction"].to_numpy(dtype=np.float32)
-    access = np.concatenate(([1.0], fraction)).astype(np.float32) if (fraction < 1).any() else None
+    fraction = strata.accessible_fraction
+    access = None if fraction is None else np.concatenate(([1.0], fraction)).astype(np.float32)
     return stratum.astype(np.int64), polygon_biomass, access
 
 
-def _unit_areas(units, strata, project) -> tuple[gpd.GeoDataFrame, object, str]:
+def _unit_areas(units, strata: StrataMap, project) -> tuple[gpd.GeoDataFrame, object, str]:
     """Units with their polygon area [ha] in the area CRS (as in the vector path)."""
     area_crs, reason = choose_area_crs(units)
     in_area_crs = units.to_crs(area_crs)
     check_no_overlaps(in_area_crs, "unit_id", project.input_path("units"), "units")
-    check_no_overlaps(
-        strata.to_crs(area_crs), "stratum", project.input_path("strata"), "strata polygons"
-    )
+    if strata.polygons is not None:
+        check_no_overlaps(
+            strata.polygons.to_crs(area_crs), "stratum", strata.path, "strata polygons"
+        )
     table = in_area_crs[["unit_id", *_extra_unit_columns(in_area_crs), "geometry"]].copy()
     table["area_ha"] = table.geometry.area / M2_PER_HA
     return table, area_crs, reason
 
 
-def _burners(units, strata, project, grid: Grid) -> dict[str, ShapeBurner]:
+def _burners(units, strata: StrataMap, project, grid: Grid) -> dict[str, ShapeBurner]:
     burners = {
         "units": ShapeBurner(
             units.to_crs(grid.crs).geometry.to_numpy(), np.arange(1, len(units) + 1), "int32"
         ),
-        "strata": ShapeBurner(
-            strata.to_crs(grid.crs).geometry.to_numpy(), np.arange(1, len(strata) + 1), "int32"
-        ),
     }
+    if strata.polygons is not None:
+        geometries = strata.polygons.to_crs(grid.crs).geometry.to_numpy()
+        burners["strata"] = ShapeBurner(geometries, np.arange(1, len(geometries) + 1), "int32")
     section = project.config.availability
     if section is not None and section.exclusions:
         shapes = []
@@ -909,10 +963,11 @@ def grid_problem(
     classes, direct, calibrated, strata_classes = _class_sources(project, forage_classes)
     say("fitting index → biomass models" if calibrated else "summarising clip plots by stratum")
     groups, calibration_report = _calibrated_groups(project, calibrated, classes)
-    supply = strata_supply(plots, strata, strata_classes, classes, project)
-    polygon_stratum, polygon_biomass, access = _strata_polygons(strata, supply, classes)
+    strata_source = strata_map(project, strata)
+    supply = strata_supply(plots, strata_source, strata_classes, classes, project)
+    polygon_stratum, polygon_biomass, access = _strata_polygons(strata_source, supply, classes)
     rules = cell_rules(project, forage_classes, classes, access is not None)
-    units_table, area_crs, reason = _unit_areas(units, strata, project)
+    units_table, area_crs, reason = _unit_areas(units, strata_source, project)
     n_keys = (len(units) + 1) * (len(supply.strata) + 1)  # the last "unit": outside every unit
     unit_base = np.arange(-1, len(units)) * (len(supply.strata) + 1)
     unit_base[0] = len(units) * (len(supply.strata) + 1)
@@ -945,7 +1000,9 @@ def grid_problem(
     show = progress is not None and not getattr(progress, "quiet", False)
     say(f"streaming {grid.cells:,} cells in {len(windows)} windows")
     with streaming_env(), LayerStack(specs, grid, resample) as stack:
-        reader = WindowReader(stack, grid, _burners(units, strata, project, grid))
+        burners = _burners(units, strata_source, project, grid)
+        lookup = None if strata_source.codes is None else strata_source.codes.polygon_lookup()
+        reader = WindowReader(stack, grid, burners, lookup)
         stream_windows(setup, reader, windows, totals, cache, show)
         resampled = stack.resampled
     cache.finish()
@@ -1006,8 +1063,7 @@ def _check_units(project, units_table, cells, without_data, specs, grid) -> None
         (
             (on_grid > 0) & (mapped == 0),
             "does not overlap any vegetation stratum on the grid",
-            f"every unit at least partly covered by the strata layer "
-            f"({project.input_path('strata')})",
+            f"every unit at least partly covered by the strata layer ({project.strata_file()})",
         ),
         (
             (mapped > 0) & (with_data == 0),
@@ -1178,6 +1234,13 @@ def _notes(units_table, cells, without_data, cell_ha, resampled, calibration) ->
         notes.append(
             f"{lost:,.1f} ha of mapped unit area has no data in at least one raster layer; no "
             "forage is counted there (availability_rules.csv, rule 'nodata')"
+        )
+    unmapped_ha = cells[:, -1].sum() * cell_ha
+    if unmapped_ha > 0:
+        notes.append(
+            f"{unmapped_ha:,.1f} ha of unit area on the grid lies in no stratum (outside the "
+            "strata polygons, or a raster code the codes table does not list, or no data in "
+            "the strata raster); no forage is counted there"
         )
     on_grid_ha = cells.sum(axis=1) * cell_ha
     share = on_grid_ha / units_table["area_ha"].to_numpy()

@@ -89,7 +89,9 @@ def stratum_supply(
     check_known(
         plots, "forage_class", set(classes), plots_path, known_from="the forage-class table"
     )
-    check_known(plots, "stratum", set(map_strata), plots_path, known_from="the strata layer")
+    check_known(
+        plots, "stratum", set(map_strata), plots_path, known_from=f"the strata map {strata_path}"
+    )
     _require_plots_everywhere(plots, map_strata, strata_path, strata_without_forage)
     wide = plot_biomass_matrix(plots, classes)
     strata = sorted(set(map_strata))

@@ -54,11 +54,24 @@ class CalibratedSection(_Section):
         return [name for classes in self.groups.values() for name in classes]
 
 
+class StrataRasterSection(_Section):
+    """``[rasters.strata]``: the strata map as a categorical raster instead of polygons.
+
+    ``raster`` holds integer codes (e.g. a land-cover map); ``codes`` is a CSV table
+    ``code, stratum`` naming the stratum of each code (several codes may share a stratum).
+    Cells whose code is not listed, or without data, belong to no stratum.
+    """
+
+    raster: Path
+    codes: Path
+
+
 class RasterSection(_Section):
     """``[rasters]``: forage rasters and how the grid is handled."""
 
     biomass: dict[str, Path] = Field(default_factory=dict)
     calibrated: CalibratedSection | None = None
+    strata: StrataRasterSection | None = None
     resample: Literal["none", "nearest", "bilinear", "average"] = "none"
     window_size: int | None = Field(default=None, ge=16, le=16_384)
     density_compression: Literal["zstd", "deflate"] = "zstd"
@@ -107,6 +120,9 @@ def raster_input_paths(
         if rasters.calibrated is not None:
             found["rasters.calibrated.index"] = rasters.calibrated.index
             found["rasters.calibrated.plots"] = rasters.calibrated.plots
+        if rasters.strata is not None:
+            found["rasters.strata.raster"] = rasters.strata.raster
+            found["rasters.strata.codes"] = rasters.strata.codes
     if availability is not None:
         for key in ("snow_depth", "slope", "slope_table", "distance_to_water", "water_table"):
             path = getattr(availability, key)

@@ -217,10 +217,13 @@ class LayerSpec:
     minimum: float | None = None
     maximum: float | None = None
     meaning: str = ""
+    categorical: bool = False  # codes, not quantities: only ever resampled by nearest cell
 
     @classmethod
     def for_key(cls, key: str, path: Path) -> LayerSpec:
         """The spec of project key ``key`` with the valid range of its kind of layer."""
+        if key in CATEGORICAL_KEYS:
+            return cls(key, path, meaning=CATEGORICAL_KEYS[key], categorical=True)
         for prefix, (low, high, meaning) in VALUE_RANGES.items():
             if key.startswith(prefix):
                 return cls(key, path, low, high, meaning)
@@ -235,6 +238,8 @@ VALUE_RANGES = {
 }
 """Physically possible values of each kind of layer (the same bounds as the plots table's
 100,000 kg/ha for biomass; the others only catch wrong units or corrupt files)."""
+CATEGORICAL_KEYS = {"rasters.strata.raster": "integer stratum codes"}
+"""Layers of codes: read as they are and resampled (when asked) by the nearest cell only."""
 
 
 class GridLayer:
@@ -269,16 +274,26 @@ class GridLayer:
                 found=found,
             )
         else:
+            method = "nearest" if spec.categorical else resample
             self.dataset = WarpedVRT(
                 self.src,
                 crs=grid.crs,
                 transform=grid.transform,
                 width=grid.width,
                 height=grid.height,
-                resampling=RESAMPLING[resample],
+                resampling=RESAMPLING[method],
             )
-            self.resampled_by = resample
+            self.resampled_by = method
         self._check_bands_and_type()
+        if spec.categorical and np.dtype(self.src.dtypes[0]).kind not in "ui":
+            self.close()
+            raise SpatialError(
+                "raster of codes holds non-integer values",
+                source=spec.path,
+                location=f"key {spec.key!r}",
+                expected=f"an integer raster ({spec.meaning})",
+                found=f"data type {self.src.dtypes[0]}",
+            )
         self.nodata = self.dataset.nodata
         flags = self.dataset.mask_flag_enums[0]
         self.per_dataset_mask = MaskFlags.per_dataset in flags or MaskFlags.alpha in flags

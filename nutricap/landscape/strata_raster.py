@@ -1,0 +1,97 @@
+"""Strata from a categorical raster: integer codes named by a codes table.
+
+A vegetation or land-cover map often comes as a raster of class codes rather than polygons.
+With ``[rasters.strata]`` each cell takes the stratum its code is named for in the codes table
+(columns ``code, stratum``; several codes may name one stratum). A cell whose code is not
+listed, or that has no data, belongs to no stratum, like ground outside every strata polygon.
+The raster is one layer of the grid (same checks of CRS and alignment; resampled, when asked,
+by the nearest cell only, since codes are not quantities).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from nutricap.errors import TableError
+from nutricap.tables import Column, check_unique, read_csv_table, spreadsheet_row
+
+MAX_CODE = 2**24 - 1
+"""Largest code: rasters are read as float32, which holds every integer up to 2^24 exactly."""
+
+CODE_COLUMNS = [
+    Column("code", minimum=0, maximum=MAX_CODE, meaning="integer code of the strata raster"),
+    Column("stratum", kind="text", meaning="stratum name, as in the plots table"),
+]
+
+
+@dataclass(frozen=True)
+class StrataCodes:
+    """The codes table: the stratum of each listed code of the strata raster.
+
+    Attributes
+    ----------
+    codes : int array (rows,)
+        Listed codes, in the order of the table.
+    strata : list of str (rows,)
+        Stratum of each listed code.
+    path : Path
+        The codes table (named in messages).
+    """
+
+    codes: np.ndarray
+    strata: list[str]
+    path: Path
+
+    def polygon_lookup(self) -> np.ndarray:
+        """Code → polygon code (table row + 1; 0 for a code not listed), int32.
+
+        Indexed by the code; one extra entry at the end (0) takes every code above the
+        largest listed one and, as index −1, every negative value.
+        """
+        lookup = np.zeros(int(self.codes.max(initial=0)) + 2, dtype=np.int32)
+        lookup[self.codes] = np.arange(1, self.codes.size + 1, dtype=np.int32)
+        return lookup
+
+
+def read_strata_codes(path: Path) -> StrataCodes:
+    """Read and check the codes table (whole codes, each listed once)."""
+    table = read_csv_table(path, CODE_COLUMNS, what="strata codes table")
+    codes = table["code"].to_numpy(dtype=float)
+    fractional = np.flatnonzero(codes != np.round(codes))
+    if fractional.size:
+        row = int(fractional[0])
+        raise TableError(
+            "code is not a whole number",
+            source=path,
+            location=f"row {spreadsheet_row(row)}, column 'code'",
+            expected="an integer code of the strata raster",
+            found=repr(float(codes[row])),
+        )
+    check_unique(table, ["code"], path)
+    return StrataCodes(codes.astype(np.int64), list(table["stratum"]), path)
+
+
+def polygons_from_codes(
+    values: np.ndarray, valid: np.ndarray, lookup: np.ndarray, out: np.ndarray
+) -> np.ndarray:
+    """Polygon code of each cell from its raster code, into ``out`` (int32).
+
+    Parameters
+    ----------
+    values : float32 array
+        The strata raster's values (whole numbers where ``valid``).
+    valid : bool array
+        Cells with data.
+    lookup : int32 array
+        From :meth:`StrataCodes.polygon_lookup`.
+    out : int32 array
+        Same shape as ``values``.
+    """
+    beyond = lookup.size - 1
+    index = np.clip(values, -1, beyond).astype(np.intp)  # -1 and beyond: the last entry, 0
+    np.take(lookup, index, out=out)
+    out *= valid
+    return out
