@@ -32,7 +32,7 @@ SolveRows = Callable[[CapacityProblem], Solution]
 
 class ResampledForage(Protocol):
     """Forage of some (row, item) entries of a problem under a resampled model, e.g. a
-    calibrated group (:class:`nutricap.landscape.grid_supply.CalibratedSums`)."""
+    calibrated group (:class:`nutricap.landscape.grid_calibration.CalibratedSums`)."""
 
     rows: np.ndarray  # (entries,) problem rows
     items: np.ndarray  # (entries,) problem items

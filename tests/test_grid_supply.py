@@ -511,12 +511,12 @@ def test_bad_raster_inputs_exit_2_with_one_message(tmp_path, capsys, change, mes
 
 
 def test_a_window_reader_failure_is_not_swallowed(landscape, monkeypatch):
-    from nutricap.landscape import grid_supply
+    from nutricap.landscape import window_pass
 
     def broken(self, window):
         raise InputError("broken reader (test)")
 
-    monkeypatch.setattr(grid_supply.WindowReader, "__call__", broken)
+    monkeypatch.setattr(window_pass.WindowReader, "__call__", broken)
     with pytest.raises(InputError, match="broken reader"):
         _grid_run(landscape, RASTERS, SNOW)
 

@@ -2,7 +2,7 @@
 
 Pure, vectorised functions on arrays of cells, and the table that reports what each rule
 removed. File access lives in :mod:`nutricap.landscape.rasters`; the streaming that calls
-:func:`apply_rules` window by window lives in :mod:`nutricap.landscape.grid_supply`.
+:func:`apply_rules` window by window lives in :mod:`nutricap.landscape.window_pass`.
 
 Rules are applied in a fixed order, and the forage each removes is counted against the forage
 left by the rules before it (so the per-rule amounts add up to the total removed):

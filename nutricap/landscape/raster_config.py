@@ -2,7 +2,7 @@
 
 Same conventions as :mod:`nutricap.project`: TOML data only, unknown keys refused, paths relative
 to the project file. Which forage classes exist is only known once the forage-class table is
-read, so names of classes are checked later (:mod:`nutricap.landscape.grid_supply`).
+read, so names of classes are checked later (:mod:`nutricap.landscape.grid_inputs`).
 """
 
 from __future__ import annotations

@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING
 import pandas as pd
 
 from nutricap.landscape.density import piece_density, write_piece_density
-from nutricap.landscape.grid_supply import grid_outputs_alongside
+from nutricap.landscape.grid_outputs import grid_outputs_alongside
 from nutricap.manifest import BackgroundChecksums, build_manifest
 from nutricap.project import Project
 from nutricap.report.tables import markdown_table, write_csv, write_geopackage, write_json

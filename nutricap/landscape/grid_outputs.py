@@ -1,0 +1,205 @@
+"""The grid path's outputs: availability_rules.csv, calibration.csv and capacity_density.tif.
+
+The density raster is the grid path's second pass: it reads the per-cell forage kept in the
+:class:`~nutricap.landscape.cell_cache.CellCache` window by window and writes animal-days per
+hectare from each cell's share of the forage eaten in its row of the solution. It runs in a
+background thread beside the HTML report (:func:`grid_outputs_alongside`), with short GIL
+turns so that the report's Python code does not starve it.
+"""
+
+from __future__ import annotations
+
+import sys
+from collections.abc import Iterator
+from concurrent.futures import ThreadPoolExecutor, wait
+from contextlib import contextmanager
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import numpy as np
+import rasterio
+from rasterio.windows import Window
+from tqdm import tqdm
+
+from nutricap.landscape.rasters import Scratch, streaming_env
+from nutricap.problem import CapacityProblem
+from nutricap.report.tables import write_csv
+
+if TYPE_CHECKING:
+    from nutricap.landscape.grid_supply import GridResult
+
+DENSITY_NODATA = -9999.0
+COMPRESSION_LEVEL = {"zstd": {"zstd_level": 1}, "deflate": {"zlevel": 1}}
+"""Fast levels for capacity_density.tif: float noise compresses little better at high levels."""
+GIL_TURN_S = 0.0002
+"""Longest wait of a thread for the GIL while the density pass runs beside the report [s]."""
+
+
+def density_coefficients(
+    result: GridResult, problem: CapacityProblem, eaten_kg: np.ndarray, intake_kg_per_day: float
+) -> np.ndarray:
+    """Animal-days per kg of each class's forage left in a cell, by key: (keys, classes).
+
+    ``eaten_kg[row, item] / available_kg[row, item] / intake`` of the key's row and the
+    items of the key's stratum; 0 where nothing is available.
+    """
+    n_classes = len(result.classes)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = np.where(problem.available_kg > 0, eaten_kg / problem.available_kg, 0.0)
+    coefficients = np.zeros((result.row_of_key.size, n_classes), dtype=np.float64)
+    has_row = result.row_of_key >= 0
+    rows = result.row_of_key[has_row]
+    columns = result.stratum_of_key[has_row][:, None] * n_classes + np.arange(n_classes)
+    coefficients[has_row] = ratio[rows[:, None], columns]
+    return (coefficients / intake_kg_per_day).astype(np.float32)
+
+
+def _density(keys, kg_per_ha, per_class, dump: int, out: np.ndarray, scratch: Scratch):
+    """Animal-days per ha of each cell into ``out``: Σ_c kg_c × coefficient[key, c]; nodata
+    at ``dump``.
+
+    Whole windows at a time, so that the thread computing it seldom needs the GIL (the
+    report is drawn in the main thread meanwhile).
+    """
+    index = scratch.take("key index", keys.shape, np.intp)
+    np.copyto(index, keys, casting="safe")
+    term = scratch.take("term", keys.shape, np.float32)
+    out.fill(np.float32(0.0))
+    for column in range(per_class.shape[0]):
+        np.take(per_class[column], index, out=term)
+        term *= kg_per_ha[column]
+        out += term
+    out[keys == dump] = DENSITY_NODATA
+    return out
+
+
+def write_capacity_density(
+    result: GridResult,
+    problem: CapacityProblem,
+    eaten_kg: np.ndarray,
+    intake_kg_per_day: float,
+    path: Path,
+) -> None:
+    """Second pass: ``capacity_density.tif``, NCC animal-days per hectare of each cell.
+
+    Notes
+    -----
+    ``density = Σ_c kg_c × eaten[row, item_c] / available[row, item_c] / intake / cell_ha``
+    with kg_c the forage of class c left in the cell [kg]; since kg_c / cell_ha is the cell's
+    forage per hectare, the cell area cancels. Σ density × cell_ha over the cells of a unit is
+    the unit's NCC in animal-days. Nodata (−9999) outside units and strata and where a layer
+    has no data.
+    """
+    per_class = np.ascontiguousarray(
+        density_coefficients(result, problem, eaten_kg, intake_kg_per_day).T
+    )
+    n_classes = per_class.shape[0]
+    grid = result.grid
+    profile = {
+        "driver": "GTiff",
+        "width": grid.width,
+        "height": grid.height,
+        "count": 1,
+        "dtype": "float32",
+        "crs": grid.crs,
+        "transform": grid.transform,
+        "nodata": DENSITY_NODATA,
+        "tiled": True,
+        "blockxsize": 256,
+        "blockysize": 256,
+        "compress": result.compression,
+        **COMPRESSION_LEVEL[result.compression],
+        "bigtiff": "IF_SAFER",
+        "num_threads": 2,
+    }
+    bar = tqdm(
+        total=len(result.windows),
+        desc="capacity density",
+        unit="window",
+        file=sys.stderr,
+        disable=not result.show_progress,
+    )
+    dump = result.row_of_key.size - 1
+
+    def write(window: Window, density: np.ndarray) -> None:
+        dst.write(density, 1, window=window)
+        bar.update()
+
+    with streaming_env(), rasterio.open(path, "w", **profile) as dst:
+        dst.update_tags(units="animal-days per hectare (NCC)")
+        with ThreadPoolExecutor(max_workers=1) as writer:  # compresses while the next is computed
+            pending = None
+            scratch = Scratch()
+            for number, (window, keys, kg) in enumerate(
+                result.cache.windows(result.windows, n_classes)
+            ):
+                shape = (int(window.height), int(window.width))
+                # Two buffers in turn: one is compressed and written while the other is filled.
+                density = scratch.take(f"density {number % 2}", shape, np.float32)
+                _density(keys, kg, per_class, dump, density.reshape(-1), scratch)
+                if pending is not None:
+                    pending.result()
+                pending = writer.submit(write, window, density)
+            if pending is not None:
+                pending.result()
+    bar.close()
+
+
+@contextmanager
+def grid_outputs_alongside(
+    result: GridResult | None,
+    problem: CapacityProblem,
+    eaten_kg: np.ndarray,
+    intake_kg_per_day: float,
+    folder: Path,
+) -> Iterator[None]:
+    """Write the grid outputs (:func:`write_grid_outputs`) in a background thread while the
+    body of the ``with`` block writes the others; wait for them on leaving the block.
+
+    Nothing happens without a grid result. A failure of either side is raised after both
+    have stopped, so the output folder is never removed while the grid outputs are written.
+    """
+    if result is None:
+        yield
+        return
+    with _short_gil_turns(), ThreadPoolExecutor(max_workers=1) as pool:
+        writing = pool.submit(
+            write_grid_outputs, result, problem, eaten_kg, intake_kg_per_day, folder
+        )
+        try:
+            yield
+        except BaseException:
+            wait([writing])
+            raise
+        writing.result()
+
+
+@contextmanager
+def _short_gil_turns(seconds: float = GIL_TURN_S) -> Iterator[None]:
+    """Let a waiting thread take the GIL after ``seconds`` instead of Python's 5 ms default.
+
+    The main thread draws the report (Python code that holds the GIL) while the density pass
+    runs numpy calls that each need the GIL briefly; with 5 ms turns the density thread spends
+    most of its time waiting for them.
+    """
+    before = sys.getswitchinterval()
+    sys.setswitchinterval(seconds)
+    try:
+        yield
+    finally:
+        sys.setswitchinterval(before)
+
+
+def write_grid_outputs(
+    result: GridResult,
+    problem: CapacityProblem,
+    eaten_kg: np.ndarray,
+    intake_kg_per_day: float,
+    folder: Path,
+) -> None:
+    """Write availability_rules.csv, calibration.csv (when calibrated), capacity_density.tif."""
+    write_csv(result.rules_report, folder / "availability_rules.csv")
+    if result.calibration_report is not None:
+        write_csv(result.calibration_report, folder / "calibration.csv")
+    path = folder / "capacity_density.tif"
+    write_capacity_density(result, problem, eaten_kg, intake_kg_per_day, path)
