@@ -1,10 +1,11 @@
 """The grid path's outputs: availability_rules.csv, calibration.csv and capacity_density.tif.
 
 The density raster is the grid path's second pass: it reads the per-cell forage kept in the
-:class:`~nutricap.landscape.cell_cache.CellCache` window by window and writes animal-days per
-hectare from each cell's share of the forage eaten in its row of the solution. It runs in a
-background thread beside the HTML report (:func:`grid_outputs_alongside`), with short GIL
-turns so that the report's Python code does not starve it.
+:class:`~nutricap.landscape.cell_cache.CellCache` window by window (or, on a Dask cluster,
+takes each window's density from the workers, :mod:`nutricap.landscape.cluster`) and writes
+animal-days per hectare from each cell's share of the forage eaten in its row of the solution.
+It runs in a background thread beside the HTML report (:func:`grid_outputs_alongside`), with
+short GIL turns so that the report's Python code does not starve it.
 """
 
 from __future__ import annotations
@@ -54,7 +55,7 @@ def density_coefficients(
     return (coefficients / intake_kg_per_day).astype(np.float32)
 
 
-def _density(keys, kg_per_ha, per_class, dump: int, out: np.ndarray, scratch: Scratch):
+def window_density(keys, kg_per_ha, per_class, dump: int, out: np.ndarray, scratch: Scratch):
     """Animal-days per ha of each cell into ``out``: Σ_c kg_c × coefficient[key, c]; nodata
     at ``dump``.
 
@@ -93,7 +94,6 @@ def write_capacity_density(
     per_class = np.ascontiguousarray(
         density_coefficients(result, problem, eaten_kg, intake_kg_per_day).T
     )
-    n_classes = per_class.shape[0]
     grid = result.grid
     profile = {
         "driver": "GTiff",
@@ -125,24 +125,39 @@ def write_capacity_density(
         dst.write(density, 1, window=window)
         bar.update()
 
+    if result.cluster is not None:
+        windows = result.cluster.density_windows(per_class, dump)
+    else:
+        windows = _cached_density(result, per_class, dump)
     with streaming_env(), rasterio.open(path, "w", **profile) as dst:
         dst.update_tags(units="animal-days per hectare (NCC)")
         with ThreadPoolExecutor(max_workers=1) as writer:  # compresses while the next is computed
             pending = None
-            scratch = Scratch()
-            for number, (window, keys, kg) in enumerate(
-                result.cache.windows(result.windows, n_classes)
-            ):
-                shape = (int(window.height), int(window.width))
-                # Two buffers in turn: one is compressed and written while the other is filled.
-                density = scratch.take(f"density {number % 2}", shape, np.float32)
-                _density(keys, kg, per_class, dump, density.reshape(-1), scratch)
+            for window, density in windows:
                 if pending is not None:
                     pending.result()
                 pending = writer.submit(write, window, density)
             if pending is not None:
                 pending.result()
     bar.close()
+
+
+def _cached_density(
+    result: GridResult, per_class: np.ndarray, dump: int
+) -> Iterator[tuple[Window, np.ndarray]]:
+    """Each window with its density, from the cell cache of the first pass.
+
+    Two buffers in turn: the caller writes one while the next is filled (it waits for a
+    write to finish before taking the next window, so a buffer is never filled while it is
+    being written).
+    """
+    scratch = Scratch()
+    n_classes = per_class.shape[0]
+    for number, (window, keys, kg) in enumerate(result.cache.windows(result.windows, n_classes)):
+        shape = (int(window.height), int(window.width))
+        density = scratch.take(f"density {number % 2}", shape, np.float32)
+        window_density(keys, kg, per_class, dump, density.reshape(-1), scratch)
+        yield window, density
 
 
 @contextmanager
@@ -202,4 +217,8 @@ def write_grid_outputs(
     if result.calibration_report is not None:
         write_csv(result.calibration_report, folder / "calibration.csv")
     path = folder / "capacity_density.tif"
-    write_capacity_density(result, problem, eaten_kg, intake_kg_per_day, path)
+    try:
+        write_capacity_density(result, problem, eaten_kg, intake_kg_per_day, path)
+    finally:
+        if result.cluster is not None:
+            result.cluster.close()

@@ -17,6 +17,7 @@ inputs are read only once.
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Callable
 from dataclasses import dataclass, field
 
@@ -29,6 +30,7 @@ from rasterio.windows import Window
 from nutricap.errors import ProjectFileError, SpatialError
 from nutricap.landscape import availability as rules_mod
 from nutricap.landscape.cell_cache import CellCache
+from nutricap.landscape.cluster import ClusterRun, new_job
 from nutricap.landscape.grid_calibration import CalibratedSums, calibrated_sums
 from nutricap.landscape.grid_inputs import (
     calibrated_groups,
@@ -100,13 +102,14 @@ class GridResult:
     grid: Grid
     resampled: dict[str, str | None]
     windows: list[Window] = field(repr=False)
-    cache: CellCache = field(repr=False)
+    cache: CellCache | None = field(repr=False)  # None when the windows ran on a cluster
     row_of_key: np.ndarray = field(repr=False)
     stratum_of_key: np.ndarray = field(repr=False)
     classes: list[str] = field(default_factory=list)
     compression: str = "zstd"
     show_progress: bool = False
     calibrated_sums: list[CalibratedSums] = field(default_factory=list, repr=False)
+    cluster: ClusterRun | None = field(default=None, repr=False)
 
     def describe(self) -> dict:
         """Grid, resampling and rules in plain values, for the run manifest."""
@@ -195,20 +198,30 @@ def grid_problem(
     totals = Totals(
         np.zeros(n_keys), np.zeros((n_keys, n_rows)), np.zeros((len(groups), 3), np.int64)
     )
-    cache = CellCache(windows, len(classes))
     show = progress is not None and not getattr(progress, "quiet", False)
-    say(f"streaming {grid.cells:,} cells in {len(windows)} windows")
-    with streaming_env(), LayerStack(specs, grid, resample) as stack:
+    address = config.rasters.dask_scheduler if config.rasters is not None else None
+    cache, cluster = None, None
+    with streaming_env(), LayerStack(specs, grid, resample) as stack:  # checks every layer
         burners = shape_burners(units, strata_source, project, grid)
         lookup = None if strata_source.codes is None else strata_source.codes.polygon_lookup()
-        reader = WindowReader(stack, grid, burners, lookup)
-        stream_windows(setup, reader, windows, totals, cache, show)
+        if address is None:
+            say(f"streaming {grid.cells:,} cells in {len(windows)} windows")
+            cache = CellCache(windows, len(classes))
+            reader = WindowReader(stack, grid, burners, lookup)
+            stream_windows(setup, reader, windows, totals, cache, show)
+            cache.finish()
+        else:
+            job = new_job(setup, specs, grid, resample, windows, burners, lookup)
+            timeout_s = config.rasters.dask_connect_timeout_s
+            cluster = ClusterRun(address, timeout_s, job, project.path)
+            say(f"{grid.cells:,} cells in {len(windows)} windows on the Dask cluster {address}")
+            cluster.first_pass(totals, show)
         resampled = stack.resampled
-    cache.finish()
-    return _assemble(
+    result = _assemble(
         project, setup, totals, grid, supply, units_table, (area_crs, reason), mode,
         forage_classes, calibration_report, specs, resampled, windows, cache, show,
     )  # fmt: skip
+    return dataclasses.replace(result, cluster=cluster) if cluster is not None else result
 
 
 def _assemble(

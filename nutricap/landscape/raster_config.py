@@ -75,6 +75,8 @@ class RasterSection(_Section):
     resample: Literal["none", "nearest", "bilinear", "average"] = "none"
     window_size: int | None = Field(default=None, ge=16, le=16_384)
     density_compression: Literal["zstd", "deflate"] = "zstd"
+    dask_scheduler: str | None = Field(default=None, min_length=1)
+    dask_connect_timeout_s: float = Field(default=10.0, gt=0.0, le=600.0)
 
     @model_validator(mode="after")
     def _one_source_per_class(self) -> RasterSection:

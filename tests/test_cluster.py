@@ -1,0 +1,105 @@
+"""The raster windows on a Dask cluster ([rasters] dask_scheduler) give the local run's results.
+
+The small invented landscape of tests/test_grid_supply.py is estimated twice, with this
+machine's threads and on an in-process Dask cluster; the tables must be equal to the last bit
+(the run sums are added in the same window order) and the density rasters identical. One run
+on a cluster of worker *processes* checks that everything sent to the workers pickles.
+"""
+
+from __future__ import annotations
+
+import sys
+
+import numpy as np
+import pandas as pd
+import pytest
+import rasterio
+from test_grid_supply import RASTERS, SNOW, _project, project_text, write_landscape
+
+from nutricap.cli import main
+from nutricap.workflow import estimate, run_estimate
+
+distributed = pytest.importorskip("distributed")
+
+BOOTSTRAP = "[uncertainty]\nbootstrap_replicates = 40\n\n[pooling]"
+
+
+def _text(address: str | None = None, timeout_s: float = 10.0) -> str:
+    rasters = RASTERS
+    if address is not None:
+        rasters = rasters.replace(
+            "window_size = 64",
+            f'window_size = 64\ndask_scheduler = "{address}"\ndask_connect_timeout_s = {timeout_s}',
+        )
+    return project_text(rasters, SNOW).replace("[pooling]", BOOTSTRAP)
+
+
+@pytest.fixture(scope="module")
+def folder(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("cluster") / "inputs"
+    write_landscape(folder)
+    return folder
+
+
+@pytest.fixture(scope="module")
+def threads_cluster():
+    with distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None
+    ) as cluster:
+        yield cluster.scheduler_address
+
+
+def test_cluster_run_equals_the_local_run(folder, tmp_path, threads_cluster):
+    local = run_estimate(_project(folder, _text(), "local.toml"), tmp_path / "local")
+    remote = run_estimate(
+        _project(folder, _text(threads_cluster), "cluster.toml"), tmp_path / "cluster"
+    )
+    np.testing.assert_array_equal(remote.problem.available_kg, local.problem.available_kg)
+    pd.testing.assert_frame_equal(remote.by_unit, local.by_unit)
+    for name in ("capacity_by_unit.csv", "availability_rules.csv", "calibration.csv"):
+        assert (tmp_path / "cluster" / name).read_bytes() == (
+            tmp_path / "local" / name
+        ).read_bytes()
+    with (
+        rasterio.open(tmp_path / "local" / "capacity_density.tif") as a,
+        rasterio.open(tmp_path / "cluster" / "capacity_density.tif") as b,
+    ):
+        np.testing.assert_array_equal(b.read(1), a.read(1))
+        assert b.profile == a.profile
+    assert remote.grid.cache is None  # no per-cell file on this machine
+
+
+def test_worker_processes_get_everything_pickled(folder):
+    local = estimate(_project(folder, _text(), "local.toml"))
+    with distributed.LocalCluster(
+        n_workers=1, threads_per_worker=2, processes=True, dashboard_address=None
+    ) as cluster:
+        remote = estimate(_project(folder, _text(cluster.scheduler_address), "processes.toml"))
+        remote.grid.cluster.close()
+    np.testing.assert_array_equal(remote.problem.available_kg, local.problem.available_kg)
+
+
+def _cli_error(folder, tmp_path, capsys, text: str) -> str:
+    (folder / "cli.toml").write_text(text)
+    out = tmp_path / "results"
+    code = main(["estimate", str(folder / "cli.toml"), "--out", str(out), "--quiet"])
+    error = capsys.readouterr().err
+    assert code == 2
+    assert len(error.strip().splitlines()) == 1
+    assert not out.exists()
+    return error
+
+
+def test_an_unreachable_scheduler_is_one_message(folder, tmp_path, capsys):
+    error = _cli_error(folder, tmp_path, capsys, _text("tcp://127.0.0.1:9", timeout_s=1))
+    assert "cli.toml: key 'rasters.dask_scheduler': cannot reach the Dask scheduler" in error
+    assert "tcp://127.0.0.1:9" in error
+
+
+def test_without_distributed_installed_the_message_says_what_to_install(
+    folder, tmp_path, capsys, monkeypatch
+):
+    monkeypatch.setitem(sys.modules, "distributed", None)  # import distributed → ImportError
+    error = _cli_error(folder, tmp_path, capsys, _text("tcp://127.0.0.1:9"))
+    assert "needs the optional package 'distributed'" in error
+    assert "pip install 'nutricap[dask]'" in error
