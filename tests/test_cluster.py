@@ -8,6 +8,7 @@ on a cluster of worker *processes* checks that everything sent to the workers pi
 
 from __future__ import annotations
 
+import json
 import sys
 
 import numpy as np
@@ -67,6 +68,9 @@ def test_cluster_run_equals_the_local_run(folder, tmp_path, threads_cluster):
         np.testing.assert_array_equal(b.read(1), a.read(1))
         assert b.profile == a.profile
     assert remote.grid.cache is None  # no per-cell file on this machine
+    manifest = json.loads((tmp_path / "cluster" / "run.json").read_text())
+    computed_on = manifest["derived"]["raster_path"]["computed_on"]
+    assert computed_on == f"Dask cluster at {threads_cluster}"
 
 
 def test_worker_processes_get_everything_pickled(folder):

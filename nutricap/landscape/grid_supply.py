@@ -56,6 +56,7 @@ from nutricap.landscape.rasters import (
 )
 from nutricap.landscape.vectors import StratumAreas
 from nutricap.landscape.window_pass import (
+    WORKERS,
     GridSetup,
     Layout,
     Totals,
@@ -118,6 +119,12 @@ class GridResult:
             "resampled_layers": {k: v for k, v in self.resampled.items() if v is not None},
             "rules_applied": sorted(set(self.rules_report["rule"]), key=rules_mod.RULES.index),
             "cell_membership": "a cell belongs to a polygon when its centre lies in it",
+            "windows": len(self.windows),
+            "computed_on": (
+                f"Dask cluster at {self.cluster.address}"
+                if self.cluster is not None
+                else f"this machine, {WORKERS} worker threads"
+            ),
         }
 
 
