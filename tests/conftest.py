@@ -45,3 +45,22 @@ def pytest_terminal_summary(terminalreporter, exitstatus, config):
     ran = config.stash.get(CASES_RUN, [])
     if ran:
         terminalreporter.write_line(f"bad-input cases run: {len(ran)}")
+
+
+@pytest.fixture()
+def estimate_error(tmp_path, capsys):
+    """Run ``nutricap estimate`` on a project text written into a folder and return its one
+    error line, after checking exit code 2, exactly one line on stderr and no output folder."""
+    from nutricap.cli import main
+
+    def run(folder: Path, text: str) -> str:
+        (folder / "cli.toml").write_text(text)
+        out = tmp_path / "results"
+        code = main(["estimate", str(folder / "cli.toml"), "--out", str(out), "--quiet"])
+        error = capsys.readouterr().err
+        assert code == 2
+        assert len(error.strip().splitlines()) == 1
+        assert not out.exists()
+        return error
+
+    return run

@@ -17,7 +17,6 @@ import pytest
 import rasterio
 from test_grid_supply import RASTERS, SNOW, _project, project_text, write_landscape
 
-from nutricap.cli import main
 from nutricap.workflow import estimate, run_estimate
 
 distributed = pytest.importorskip("distributed")
@@ -83,27 +82,16 @@ def test_worker_processes_get_everything_pickled(folder):
     np.testing.assert_array_equal(remote.problem.available_kg, local.problem.available_kg)
 
 
-def _cli_error(folder, tmp_path, capsys, text: str) -> str:
-    (folder / "cli.toml").write_text(text)
-    out = tmp_path / "results"
-    code = main(["estimate", str(folder / "cli.toml"), "--out", str(out), "--quiet"])
-    error = capsys.readouterr().err
-    assert code == 2
-    assert len(error.strip().splitlines()) == 1
-    assert not out.exists()
-    return error
-
-
-def test_an_unreachable_scheduler_is_one_message(folder, tmp_path, capsys):
-    error = _cli_error(folder, tmp_path, capsys, _text("tcp://127.0.0.1:9", timeout_s=1))
+def test_an_unreachable_scheduler_is_one_message(folder, estimate_error):
+    error = estimate_error(folder, _text("tcp://127.0.0.1:9", timeout_s=1))
     assert "cli.toml: key 'rasters.dask_scheduler': cannot reach the Dask scheduler" in error
     assert "tcp://127.0.0.1:9" in error
 
 
 def test_without_distributed_installed_the_message_says_what_to_install(
-    folder, tmp_path, capsys, monkeypatch
+    folder, estimate_error, monkeypatch
 ):
     monkeypatch.setitem(sys.modules, "distributed", None)  # import distributed → ImportError
-    error = _cli_error(folder, tmp_path, capsys, _text("tcp://127.0.0.1:9"))
+    error = estimate_error(folder, _text("tcp://127.0.0.1:9"))
     assert "needs the optional package 'distributed'" in error
     assert "pip install 'nutricap[dask]'" in error

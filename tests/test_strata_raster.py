@@ -33,7 +33,6 @@ from test_grid_supply import (
     write_landscape,
 )
 
-from nutricap.cli import main
 from nutricap.landscape.strata_raster import StrataCodes, polygons_from_codes
 from nutricap.workflow import estimate
 
@@ -159,17 +158,6 @@ def test_code_lookup():
     assert out.tolist() == [1, 2, 3, 0, 0, 0, 0, 0]
 
 
-def _cli(folder, tmp_path, capsys, text: str) -> str:
-    (folder / "cli.toml").write_text(text)
-    out = tmp_path / "results"
-    code = main(["estimate", str(folder / "cli.toml"), "--out", str(out), "--quiet"])
-    error = capsys.readouterr().err
-    assert code == 2
-    assert len(error.strip().splitlines()) == 1
-    assert not out.exists()
-    return error
-
-
 @pytest.mark.parametrize(
     ("table", "message"),
     [
@@ -183,18 +171,18 @@ def _cli(folder, tmp_path, capsys, text: str) -> str:
         ),
     ],
 )
-def test_bad_codes_table_exit_2(folder, tmp_path, capsys, table, message):
+def test_bad_codes_table_exit_2(folder, estimate_error, table, message):
     (folder / "strata_codes.csv").write_text(table)
-    error = _cli(folder, tmp_path, capsys, _raster_project_text())
+    error = estimate_error(folder, _raster_project_text())
     assert re.search(message, error), error
 
 
-def test_a_strata_raster_of_real_numbers_is_refused(folder, tmp_path, capsys):
+def test_a_strata_raster_of_real_numbers_is_refused(folder, estimate_error):
     _write_codes(folder, _painted_codes(cover_all=False).astype(np.float32))
-    error = _cli(folder, tmp_path, capsys, _raster_project_text())
+    error = estimate_error(folder, _raster_project_text())
     assert re.search(r"strata_codes.tif.*rasters.strata.raster.*non-integer.*float32", error)
 
 
-def test_strata_given_twice_is_refused(folder, tmp_path, capsys):
-    error = _cli(folder, tmp_path, capsys, project_text(RASTERS + STRATA_RASTER, SNOW))
+def test_strata_given_twice_is_refused(folder, estimate_error):
+    error = estimate_error(folder, project_text(RASTERS + STRATA_RASTER, SNOW))
     assert "the strata are given twice" in error
