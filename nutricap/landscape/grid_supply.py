@@ -30,7 +30,7 @@ from rasterio.windows import Window
 from nutricap.errors import ProjectFileError, SpatialError
 from nutricap.landscape import availability as rules_mod
 from nutricap.landscape.cell_cache import CellCache
-from nutricap.landscape.cluster import ClusterRun, new_job
+from nutricap.landscape.cluster import ClusterRun, WindowJob, new_job
 from nutricap.landscape.grid_calibration import CalibratedSums, calibrated_sums
 from nutricap.landscape.grid_inputs import (
     calibrated_groups,
@@ -206,29 +206,38 @@ def grid_problem(
         np.zeros(n_keys), np.zeros((n_keys, n_rows)), np.zeros((len(groups), 3), np.int64)
     )
     show = progress is not None and not getattr(progress, "quiet", False)
-    address = config.rasters.dask_scheduler if config.rasters is not None else None
-    cache, cluster = None, None
-    with streaming_env(), LayerStack(specs, grid, resample) as stack:  # checks every layer
-        burners = shape_burners(units, strata_source, project, grid)
-        lookup = None if strata_source.codes is None else strata_source.codes.polygon_lookup()
-        if address is None:
-            say(f"streaming {grid.cells:,} cells in {len(windows)} windows")
-            cache = CellCache(windows, len(classes))
-            reader = WindowReader(stack, grid, burners, lookup)
-            stream_windows(setup, reader, windows, totals, cache, show)
-            cache.finish()
-        else:
-            job = new_job(setup, specs, grid, resample, windows, burners, lookup)
-            timeout_s = config.rasters.dask_connect_timeout_s
-            cluster = ClusterRun(address, timeout_s, job, project.path)
-            say(f"{grid.cells:,} cells in {len(windows)} windows on the Dask cluster {address}")
-            cluster.first_pass(totals, show)
-        resampled = stack.resampled
+    burners = shape_burners(units, strata_source, project, grid)
+    lookup = None if strata_source.codes is None else strata_source.codes.polygon_lookup()
+    job = new_job(setup, specs, grid, resample, windows, burners, lookup)
+    cache, cluster, resampled = _first_pass(project, job, totals, say, show)
     result = _assemble(
         project, setup, totals, grid, supply, units_table, (area_crs, reason), mode,
         forage_classes, calibration_report, specs, resampled, windows, cache, show,
     )  # fmt: skip
     return dataclasses.replace(result, cluster=cluster) if cluster is not None else result
+
+
+def _first_pass(project, job: WindowJob, totals: Totals, say: Progress, show: bool):
+    """Every window into ``totals``: on this machine's threads (keeping the cells for the
+    density pass in a :class:`CellCache`) or on the Dask cluster of ``[rasters]
+    dask_scheduler``. Returns (cache or None, cluster run or None, resampling by layer key).
+    """
+    rasters = project.config.rasters
+    address = rasters.dask_scheduler if rasters is not None else None
+    cells, count = job.grid.cells, len(job.windows)
+    cache, cluster = None, None
+    with streaming_env(), LayerStack(job.specs, job.grid, job.resample) as stack:  # checks all
+        if address is None:
+            say(f"streaming {cells:,} cells in {count} windows")
+            cache = CellCache(job.windows, job.setup.n_classes)
+            reader = WindowReader(stack, job.grid, job.burners, job.strata_lookup)
+            stream_windows(job.setup, reader, job.windows, totals, cache, show)
+            cache.finish()
+        else:
+            cluster = ClusterRun(address, rasters.dask_connect_timeout_s, job, project.path)
+            say(f"{cells:,} cells in {count} windows on the Dask cluster {address}")
+            cluster.first_pass(totals, show)
+        return cache, cluster, stack.resampled
 
 
 def _assemble(
