@@ -12,6 +12,7 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
+import geopandas as gpd
 import numpy as np
 import pytest
 from rasterio.transform import from_origin
@@ -110,6 +111,28 @@ def test_several_codes_may_name_one_stratum(folder):
     _write_codes(folder, split, "code,stratum\n11,upland\n12,upland\n42,lowland\n")
     two = estimate(_project(folder, _raster_project_text(), "two.toml"))
     np.testing.assert_allclose(two.problem.available_kg, one.problem.available_kg, rtol=1e-6)
+
+
+def test_accessible_fraction_by_code_equals_that_of_the_polygons(folder):
+    """Half of the lowland reachable: the same problem from polygons and from codes, and
+    the lowland's forage exactly half of what it is with all of it reachable."""
+    whole = estimate(_project(folder, _raster_project_text(), "whole.toml"))
+    strata = gpd.read_file(folder / "strata.gpkg")
+    strata["accessible_fraction"] = np.where(strata["stratum"] == "lowland", 0.5, 1.0)
+    strata.to_file(folder / "strata.gpkg", driver="GPKG")
+    polygons = estimate(_project(folder, project_text(RASTERS, SNOW)))
+    table = "code,stratum,accessible_fraction\n11,upland,\n42,lowland,0.5\n"
+    _write_codes(folder, _painted_codes(cover_all=False), table)
+    raster = estimate(_project(folder, _raster_project_text(), "raster.toml"))
+    np.testing.assert_allclose(
+        raster.problem.available_kg, polygons.problem.available_kg, rtol=1e-6
+    )
+    lowland = np.asarray(raster.problem.items.stratum) == "lowland"
+    np.testing.assert_allclose(
+        raster.problem.available_kg[:, lowland],
+        0.5 * whole.problem.available_kg[:, lowland],
+        rtol=1e-6,
+    )
 
 
 def test_cells_without_data_belong_to_no_stratum(folder):

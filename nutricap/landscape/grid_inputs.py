@@ -129,7 +129,7 @@ def strata_map(project, strata: gpd.GeoDataFrame | None) -> StrataMap:
         )
     paths = project.input_paths()
     codes = read_strata_codes(paths["rasters.strata.codes"])
-    return StrataMap(codes.strata, None, paths[STRATA_RASTER_KEY], codes=codes)
+    return StrataMap(codes.strata, codes.accessible_fraction, paths[STRATA_RASTER_KEY], codes=codes)
 
 
 def strata_supply(plots, strata: StrataMap, strata_classes, all_classes, project) -> StratumSupply:

@@ -2,7 +2,8 @@
 
 A vegetation or land-cover map often comes as a raster of class codes rather than polygons.
 With ``[rasters.strata]`` each cell takes the stratum its code is named for in the codes table
-(columns ``code, stratum``; several codes may name one stratum). A cell whose code is not
+(columns ``code, stratum``, optionally ``accessible_fraction``; several codes may name one
+stratum). A cell whose code is not
 listed, or that has no data, belongs to no stratum, like ground outside every strata polygon.
 The raster is one layer of the grid (same checks of CRS and alignment; resampled, when asked,
 by the nearest cell only, since codes are not quantities).
@@ -24,6 +25,14 @@ MAX_CODE = 2**24 - 1
 CODE_COLUMNS = [
     Column("code", minimum=0, maximum=MAX_CODE, meaning="integer code of the strata raster"),
     Column("stratum", kind="text", meaning="stratum name, as in the plots table"),
+    Column(
+        "accessible_fraction",
+        required=False,
+        minimum=0.0,
+        maximum=1.0,
+        allow_blank=True,
+        meaning="share of the code's ground animals can reach, 0-1 (blank: 1)",
+    ),
 ]
 
 
@@ -39,11 +48,15 @@ class StrataCodes:
         Stratum of each listed code.
     path : Path
         The codes table (named in messages).
+    accessible_fraction : array (rows,) or None
+        Share of each code's ground that animals can reach [0–1] (optional column; like the
+        strata polygons' ``accessible_fraction``); None when every share is 1.
     """
 
     codes: np.ndarray
     strata: list[str]
     path: Path
+    accessible_fraction: np.ndarray | None = None  # (rows,) [0-1]; None: all 1
 
     def polygon_lookup(self) -> np.ndarray:
         """Code → polygon code (table row + 1; 0 for a code not listed), int32.
@@ -71,7 +84,11 @@ def read_strata_codes(path: Path) -> StrataCodes:
             found=repr(float(codes[row])),
         )
     check_unique(table, ["code"], path)
-    return StrataCodes(codes.astype(np.int64), list(table["stratum"]), path)
+    fraction = None
+    if "accessible_fraction" in table.columns:
+        fraction = table["accessible_fraction"].fillna(1.0).to_numpy(dtype=np.float32)
+        fraction = fraction if (fraction < 1).any() else None
+    return StrataCodes(codes.astype(np.int64), list(table["stratum"]), path, fraction)
 
 
 def polygons_from_codes(
