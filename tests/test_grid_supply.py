@@ -374,6 +374,36 @@ def test_every_rule_reported_and_forage_conserved(tmp_path):
     assert got["area_ha"].iloc[0] == pytest.approx(excluded_ha)
 
 
+def test_report_shows_the_grid_rules_models_and_tables(tmp_path):
+    """report.html of a raster run: the rules table equals availability_rules.csv's
+    'all units' rows, the packaged reduction tables appear with their source, and the
+    methods list the raster steps used; a run without rasters has no such section."""
+    folder = tmp_path / "inputs"
+    write_landscape(folder)
+    row, col = np.mgrid[0:ROWS, 0:COLS]
+    _rewrite(folder, "slope", (row % 70).astype(float))  # 0-69 % (invented)
+    _rewrite(folder, "water", col * 20.0)  # 0-5980 m from water (invented)
+    gpd.GeoDataFrame({"name": ["ranch"]}, geometry=[EXCLUDED], crs=CRS).to_file(
+        folder / "private.gpkg", driver="GPKG"
+    )
+    out = tmp_path / "results"
+    run_estimate(_project(folder, project_text(RASTERS, RULES_TEXT)), out)
+    page = (out / "report.html").read_text(encoding="utf-8")
+    section = page[page.index('<section id="raster">') : page.index('<section id="methods">')]
+    text = re.sub(r"\s+", " ", re.sub(r"<[^>]+>", " ", section))
+    rules = pd.read_csv(out / "availability_rules.csv")
+    for row in rules[rules["unit_id"] == "all units"].itertuples():
+        assert f" {row.rule} {row.meaning} {row.area_ha:,.1f} " in text
+    assert "300 × 200 cells of 30 × 30 m (0.09 ha)" in text
+    assert "over 60 % 100 Holechek 1988" in text  # packaged slope table, last class
+    assert "forbs forb linear chosen in the project file 12" in text
+    methods = page[page.index('<section id="methods">') :]
+    for title in ("Biomass from an index raster", "Snow burial of forage",
+                  "Slope and distance-to-water reductions", "Minimum forage density"):  # fmt: skip
+        assert title in methods
+    assert "Model error in the bootstrap" not in methods  # no bootstrap in this run
+
+
 def test_patch_pooling(landscape):
     unit = _grid_run(landscape, RASTERS, SNOW).by_unit.set_index("unit_id")
     patch_result = _grid_run(landscape, RASTERS, SNOW, pooling="patch")

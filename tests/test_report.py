@@ -287,6 +287,7 @@ def test_optional_sections_only_when_given(base_page, full_page):
     for method in ("stratified bootstrap", "One-at-a-time perturbation", "discrete logistic"):
         assert method not in base_page.plain_text
         assert method in full_page.plain_text
+    assert "raster" not in base_page.ids | full_page.ids  # the example has no rasters
 
 
 def test_sections_in_order(full_html):

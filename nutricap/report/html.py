@@ -30,7 +30,7 @@ import jinja2
 import pandas as pd
 
 from nutricap.cautions import CAUTION
-from nutricap.report import extra_sections, figures, provenance, sections
+from nutricap.report import extra_sections, figures, provenance, raster_section, sections
 from nutricap.report.formatting import embedded_figure
 from nutricap.report.methods_text import methods
 from nutricap.report.sections import INTERVAL_COLUMNS, has_interval, is_flag, unit_table
@@ -102,6 +102,7 @@ def render_report(
     """
     extras = extras or ReportExtras()
     animals, forage = estimate.animals, estimate.forage_classes
+    intervals = any(has_interval(estimate.by_unit, name) for name in INTERVAL_COLUMNS)
     context = {
         "caution": CAUTION,
         "header": sections.header(estimate, project, manifest),
@@ -120,11 +121,13 @@ def render_report(
         "trend": extra_sections.trend(extras.trend, estimate.by_unit),
         "unit_table": unit_table(estimate.by_unit, extras.interval_level),
         "supply": sections.supply(estimate),
+        "raster": raster_section.raster_landscape(estimate, project),
         "methods": methods(
-            intervals=any(has_interval(estimate.by_unit, n) for n in INTERVAL_COLUMNS),
+            intervals=intervals,
             sensitivity=extras.sensitivity_table is not None,
             trend=extras.trend is not None,
-        ),
+        )
+        + raster_section.raster_methods(estimate, intervals=intervals),
         "parameters": provenance.parameter_tables(estimate, project, animals, forage),
         "manifest": provenance.manifest_summary(manifest),
     }

@@ -149,6 +149,63 @@ TREND_METHOD = Method(
 )
 
 
+SNOW_METHOD = Method(
+    "Snow burial of forage (raster path)",
+    "f_c = clip(1 − d / h_c, 0, 1)    or, all-or-none,    f_c = 1 if d < h_c else 0",
+    "d is the cell's snow depth [cm] and h_c the height of forage class c [cm]; the first form "
+    "spreads a class's forage evenly over its height, the second keeps all of it until it is "
+    "buried. Forage left = standing forage × f_c.",
+    "Common practice (the even vertical spread is an assumption; docs/rasters.md).",
+)
+REDUCTION_METHOD = Method(
+    "Slope and distance-to-water reductions (raster path)",
+    "forage left = forage · (1 − r_slope) · (1 − r_water)",
+    "r is the share of grazing capacity removed in the cell's class of slope [%] and of "
+    "distance to water [m], from step tables (shown with their sources in the raster section).",
+    "Holechek, J.L. 1988. Rangelands 10:10–14 (classes partly read in a secondary source; "
+    "each row's source is in the table).",
+)
+MIN_DENSITY_METHOD = Method(
+    "Minimum forage density (raster path)",
+    "m = 1 if Σ_c g_c · f_c ≥ D_min, else 0    [kg DM/ha]",
+    "A cell with less forage above the snow than D_min is not foraged at all.",
+    "Common practice.",
+)
+CALIBRATION_METHOD = Method(
+    "Biomass from an index raster (calibrated raster path)",
+    "B = a + b · x  (linear);    B = s · e^(a + b·x),  s = mean(e^residual)  (log-linear)",
+    "Least squares of the calibration plots' group biomass B [kg/ha] on the index x at each "
+    "plot; the log-linear model is back-transformed with the smearing factor s; 'best' takes "
+    "the lower AIC on the kg/ha scale. The index beyond the plots' range by more than the "
+    "margin is clamped or, when asked, extrapolated with a warning.",
+    "Duan, N. 1983. J. Am. Stat. Assoc. 78:605–610; Akaike, H. 1978. J. R. Stat. Soc. D "
+    "27:217–235 (AIC of ln B turned to the kg/ha scale by the Jacobian).",
+)
+MODEL_BOOTSTRAP_METHOD = Method(
+    "Model error in the bootstrap (calibrated raster path)",
+    "a*, b* refitted to calibration plots drawn with replacement;  forage* = a*·S0 + b*·S1",
+    "S0 = Σ forage left / prediction and S1 = Σ forage left · x / prediction per unit × stratum "
+    "come from the raster pass, so a refit needs no second pass (linear models, exact); "
+    "log-linear models are evaluated on 8 index bins (error bound in docs/methods.md).",
+    "Efron, B. & Tibshirani, R.J. 1993. An Introduction to the Bootstrap, ch. 9 (pairs "
+    "bootstrap; from memory).",
+)
+
+
+def raster_methods(
+    *, snow: bool, reductions: bool, min_density: bool, calibrated: bool, model_bootstrap: bool
+) -> tuple[Method, ...]:
+    """The method entries of the raster path's steps that a run used."""
+    used = (
+        (calibrated, CALIBRATION_METHOD),
+        (snow, SNOW_METHOD),
+        (reductions, REDUCTION_METHOD),
+        (min_density, MIN_DENSITY_METHOD),
+        (model_bootstrap, MODEL_BOOTSTRAP_METHOD),
+    )
+    return tuple(method for flag, method in used if flag)
+
+
 def methods(*, intervals: bool, sensitivity: bool, trend: bool) -> tuple[Method, ...]:
     """The method entries of this run: the core, then those of the optional analyses."""
     optional = (

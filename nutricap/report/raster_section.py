@@ -1,0 +1,148 @@
+"""The report's section of a raster run: the grid, what each availability rule removed, the
+calibrated biomass models and the reduction tables used, with their sources.
+
+Formats what the grid path computed (:class:`nutricap.landscape.grid_supply.GridResult`);
+returns None for a run without rasters.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+import numpy as np
+import pandas as pd
+
+from nutricap.landscape.availability import load_reduction_table
+from nutricap.report import methods_text
+from nutricap.report.formatting import (
+    ONE_DECIMAL,
+    THREE_DECIMALS,
+    Column,
+    format_auto,
+    numeric_column,
+    table,
+)
+
+if TYPE_CHECKING:
+    from nutricap.project import Project
+    from nutricap.workflow import Estimate
+
+RULE_COLUMNS = [
+    Column("rule", "Rule"),
+    Column("meaning", "What it removes"),
+    numeric_column("area_ha", "Area where it acted [ha]", ONE_DECIMAL),
+    numeric_column("forage_removed_kg", "Forage removed [kg DM]"),
+    numeric_column("forage_removed_pct", "Share of standing forage [%]", ONE_DECIMAL),
+]
+
+CALIBRATION_COLUMNS = [
+    Column("forage_group", "Group"),
+    Column("forage_classes", "Forage classes"),
+    Column("model", "Model"),
+    Column("selection", "Why this model"),
+    numeric_column("n_plots", "Plots (n)"),
+    numeric_column("intercept", "a", format_auto),
+    numeric_column("slope", "b", format_auto),
+    numeric_column("r_squared", "R²", THREE_DECIMALS),
+    numeric_column("residual_se", "Residual SE (fitted scale)", format_auto),
+    numeric_column("rmse_kg_per_ha", "RMSE [kg/ha]", ONE_DECIMAL),
+    numeric_column("index_min", "Plots' index from", format_auto),
+    numeric_column("index_max", "to", format_auto),
+    numeric_column("area_beyond_plot_range_ha", "Area beyond the plots' range [ha]", ONE_DECIMAL),
+    numeric_column("area_beyond_margin_ha", "Area beyond the margin [ha]", ONE_DECIMAL),
+    Column("beyond_margin", "Beyond the margin"),
+]
+
+REDUCTION_COLUMNS = [
+    Column("factor", "Factor"),
+    Column("range", "Class"),
+    numeric_column("reduction_pct", "Capacity removed [%]"),
+    Column("source", "Source"),
+]
+
+
+def raster_landscape(estimate: Estimate, project: Project) -> dict | None:
+    """The raster section's context: grid facts, rules table, models, reduction tables."""
+    grid = estimate.grid
+    if grid is None:
+        return None
+    rules = grid.rules_report[grid.rules_report["unit_id"] == "all units"]
+    calibration = grid.calibration_report
+    reductions = _reduction_tables(project)
+    return {
+        "facts": _grid_facts(grid),
+        "rules": table(rules, RULE_COLUMNS),
+        "calibration": None if calibration is None else table(calibration, CALIBRATION_COLUMNS),
+        "reductions": None if reductions is None else table(reductions, REDUCTION_COLUMNS),
+    }
+
+
+def _grid_facts(grid) -> dict[str, str]:
+    described = grid.describe()
+    facts = {
+        "Grid": f"{grid.grid.width:,} × {grid.grid.height:,} cells of {_cell_words(grid)}",
+        "Grid CRS": str(grid.grid.crs),
+        "Cell membership": described["cell_membership"],
+        "Windows": f"{described['windows']:,}, computed on {described['computed_on']}",
+    }
+    resampled = described["resampled_layers"]
+    if resampled:
+        facts["Resampled layers"] = "; ".join(f"{k} by {m}" for k, m in resampled.items())
+    return facts
+
+
+def _cell_words(grid) -> str:
+    transform, units = grid.grid.transform, grid.grid.crs.linear_units or "map units"
+    units = "m" if units in ("metre", "meter") else units
+    return f"{abs(transform.a):g} × {abs(transform.e):g} {units} ({grid.grid.cell_area_ha:g} ha)"
+
+
+def _reduction_tables(project: Project) -> pd.DataFrame | None:
+    """The slope and distance-to-water tables of the run (the packaged ones or the user's)."""
+    section = project.config.availability
+    if section is None:
+        return None
+    used = [
+        ("slope", section.slope, section.slope_table, "%"),
+        ("distance_to_water", section.distance_to_water, section.water_table, "m"),
+    ]
+    frames = []
+    for factor, layer, path, unit in used:
+        if layer is None:
+            continue
+        resolved = None if path is None else (project.folder / path).resolve()
+        reduction = load_reduction_table(resolved, factor)
+        lower = np.concatenate(([0.0], reduction.upper[:-1]))
+        frames.append(
+            pd.DataFrame(
+                {
+                    "factor": factor.replace("_", " "),
+                    "range": [_class_words(lo, hi, unit) for lo, hi in zip(lower, reduction.upper)],
+                    "reduction_pct": 100.0 * reduction.reduction,
+                    "source": reduction.source,
+                }
+            )
+        )
+    return pd.concat(frames, ignore_index=True) if frames else None
+
+
+def _class_words(lower: float, upper: float, unit: str) -> str:
+    if np.isinf(upper):
+        return f"over {lower:,.4g} {unit}"
+    return f"{lower:,.4g}–{upper:,.4g} {unit}"
+
+
+def raster_methods(estimate: Estimate, *, intervals: bool) -> tuple:
+    """The method entries of the raster path that this run used (empty without rasters)."""
+    grid = estimate.grid
+    if grid is None:
+        return ()
+    applied = set(grid.describe()["rules_applied"])
+    calibrated = grid.calibration_report is not None
+    return methods_text.raster_methods(
+        snow="snow" in applied,
+        reductions=bool(applied & {"slope", "distance_to_water"}),
+        min_density="min_forage" in applied,
+        calibrated=calibrated,
+        model_bootstrap=calibrated and intervals,
+    )
