@@ -73,7 +73,11 @@ def _subparser(commands, name: str, summary: str) -> argparse.ArgumentParser:
 
 
 def _add_demo(commands) -> None:
-    parser = _subparser(commands, "demo", "Write the invented example landscape and estimate it.")
+    parser = _subparser(
+        commands,
+        "demo",
+        "Write the invented example landscape and estimate it (polygons, then rasters).",
+    )
     parser.add_argument(
         "--out",
         type=Path,
@@ -208,11 +212,23 @@ def run_demo(args: argparse.Namespace) -> int:
         shutil.rmtree(inputs)
     project_file = write_example_landscape(inputs)
     result = run_estimate(load_project(project_file), results, overwrite=True, progress=progress)
-    _print_summary(result, results)
+    _print_summary(result, results, caution=False)
+    raster_results = out / "results_rasters"
+    progress("the same landscape on a 50 m grid with snow, slope and minimum-density rules")
+    raster_project = load_project(project_file.with_name("project_rasters.toml"))
+    on_grid = run_estimate(raster_project, raster_results, overwrite=True, progress=progress)
+    ncc, ecc = on_grid.by_unit["ncc_animals"].sum(), on_grid.by_unit["ecc_animals"].sum()
+    print(
+        f"On the 50 m grid with snow burial, slope and minimum-density rules "
+        f"(project_rasters.toml): total NCC {ncc:,.0f} animals; ECC {ecc:,.0f}. "
+        f"What each rule removed: {raster_results / 'availability_rules.csv'}; "
+        f"report: {raster_results / 'report.html'}"
+    )
+    print(f"CAUTION: {CAUTION}")
     return EXIT_OK
 
 
-def _print_summary(result, out: Path) -> None:
+def _print_summary(result, out: Path, *, caution: bool = True) -> None:
     table = result.by_unit
     table_path = Path(out) / "capacity_by_unit.csv"
     print(f"Capacity by unit ({result.season_days:g}-day season), table: {table_path}")
@@ -228,7 +244,8 @@ def _print_summary(result, out: Path) -> None:
     report = Path(out) / "report.html"
     if report.exists():
         print(f"Report: {report}")
-    print(f"CAUTION: {CAUTION}")
+    if caution:
+        print(f"CAUTION: {CAUTION}")
 
 
 def _print_flags(table) -> None:

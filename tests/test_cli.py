@@ -52,6 +52,13 @@ def test_demo_runs(tmp_path, capsys):
     # The example's over-stocked unit (invented for the example) is flagged in the summary.
     assert "flag: unit Petrelhollow" in out and "report.html" in out
     assert (tmp_path / "demo" / "results" / "capacity_by_unit.csv").is_file()
+    # The raster variant of the example runs too, with its rules reported.
+    rasters = tmp_path / "demo" / "results_rasters"
+    assert {"capacity_by_unit.csv", "availability_rules.csv", "report.html"} <= {
+        path.name for path in rasters.iterdir()
+    }
+    assert "On the 50 m grid" in out
+    assert out.rstrip().splitlines()[-1].startswith("CAUTION:")
 
 
 def _mutate_csv(path, change):

@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 import pyogrio
 import pytest
+import rasterio
 import shapely
 
 from nutricap import example
@@ -34,7 +35,8 @@ LAYERS = {
     "treatments_thinning.gpkg": "treatments_thinning",
     "treatments_burn.gpkg": "treatments_burn",
 }
-ALL_FILES = {*CSV_FILES, *LAYERS, "project.toml"}
+RASTERS = ("snow_depth_cm.tif", "slope_pct.tif")
+ALL_FILES = {*CSV_FILES, *LAYERS, *RASTERS, "project.toml", "project_rasters.toml"}
 # Column contract of SPEC.md ("Inputs"); the energy pair de_kcal_per_g | dmd_pct is
 # checked separately.
 CONTRACT_COLUMNS = {
@@ -70,8 +72,12 @@ def read_layer(folder: Path, file: str) -> gpd.GeoDataFrame:
 
 def assert_same_landscape(a: Path, b: Path) -> None:
     """Identical CSV and TOML bytes, identical attributes and geometries."""
-    for name in (*CSV_FILES, "project.toml"):
+    for name in (*CSV_FILES, "project.toml", "project_rasters.toml"):
         assert (a / name).read_bytes() == (b / name).read_bytes(), name
+    for name in RASTERS:
+        with rasterio.open(a / name) as left, rasterio.open(b / name) as right:
+            assert left.profile == right.profile, name
+            np.testing.assert_array_equal(left.read(1), right.read(1), err_msg=name)
     for file in LAYERS:
         left, right = read_layer(a, file), read_layer(b, file)
         pd.testing.assert_frame_equal(left.drop(columns="geometry"), right.drop(columns="geometry"))
@@ -117,6 +123,18 @@ def test_contract_columns_present(first: Path) -> None:
     assert "stratum" in read_layer(first, "strata.gpkg").columns
 
 
+def test_rasters_cover_the_study_area_on_one_grid(first: Path) -> None:
+    """Both rasters share one 50 m grid whose bounds are the study area's (shapely bounds)."""
+    area = example.study_area()
+    for name in RASTERS:
+        with rasterio.open(first / name) as src:
+            assert src.crs.to_epsg() == 32612
+            assert src.res == (example.RASTER_CELL_M, example.RASTER_CELL_M)
+            assert tuple(src.bounds) == pytest.approx(area.bounds)
+            values = src.read(1)
+            assert np.isfinite(values).all() and values.min() >= 0.0
+
+
 def test_layer_names_and_crs(first: Path) -> None:
     for file, layer in LAYERS.items():
         assert list(pyogrio.list_layers(first / file)[:, 0]) == [layer]
@@ -141,7 +159,20 @@ def test_project_file_follows_the_schema(first: Path) -> None:
         for section in raw["scenarios"].values()
         for name in (section["treatments"], section["responses"])
     }
-    assert set(raw["inputs"].values()) | scenario_files == ALL_FILES - {"project.toml"}
+    raster_variant = {"project_rasters.toml", *RASTERS}
+    assert (
+        set(raw["inputs"].values()) | scenario_files
+        == ALL_FILES - {"project.toml"} - raster_variant
+    )
+
+
+def test_raster_project_is_the_project_plus_rasters(first: Path) -> None:
+    """project_rasters.toml: the same inputs, target and settings, plus the two rasters."""
+    base = tomllib.loads((first / "project.toml").read_text(encoding="utf-8"))
+    grid = tomllib.loads((first / "project_rasters.toml").read_text(encoding="utf-8"))
+    for section in ("inputs", "target", "forage_use", "pooling", "uncertainty"):
+        assert grid[section] == base[section], section
+    assert set(grid["availability"].values()) >= set(RASTERS)
     project = load_project(first / "project.toml")  # the package's own validation
     assert project.config.target.animal_class == "adult_female"
 
