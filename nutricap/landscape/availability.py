@@ -203,13 +203,16 @@ class ReductionTable:
     reduction : ndarray, shape (classes,)
         Share of grazing capacity removed in each class [0–1].
     source : str
-        Where the values come from.
+        Where the values come from (every row's source, once each).
+    row_sources : tuple of str
+        The source of each class (the table's ``source`` column, else the file).
     """
 
     factor: str
     upper: np.ndarray
     reduction: np.ndarray
     source: str
+    row_sources: tuple[str, ...] = ()
 
     def reduction_of(self, values) -> np.ndarray:
         """Reduction [0–1] of each value (float32)."""
@@ -269,7 +272,10 @@ def load_reduction_table(path: Path | None, factor: str) -> ReductionTable:
     upper = table["upper"].fillna(np.inf).to_numpy(dtype=float)
     sources = table["source"] if "source" in table.columns else pd.Series(dtype=str)
     source = "; ".join(dict.fromkeys(s for s in sources if s)) or str(source_path)
-    return ReductionTable(factor, upper, table["reduction"].to_numpy(dtype=float), source)
+    rows = tuple(
+        str(s) if s else str(source_path) for s in sources.reindex(table.index, fill_value="")
+    )
+    return ReductionTable(factor, upper, table["reduction"].to_numpy(dtype=float), source, rows)
 
 
 def _check_classes(table: pd.DataFrame, path: Path) -> None:

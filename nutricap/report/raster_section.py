@@ -119,7 +119,7 @@ def _reduction_tables(project: Project) -> pd.DataFrame | None:
                     "factor": factor.replace("_", " "),
                     "range": [_class_words(lo, hi, unit) for lo, hi in zip(lower, reduction.upper)],
                     "reduction_pct": 100.0 * reduction.reduction,
-                    "source": reduction.source,
+                    "source": list(reduction.row_sources),
                 }
             )
         )
