@@ -404,6 +404,8 @@ def test_report_shows_the_grid_rules_models_and_tables(tmp_path):
                   "Slope and distance-to-water reductions", "Minimum forage density"):  # fmt: skip
         assert title in methods
     assert "Model error in the bootstrap" not in methods  # no bootstrap in this run
+    assert "Available forage (raster path)" in methods
+    assert "overlaying the strata on the units" not in methods  # the vector path's wording
 
 
 def test_patch_pooling(landscape):

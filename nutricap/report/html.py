@@ -126,6 +126,7 @@ def render_report(
             intervals=intervals,
             sensitivity=extras.sensitivity_table is not None,
             trend=extras.trend is not None,
+            grid=estimate.grid is not None,
         )
         + raster_section.raster_methods(estimate, intervals=intervals),
         "parameters": provenance.parameter_tables(estimate, project, animals, forage),

@@ -206,11 +206,27 @@ def raster_methods(
     return tuple(method for flag, method in used if flag)
 
 
-def methods(*, intervals: bool, sensitivity: bool, trend: bool) -> tuple[Method, ...]:
-    """The method entries of this run: the core, then those of the optional analyses."""
+GRID_AVAILABLE_METHOD = Method(
+    "Available forage (raster path)",
+    "a(unit, stratum, class) = Σ_cells in unit and stratum  forage left [kg/ha] × cell area [ha]",
+    "Each cell belongs to the unit and stratum holding its centre; its forage of a class is "
+    "the class's raster (or calibrated, or plot-mean) biomass after the availability rules.",
+    "Sums over grid cells (common practice for zonal totals).",
+)
+
+
+def methods(
+    *, intervals: bool, sensitivity: bool, trend: bool, grid: bool = False
+) -> tuple[Method, ...]:
+    """The method entries of this run: the core (with the raster path's available forage
+    when ``grid``), then those of the optional analyses."""
+    core = tuple(
+        GRID_AVAILABLE_METHOD if grid and method.title == "Available forage" else method
+        for method in METHODS
+    )
     optional = (
         (intervals, BOOTSTRAP_METHOD),
         (sensitivity, SENSITIVITY_METHOD),
         (trend, TREND_METHOD),
     )
-    return METHODS + tuple(method for used, method in optional if used)
+    return core + tuple(method for used, method in optional if used)
