@@ -1,5 +1,3 @@
-import sys
+from nutricap.cli import run_and_exit
 
-from nutricap.cli import main
-
-sys.exit(main())
+run_and_exit()
