@@ -344,8 +344,8 @@ exclusions = ["private.gpkg"]
 """
 
 
-def test_every_rule_reported_and_forage_conserved(tmp_path):
-    folder = tmp_path / "inputs"
+def _landscape_with_rule_layers(folder: Path) -> Path:
+    """The landscape plus slope and distance-to-water rasters and an exclusion polygon."""
     write_landscape(folder)
     row, col = np.mgrid[0:ROWS, 0:COLS]
     _rewrite(folder, "slope", (row % 70).astype(float))  # 0-69 % (invented)
@@ -353,6 +353,11 @@ def test_every_rule_reported_and_forage_conserved(tmp_path):
     gpd.GeoDataFrame({"name": ["ranch"]}, geometry=[EXCLUDED], crs=CRS).to_file(
         folder / "private.gpkg", driver="GPKG"
     )
+    return folder
+
+
+def test_every_rule_reported_and_forage_conserved(tmp_path):
+    folder = _landscape_with_rule_layers(tmp_path / "inputs")
     no_rules = _grid_run(folder, RASTERS)
     ruled = _grid_run(folder, RASTERS, RULES_TEXT)
     report = ruled.grid.rules_report
@@ -378,14 +383,7 @@ def test_report_shows_the_grid_rules_models_and_tables(tmp_path):
     """report.html of a raster run: the rules table equals availability_rules.csv's
     'all units' rows, the packaged reduction tables appear with their source, and the
     methods list the raster steps used; a run without rasters has no such section."""
-    folder = tmp_path / "inputs"
-    write_landscape(folder)
-    row, col = np.mgrid[0:ROWS, 0:COLS]
-    _rewrite(folder, "slope", (row % 70).astype(float))  # 0-69 % (invented)
-    _rewrite(folder, "water", col * 20.0)  # 0-5980 m from water (invented)
-    gpd.GeoDataFrame({"name": ["ranch"]}, geometry=[EXCLUDED], crs=CRS).to_file(
-        folder / "private.gpkg", driver="GPKG"
-    )
+    folder = _landscape_with_rule_layers(tmp_path / "inputs")
     out = tmp_path / "results"
     run_estimate(_project(folder, project_text(RASTERS, RULES_TEXT)), out)
     page = (out / "report.html").read_text(encoding="utf-8")
