@@ -442,13 +442,16 @@ def compare(project: Project, scenario_name: str, progress: Progress | None = No
     and the same pair for ECC and allowable-use capacity.
     """
     say = progress or (lambda message: None)
-    result = estimate(project, progress)
-    if result.areas.pieces is None:
+    config = project.config
+    if config.rasters is not None or config.availability is not None:
         raise InputError(
-            "treatment scenarios need the strata layer (vector supply)",
+            "treatment scenarios are computed on the polygon path only",
             source=project.path,
             location=f"key 'scenarios.{scenario_name}'",
+            expected="a project without [rasters] and [availability] (strata polygons, plots)",
+            found="a raster project",
         )
+    result = estimate(project, progress)
     scenario = load_scenario(project, scenario_name, result.areas, result.supply.strata)
     section = scenario.section
     say(f"scenario {scenario_name!r}: {section.first_year}–{section.last_year}")
