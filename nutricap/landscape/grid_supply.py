@@ -111,6 +111,7 @@ class GridResult:
     show_progress: bool = False
     calibrated_sums: list[CalibratedSums] = field(default_factory=list, repr=False)
     cluster: ClusterRun | None = field(default=None, repr=False)
+    rules: rules_mod.CellRules | None = field(default=None, repr=False)  # the rules applied
 
     def describe(self) -> dict:
         """Grid, resampling and rules in plain values, for the run manifest."""
@@ -274,7 +275,8 @@ def _assemble(
     compression = project.config.rasters.density_compression if project.config.rasters else "zstd"
     return GridResult(
         problem, areas, supply, report, calibration, notes, grid, resampled, windows, cache,
-        row_of_key, stratum_of_key, setup.classes, compression, show, calibrated,
+        row_of_key, stratum_of_key, setup.classes, compression, show, calibrated, None,
+        setup.rules,
     )  # fmt: skip
 
 

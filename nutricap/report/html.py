@@ -121,7 +121,7 @@ def render_report(
         "trend": extra_sections.trend(extras.trend, estimate.by_unit),
         "unit_table": unit_table(estimate.by_unit, extras.interval_level),
         "supply": sections.supply(estimate),
-        "raster": raster_section.raster_landscape(estimate, project),
+        "raster": raster_section.raster_landscape(estimate),
         "methods": methods(
             intervals=intervals,
             sensitivity=extras.sensitivity_table is not None,

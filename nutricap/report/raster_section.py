@@ -12,7 +12,6 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
-from nutricap.landscape.availability import load_reduction_table
 from nutricap.report import methods_text
 from nutricap.report.formatting import (
     ONE_DECIMAL,
@@ -24,7 +23,6 @@ from nutricap.report.formatting import (
 )
 
 if TYPE_CHECKING:
-    from nutricap.project import Project
     from nutricap.workflow import Estimate
 
 RULE_COLUMNS = [
@@ -61,14 +59,14 @@ REDUCTION_COLUMNS = [
 ]
 
 
-def raster_landscape(estimate: Estimate, project: Project) -> dict | None:
+def raster_landscape(estimate: Estimate) -> dict | None:
     """The raster section's context: grid facts, rules table, models, reduction tables."""
     grid = estimate.grid
     if grid is None:
         return None
     rules = grid.rules_report[grid.rules_report["unit_id"] == "all units"]
     calibration = grid.calibration_report
-    reductions = _reduction_tables(project)
+    reductions = _reduction_tables(grid.rules)
     return {
         "facts": _grid_facts(grid),
         "rules": table(rules, RULE_COLUMNS),
@@ -97,26 +95,18 @@ def _cell_words(grid) -> str:
     return f"{abs(transform.a):g} × {abs(transform.e):g} {units} ({grid.grid.cell_area_ha:g} ha)"
 
 
-def _reduction_tables(project: Project) -> pd.DataFrame | None:
-    """The slope and distance-to-water tables of the run (the packaged ones or the user's)."""
-    section = project.config.availability
-    if section is None:
-        return None
-    used = [
-        ("slope", section.slope, section.slope_table, "%"),
-        ("distance_to_water", section.distance_to_water, section.water_table, "m"),
-    ]
+def _reduction_tables(rules) -> pd.DataFrame | None:
+    """The slope and distance-to-water tables the run applied (packaged or the user's)."""
+    used = [(rules.slope_table, "%"), (rules.water_table, "m")] if rules is not None else []
     frames = []
-    for factor, layer, path, unit in used:
-        if layer is None:
+    for reduction, unit in used:
+        if reduction is None:
             continue
-        resolved = None if path is None else (project.folder / path).resolve()
-        reduction = load_reduction_table(resolved, factor)
         lower = np.concatenate(([0.0], reduction.upper[:-1]))
         frames.append(
             pd.DataFrame(
                 {
-                    "factor": factor.replace("_", " "),
+                    "factor": reduction.factor.replace("_", " "),
                     "range": [_class_words(lo, hi, unit) for lo, hi in zip(lower, reduction.upper)],
                     "reduction_pct": 100.0 * reduction.reduction,
                     "source": list(reduction.row_sources),
