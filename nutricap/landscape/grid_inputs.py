@@ -27,7 +27,6 @@ from nutricap.landscape.vectors import (
     choose_area_crs,
     read_layer,
 )
-from nutricap.landscape.window_pass import STRATA_RASTER_KEY
 
 
 def layer_specs(project) -> list[LayerSpec]:
@@ -124,12 +123,11 @@ def strata_map(project, strata: gpd.GeoDataFrame | None) -> StrataMap:
         return StrataMap(
             list(strata["stratum"]),
             fraction if (fraction < 1).any() else None,
-            project.input_path("strata"),
+            project.strata_file(),
             polygons=strata,
         )
-    paths = project.input_paths()
-    codes = read_strata_codes(paths["rasters.strata.codes"])
-    return StrataMap(codes.strata, codes.accessible_fraction, paths[STRATA_RASTER_KEY], codes=codes)
+    codes = read_strata_codes(project.input_paths()["rasters.strata.codes"])
+    return StrataMap(codes.strata, codes.accessible_fraction, project.strata_file(), codes=codes)
 
 
 def strata_supply(plots, strata: StrataMap, strata_classes, all_classes, project) -> StratumSupply:
