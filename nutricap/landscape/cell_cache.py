@@ -34,7 +34,7 @@ class CellCache:
     """
 
     def __init__(self, windows: list[Window], n_classes: int) -> None:
-        self.windows_list = windows
+        self.windows = windows
         self.n_classes = n_classes
         cells = np.array([int(w.height) * int(w.width) for w in windows], dtype=np.int64)
         self.cells = cells
@@ -59,16 +59,15 @@ class CellCache:
     def finish(self) -> None:
         os.close(self._fd)
 
-    def windows(
-        self, windows: list[Window], n_classes: int
-    ) -> Iterator[tuple[Window, np.ndarray, np.ndarray]]:
+    def records(self) -> Iterator[tuple[Window, np.ndarray, np.ndarray]]:
         """Yield each window with its cells' keys (cells,) and forage left (classes, cells).
 
         The arrays share one buffer: they are valid until the next window is yielded.
         """
+        n_classes = self.n_classes
         buffer = bytearray(int(4 * self.cells.max(initial=0) * (1 + n_classes)))
         with open(self.path, "rb", buffering=0) as stream:
-            for window in windows:
+            for window in self.windows:
                 n = int(window.height) * int(window.width)
                 record = memoryview(buffer)[: 4 * n * (1 + n_classes)]
                 _read_into(stream, record, self.path)

@@ -152,8 +152,7 @@ def _cached_density(
     being written).
     """
     scratch = Scratch()
-    n_classes = per_class.shape[0]
-    for number, (window, keys, kg) in enumerate(result.cache.windows(result.windows, n_classes)):
+    for number, (window, keys, kg) in enumerate(result.cache.records()):
         shape = (int(window.height), int(window.width))
         density = scratch.take(f"density {number % 2}", shape, np.float32)
         window_density(keys, kg, per_class, dump, density.reshape(-1), scratch)
