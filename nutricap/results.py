@@ -27,7 +27,6 @@ def unit_table(
     problem: CapacityProblem,
     solution: Solution,
     areas: StratumAreas,
-    herd: energetics.HerdRequirement,
     season_days: float,
 ) -> pd.DataFrame:
     """The per-unit capacity table (the contract columns first)."""
@@ -39,6 +38,7 @@ def unit_table(
     ncc_days = problem.sum_by_unit(ncc.animal_days)
     ecc_days = problem.sum_by_unit(solution.ecc_animal_days)
     eaten = problem.sum_by_unit(ncc.eaten_kg)
+    usable_kg = problem.sum_by_unit(problem.available_kg @ problem.items.allowable_use)
     deciding = _deciding_rows(row_forage_kg, problem.row_unit, unit_ids.size)
     marginal = ncc.marginal_item[deciding]
     table = pd.DataFrame(
@@ -62,7 +62,8 @@ def unit_table(
             "diet_de_kcal_per_g": mixed_diet_quality(eaten, problem.items.de_kcal_per_g),
             "diet_dp_pct": mixed_diet_quality(eaten, problem.items.dp_pct),
             "ecc_per_km2": ecc_days / season_days / (area_ha / HA_PER_KM2),
-            "ncc_aum": energetics.animal_unit_months(ncc_days, herd.animal_unit_equivalent),
+            "ncc_aum": energetics.animal_unit_months(eaten.sum(axis=1)),
+            "allowable_use_aum": energetics.animal_unit_months(usable_kg),
         }
     )
     return table

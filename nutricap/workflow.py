@@ -136,7 +136,7 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
         require_protein_values(inputs.forage_classes, project)
     say("solving capacity per unit")
     solution = solve(problem, herd, target, project)
-    by_unit = unit_table(problem, solution, areas, herd, days)
+    by_unit = unit_table(problem, solution, areas, days)
     uncertainty = assess_uncertainty(project, inputs, supply, problem, herd, target, say, grid)
     if uncertainty.bootstrap is not None:
         by_unit = add_intervals(by_unit, uncertainty.bootstrap, days)

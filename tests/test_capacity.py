@@ -500,3 +500,30 @@ def test_bad_input_to_ecc_and_allowable_use() -> None:
         allowable_use_capacity([10.0], [1.2], 2.0)
     with pytest.raises(InputError, match="intake_kg_per_day"):
         allowable_use_capacity([10.0], [0.5], np.nan)
+
+
+def test_low_protein_forage_hand_example_and_linprog():
+    # Hand example (worked for this test from the Robbins et al. 1987 DP line): 1,000 kg at
+    # 2 % CP (DP = -3.87 + 0.9283 x 2 = -2.0134 %) and 1,000 kg at 10 % CP (DP 5.413 %), diet DP
+    # at least 2.94 %, energy not limiting. All of the 10 % forage is eaten; the 2 % forage
+    # until 1000 x (5.413 - 2.94) = x (2.94 + 2.0134), x = 499.25 kg: 1,499.25 kg in all.
+    # Clipping the 2 % forage's DP at 0 would give 1000 + 2473 / 2.94 = 1,841 kg (23 % high).
+    from nutricap.science.forage_quality import digestible_protein_pct
+
+    dp = digestible_protein_pct([2.0, 10.0])
+    result = nutritional_capacity(
+        [1000.0, 1000.0], [2.6, 2.6], 1.0, 2.0, dp_pct=dp, dp_min_pct=2.94
+    )
+    expected_kg = 1000.0 + 1000.0 * (5.413 - 2.94) / (2.94 + 2.0134)
+    assert expected_kg == pytest.approx(1499.25, abs=0.01)
+    assert result.animal_days[0] == pytest.approx(expected_kg, rel=1e-12)
+    assert result.limiting_factor[0] == "protein"
+    # Independent solver: scipy.optimize.linprog (HiGHS) on the same LP with the linear DP.
+    lp = linprog(
+        c=[-1.0, -1.0],
+        A_ub=[-(np.asarray(dp) - 2.94), -(np.array([2.6, 2.6]) - 2.0)],
+        b_ub=[0.0, 0.0],
+        bounds=[(0, 1000.0), (0, 1000.0)],
+        method="highs",
+    )
+    assert -lp.fun == pytest.approx(result.animal_days[0], rel=1e-9)

@@ -131,13 +131,21 @@ def test_animal_unit_equivalent_smaller_animals_by_metabolic_ratio():
     np.testing.assert_allclose(en.animal_unit_equivalent(masses), [0.125, 0.594604], rtol=1e-6)
 
 
-def test_animal_unit_months():
-    # NRPH: AUM = animal-days x AUE / 30. One AU for 30 days = 1 AUM; 100 animals of 0.2 AU
-    # for 90 days = 9000 x 0.2 / 30 = 60 AUM (hand-computed).
-    assert en.animal_unit_months(30.0, 1.0) == pytest.approx(1.0)
-    np.testing.assert_allclose(en.animal_unit_months([30.0, 9000.0], [1.0, 0.2]), [1.0, 60.0])
-    with pytest.raises(InputError, match="animal_days"):
-        en.animal_unit_months(-1.0, 1.0)
+def test_animal_unit_months_are_forage_over_780_lb():
+    # An AUM is forage: 26 lb DM/day x 30 days = 780 lb (University of Nebraska drought-planning
+    # page, read: "Carrying Capacity (AUM's) = total production x utilization factors / 780 lbs
+    # per month"; 30-day AUM: SRM glossary 1998, read). 780 lb = 353.802 kg (1 lb = 0.45359237
+    # kg exactly). Worked by hand: 261,000 kg / 353.802 kg = 737.70 AUM.
+    assert en.AUM_FORAGE_KG == pytest.approx(780 * 0.45359237, rel=1e-15)
+    assert en.animal_unit_months(261_000.0) == pytest.approx(737.70, abs=0.005)
+    # Range-stocking worked example (Launchbaugh, "Calculating a Stocking Rate", University of
+    # Idaho Rangeland Ecology & Management, read at studylib.net/doc/5667305): 800 lb/ac on
+    # 550 ac at 45 % proper use = 198,000 lb of forage; at 780 lb per AUM: 253.85 AUM.
+    forage_kg = 800 * 550 * 0.45 * 0.45359237
+    assert forage_kg == pytest.approx(198_000 * 0.45359237, rel=1e-12)
+    assert en.animal_unit_months(forage_kg) == pytest.approx(198_000 / 780, rel=1e-12)
+    with pytest.raises(InputError, match="forage_kg"):
+        en.animal_unit_months(-1.0)
 
 
 # --- Hobbs & Swift 1985: minimum diet quality --------------------------------------------------

@@ -82,10 +82,14 @@ def test_tannin_lowers_dp():
     np.testing.assert_allclose(-np.diff(values[:3]), [0.591, 0.591], rtol=1e-9)
 
 
-def test_dp_clipped_at_zero():
-    # -3.87 + 0.9283 x 3 = -1.0851 -> clipped to 0 (documented); CP 10 with BSA 1.0:
-    # 5.413 - 11.82 < 0 -> 0. Zero crossing at CP = 3.87 / 0.9283 = 4.1689 % (by hand).
-    np.testing.assert_array_equal(fq.digestible_protein_pct([3.0, 10.0], [0.0, 1.0]), [0.0, 0.0])
+def test_dp_is_linear_below_zero():
+    # Robbins et al. 1987: DP is linear in CP; the negative intercept is metabolic faecal
+    # protein, so low-protein forage has a negative value, which is kept (not clipped).
+    # By hand: -3.87 + 0.9283 x 3 = -1.0851; CP 10 with BSA 1.0: 5.413 - 11.82 = -6.407.
+    # Zero crossing at CP = 3.87 / 0.9283 = 4.1689 %.
+    np.testing.assert_allclose(
+        fq.digestible_protein_pct([3.0, 10.0], [0.0, 1.0]), [-1.0851, -6.407], rtol=1e-12
+    )
     assert fq.digestible_protein_pct(4.1689) == pytest.approx(0.0, abs=1e-4)
     assert fq.digestible_protein_pct(4.2) > 0.0
 
@@ -100,10 +104,13 @@ def test_dp_rejects_bad_inputs(cp, bsa, name):
 
 
 @given(PERCENT, BSA)
-def test_dp_is_between_zero_and_crude_protein(cp, bsa):
-    # From the equation: slope < 1 and negative intercept, so 0 <= DP < CP for CP > 0.
+def test_dp_is_below_crude_protein_and_linear(cp, bsa):
+    # From the equation: slope < 1 and a negative intercept, so DP < CP; and the mass-weighted
+    # mean of two forages' DP equals the DP of their mean CP (linearity, no clipping).
     dp = fq.digestible_protein_pct(cp, bsa)
-    assert 0.0 <= dp <= cp
+    assert dp < cp or cp == 0.0
+    mean_of_dp = 0.5 * (dp + fq.digestible_protein_pct(100.0 - cp, bsa))
+    assert mean_of_dp == pytest.approx(fq.digestible_protein_pct(50.0, bsa), abs=1e-9)
 
 
 # --- mixed diet ------------------------------------------------------------------------------

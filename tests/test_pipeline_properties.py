@@ -41,7 +41,7 @@ PIPELINE = settings(max_examples=15, deadline=None)
 NUMERIC = [
     "area_ha", "available_forage_kg", "ncc_animal_days", "ncc_animals", "ecc_animal_days",
     "ecc_animals", "allowable_use_animals", "ncc_per_km2", "mapped_ha", "accessible_ha",
-    "ecc_per_km2", "ncc_aum",
+    "ecc_per_km2", "ncc_aum", "allowable_use_aum",
 ]  # fmt: skip
 ADDITIVE = ["area_ha", "available_forage_kg", "ecc_animal_days", "allowable_use_animals"]
 ANIMALS = pd.DataFrame(
@@ -301,9 +301,8 @@ def test_digestible_and_metabolizable_energy_round_trip(de):
     np.testing.assert_allclose(back, de, rtol=1e-12, atol=1e-9)
 
 
-@given(days=finite, mass=st.floats(min_value=1.0, max_value=1000.0))
-def test_animal_unit_months_round_trip(days, mass):
-    # AUM = animal-days × AUE / 30 (NRCS animal-unit month: 30 animal-unit days).
-    aue = energetics.animal_unit_equivalent(mass)
-    back = energetics.animal_unit_months(days, aue) * 30 / aue
-    np.testing.assert_allclose(back, days, rtol=1e-12, atol=1e-9)
+@given(forage=finite)
+def test_animal_unit_months_round_trip(forage):
+    # AUM = forage / (26 lb x 30 days) (NRCS animal-unit month as a quantity of forage).
+    back = energetics.animal_unit_months(forage) * 26 * 30 * energetics.KG_PER_LB
+    np.testing.assert_allclose(back, forage, rtol=1e-12, atol=1e-9)

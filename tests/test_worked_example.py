@@ -275,6 +275,18 @@ def test_pipeline_stock_units_match_bulletin(worked_example_project: Path) -> No
     assert days_for_current == pytest.approx(DAYS_AT_CURRENT_STOCKING, abs=0.5)
 
 
+def test_pipeline_aum_are_forage_over_780_lb(worked_example_project: Path) -> None:
+    row = run_pipeline(worked_example_project).loc["pasture"]
+    # 193,592 lb grazable forage (B-1646) ÷ 780 lb per AUM (26 lb/day x 30 days; University of
+    # Nebraska drought-planning page and SRM glossary, read) = 248.19 AUM, by hand.
+    assert row["allowable_use_aum"] == pytest.approx(GRAZABLE_FORAGE_LB / 780, rel=1e-5)
+    assert row["allowable_use_aum"] == pytest.approx(248.19, abs=0.01)
+    # NCC AUM: the forage eaten at NCC (animal-days x the modelled intake) ÷ 780 lb, not
+    # animal-days x animal-unit equivalent ÷ 30.
+    eaten_lb = row["ncc_animal_days"] * STOCK_UNIT_INTAKE_LB_PER_DAY
+    assert row["ncc_aum"] == pytest.approx(eaten_lb / 780, rel=1e-5)
+
+
 def test_pipeline_area_is_the_published_acreage(worked_example_project: Path) -> None:
     row = run_pipeline(worked_example_project).loc["pasture"]
     assert row["area_ha"] == pytest.approx(PASTURE_ACRES * HA_PER_ACRE, rel=1e-9)

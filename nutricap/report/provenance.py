@@ -102,7 +102,9 @@ def _forage_rows(forage: pd.DataFrame, project: Project) -> dict:
         numeric_column("dmd_pct", "DMD [%]", ONE_DECIMAL),
         numeric_column("cp_pct", "CP [% DM]", ONE_DECIMAL),
         numeric_column("tannin", "Tannin [mg BSA/mg]", THREE_DECIMALS),
-        numeric_column("dp_pct", "DP from CP [% DM]", TWO_DECIMALS),
+        numeric_column(
+            "dp_pct", "DP from CP [% DM; below 0: costs more protein than it gives]", TWO_DECIMALS
+        ),
         numeric_column("allowable_use", "Allowable use [fraction]", TWO_DECIMALS),
         Column("key", "Key"),
         Column("provenance", "Provenance"),

@@ -207,7 +207,8 @@ UNIT_COLUMNS = [
     numeric_column("ecc_animals", "ECC [animals]"),
     numeric_column("allowable_use_animals", "Allowable-use capacity [animals]"),
     numeric_column("ncc_per_km2", "NCC [animals/km²]", ONE_DECIMAL),
-    numeric_column("ncc_aum", "NCC [AUM]"),
+    numeric_column("ncc_aum", "NCC forage eaten [AUM]"),
+    numeric_column("allowable_use_aum", "Forage at allowable use [AUM]"),
     Column("limiting_factor", "Limiting factor"),
     Column("marginal_forage_class", "Marginal forage class"),
     numeric_column("diet_de_kcal_per_g", "Diet DE at NCC [kcal/g DM]", THREE_DECIMALS),
@@ -223,6 +224,7 @@ ADDITIVE_COLUMNS = (
     "ecc_animals",
     "allowable_use_animals",
     "ncc_aum",
+    "allowable_use_aum",
     "current_animals",
 )
 

@@ -615,15 +615,14 @@ def animal_unit_equivalent(body_mass_kg: ArrayLike) -> FloatOrArray:
     return as_output(ratio**METABOLIC_EXPONENT)
 
 
-def animal_unit_months(animal_days: ArrayLike, animal_unit_equivalent: ArrayLike) -> FloatOrArray:
-    """Animal-unit months from animal-days.
+def animal_unit_months(forage_kg: ArrayLike) -> FloatOrArray:
+    """Animal-unit months of forage: a quantity of forage dry matter expressed in AUM.
 
     Parameters
     ----------
-    animal_days : float or array_like
-        Animal-days (animals x days), >= 0.
-    animal_unit_equivalent : float or array_like
-        Animal-unit equivalent of one animal [AU], >= 0.
+    forage_kg : float or array_like
+        Forage dry matter [kg], >= 0: e.g. forage eaten at NCC, or forage usable at allowable
+        use.
 
     Returns
     -------
@@ -632,12 +631,21 @@ def animal_unit_months(animal_days: ArrayLike, animal_unit_equivalent: ArrayLike
 
     Notes
     -----
-    ``AUM = animal_days * AUE / 30`` (one AUM = 30 animal-unit days, i.e. 26 lb x 30 =
-    780 lb oven-dry forage; NRCS NRPH, see the module constants for what was read).
+    An AUM is a quantity of forage, the dry matter one animal unit eats in a month:
+    26 lb/day x 30 days = 780 lb = 353.8 kg (see :data:`AUM_FORAGE_KG` and the module
+    constants for what was read), so ``AUM = forage_kg / 353.8``. It is not animal-days x
+    animal-unit equivalent / 30: that would credit every animal with the animal unit's
+    26 lb x AUE a day, whatever the intake the capacity was computed with.
+
+    Examples
+    --------
+    Usable forage of 261,000 kg at 353.8 kg per AUM (worked by hand):
+
+    >>> round(animal_unit_months(261_000.0), 1)
+    737.7
     """
-    days = checked_array(animal_days, "animal_days", minimum=0.0)
-    aue = checked_array(animal_unit_equivalent, "animal_unit_equivalent", minimum=0.0)
-    return as_output(days * aue / DAYS_PER_ANIMAL_UNIT_MONTH)
+    forage = checked_array(forage_kg, "forage_kg", minimum=0.0)
+    return as_output(forage / AUM_FORAGE_KG)
 
 
 # --- herd average --------------------------------------------------------------------------

@@ -103,16 +103,19 @@ def digestible_protein_pct(
     Returns
     -------
     float or numpy.ndarray
-        Digestible protein [% of dry matter], >= 0.
+        Digestible protein [% of dry matter]; negative for forage below about 4.2 % crude
+        protein (or with enough tannin).
 
     Notes
     -----
-    ``DP = max(0, -3.87 + 0.9283 * CP - 11.82 * BSA)`` (Robbins et al. 1987; the CP terms read
+    ``DP = -3.87 + 0.9283 * CP - 11.82 * BSA`` (Robbins et al. 1987; the CP terms read
     in a secondary source citing Hanley et al. 1992, the BSA slope from memory, see
-    :data:`ROBBINS_1987_DP_COEFFICIENTS`). The intercept is metabolic faecal protein lost per
-    unit intake, so the equation turns negative for forage below about 4.2 % crude protein (or
-    with enough tannin); a forage cannot supply negative protein, so the result is clipped at
-    0. The loss such a diet causes is carried by the requirement, not by the forage value.
+    :data:`ROBBINS_1987_DP_COEFFICIENTS`). The relation is linear and is **not** clipped at 0:
+    the negative intercept is metabolic faecal protein, lost in proportion to the dry matter
+    eaten, so a forage below about 4.2 % CP costs the animal more protein than it supplies.
+    A mixed diet's DP is then the mass-weighted mean of the unclipped item values
+    (:func:`mixed_diet_quality`), which is what the capacity solver needs. Clipping an item
+    at 0 would credit low-protein forage with protein it does not supply.
 
     References
     ----------
@@ -123,12 +126,14 @@ def digestible_protein_pct(
     --------
     >>> round(digestible_protein_pct(10.0), 3)
     5.413
+    >>> round(digestible_protein_pct(2.0), 4)
+    -2.0134
     """
     crude = _percent(cp_pct, "cp_pct")
     tannin = checked_array(tannin_bsa_mg_per_mg, "tannin_bsa_mg_per_mg", minimum=0.0)
     c = ROBBINS_1987_DP_COEFFICIENTS
     linear = c["intercept_pct"] + c["cp_slope"] * crude + c["bsa_slope_pct_per_mg_per_mg"] * tannin
-    return as_output(np.maximum(linear, 0.0))
+    return as_output(linear)
 
 
 def mixed_diet_quality(eaten_kg: ArrayLike, quality: ArrayLike) -> FloatOrArray:
