@@ -113,3 +113,32 @@ def test_outputs_written_and_manifest_hashes_inputs(example_project, tmp_path):
     assert "Caution" in (out / "capacity_by_unit.md").read_text()
     leftovers = [p.name for p in tmp_path.iterdir() if p.name.startswith(".")]
     assert leftovers == []
+
+
+def test_protein_limited_ncc_equals_an_lp_with_the_linear_dp_equation(example_estimate):
+    # Independent check of the whole pipeline's NCC: for every unit, scipy.optimize.linprog
+    # (HiGHS) maximises forage eaten under the diet DE and DP thresholds and the allowable-use
+    # caps, with item DP recomputed here from crude protein by the linear Robbins et al. (1987)
+    # equation (DP = -3.87 + 0.9283 CP - 11.82 BSA; CP terms read in a secondary table citing
+    # Hanley et al. 1992, BSA slope from memory), never clipped at 0.
+    from scipy.optimize import linprog
+
+    result = example_estimate
+    items, problem = result.problem.items, result.problem
+    dp = -3.87 + 0.9283 * items.cp_pct - 11.82 * items.tannin
+    assert (dp < 0).any(), "the example should hold forage below 4.2 % CP"
+    de_min, dp_min = result.target.de_min_kcal_per_g, result.target.dp_min_pct
+    limits = []
+    for row in range(problem.available_kg.shape[0]):
+        allowed = problem.available_kg[row] * items.allowable_use
+        lp = linprog(
+            c=-np.ones(items.size),
+            A_ub=np.vstack([-(items.de_kcal_per_g - de_min), -(dp - dp_min)]),
+            b_ub=[0.0, 0.0],
+            bounds=list(zip(np.zeros(items.size), allowed)),
+            method="highs",
+        )
+        limits.append(-lp.fun)
+    lp_days = problem.sum_by_unit(np.array(limits)) / result.herd.intake_kg_per_day
+    np.testing.assert_allclose(result.by_unit["ncc_animal_days"], lp_days, rtol=1e-8)
+    assert (result.by_unit["limiting_factor"].str.contains("protein")).any()
