@@ -21,6 +21,7 @@ from scipy.optimize import linprog
 
 from nutricap.errors import InputError
 from nutricap.science import capacity
+from nutricap.science import energetics as energetics_module
 from nutricap.science.capacity import (
     allowable_use_capacity,
     ecological_capacity,
@@ -527,3 +528,65 @@ def test_low_protein_forage_hand_example_and_linprog():
         method="highs",
     )
     assert -lp.fun == pytest.approx(result.animal_days[0], rel=1e-9)
+
+
+_STATES = sorted(set(energetics_module.NUTRITIONAL_STATES["state"]))
+_SEASONS = list(energetics_module.SEASONS)
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    target=st.sampled_from(_STATES),
+    season=st.sampled_from(_SEASONS),
+    herd_states=st.lists(st.sampled_from(_STATES), min_size=1, max_size=4),
+    data=st.data(),
+)
+def test_ncc_never_exceeds_ecc_for_any_packaged_state_season_and_herd(
+    target, season, herd_states, data
+):
+    # Property of the method (docs/methods.md): with the packaged requirement table, for every
+    # target state, season and herd of packaged states, NCC (herd's average animal eating its
+    # intake of a diet at the target state's threshold) <= ECC (the same animal at
+    # maintenance), with and without a DP constraint. No use caps on ECC.
+    en = energetics_module
+    n = len(herd_states)
+    masses = data.draw(hnp.arrays(float, n, elements=st.floats(20.0, 400.0)))
+    shares = data.draw(hnp.arrays(float, n, elements=st.floats(0.05, 1.0)))
+    herd = en.herd_requirement(masses, shares, herd_states, season)
+    t_mass = data.draw(st.floats(20.0, 400.0))
+    de_min = en.required_diet_de_kcal_per_g(
+        en.daily_de_requirement_kcal_per_day(t_mass, target, season),
+        en.max_dry_matter_intake_kg_per_day(t_mass, target, season),
+    )
+    items = data.draw(st.integers(1, 6))
+    available = data.draw(hnp.arrays(float, (3, items), elements=st.floats(0.0, 1e6)))
+    # DE near the threshold, where a requirement table that asks too little shows.
+    de = de_min * data.draw(hnp.arrays(float, items, elements=st.floats(0.8, 1.3)))
+    dp = data.draw(hnp.arrays(float, items, elements=st.floats(-3.0, 20.0)))
+    ecc = ecological_capacity(available, de, herd.maintenance_de_kcal_per_day)
+    for protein in ({}, {"dp_pct": dp, "dp_min_pct": 3.0}):
+        ncc = nutritional_capacity(available, de, herd.intake_kg_per_day, de_min, **protein)
+        assert np.all(ncc.animal_days <= ecc * (1 + 1e-9) + 1e-9)
+
+
+@pytest.mark.parametrize("season", _SEASONS)
+@pytest.mark.parametrize("target", _STATES)
+@pytest.mark.parametrize("herd_state", _STATES)
+def test_ncc_never_exceeds_ecc_at_the_threshold_for_every_state_pair(season, target, herd_state):
+    # The hardest case of the property above, exhaustively: a one-class herd (a mix of classes
+    # is a share-weighted combination of these) and forage whose DE equals the target
+    # threshold, where NCC eats everything and ECC counts its DE. A table whose state asks
+    # less than maintenance of the season fails here (e.g. summer gestation falling back to an
+    # "any" row, the fault of an earlier table).
+    en = energetics_module
+    herd = en.herd_requirement([65.0], [1.0], [herd_state], season)
+    de_min = en.required_diet_de_kcal_per_g(
+        en.daily_de_requirement_kcal_per_day(65.0, target, season),
+        en.max_dry_matter_intake_kg_per_day(65.0, target, season),
+    )
+    available = np.array([[1000.0, 2000.0]])
+    de = np.full(2, de_min)
+    ncc = nutritional_capacity(available, de, herd.intake_kg_per_day, de_min)
+    ecc = ecological_capacity(available, de, herd.maintenance_de_kcal_per_day)
+    assert ncc.animal_days[0] == pytest.approx(3000.0 / herd.intake_kg_per_day, rel=1e-9)
+    assert ncc.animal_days[0] <= ecc[0] * (1 + 1e-12)

@@ -229,8 +229,42 @@ def test_table_has_required_states_columns_and_sources():
 
 def test_lookup_uses_season_row_then_falls_back_to_any():
     assert en.state_parameters("maintenance", "winter")["season"] == "winter"
-    assert en.state_parameters("gestation", "winter")["season"] == "any"
+    assert en.state_parameters("gestation", "winter")["season"] == "winter"
     assert en.state_parameters("maintenance")["season"] == "any"
+    table = en.check_nutritional_states(_custom_table(), source="mine.csv")
+    assert en.state_parameters("lactation", "summer", table=table)["season"] == "any"
+
+
+def test_packaged_table_has_a_row_for_every_state_and_season():
+    table = en.NUTRITIONAL_STATES
+    for state in table["state"].unique():
+        assert set(table.loc[table["state"] == state, "season"]) == set(en.SEASONS), state
+    assert table["scope"].str.contains("cervid").all()
+
+
+def test_packaged_table_keeps_ncc_below_ecc_in_every_state_and_season():
+    # Property of the method (docs/methods.md, "NCC and ECC"): NCC <= ECC for any herd when
+    # every state's diet DE threshold is at least maintenance's and its intake at least
+    # maintenance's, in the same season. The packaged table must hold it everywhere.
+    assert en.capacity_ordering_problems() == []
+
+
+def test_capacity_ordering_problems_name_the_offending_row():
+    # The summer gestation case of the earlier table (gestation fell back to an "any" row that
+    # asked less than maintenance in summer); parameters invented for the example.
+    table = en.check_nutritional_states(
+        _custom_table(
+            state=["maintenance", "gestation", "maintenance"],
+            season=["any", "any", "summer"],
+            bmr_multiplier=[2.0, 2.1, 2.2],
+            intake_g_per_kg075_per_day=[75.0, 78.0, 85.0],
+            dp_g_per_kg075_per_day=[2.5, 2.6, 2.9],
+            source=["invented for the example"] * 3,
+        ),
+        source="mine.csv",
+    )
+    problems = en.capacity_ordering_problems(table)
+    assert any("gestation" in p and "summer" in p for p in problems)
 
 
 def test_lookup_normalises_names_and_returns_plain_values():

@@ -392,6 +392,64 @@ def _plain(value: object) -> object:
     return value.item() if isinstance(value, np.generic) else value
 
 
+def capacity_ordering_problems(table: pd.DataFrame | None = None) -> list[str]:
+    """Rows of a nutritional-state table under which NCC could exceed ECC, in words.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame, optional
+        A table checked by :func:`check_nutritional_states`; default
+        :data:`NUTRITIONAL_STATES`.
+
+    Returns
+    -------
+    list of str
+        One sentence per (state, season) that breaks the ordering; empty when NCC <= ECC
+        holds for every herd and target state of the table.
+
+    Notes
+    -----
+    NCC animal-days are days of the herd's average animal eating its intake I_h of a diet of
+    DE >= T (T of the target state); ECC animal-days are days of the same animal at
+    maintenance, M_h. So NCC <= ECC when T I_h >= M_h (docs/methods.md). With
+    T = 70 m_t / (0.82 i_t) and each class c eating i_c W_c^0.75, it holds for every herd
+    when, in each season, every state's ``m / i`` is at least maintenance's and every state's
+    intake ``i`` is at least maintenance's. A season without its own row uses the state's
+    "any" row, as :func:`state_parameters` does.
+    """
+    table = NUTRITIONAL_STATES if table is None else table
+    if "maintenance" not in set(table["state"]):
+        return ["the table has no maintenance state, so ECC (at maintenance) is undefined"]
+    problems = []
+    for season in SEASONS:
+        try:
+            base = state_parameters("maintenance", season, table=table)
+        except InputError:
+            continue
+        for state in table["state"].unique():
+            try:
+                row = state_parameters(state, season, table=table)
+            except InputError:
+                continue
+            problems.extend(_ordering_problems(row, base, season))
+    return problems
+
+
+def _ordering_problems(row: dict, base: dict, season: str) -> list[str]:
+    intake, base_intake = row["intake_g_per_kg075_per_day"], base["intake_g_per_kg075_per_day"]
+    ratio, base_ratio = row["bmr_multiplier"] / intake, base["bmr_multiplier"] / base_intake
+    where = f"state {row['state']!r} in season {season!r} (row season {row['season']!r})"
+    problems = []
+    if ratio < base_ratio * (1.0 - 1e-12):
+        problems.append(
+            f"{where}: its diet DE threshold (bmr_multiplier / intake = {ratio:.5f}) is below "
+            f"maintenance's ({base_ratio:.5f})"
+        )
+    if intake < base_intake:
+        problems.append(f"{where}: its intake {intake:g} is below maintenance's {base_intake:g}")
+    return problems
+
+
 # --- requirements of one animal ----------------------------------------------------------------
 
 
