@@ -15,27 +15,35 @@ import typing
 from pathlib import Path
 from typing import Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+from pydantic import BaseModel, Field, ValidationError, model_validator
 
 from nutricap.errors import ProjectFileError
 from nutricap.landscape.raster_config import (
     AvailabilitySection,
+    InputPath,
     RasterSection,
+    StrictSection,
     raster_input_paths,
 )
 
+#: Longest season [days]: a year, leap day included. The same bound holds for
+#: ``season_days`` and for the span of ``season_start`` .. ``season_end``.
+MAX_SEASON_DAYS = 366
 
-class _Section(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True)
+#: Calendar years a project may name [year]: scenario spans and treatment years alike.
+FIRST_YEAR, LAST_YEAR = 1900, 2200
+
+#: Seasons of the requirement table; ``fall`` is read as ``autumn``.
+SeasonName = Literal["any", "winter", "spring", "summer", "autumn", "fall"]
 
 
-class ProjectSection(_Section):
+class ProjectSection(StrictSection):
     """``[project]``: what is being estimated and for how long."""
 
     name: str = Field(min_length=1)
     species: str = Field(min_length=1)
-    season: Literal["any", "winter", "summer"] = "any"
-    season_days: float | None = Field(default=None, gt=0, le=366)
+    season: SeasonName = "any"
+    season_days: float | None = Field(default=None, gt=0, le=MAX_SEASON_DAYS)
     season_start: dt.date | None = None
     season_end: dt.date | None = None
 
@@ -50,6 +58,11 @@ class ProjectSection(_Section):
             raise ValueError("season_start and season_end go together")
         if has_dates and self.season_end < self.season_start:
             raise ValueError("season_end is before season_start")
+        if has_dates and self.days > MAX_SEASON_DAYS:
+            raise ValueError(
+                f"season_start to season_end spans {self.days:g} days; a season is at most "
+                f"{MAX_SEASON_DAYS} days (the limit of season_days)"
+            )
         return self
 
     @property
@@ -60,20 +73,22 @@ class ProjectSection(_Section):
         return float((self.season_end - self.season_start).days + 1)
 
 
-class InputsSection(_Section):
+class InputsSection(StrictSection):
     """``[inputs]``: paths to the input files, relative to the project file."""
 
-    forage_classes: Path
-    plots: Path
-    animal_classes: Path
-    units: Path
-    strata: Path | None  # polygons; may be left out when [rasters.strata] gives a raster
+    forage_classes: InputPath
+    plots: InputPath
+    animal_classes: InputPath
+    units: InputPath
+    strata: InputPath | None  # polygons; may be left out when [rasters.strata] gives a raster
     units_layer: str | None = None
     strata_layer: str | None = None
-    counts: Path | None = None
+    counts: InputPath | None = None
+    #: The user's own requirement table (same columns as nutricap/data/nutritional_states.csv).
+    nutritional_states: InputPath | None = None
 
 
-class TargetSection(_Section):
+class TargetSection(StrictSection):
     """``[target]``: the nutritional state the NCC is computed for."""
 
     animal_class: str | None = None
@@ -91,25 +106,25 @@ class TargetSection(_Section):
         return self
 
 
-class ForageUseSection(_Section):
+class ForageUseSection(StrictSection):
     """``[forage_use]``: whether NCC respects each class's allowable use."""
 
     cap_at_allowable_use: bool = True
 
 
-class SupplySection(_Section):
+class SupplySection(StrictSection):
     """``[supply]``: how forage supply is built from plots and maps."""
 
     strata_without_forage: list[str] = Field(default_factory=list)
 
 
-class PoolingSection(_Section):
+class PoolingSection(StrictSection):
     """``[pooling]``: how forage is pooled before the diet constraint is applied."""
 
     mode: Literal["unit", "patch"] = "unit"
 
 
-class UncertaintySection(_Section):
+class UncertaintySection(StrictSection):
     """``[uncertainty]``: stratified bootstrap over plots and one-at-a-time sensitivity."""
 
     bootstrap_replicates: int = Field(default=0, ge=0, le=100_000)
@@ -118,14 +133,14 @@ class UncertaintySection(_Section):
     sensitivity_change: float = Field(default=0.1, ge=0, lt=1)
 
 
-class ScenarioSection(_Section):
+class ScenarioSection(StrictSection):
     """``[scenarios.NAME]``: a set of treatments and the years to compare."""
 
-    treatments: Path
+    treatments: InputPath
     treatments_layer: str | None = None
-    responses: Path
-    first_year: int = Field(ge=1900, le=2200)
-    last_year: int = Field(ge=1900, le=2200)
+    responses: InputPath
+    first_year: int = Field(ge=FIRST_YEAR, le=LAST_YEAR)
+    last_year: int = Field(ge=FIRST_YEAR, le=LAST_YEAR)
     description: str = ""
 
     @model_validator(mode="after")
@@ -137,7 +152,7 @@ class ScenarioSection(_Section):
         return self
 
 
-class ProjectConfig(_Section):
+class ProjectConfig(StrictSection):
     """The whole project file."""
 
     project: ProjectSection
@@ -207,7 +222,15 @@ class Project:
 
     def input_paths(self) -> dict[str, Path]:
         """Every input file given, by key."""
-        names = ("forage_classes", "plots", "animal_classes", "units", "strata", "counts")
+        names = (
+            "forage_classes",
+            "plots",
+            "animal_classes",
+            "units",
+            "strata",
+            "counts",
+            "nutritional_states",
+        )
         found = {name: path for name in names if (path := self.input_path(name)) is not None}
         for name, scenario in self.config.scenarios.items():
             found[f"scenarios.{name}.treatments"] = (self.folder / scenario.treatments).resolve()
@@ -275,6 +298,8 @@ def _describe_one(error: dict, raw: dict) -> str:
     if error["type"] == "missing":
         return f"missing key {key!r}"
     message = error["msg"].removeprefix("Value error, ")
+    if error["type"].startswith("date"):
+        message += " (a TOML date in ISO form without quotes, e.g. 2026-12-01)"
     found = _lookup(raw, location)
     found_words = f" (found {found!r})" if found is not None and not isinstance(found, dict) else ""
     return f"key {key!r}: {message}{found_words}"

@@ -15,7 +15,40 @@ import pandas as pd
 from nutricap.errors import InputError, ProjectFileError, TableError
 from nutricap.project import Project
 from nutricap.science import energetics
-from nutricap.tables import spreadsheet_row
+from nutricap.tables import Column, read_csv_table, spreadsheet_row
+
+#: Columns of a user's own requirement table (``[inputs] nutritional_states``), as in
+#: ``nutricap/data/nutritional_states.csv``; ``scope`` and ``description`` are optional.
+STATE_TABLE_COLUMNS = [
+    Column("state", "text", meaning="nutritional state, e.g. maintenance, lactation"),
+    Column("season", "text", meaning="any, winter, spring, summer, autumn (or fall)"),
+    Column("bmr_multiplier", above=0.0, maximum=20.0, meaning="ME as a multiple of 70 W^0.75"),
+    Column("intake_g_per_kg075_per_day", above=0.0, maximum=500.0, meaning="g DM/kg^0.75/day"),
+    Column("dp_g_per_kg075_per_day", minimum=0.0, maximum=100.0, meaning="g DP/kg^0.75/day"),
+    Column("scope", "text", required=False, allow_blank=True),
+    Column("description", "text", required=False, allow_blank=True),
+    Column("source", "text", meaning="where each row's values come from"),
+]
+
+
+def requirement_table(project: Project) -> tuple[pd.DataFrame, list[str]]:
+    """The nutritional-state table of the run, and notes on it.
+
+    The packaged cervid default, or the user's own table of ``[inputs] nutritional_states``,
+    read and checked like every other table. A user's table under which NCC could exceed ECC
+    (a state asking less than maintenance of its season) is used as given, with a note.
+    """
+    path = project.input_path("nutritional_states")
+    if path is None:
+        return energetics.NUTRITIONAL_STATES, []
+    frame = read_csv_table(path, STATE_TABLE_COLUMNS, what="nutritional-state table")
+    for optional in ("scope", "description"):
+        if optional not in frame.columns:
+            frame[optional] = ""
+    table = energetics.check_nutritional_states(frame, source=str(path))
+    problems = energetics.capacity_ordering_problems(table)
+    notes = [f"{path.name}: {problem}: NCC can exceed ECC" for problem in problems]
+    return table, notes
 
 
 @dataclass(frozen=True)
@@ -37,11 +70,11 @@ class DietTarget:
     derivation: str
 
 
-def _check_states(animals: pd.DataFrame, project: Project) -> None:
+def _check_states(animals: pd.DataFrame, project: Project, table: pd.DataFrame) -> None:
     season = project.config.project.season
     for index, state in animals["state"].items():
         try:
-            energetics.state_parameters(state, season)
+            energetics.state_parameters(state, season, table=table)
         except InputError as exc:
             raise TableError(
                 exc.message,
@@ -52,20 +85,25 @@ def _check_states(animals: pd.DataFrame, project: Project) -> None:
             ) from None
 
 
-def herd_requirement(animals: pd.DataFrame, project: Project) -> energetics.HerdRequirement:
-    """The average animal of the herd; a class's ``intake_kg_per_day`` overrides the model."""
-    _check_states(animals, project)
+def herd_requirement(
+    animals: pd.DataFrame, project: Project, table: pd.DataFrame
+) -> energetics.HerdRequirement:
+    """The average animal of the herd; a class's ``intake_kg_per_day`` overrides the model.
+
+    ``table`` is the run's nutritional-state table (:func:`requirement_table`).
+    """
+    _check_states(animals, project, table)
     season = project.config.project.season
     mass = animals["body_mass_kg"].to_numpy()
     herd = energetics.herd_requirement(
-        mass, animals["share"].to_numpy(), animals["state"].tolist(), season
+        mass, animals["share"].to_numpy(), animals["state"].tolist(), season, table=table
     )
     override = animals["intake_kg_per_day"].to_numpy(dtype=float)
     if np.isnan(override).all():
         return herd
     modelled = np.array(
         [
-            energetics.max_dry_matter_intake_kg_per_day(m, s, season)
+            energetics.max_dry_matter_intake_kg_per_day(m, s, season, table=table)
             for m, s in zip(mass, animals["state"])
         ]
     )
@@ -80,11 +118,14 @@ def herd_requirement(animals: pd.DataFrame, project: Project) -> energetics.Herd
     )
 
 
-def diet_target(animals: pd.DataFrame, project: Project) -> DietTarget:
+def diet_target(animals: pd.DataFrame, project: Project, table: pd.DataFrame) -> DietTarget:
     """Minimum diet DE (and DP) of the target state: given, or requirement ÷ intake.
 
     Hobbs & Swift (1985): the diet must supply the daily requirement within
     the daily dry-matter intake, so its minimum quality is requirement ÷ intake.
+    The requirement and intake are those of the target animal class in the target
+    state (not of the herd's average animal), so that the diet keeps the target
+    animals in the chosen condition; ``table`` is the run's nutritional-state table.
     """
     target = project.config.target
     given_de, given_dp = target.diet_de_min_kcal_per_g, target.diet_dp_min_pct
@@ -102,12 +143,18 @@ def diet_target(animals: pd.DataFrame, project: Project) -> DietTarget:
     mass = float(row["body_mass_kg"])
     intake = float(row["intake_kg_per_day"])
     if np.isnan(intake):
-        intake = float(energetics.max_dry_matter_intake_kg_per_day(mass, target.state, season))
-    de_requirement = float(energetics.daily_de_requirement_kcal_per_day(mass, target.state, season))
+        intake = float(
+            energetics.max_dry_matter_intake_kg_per_day(mass, target.state, season, table=table)
+        )
+    de_requirement = float(
+        energetics.daily_de_requirement_kcal_per_day(mass, target.state, season, table=table)
+    )
     de_min = given_de or float(energetics.required_diet_de_kcal_per_g(de_requirement, intake))
     dp_min = given_dp
     if derive_dp:
-        dp_requirement = energetics.daily_dp_requirement_g_per_day(mass, target.state, season)
+        dp_requirement = energetics.daily_dp_requirement_g_per_day(
+            mass, target.state, season, table=table
+        )
         dp_min = float(energetics.required_diet_dp_pct(dp_requirement, intake))
     derivation = (
         f"{target.animal_class} ({mass:g} kg) in state {target.state!r}, season {season!r}: "

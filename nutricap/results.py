@@ -104,6 +104,25 @@ def unreachable_notes(by_unit: pd.DataFrame) -> list[str]:
     ]
 
 
+def ordering_notes(by_unit: pd.DataFrame) -> list[str]:
+    """Units where NCC exceeds ECC: the requirements or thresholds given ask too little.
+
+    With the packaged requirement table NCC <= ECC always holds (docs/methods.md); a user's
+    own table, explicit diet thresholds or intake overrides can break it, and the run says so.
+    """
+    ncc, ecc = by_unit["ncc_animal_days"], by_unit["ecc_animal_days"]
+    above = by_unit.loc[ncc > ecc * (1 + 1e-9) + 1e-9, "unit_id"].tolist()
+    if not above:
+        return []
+    return [
+        "NCC exceeds ECC in unit(s) "
+        + ", ".join(map(str, above))
+        + ": the target diet threshold times the herd's intake supplies less energy than the "
+        "herd's maintenance requirement; check the requirement table, the diet thresholds "
+        "given in [target] and any intake_kg_per_day overrides"
+    ]
+
+
 def supply_notes(supply: StratumSupply, plots: pd.DataFrame) -> list[str]:
     """Things the user should know that are not errors."""
     notes = []

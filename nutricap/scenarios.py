@@ -22,10 +22,10 @@ import pandas as pd
 from nutricap.errors import InputError, SpatialError, TableError
 from nutricap.landscape.vectors import M2_PER_HA, StratumAreas, check_no_overlaps, read_layer
 from nutricap.problem import ForageItems, problem_from_pieces
-from nutricap.project import Project, ScenarioSection
+from nutricap.project import FIRST_YEAR, LAST_YEAR, Project, ScenarioSection
 from nutricap.science.forage_quality import digestible_protein_pct
 from nutricap.science.treatment import response_at
-from nutricap.tables import Column, check_unique, read_csv_table, spreadsheet_row
+from nutricap.tables import Column, check_unique, plain_value, read_csv_table, spreadsheet_row
 
 RESPONSE_COLUMNS = [
     Column("treatment", "text", meaning="treatment type, as in the treatments layer"),
@@ -140,15 +140,17 @@ def read_treatments(path: Path, layer: str | None, strata: list[str]) -> gpd.Geo
     frame = read_layer(path, layer=layer, columns=["treatment", "year"], what="treatments layer")
     frame["treatment"] = frame["treatment"].astype(str).str.strip()
     years = pd.to_numeric(frame["year"], errors="coerce").to_numpy(dtype=float)
-    bad = np.isnan(years) | (years != np.round(years))
+    with np.errstate(invalid="ignore"):
+        bad = ~np.isfinite(years) | (years != np.round(years))
+        bad |= (years < FIRST_YEAR) | (years > LAST_YEAR)
     if bad.any():
         index = int(np.flatnonzero(bad)[0])
         raise SpatialError(
-            "treatment year is not a whole number",
+            "treatment year is not a calendar year",
             source=path,
             location=f"feature {index + 1} (of {len(frame)}), attribute 'year'",
-            expected="a calendar year such as 2027",
-            found=repr(frame["year"].iloc[index]),
+            expected=f"a whole year from {FIRST_YEAR} to {LAST_YEAR}, such as 2027",
+            found=repr(plain_value(frame["year"].iloc[index])),
         )
     frame["year"] = years.astype(int)
     if "new_stratum" not in frame.columns:

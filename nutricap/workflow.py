@@ -44,8 +44,15 @@ from nutricap.requirements import (
     diet_target,
     herd_requirement,
     require_protein_values,
+    requirement_table,
 )
-from nutricap.results import supply_notes, unit_class_table, unit_table, unreachable_notes
+from nutricap.results import (
+    ordering_notes,
+    supply_notes,
+    unit_class_table,
+    unit_table,
+    unreachable_notes,
+)
 from nutricap.scenarios import (
     Scenario,
     load_scenario,
@@ -93,6 +100,7 @@ class Estimate:
     animals: pd.DataFrame | None = None
     notes: list[str] = field(default_factory=list)
     grid: GridResult | None = None
+    requirement_table: pd.DataFrame = field(default_factory=lambda: energetics.NUTRITIONAL_STATES)
 
 
 @dataclass(frozen=True)
@@ -105,6 +113,8 @@ class Inputs:
     units: gpd.GeoDataFrame
     strata: gpd.GeoDataFrame | None  # None when the strata are a raster ([rasters.strata])
     counts: pd.DataFrame | None = None
+    requirement_table: pd.DataFrame = field(default_factory=lambda: energetics.NUTRITIONAL_STATES)
+    requirement_notes: list[str] = field(default_factory=list)
 
 
 def estimate(project: Project, progress: Progress | None = None) -> Estimate:
@@ -130,8 +140,8 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     else:
         areas, supply, problem = build_supply(project, inputs, say)
     say("computing the herd's requirements")
-    herd = herd_requirement(inputs.animals, project)
-    target = diet_target(inputs.animals, project)
+    herd = herd_requirement(inputs.animals, project, inputs.requirement_table)
+    target = diet_target(inputs.animals, project, inputs.requirement_table)
     if target.dp_min_pct is not None:
         require_protein_values(inputs.forage_classes, project)
     say("solving capacity per unit")
@@ -160,8 +170,11 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
         trend=trend,
         forage_classes=inputs.forage_classes,
         animals=inputs.animals,
-        notes=supply_notes(supply, inputs.plots)
+        requirement_table=inputs.requirement_table,
+        notes=inputs.requirement_notes
+        + supply_notes(supply, inputs.plots)
         + unreachable_notes(by_unit)
+        + ordering_notes(by_unit)
         + (grid.notes if grid is not None else []),
         grid=grid,
     )
@@ -181,7 +194,8 @@ def read_inputs(project: Project, say: Progress) -> Inputs:
         strata = read_strata(project.input_path("strata"), config.inputs.strata_layer)
     counts_path = project.input_path("counts")
     counts = read_counts(counts_path) if counts_path is not None else None
-    return Inputs(forage_classes, plots, animals, units, strata, counts)
+    states, state_notes = requirement_table(project)
+    return Inputs(forage_classes, plots, animals, units, strata, counts, states, state_notes)
 
 
 def build_supply(
@@ -259,7 +273,7 @@ def assess_uncertainty(
     sensitivity = None
     if settings.sensitivity_change > 0:
         say(f"sensitivity of total NCC to ±{settings.sensitivity_change:.0%} changes")
-        sensitivity = sensitivity_table(project, inputs.animals, problem, herd, target)
+        sensitivity = sensitivity_table(project, inputs, problem, herd, target)
     return Uncertainty(bootstrap, sensitivity, settings.sensitivity_change)
 
 
@@ -276,7 +290,7 @@ def plot_sampled_classes(project: Project, classes: list[str]) -> list[str]:
 
 def sensitivity_table(
     project: Project,
-    animals: pd.DataFrame,
+    inputs: Inputs,
     problem: CapacityProblem,
     herd: energetics.HerdRequirement,
     target: DietTarget,
@@ -293,8 +307,9 @@ def sensitivity_table(
         return float(solve(problem, herd, moved, project).ncc.animal_days.sum() / days)
 
     def herd_for_mass(factor: float) -> energetics.HerdRequirement:
+        animals = inputs.animals
         heavier = animals.assign(body_mass_kg=animals["body_mass_kg"] * factor)
-        return herd_requirement(heavier, project)
+        return herd_requirement(heavier, project, inputs.requirement_table)
 
     groups = input_groups(problem, total_for, herd_for_mass, protein=target.dp_min_pct is not None)
     change = project.config.uncertainty.sensitivity_change

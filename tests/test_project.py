@@ -89,3 +89,58 @@ def test_project_file_is_data_not_code(folder):
     text = GOOD.replace('name = "Test range"', "name = \"__import__('os').system('false')\"")
     project = load_project(_project(folder, text))
     assert project.config.project.name.startswith("__import__")
+
+
+DAYS = r"'project\.season_days': Input should be "
+
+
+@pytest.mark.parametrize(
+    ("old", "new", "message"),
+    [
+        # A boolean is not a number: `true` was once read as a 1-day season.
+        ("season_days = 90", "season_days = true", DAYS + "a valid number"),
+        ("season_days = 90", "season_days = inf", DAYS + "a finite number"),
+        ("season_days = 90", "season_days = nan", DAYS + "a finite number"),
+        ("season_days = 90", 'season_days = "90"', DAYS + "a valid number"),
+        # The same bound for every form of the season's length.
+        (
+            "season_days = 90",
+            "season_start = 2025-01-01\nseason_end = 2026-12-31",
+            r"'project': .*spans 730 days; a season is at most 366 days",
+        ),
+        (
+            "season_days = 90",
+            'season_start = "2026-12-01"\nseason_end = 2027-03-01',
+            r"'project\.season_start': Input should be a valid date .*ISO form without quotes",
+        ),
+        (
+            'state = "gestation"',
+            'state = "gestation"\nprotein = 1',
+            r"'target\.protein': Input should be a valid boolean",
+        ),
+    ],
+)  # fmt: skip
+def test_numbers_flags_and_dates_are_strict(folder, old, new, message):
+    with pytest.raises(ProjectFileError, match=message):
+        load_project(_project(folder, GOOD.replace(old, new)))
+
+
+@pytest.mark.parametrize(
+    ("section", "line", "key"),
+    [
+        ("uncertainty", "bootstrap_replicates = 100.0", "uncertainty.bootstrap_replicates"),
+        ("uncertainty", "bootstrap_replicates = true", "uncertainty.bootstrap_replicates"),
+        ("uncertainty", "seed = 1e20", "uncertainty.seed"),
+        ("uncertainty", "interval_level = inf", "uncertainty.interval_level"),
+        ("forage_use", "cap_at_allowable_use = 0", "forage_use.cap_at_allowable_use"),
+    ],
+)
+def test_whole_numbers_and_flags_refuse_other_types(folder, section, line, key):
+    with pytest.raises(ProjectFileError, match=rf"key '{key}'"):
+        load_project(_project(folder, GOOD + f"\n[{section}]\n{line}\n"))
+
+
+@pytest.mark.parametrize("season", ["spring", "autumn", "fall", "summer", "winter", "any"])
+def test_every_season_of_the_requirement_table_is_accepted(folder, season):
+    text = GOOD.replace('season = "winter"', f'season = "{season}"')
+    assert load_project(_project(folder, text)).config.project.season == season

@@ -115,7 +115,7 @@ def test_outputs_written_and_manifest_hashes_inputs(example_project, tmp_path):
     assert leftovers == []
 
 
-def test_protein_limited_ncc_equals_an_lp_with_the_linear_dp_equation(example_estimate):
+def test_protein_limited_ncc_equals_an_lp_with_the_linear_dp_equation(project):
     # Independent check of the whole pipeline's NCC: for every unit, scipy.optimize.linprog
     # (HiGHS) maximises forage eaten under the diet DE and DP thresholds and the allowable-use
     # caps, with item DP recomputed here from crude protein by the linear Robbins et al. (1987)
@@ -123,7 +123,13 @@ def test_protein_limited_ncc_equals_an_lp_with_the_linear_dp_equation(example_es
     # Hanley et al. 1992, BSA slope from memory), never clipped at 0.
     from scipy.optimize import linprog
 
-    result = example_estimate
+    # The example with a lower diet DE threshold, so that protein limits (the DP threshold
+    # is still derived from the target state).
+    text = project.read_text(encoding="utf-8")
+    project.write_text(
+        text.replace("[target]\n", "[target]\ndiet_de_min_kcal_per_g = 2.0\n"), encoding="utf-8"
+    )
+    result = estimate(load_project(project))
     items, problem = result.problem.items, result.problem
     dp = -3.87 + 0.9283 * items.cp_pct - 11.82 * items.tannin
     assert (dp < 0).any(), "the example should hold forage below 4.2 % CP"
@@ -141,4 +147,4 @@ def test_protein_limited_ncc_equals_an_lp_with_the_linear_dp_equation(example_es
         limits.append(-lp.fun)
     lp_days = problem.sum_by_unit(np.array(limits)) / result.herd.intake_kg_per_day
     np.testing.assert_allclose(result.by_unit["ncc_animal_days"], lp_days, rtol=1e-8)
-    assert (result.by_unit["limiting_factor"].str.contains("protein")).any()
+    assert (result.by_unit["limiting_factor"] == "protein").all()

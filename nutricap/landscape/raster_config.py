@@ -8,18 +8,27 @@ read, so names of classes are checked later (:mod:`nutricap.landscape.grid_input
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Literal
+from typing import Annotated, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 RESAMPLING_METHODS = ("nearest", "bilinear", "average")
 
+#: A path written in the project file (a TOML string), relative to the file.
+InputPath = Annotated[Path, Field(strict=False)]
 
-class _Section(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True)
+
+class StrictSection(BaseModel):
+    """A section of the project file: unknown keys refused; numbers, flags and text strict.
+
+    No ``true`` read as 1, no ``"3"`` read as 3, no infinities or NaN, no 2.5 where a whole
+    number is meant: TOML has a type for each, and a value of the wrong type is an error.
+    """
+
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False)
 
 
-class CalibratedSection(_Section):
+class CalibratedSection(StrictSection):
     """``[rasters.calibrated]``: clip plots with coordinates + an index raster → biomass rasters.
 
     ``groups`` maps a forage group to its forage classes; one biomass model is fitted per group
@@ -27,8 +36,8 @@ class CalibratedSection(_Section):
     shared among its classes in proportion to their plot totals.
     """
 
-    index: Path
-    plots: Path
+    index: InputPath
+    plots: InputPath
     groups: dict[str, list[str]] = Field(min_length=1)
     model: Literal["linear", "loglinear", "best"] = "best"
     plots_crs: str | None = None
@@ -54,7 +63,7 @@ class CalibratedSection(_Section):
         return [name for classes in self.groups.values() for name in classes]
 
 
-class StrataRasterSection(_Section):
+class StrataRasterSection(StrictSection):
     """``[rasters.strata]``: the strata map as a categorical raster instead of polygons.
 
     ``raster`` holds integer codes (e.g. a land-cover map); ``codes`` is a CSV table
@@ -62,14 +71,14 @@ class StrataRasterSection(_Section):
     Cells whose code is not listed, or without data, belong to no stratum.
     """
 
-    raster: Path
-    codes: Path
+    raster: InputPath
+    codes: InputPath
 
 
-class RasterSection(_Section):
+class RasterSection(StrictSection):
     """``[rasters]``: forage rasters and how the grid is handled."""
 
-    biomass: dict[str, Path] = Field(default_factory=dict)
+    biomass: dict[str, InputPath] = Field(default_factory=dict)
     calibrated: CalibratedSection | None = None
     strata: StrataRasterSection | None = None
     resample: Literal["none", "nearest", "bilinear", "average"] = "none"
@@ -89,18 +98,18 @@ class RasterSection(_Section):
         return self
 
 
-class AvailabilitySection(_Section):
+class AvailabilitySection(StrictSection):
     """``[availability]``: rules applied to every cell before forage is pooled by unit."""
 
-    snow_depth: Path | None = None
+    snow_depth: InputPath | None = None
     snow_burial: Literal["exposed_fraction", "all_or_none"] = "exposed_fraction"
-    slope: Path | None = None
+    slope: InputPath | None = None
     slope_units: Literal["percent", "degrees"] = "percent"
-    slope_table: Path | None = None
-    distance_to_water: Path | None = None
-    water_table: Path | None = None
+    slope_table: InputPath | None = None
+    distance_to_water: InputPath | None = None
+    water_table: InputPath | None = None
     min_forage_kg_per_ha: float | None = Field(default=None, ge=0.0)
-    exclusions: list[Path] = Field(default_factory=list)
+    exclusions: list[InputPath] = Field(default_factory=list)
 
     @model_validator(mode="after")
     def _tables_need_layers(self) -> AvailabilitySection:

@@ -226,7 +226,7 @@ def _require_numbers(
     frame: gpd.GeoDataFrame, column: str, path: Path, what: str, *, low: float, high: float | None
 ) -> None:
     values = pd.to_numeric(frame[column], errors="coerce").to_numpy(dtype=float)
-    bad = np.isnan(values) | (values < low)
+    bad = ~np.isfinite(values) | (values < low)
     if high is not None:
         bad |= values > high
     if bad.any():

@@ -39,7 +39,7 @@ def parameter_tables(
     """The parameters section: every parameter of the run with its provenance."""
     season = project.config.project.season
     return {
-        "states": _state_rows(animals, season, project),
+        "states": _state_rows(estimate.requirement_table, animals, season, project),
         "animals": _animal_rows(animals, project),
         "forage": _forage_rows(forage, project),
         "settings": _threshold_rows(estimate, project),
@@ -53,19 +53,22 @@ STATE_COLUMNS = [
     numeric_column("intake_g_per_kg075_per_day", "Intake i [g DM/kg^0.75/day]", ONE_DECIMAL),
     numeric_column("dp_g_per_kg075_per_day", "DP p [g/kg^0.75/day]", ONE_DECIMAL),
     Column("used_by", "Used by"),
+    Column("scope", "Scope"),
     Column("source", "Source"),
 ]
 
 
-def _state_rows(animals: pd.DataFrame, season: str, project: Project) -> dict:
-    states = energetics.NUTRITIONAL_STATES.copy()
+def _state_rows(states: pd.DataFrame, animals: pd.DataFrame, season: str, project: Project) -> dict:
+    """The run's nutritional-state table (packaged or the user's), rows in use flagged."""
+    table_used = states
+    states = states.copy()
     users: dict[tuple[str, str], list[str]] = {}
     target = project.config.target
     pairs = [(name, state) for name, state in zip(animals["animal_class"], animals["state"])]
     if target.state is not None:
         pairs.append((f"target ({target.animal_class})", target.state))
     for name, state in pairs:
-        row = energetics.state_parameters(state, season)
+        row = energetics.state_parameters(state, season, table=table_used)
         users.setdefault((row["state"], row["season"]), []).append(str(name))
     states["used_by"] = [
         ", ".join(users.get((s, z), [])) for s, z in zip(states["state"], states["season"])

@@ -146,14 +146,18 @@ def diet(estimate: Estimate) -> dict:
         "dp_min": None if target.dp_min_pct is None else f"{target.dp_min_pct:.2f}",
         "derivation": target.derivation,
         "herd": {
-            "Digestible-energy requirement [kcal/day]": ANIMALS(herd.de_kcal_per_day),
-            "Same herd at maintenance [kcal/day] (used for ECC)": ANIMALS(
+            "Dry-matter intake [kg DM/day] (one NCC or allowable-use animal-day eats this)": (
+                TWO_DECIMALS(herd.intake_kg_per_day)
+            ),
+            "Same animal at maintenance [kcal DE/day] (one ECC animal-day needs this)": ANIMALS(
                 herd.maintenance_de_kcal_per_day
             ),
-            "Dry-matter intake [kg DM/day]": TWO_DECIMALS(herd.intake_kg_per_day),
-            "Digestible-protein requirement [g/day]": ONE_DECIMAL(herd.dp_g_per_day),
-            "Diet DE the average animal needs [kcal/g DM]": THREE_DECIMALS(herd.diet_de_kcal_per_g),
-            "Diet DP the average animal needs [% DM]": TWO_DECIMALS(herd.diet_dp_pct),
+            "Digestible-energy requirement, each class in its state [kcal/day]": ANIMALS(
+                herd.de_kcal_per_day
+            ),
+            "Digestible-protein requirement, each class in its state [g/day]": ONE_DECIMAL(
+                herd.dp_g_per_day
+            ),
             "Animal-unit equivalent [AU/animal]": THREE_DECIMALS(herd.animal_unit_equivalent),
         },
     }
