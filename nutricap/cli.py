@@ -136,8 +136,8 @@ def _add_trend(commands) -> None:
 
 
 def run_estimate_command(args: argparse.Namespace) -> int:
-    from nutricap.manifest import BackgroundChecksums
-    from nutricap.project import load_project
+    from nutricap.inputs.project import load_project
+    from nutricap.report.manifest import BackgroundChecksums
 
     progress = StepPrinter(args.quiet)
     project = load_project(args.project)
@@ -157,8 +157,8 @@ def run_estimate_command(args: argparse.Namespace) -> int:
 
 
 def run_compare_command(args: argparse.Namespace) -> int:
-    from nutricap.manifest import BackgroundChecksums
-    from nutricap.project import load_project
+    from nutricap.inputs.project import load_project
+    from nutricap.report.manifest import BackgroundChecksums
 
     progress = StepPrinter(args.quiet)
     project = load_project(args.project)
@@ -184,7 +184,7 @@ def run_compare_command(args: argparse.Namespace) -> int:
 
 
 def run_check(args: argparse.Namespace) -> int:
-    from nutricap.project import load_project
+    from nutricap.inputs.project import load_project
     from nutricap.workflow import estimate
 
     project = load_project(args.project)
@@ -200,8 +200,8 @@ def run_check(args: argparse.Namespace) -> int:
 
 def run_demo(args: argparse.Namespace) -> int:
     from nutricap.example import write_example_landscape
-    from nutricap.outputs import check_output_folder
-    from nutricap.project import load_project
+    from nutricap.inputs.project import load_project
+    from nutricap.report.output_folder import check_output_folder
     from nutricap.workflow import run_estimate
 
     progress = StepPrinter(args.quiet)

@@ -25,10 +25,10 @@ import pandas as pd
 
 from nutricap.cautions import CAUTION
 from nutricap.errors import InputError, TableError
-from nutricap.manifest import package_versions, sha256_of_file
-from nutricap.outputs import check_output_folder
+from nutricap.inputs.columns import Column, read_csv_table, spreadsheet_row
+from nutricap.report.manifest import package_versions, sha256_of_file
+from nutricap.report.output_folder import check_output_folder
 from nutricap.science import population
-from nutricap.tables import Column, read_csv_table, spreadsheet_row
 
 COUNT_COLUMNS = [
     Column("unit_id", "text", required=False, meaning="management unit the count belongs to"),
@@ -320,7 +320,7 @@ def _logistic_figures(years, counts, removals, level) -> dict:
 
 
 def _load_project(path: Path):
-    from nutricap.project import load_project
+    from nutricap.inputs.project import load_project
 
     return load_project(path)
 

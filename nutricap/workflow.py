@@ -16,10 +16,10 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 
-from nutricap.assess import assess_use, current_animals_from_counts
 from nutricap.errors import InputError, TableError
-from nutricap.inputs import read_animal_classes, read_forage_classes, read_plots
-from nutricap.landscape.grid_supply import GridResult, grid_problem
+from nutricap.inputs.project import Project
+from nutricap.inputs.tables import read_animal_classes, read_forage_classes, read_plots
+from nutricap.landscape.grid.supply import GridResult, grid_problem
 from nutricap.landscape.plots import StratumSupply, plot_biomass_matrix, stratum_supply
 from nutricap.landscape.vectors import (
     StratumAreas,
@@ -27,41 +27,41 @@ from nutricap.landscape.vectors import (
     read_strata,
     read_units,
 )
-from nutricap.manifest import BackgroundChecksums
-from nutricap.outputs import check_output_folder, staged_folder
-from nutricap.problem import (
+from nutricap.model.problem import (
     CapacityProblem,
     Solution,
     build_forage_items,
     build_problem,
     solve_problem,
 )
-from nutricap.project import Project
-from nutricap.report.bundle import write_estimate
-from nutricap.report.tables import write_csv
-from nutricap.requirements import (
+from nutricap.model.requirements import (
     DietTarget,
     diet_target,
     herd_requirement,
     require_protein_values,
 )
-from nutricap.results import supply_notes, unit_class_table, unit_table, unreachable_notes
-from nutricap.scenarios import (
+from nutricap.model.results import supply_notes, unit_class_table, unit_table, unreachable_notes
+from nutricap.model.scenarios import (
     Scenario,
     load_scenario,
     scenario_problem,
     years_since_latest_treatment,
 )
-from nutricap.science import energetics
-from nutricap.science.population import logistic_trajectory
-from nutricap.sensitivity import input_groups
-from nutricap.trend import TOTAL_LABEL, analyse_series, read_counts, select_series
-from nutricap.uncertainty import (
+from nutricap.model.sensitivity import input_groups
+from nutricap.model.uncertainty import (
     BootstrapResult,
     add_intervals,
     bootstrap_capacity,
     one_at_a_time,
 )
+from nutricap.model.use import assess_use, current_animals_from_counts
+from nutricap.report.bundle import write_estimate
+from nutricap.report.manifest import BackgroundChecksums
+from nutricap.report.output_folder import check_output_folder, staged_folder
+from nutricap.report.tables import write_csv
+from nutricap.science import energetics
+from nutricap.science.population import logistic_trajectory
+from nutricap.trend import TOTAL_LABEL, analyse_series, read_counts, select_series
 
 if TYPE_CHECKING:
     pass

@@ -1,4 +1,4 @@
-"""Tests of treatment scenarios: nutricap.science.treatment, nutricap.scenarios, `compare`.
+"""Tests of treatment scenarios: nutricap.science.treatment, nutricap.model.scenarios, `compare`.
 
 Checks are identities of the method (no effect in, no effect out), shapely
 areas as the independent measure of moved land, and hand-computed
@@ -14,8 +14,8 @@ from shapely.affinity import translate
 from shapely.geometry import box
 
 from nutricap.cli import main
-from nutricap.project import load_project
-from nutricap.scenarios import load_scenario, pieces_in_year
+from nutricap.inputs.project import load_project
+from nutricap.model.scenarios import load_scenario, pieces_in_year
 from nutricap.science.treatment import response_at
 from nutricap.workflow import compare, estimate
 

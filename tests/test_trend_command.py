@@ -213,7 +213,9 @@ def fake_workflow(tmp_path, monkeypatch):
     project = types.SimpleNamespace(path=project_file, input_paths=lambda: {})
     load = mock.Mock(return_value=project)
     estimate = mock.Mock(return_value=types.SimpleNamespace(by_unit=CAPACITY))
-    monkeypatch.setitem(sys.modules, "nutricap.project", types.SimpleNamespace(load_project=load))
+    monkeypatch.setitem(
+        sys.modules, "nutricap.inputs.project", types.SimpleNamespace(load_project=load)
+    )
     monkeypatch.setitem(sys.modules, "nutricap.workflow", types.SimpleNamespace(estimate=estimate))
     return project_file, load, estimate, project
 

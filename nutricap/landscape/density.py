@@ -18,7 +18,7 @@ import rasterio
 from rasterio.features import rasterize
 from rasterio.transform import from_origin
 
-from nutricap.problem import CapacityProblem
+from nutricap.model.problem import CapacityProblem
 
 DENSITY_NODATA = -9999.0
 MAX_CELLS = 4_000_000

@@ -1,7 +1,7 @@
 """Writing an estimate: every table, the density raster, the manifest and the report.
 
 Formats and writes what the workflow computed, into a folder the caller
-provides (a staging folder, see :mod:`nutricap.outputs`).
+provides (a staging folder, see :mod:`nutricap.report.output_folder`).
 """
 
 from __future__ import annotations
@@ -12,13 +12,13 @@ from typing import TYPE_CHECKING
 
 import pandas as pd
 
+from nutricap.inputs.project import Project
 from nutricap.landscape.density import piece_density, write_piece_density
-from nutricap.landscape.grid_outputs import grid_outputs_alongside
-from nutricap.manifest import BackgroundChecksums, build_manifest
-from nutricap.project import Project
+from nutricap.landscape.grid.outputs import grid_outputs_alongside
+from nutricap.model.requirements import DietTarget
+from nutricap.model.results import totals_table
+from nutricap.report.manifest import BackgroundChecksums, build_manifest
 from nutricap.report.tables import markdown_table, write_csv, write_geopackage, write_json
-from nutricap.requirements import DietTarget
-from nutricap.results import totals_table
 
 if TYPE_CHECKING:
     from nutricap.report.html import ReportExtras

@@ -36,7 +36,7 @@ from nutricap.report.methods_text import methods
 from nutricap.report.sections import INTERVAL_COLUMNS, has_interval, is_flag, unit_table
 
 if TYPE_CHECKING:
-    from nutricap.project import Project
+    from nutricap.inputs.project import Project
     from nutricap.workflow import Estimate
 
 __all__ = ["ReportExtras", "is_flag", "methods", "render_report", "unit_table", "write_report"]
@@ -87,10 +87,10 @@ def render_report(
     ----------
     estimate : nutricap.workflow.Estimate
         The results to report.
-    project : nutricap.project.Project
+    project : nutricap.inputs.project.Project
         The project that was estimated (names, settings, input tables).
     manifest : dict
-        The run manifest (:func:`nutricap.manifest.build_manifest`), shown and used for the
+        The run manifest (:func:`nutricap.report.manifest.build_manifest`), shown and used for the
         input files' SHA-256, the area CRS and the run date.
     extras : ReportExtras, optional
         Scenario, sensitivity and trend results; each section appears only when given.

@@ -26,7 +26,7 @@ from nutricap.report.formatting import (
 from nutricap.science import energetics, forage_quality, supply
 
 if TYPE_CHECKING:
-    from nutricap.project import Project
+    from nutricap.inputs.project import Project
     from nutricap.workflow import Estimate
 
 

@@ -1,8 +1,8 @@
 """The grid path's outputs: availability_rules.csv, calibration.csv and capacity_density.tif.
 
 The density raster is the grid path's second pass: it reads the per-cell forage kept in the
-:class:`~nutricap.landscape.cell_cache.CellCache` window by window (or, on a Dask cluster,
-takes each window's density from the workers, :mod:`nutricap.landscape.cluster`) and writes
+:class:`~nutricap.landscape.grid.cell_cache.CellCache` window by window (or, on a Dask cluster,
+takes each window's density from the workers, :mod:`nutricap.landscape.grid.cluster`) and writes
 animal-days per hectare from each cell's share of the forage eaten in its row of the solution.
 It runs in a background thread beside the HTML report (:func:`grid_outputs_alongside`), with
 short GIL turns so that the report's Python code does not starve it.
@@ -22,12 +22,12 @@ import rasterio
 from rasterio.windows import Window
 from tqdm import tqdm
 
-from nutricap.landscape.rasters import Scratch, streaming_env
-from nutricap.problem import CapacityProblem
+from nutricap.landscape.grid.rasters import Scratch, streaming_env
+from nutricap.model.problem import CapacityProblem
 from nutricap.report.tables import write_csv
 
 if TYPE_CHECKING:
-    from nutricap.landscape.grid_supply import GridResult
+    from nutricap.landscape.grid.supply import GridResult
 
 DENSITY_NODATA = -9999.0
 COMPRESSION_LEVEL = {"zstd": {"zstd_level": 1}, "deflate": {"zlevel": 1}}

@@ -13,9 +13,9 @@ import numpy as np
 import pandas as pd
 
 from nutricap.errors import InputError, ProjectFileError, TableError
-from nutricap.project import Project
+from nutricap.inputs.columns import spreadsheet_row
+from nutricap.inputs.project import Project
 from nutricap.science import energetics
-from nutricap.tables import spreadsheet_row
 
 
 @dataclass(frozen=True)

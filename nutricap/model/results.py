@@ -1,6 +1,6 @@
 """Assembling results: the per-unit and per-class tables, totals and notes.
 
-Turns a solved :class:`~nutricap.problem.CapacityProblem` into the tables of
+Turns a solved :class:`~nutricap.model.problem.CapacityProblem` into the tables of
 the output contract; formats nothing and writes nothing.
 """
 
@@ -13,7 +13,7 @@ import pandas as pd
 
 from nutricap.landscape.plots import StratumSupply
 from nutricap.landscape.vectors import StratumAreas
-from nutricap.problem import CapacityProblem, Solution
+from nutricap.model.problem import CapacityProblem, Solution
 from nutricap.science import energetics
 from nutricap.science.forage_quality import mixed_diet_quality
 
