@@ -8,9 +8,8 @@ Writing files is left to :mod:`nutricap.report.tables`.
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import TYPE_CHECKING
 
 import geopandas as gpd
 import numpy as np
@@ -27,6 +26,7 @@ from nutricap.landscape.vectors import (
     read_strata,
     read_units,
 )
+from nutricap.model.estimate import Estimate, Uncertainty
 from nutricap.model.problem import (
     CapacityProblem,
     Solution,
@@ -49,7 +49,6 @@ from nutricap.model.scenarios import (
 )
 from nutricap.model.sensitivity import input_groups
 from nutricap.model.uncertainty import (
-    BootstrapResult,
     add_intervals,
     bootstrap_capacity,
     one_at_a_time,
@@ -63,36 +62,10 @@ from nutricap.science import energetics
 from nutricap.science.population import logistic_trajectory
 from nutricap.trend import TOTAL_LABEL, analyse_series, read_counts, select_series
 
-if TYPE_CHECKING:
-    pass
-
 # Matplotlib (the report) takes about half a second to import; it is imported where a report
 # or chart is written (SciPy likewise, inside the science functions that need it).
 
 Progress = Callable[[str], None]
-
-
-@dataclass(frozen=True)
-class Estimate:
-    """Everything the estimate computed; reporting only formats it."""
-
-    by_unit: pd.DataFrame
-    use_by_class: pd.DataFrame | None
-    by_unit_class: pd.DataFrame
-    units: gpd.GeoDataFrame
-    supply: StratumSupply
-    areas: StratumAreas
-    problem: CapacityProblem
-    solution: Solution
-    herd: energetics.HerdRequirement
-    target: DietTarget
-    season_days: float
-    uncertainty: Uncertainty = field(default_factory=lambda: Uncertainty())
-    trend: dict | None = None
-    forage_classes: pd.DataFrame | None = None
-    animals: pd.DataFrame | None = None
-    notes: list[str] = field(default_factory=list)
-    grid: GridResult | None = None
 
 
 @dataclass(frozen=True)
@@ -212,15 +185,6 @@ def build_supply(
 
 def _general_classes(forage_classes: pd.DataFrame) -> list[str]:
     return sorted(forage_classes.loc[forage_classes["stratum"] == "", "forage_class"])
-
-
-@dataclass(frozen=True)
-class Uncertainty:
-    """Bootstrap replicates (None when not asked for) and the sensitivity table."""
-
-    bootstrap: BootstrapResult | None = None
-    sensitivity: pd.DataFrame | None = None
-    change: float = 0.0
 
 
 def assess_uncertainty(

@@ -18,7 +18,7 @@ from nutricap.science import energetics
 from nutricap.science.forage_quality import mixed_diet_quality
 
 if TYPE_CHECKING:
-    from nutricap.workflow import Estimate
+    from nutricap.model.estimate import Estimate
 
 HA_PER_KM2 = 100.0
 

@@ -21,8 +21,8 @@ from nutricap.report.manifest import BackgroundChecksums, build_manifest
 from nutricap.report.tables import markdown_table, write_csv, write_geopackage, write_json
 
 if TYPE_CHECKING:
+    from nutricap.model.estimate import Estimate
     from nutricap.report.html import ReportExtras
-    from nutricap.workflow import Estimate
 
 # Matplotlib takes about a second to import: the report modules are imported only when a
 # report or chart is written.

@@ -1,6 +1,6 @@
 """The self-contained HTML report of an estimate.
 
-:func:`render_report` formats an :class:`~nutricap.workflow.Estimate` (and optional
+:func:`render_report` formats an :class:`~nutricap.model.estimate.Estimate` (and optional
 scenario, sensitivity and trend results) into one HTML file: figures are
 embedded as base64 ``data:image/png`` URIs and the style sheet is inline, so the
 file opens anywhere with no network and no other file. The template is
@@ -37,7 +37,7 @@ from nutricap.report.sections import INTERVAL_COLUMNS, has_interval, is_flag, un
 
 if TYPE_CHECKING:
     from nutricap.inputs.project import Project
-    from nutricap.workflow import Estimate
+    from nutricap.model.estimate import Estimate
 
 __all__ = ["ReportExtras", "is_flag", "methods", "render_report", "unit_table", "write_report"]
 
@@ -85,7 +85,7 @@ def render_report(
 
     Parameters
     ----------
-    estimate : nutricap.workflow.Estimate
+    estimate : nutricap.model.estimate.Estimate
         The results to report.
     project : nutricap.inputs.project.Project
         The project that was estimated (names, settings, input tables).

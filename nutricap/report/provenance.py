@@ -27,7 +27,7 @@ from nutricap.science import energetics, forage_quality, supply
 
 if TYPE_CHECKING:
     from nutricap.inputs.project import Project
-    from nutricap.workflow import Estimate
+    from nutricap.model.estimate import Estimate
 
 
 # --- 12. parameters ---------------------------------------------------------------------------

@@ -23,7 +23,7 @@ from nutricap.report.formatting import (
 )
 
 if TYPE_CHECKING:
-    from nutricap.workflow import Estimate
+    from nutricap.model.estimate import Estimate
 
 RULE_COLUMNS = [
     Column("rule", "Rule"),

@@ -29,7 +29,7 @@ from nutricap.report.formatting import (
 
 if TYPE_CHECKING:
     from nutricap.inputs.project import Project
-    from nutricap.workflow import Estimate
+    from nutricap.model.estimate import Estimate
 
 
 # --- 1. header --------------------------------------------------------------------------------
