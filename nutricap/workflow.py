@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 
 from nutricap.errors import InputError, TableError
+from nutricap.inputs.counts import TOTAL_LABEL, read_counts, select_series
 from nutricap.inputs.project import Project
 from nutricap.inputs.tables import read_animal_classes, read_forage_classes, read_plots
 from nutricap.landscape.grid.supply import GridResult, grid_problem
@@ -48,6 +49,7 @@ from nutricap.model.scenarios import (
     years_since_latest_treatment,
 )
 from nutricap.model.sensitivity import input_groups
+from nutricap.model.trend import analyse_series
 from nutricap.model.uncertainty import (
     add_intervals,
     bootstrap_capacity,
@@ -60,7 +62,6 @@ from nutricap.report.output_folder import check_output_folder, staged_folder
 from nutricap.report.tables import write_csv
 from nutricap.science import energetics
 from nutricap.science.population import logistic_trajectory
-from nutricap.trend import TOTAL_LABEL, analyse_series, read_counts, select_series
 
 # Matplotlib (the report) takes about half a second to import; it is imported where a report
 # or chart is written (SciPy likewise, inside the science functions that need it).

@@ -60,7 +60,7 @@ class ReportExtras:
         ``K_ci``, ``r_mean``, ``r_ci``, ``lambda_mean``, ``lambda_ci``, ``r_max``, ``r_max_ci``,
         ``msy_level``, ``msy_yield``, ``phase``, ``ceiling_reason``, ``series``, and the forage
         capacity of the counted area as ``ncc_animals``/``ecc_animals`` or under ``capacity``
-        (the output of :func:`nutricap.trend.analyse_series` fits).
+        (the output of :func:`nutricap.model.trend.analyse_series` fits).
     interval_level : float, optional
         Level of the ``*_lo``/``*_hi`` intervals in the per-unit table, e.g. 0.9.
     sensitivity_change : float, optional
