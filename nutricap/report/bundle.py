@@ -60,8 +60,13 @@ def write_estimate(
         write_piece_density(
             result.areas.pieces, density, result.units, folder / "capacity_density.tif"
         )
+    if result.grid is not None:
+        write_csv(result.grid.rules_report, folder / "availability_rules.csv")
+        if result.grid.calibration_report is not None:
+            write_csv(result.grid.calibration_report, folder / "calibration.csv")
     # Raster outputs (capacity_density.tif: a second streamed pass) are written alongside.
-    with grid_outputs_alongside(result.grid, result.problem, eaten_kg, intake, folder):
+    available = result.problem.available_kg
+    with grid_outputs_alongside(result.grid, available, eaten_kg, intake, folder):
         context = [
             f"{config.project.species}, {config.project.name}; "
             f"season of {result.season_days:g} days.",
