@@ -15,7 +15,7 @@ import time
 from pathlib import Path
 
 from nutricap.example import write_example_landscape
-from nutricap.project import load_project
+from nutricap.inputs.project import load_project
 from nutricap.workflow import estimate
 
 

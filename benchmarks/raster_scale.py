@@ -42,7 +42,7 @@ import shapely
 from rasterio.transform import from_origin
 from rasterio.windows import Window
 
-from nutricap.landscape.rasters import grid_windows, read_grid, streaming_env
+from nutricap.landscape.grid.rasters import grid_windows, read_grid, streaming_env
 
 ROOT = Path(__file__).resolve().parent
 CACHE = ROOT / ".cache"

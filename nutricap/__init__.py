@@ -2,7 +2,7 @@
 
 The science core (pure, vectorised functions with their sources) is in
 :mod:`nutricap.science`; the most used functions are exported here. They are loaded on
-first use (PEP 562), so that ``import nutricap.project`` or ``nutricap --help`` does not pay
+first use (PEP 562), so that ``import nutricap.inputs.project`` or ``nutricap --help`` does not pay
 for numpy and pandas.
 """
 

@@ -10,16 +10,16 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import TYPE_CHECKING
 
 import geopandas as gpd
 import numpy as np
 import pandas as pd
 
-from nutricap.assess import assess_use, current_animals_from_counts
 from nutricap.errors import InputError, TableError
-from nutricap.inputs import read_animal_classes, read_forage_classes, read_plots
-from nutricap.landscape.grid_supply import GridResult, grid_problem
+from nutricap.inputs.counts import TOTAL_LABEL, read_counts, select_series
+from nutricap.inputs.project import Project
+from nutricap.inputs.tables import read_animal_classes, read_forage_classes, read_plots
+from nutricap.landscape.grid.supply import GridResult, grid_problem
 from nutricap.landscape.plots import StratumSupply, plot_biomass_matrix, stratum_supply
 from nutricap.landscape.vectors import (
     StratumAreas,
@@ -27,80 +27,53 @@ from nutricap.landscape.vectors import (
     read_strata,
     read_units,
 )
-from nutricap.manifest import BackgroundChecksums
-from nutricap.outputs import check_output_folder, staged_folder
-from nutricap.problem import (
+from nutricap.model.estimate import Estimate, Uncertainty
+from nutricap.model.problem import (
     CapacityProblem,
     Solution,
     build_forage_items,
     build_problem,
     solve_problem,
 )
-from nutricap.project import Project
-from nutricap.report.bundle import write_estimate
-from nutricap.report.tables import write_csv
-from nutricap.requirements import (
+from nutricap.model.requirements import (
     DietTarget,
     diet_target,
     herd_requirement,
     require_protein_values,
     requirement_table,
 )
-from nutricap.results import (
+from nutricap.model.results import (
     ordering_notes,
     supply_notes,
     unit_class_table,
     unit_table,
     unreachable_notes,
 )
-from nutricap.scenarios import (
+from nutricap.model.scenarios import (
     Scenario,
     load_scenario,
     scenario_problem,
     years_since_latest_treatment,
 )
-from nutricap.science import energetics
-from nutricap.science.population import logistic_trajectory
-from nutricap.sensitivity import input_groups
-from nutricap.trend import TOTAL_LABEL, analyse_series, read_counts, select_series
-from nutricap.uncertainty import (
-    BootstrapResult,
+from nutricap.model.sensitivity import input_groups
+from nutricap.model.trend import analyse_series
+from nutricap.model.uncertainty import (
     add_intervals,
     bootstrap_capacity,
     one_at_a_time,
 )
-
-if TYPE_CHECKING:
-    pass
+from nutricap.model.use import assess_use, current_animals_from_counts
+from nutricap.report.bundle import write_estimate
+from nutricap.report.manifest import BackgroundChecksums
+from nutricap.report.output_folder import check_output_folder, staged_folder
+from nutricap.report.tables import write_csv
+from nutricap.science import energetics
+from nutricap.science.population import logistic_trajectory
 
 # Matplotlib (the report) takes about half a second to import; it is imported where a report
 # or chart is written (SciPy likewise, inside the science functions that need it).
 
 Progress = Callable[[str], None]
-
-
-@dataclass(frozen=True)
-class Estimate:
-    """Everything the estimate computed; reporting only formats it."""
-
-    by_unit: pd.DataFrame
-    use_by_class: pd.DataFrame | None
-    by_unit_class: pd.DataFrame
-    units: gpd.GeoDataFrame
-    supply: StratumSupply
-    areas: StratumAreas
-    problem: CapacityProblem
-    solution: Solution
-    herd: energetics.HerdRequirement
-    target: DietTarget
-    season_days: float
-    uncertainty: Uncertainty = field(default_factory=lambda: Uncertainty())
-    trend: dict | None = None
-    forage_classes: pd.DataFrame | None = None
-    animals: pd.DataFrame | None = None
-    notes: list[str] = field(default_factory=list)
-    grid: GridResult | None = None
-    requirement_table: pd.DataFrame = field(default_factory=lambda: energetics.NUTRITIONAL_STATES)
 
 
 @dataclass(frozen=True)
@@ -226,15 +199,6 @@ def build_supply(
 
 def _general_classes(forage_classes: pd.DataFrame) -> list[str]:
     return sorted(forage_classes.loc[forage_classes["stratum"] == "", "forage_class"])
-
-
-@dataclass(frozen=True)
-class Uncertainty:
-    """Bootstrap replicates (None when not asked for) and the sensitivity table."""
-
-    bootstrap: BootstrapResult | None = None
-    sensitivity: pd.DataFrame | None = None
-    change: float = 0.0
 
 
 def assess_uncertainty(

@@ -32,7 +32,7 @@ def project(example_project, tmp_path) -> Path:
 @pytest.fixture(scope="session")
 def example_estimate(example_project):
     """The estimate of the example project (computed once)."""
-    from nutricap.project import load_project
+    from nutricap.inputs.project import load_project
     from nutricap.workflow import estimate
 
     return estimate(load_project(example_project))

@@ -11,8 +11,8 @@ import pytest
 import rasterio
 from rasterio.features import rasterize
 
+from nutricap.inputs.project import load_project
 from nutricap.landscape.density import DENSITY_NODATA, piece_density, write_piece_density
-from nutricap.project import load_project
 from nutricap.workflow import estimate
 
 

@@ -20,7 +20,7 @@ import rasterio
 import shapely
 
 from nutricap import example
-from nutricap.project import load_project
+from nutricap.inputs.project import load_project
 
 CSV_FILES = (
     "forage_classes.csv",

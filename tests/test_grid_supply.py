@@ -1,4 +1,4 @@
-"""Tests of nutricap.landscape.grid_supply: the streamed raster path end to end.
+"""Tests of nutricap.landscape.grid.supply: the streamed raster path end to end.
 
 Every number in the small landscapes below is invented for the example; the checks compare
 the streamed sums with independent computations (a whole-array numpy pass, exactextract's
@@ -23,9 +23,9 @@ from shapely.geometry import Polygon, box
 
 from nutricap.cli import main
 from nutricap.errors import InputError, SpatialError
+from nutricap.inputs.project import load_project
 from nutricap.landscape import calibration
 from nutricap.landscape.calibration import INDEX_BINS, ModelFits, margin_bounds
-from nutricap.project import load_project
 from nutricap.workflow import estimate, run_estimate
 
 CRS = "EPSG:32612"
@@ -546,7 +546,7 @@ def test_bad_raster_inputs_exit_2_with_one_message(tmp_path, estimate_error, cha
 
 
 def test_a_window_reader_failure_is_not_swallowed(landscape, monkeypatch):
-    from nutricap.landscape import window_pass
+    from nutricap.landscape.grid import window_pass
 
     def broken(self, window):
         raise InputError("broken reader (test)")

@@ -7,8 +7,13 @@ import json
 
 import pytest
 
-from nutricap.manifest import CHUNK_BYTES, BackgroundChecksums, input_checksums, sha256_of_file
-from nutricap.project import load_project
+from nutricap.inputs.project import load_project
+from nutricap.report.manifest import (
+    CHUNK_BYTES,
+    BackgroundChecksums,
+    input_checksums,
+    sha256_of_file,
+)
 from nutricap.workflow import run_estimate
 
 # FIPS 180-2, Appendix B.1: SHA-256 of the one-block message "abc" (value from memory).
@@ -46,7 +51,7 @@ def test_an_error_of_the_background_thread_is_raised_by_result(tmp_path, monkeyp
     def failing_read(_path):
         raise OSError("disk read failed")
 
-    monkeypatch.setattr("nutricap.manifest.sha256_of_file", failing_read)
+    monkeypatch.setattr("nutricap.report.manifest.sha256_of_file", failing_read)
     with pytest.raises(OSError, match="disk read failed"):
         BackgroundChecksums([path]).result()
 

@@ -27,7 +27,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from shapely.geometry import box
 
-from nutricap.project import load_project
+from nutricap.inputs.project import load_project
 from nutricap.science import energetics
 from nutricap.science.supply import biomass_kg_per_ha
 from nutricap.workflow import estimate

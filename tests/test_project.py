@@ -1,9 +1,9 @@
-"""Tests of nutricap.project: TOML validation reports every problem with its key."""
+"""Tests of nutricap.inputs.project: TOML validation reports every problem with its key."""
 
 import pytest
 
 from nutricap.errors import ProjectFileError
-from nutricap.project import load_project
+from nutricap.inputs.project import load_project
 
 GOOD = """
 [project]

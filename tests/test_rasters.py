@@ -1,4 +1,4 @@
-"""Tests of nutricap.landscape.rasters: grid checks, windows, windowed reads, burning polygons.
+"""Tests of nutricap.landscape.grid.rasters: grid checks, windows, windowed reads, burning polygons.
 
 Check values come from SI definitions (cell areas), pyproj (unit of a CRS), numpy (nearest
 resampling of a 2× coarser grid is a repeat), and shapely's point-in-polygon test on cell
@@ -15,7 +15,7 @@ from rasterio.transform import Affine, from_origin
 from shapely.geometry import Polygon
 
 from nutricap.errors import SpatialError
-from nutricap.landscape.rasters import (
+from nutricap.landscape.grid.rasters import (
     GridLayer,
     LayerSpec,
     LayerStack,

@@ -24,10 +24,10 @@ from matplotlib.container import ErrorbarContainer
 from shapely.geometry import box
 
 from nutricap.cautions import CAUTION
-from nutricap.manifest import build_manifest
-from nutricap.project import load_project
+from nutricap.inputs.project import load_project
 from nutricap.report import figures
 from nutricap.report.html import ReportExtras, is_flag, render_report, write_report
+from nutricap.report.manifest import build_manifest
 from nutricap.science.energetics import NUTRITIONAL_STATES
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), file signature

@@ -8,7 +8,7 @@ rows below are invented for the example and only exercise the arithmetic and the
 import pytest
 
 from nutricap.errors import TableError
-from nutricap.project import load_project
+from nutricap.inputs.project import load_project
 from nutricap.workflow import estimate
 
 HEADER = "state,season,bmr_multiplier,intake_g_per_kg075_per_day,dp_g_per_kg075_per_day,source\n"

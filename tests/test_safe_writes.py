@@ -16,10 +16,10 @@ import time
 import pytest
 
 import nutricap.report.bundle
-from nutricap import outputs
 from nutricap.cli import main
 from nutricap.errors import OutputError
-from nutricap.outputs import check_output_folder, recover_interrupted, staged_folder
+from nutricap.report import output_folder as outputs
+from nutricap.report.output_folder import check_output_folder, recover_interrupted, staged_folder
 
 KILL_ATTEMPTS = 3
 POLL_S = 0.002

@@ -1,4 +1,4 @@
-"""Tests of treatment scenarios: nutricap.science.treatment, nutricap.scenarios, `compare`.
+"""Tests of treatment scenarios: nutricap.science.treatment, nutricap.model.scenarios, `compare`.
 
 Checks are identities of the method (no effect in, no effect out), shapely
 areas as the independent measure of moved land, and hand-computed
@@ -14,8 +14,8 @@ from shapely.affinity import translate
 from shapely.geometry import box
 
 from nutricap.cli import main
-from nutricap.project import load_project
-from nutricap.scenarios import load_scenario, pieces_in_year
+from nutricap.inputs.project import load_project
+from nutricap.model.scenarios import load_scenario, pieces_in_year
 from nutricap.science.treatment import response_at
 from nutricap.workflow import compare, estimate
 
@@ -137,7 +137,7 @@ def test_unknown_scenario_is_one_clear_message(project, tmp_path, capsys):
 def test_treatment_year_outside_the_calendar_is_refused(project, year):
     # A year of 1e20 was once cast to a negative integer and the treatment silently dropped.
     from nutricap.errors import SpatialError
-    from nutricap.scenarios import read_treatments
+    from nutricap.model.scenarios import read_treatments
 
     path = project.parent / "treatments_thinning.gpkg"
     layer = gpd.read_file(path)

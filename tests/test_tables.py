@@ -1,9 +1,9 @@
-"""Tests of nutricap.tables and nutricap.inputs: CSV validation messages."""
+"""Tests of nutricap.inputs.columns and nutricap.inputs.tables: CSV validation messages."""
 
 import pytest
 
 from nutricap.errors import TableError
-from nutricap.inputs import read_animal_classes, read_forage_classes, read_plots
+from nutricap.inputs.tables import read_animal_classes, read_forage_classes, read_plots
 
 
 def _csv(tmp_path, name, text, encoding="utf-8"):

@@ -1,4 +1,5 @@
-"""Tests of the ``trend`` command logic (nutricap.trend): reading, messages, output, NCC/ECC.
+"""Tests of the ``trend`` command (cli, inputs.counts, model.trend, report.trend_text): reading,
+messages, output, NCC/ECC.
 
 Counts tables here are invented for the example; the checks are of the command's
 arithmetic, wording and file handling. The science itself is checked in
@@ -18,16 +19,17 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from nutricap import trend
+from nutricap import cli
 from nutricap.errors import InputError, OutputError, TableError
+from nutricap.report import trend_text
 
 REQUIRED_KEYS = {"r_mean", "r_ci", "K", "r_max", "msy_level", "msy_yield"}
 
 
 def run_trend(argv: list[str], capsys) -> str:
     parser = argparse.ArgumentParser(prog="nutricap trend")
-    trend.add_arguments(parser)
-    assert trend.run(parser.parse_args([str(arg) for arg in argv])) == 0
+    cli.add_trend_arguments(parser)
+    assert cli.run_trend(parser.parse_args([str(arg) for arg in argv])) == 0
     return capsys.readouterr().out
 
 
@@ -81,7 +83,7 @@ def test_json_has_required_keys_and_the_fit_of_an_exact_series(tmp_path, capsys)
     assert payload["msy_yield"] == pytest.approx(67.5, rel=1e-6)
     assert payload["ceiling_evidence"] is True
     assert [i["to_year"] - i["from_year"] for i in payload["intervals"]].count(2) == 1
-    assert len(payload["cautions"]) == len(trend.TREND_CAUTIONS)
+    assert len(payload["cautions"]) == len(trend_text.TREND_CAUTIONS)
     assert payload["removals"] == [row[2] for row in rows]
 
 
@@ -157,7 +159,7 @@ def test_bad_counts_give_one_clear_message(tmp_path, text, words):
         counts=counts, unit=None, project=None, json=False, out=None, level=0.95
     )
     with pytest.raises(TableError) as caught:
-        trend.run(args)
+        cli.run_trend(args)
     message = str(caught.value)
     assert message.startswith(str(counts))
     for word in words:
@@ -170,10 +172,10 @@ def test_unknown_unit_and_bad_level(tmp_path):
         counts=counts, unit="Z", project=None, json=False, out=None, level=0.95
     )
     with pytest.raises(TableError, match="unit 'Z'.*expected one of A, B"):
-        trend.run(args)
+        cli.run_trend(args)
     args.unit, args.level = None, 95.0
     with pytest.raises(InputError, match="--level"):
-        trend.run(args)
+        cli.run_trend(args)
 
 
 def test_out_writes_trend_json_and_leaves_no_temporary_file(tmp_path, capsys):
@@ -190,7 +192,7 @@ def test_out_refuses_the_counts_folder(tmp_path):
         counts=counts, unit=None, project=None, json=True, out=tmp_path / "in", level=0.95
     )
     with pytest.raises(OutputError, match="input folder"):
-        trend.run(args)
+        cli.run_trend(args)
     assert not (tmp_path / "in" / "trend.json").exists()
 
 
@@ -213,7 +215,9 @@ def fake_workflow(tmp_path, monkeypatch):
     project = types.SimpleNamespace(path=project_file, input_paths=lambda: {})
     load = mock.Mock(return_value=project)
     estimate = mock.Mock(return_value=types.SimpleNamespace(by_unit=CAPACITY))
-    monkeypatch.setitem(sys.modules, "nutricap.project", types.SimpleNamespace(load_project=load))
+    monkeypatch.setitem(
+        sys.modules, "nutricap.inputs.project", types.SimpleNamespace(load_project=load)
+    )
     monkeypatch.setitem(sys.modules, "nutricap.workflow", types.SimpleNamespace(estimate=estimate))
     return project_file, load, estimate, project
 
@@ -259,7 +263,7 @@ def test_counted_unit_missing_from_capacity(tmp_path, fake_workflow):
         counts=counts, unit=None, project=fake_workflow[0], json=True, out=None, level=0.95
     )
     with pytest.raises(InputError, match="unit 'D'.*not in the capacity estimate"):
-        trend.run(args)
+        cli.run_trend(args)
 
 
 def test_out_refuses_the_project_folder(tmp_path, fake_workflow):
@@ -273,7 +277,7 @@ def test_out_refuses_the_project_folder(tmp_path, fake_workflow):
         level=0.95,
     )
     with pytest.raises(OutputError):
-        trend.run(args)
+        cli.run_trend(args)
 
 
 def test_rows_in_any_order_give_the_same_figures(tmp_path, capsys):
@@ -288,7 +292,7 @@ def test_rows_in_any_order_give_the_same_figures(tmp_path, capsys):
 
 def test_help_shows_row_convention_and_cautions():
     parser = argparse.ArgumentParser(prog="nutricap trend", epilog="CAUTION: general.")
-    trend.add_arguments(parser)
+    cli.add_trend_arguments(parser)
     shown = " ".join(parser.format_help().split())
     assert "CAUTION: general." in shown
     for words in ("header is row 1", "indices", "weak evidence of K", "entered if known"):

@@ -1,4 +1,4 @@
-"""Tests of nutricap.uncertainty and the sensitivity table.
+"""Tests of nutricap.model.uncertainty and the sensitivity table.
 
 External checks: the bootstrap variance of a sample mean is (n−1)/n · s²/n
 (Efron & Tibshirani 1993, An Introduction to the Bootstrap, §5.2, from memory);
@@ -10,10 +10,10 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from nutricap.problem import CapacityProblem, ForageItems, solve_problem
-from nutricap.project import load_project
-from nutricap.results import totals_table
-from nutricap.uncertainty import (
+from nutricap.inputs.project import load_project
+from nutricap.model.problem import CapacityProblem, ForageItems, solve_problem
+from nutricap.model.results import totals_table
+from nutricap.model.uncertainty import (
     bootstrap_capacity,
     means_of_plots,
     one_at_a_time,

@@ -1,4 +1,4 @@
-"""Tests of current use: nutricap.science.use and nutricap.assess.
+"""Tests of current use: nutricap.science.use and nutricap.model.use.
 
 Check values are hand computations from the stated allocation rule (documented
 in docs/methods.md) and the definition of allowable use (Holechek 1988); the
@@ -12,7 +12,7 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from nutricap.assess import assess_use
+from nutricap.model.use import assess_use
 from nutricap.science.use import (
     allocate_demand_kg,
     animals_at_use_limit,

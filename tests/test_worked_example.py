@@ -200,7 +200,7 @@ def worked_example_project(tmp_path: Path) -> Path:
 
 def run_pipeline(project_file: Path) -> pd.DataFrame:
     """The per-unit table of the estimate, indexed by unit_id."""
-    from nutricap.project import load_project
+    from nutricap.inputs.project import load_project
     from nutricap.workflow import estimate
 
     return estimate(load_project(project_file)).by_unit.set_index("unit_id")

@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from nutricap.project import load_project
+from nutricap.inputs.project import load_project
 from nutricap.workflow import estimate, run_estimate
 
 

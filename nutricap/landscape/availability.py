@@ -1,8 +1,8 @@
 """Availability rules applied to every raster cell before forage is pooled (capability 3).
 
 Pure, vectorised functions on arrays of cells, and the table that reports what each rule
-removed. File access lives in :mod:`nutricap.landscape.rasters`; the streaming that calls
-:func:`apply_rules` window by window lives in :mod:`nutricap.landscape.window_pass`.
+removed. File access lives in :mod:`nutricap.landscape.grid.rasters`; the streaming that calls
+:func:`apply_rules` window by window lives in :mod:`nutricap.landscape.grid.window_pass`.
 
 Rules are applied in a fixed order, and the forage each removes is counted against the forage
 left by the rules before it (so the per-rule amounts add up to the total removed):
@@ -34,7 +34,7 @@ import numpy as np
 import pandas as pd
 
 from nutricap.errors import TableError
-from nutricap.tables import Column, read_csv_table, spreadsheet_row
+from nutricap.inputs.columns import Column, read_csv_table, spreadsheet_row
 
 RULES = (
     "nodata",

@@ -45,9 +45,15 @@ import rasterio
 from pyproj import CRS, Transformer
 
 from nutricap.errors import SpatialError, TableError
-from nutricap.inputs import PLOT_COLUMNS
+from nutricap.inputs.columns import (
+    Column,
+    check_known,
+    check_unique,
+    read_csv_table,
+    spreadsheet_row,
+)
+from nutricap.inputs.tables import PLOT_COLUMNS
 from nutricap.science.supply import biomass_kg_per_ha
-from nutricap.tables import Column, check_known, check_unique, read_csv_table, spreadsheet_row
 
 MODELS = ("linear", "loglinear")
 N_PARAMETERS = 3  # intercept, slope, residual variance

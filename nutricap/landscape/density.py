@@ -3,7 +3,7 @@
 Each piece of the strata × units overlay gets the NCC animal-days per hectare
 that its forage contributes to its unit's (or patch's) solution; the pieces
 are burnt onto a grid covering the units (``rasterio.features.rasterize``).
-The raster path writes its own density from the cells (see grid_outputs.py).
+The raster path writes its own density from the cells (see grid/outputs.py).
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ import rasterio
 from rasterio.features import rasterize
 from rasterio.transform import from_origin
 
-from nutricap.problem import CapacityProblem
+from nutricap.model.problem import CapacityProblem
 
 DENSITY_NODATA = -9999.0
 MAX_CELLS = 4_000_000

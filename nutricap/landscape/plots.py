@@ -15,8 +15,8 @@ import numpy as np
 import pandas as pd
 
 from nutricap.errors import TableError
+from nutricap.inputs.columns import check_known
 from nutricap.science.supply import stratum_mean_and_standard_error
-from nutricap.tables import check_known
 
 
 @dataclass(frozen=True)

@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from nutricap.errors import TableError
-from nutricap.tables import Column, check_unique, read_csv_table, spreadsheet_row
+from nutricap.inputs.columns import Column, check_unique, read_csv_table, spreadsheet_row
 
 MAX_CODE = 2**24 - 1
 """Largest code: rasters are read as float32, which holds every integer up to 2^24 exactly."""

@@ -21,7 +21,7 @@ from pyproj import CRS, Proj
 from shapely.validation import explain_validity
 
 from nutricap.errors import SpatialError
-from nutricap.tables import closest_name, plain_value
+from nutricap.inputs.columns import closest_name, plain_value
 
 M2_PER_HA = 10_000.0
 OVERLAP_TOLERANCE_M2 = 1.0

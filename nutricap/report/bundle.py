@@ -1,7 +1,7 @@
 """Writing an estimate: every table, the density raster, the manifest and the report.
 
 Formats and writes what the workflow computed, into a folder the caller
-provides (a staging folder, see :mod:`nutricap.outputs`).
+provides (a staging folder, see :mod:`nutricap.report.output_folder`).
 """
 
 from __future__ import annotations
@@ -12,17 +12,17 @@ from typing import TYPE_CHECKING
 
 import pandas as pd
 
+from nutricap.inputs.project import Project
 from nutricap.landscape.density import piece_density, write_piece_density
-from nutricap.landscape.grid_outputs import grid_outputs_alongside
-from nutricap.manifest import BackgroundChecksums, build_manifest
-from nutricap.project import Project
+from nutricap.landscape.grid.outputs import grid_outputs_alongside
+from nutricap.model.requirements import DietTarget
+from nutricap.model.results import totals_table
+from nutricap.report.manifest import BackgroundChecksums, build_manifest
 from nutricap.report.tables import markdown_table, write_csv, write_geopackage, write_json
-from nutricap.requirements import DietTarget
-from nutricap.results import totals_table
 
 if TYPE_CHECKING:
+    from nutricap.model.estimate import Estimate
     from nutricap.report.html import ReportExtras
-    from nutricap.workflow import Estimate
 
 # Matplotlib takes about a second to import: the report modules are imported only when a
 # report or chart is written.
@@ -60,8 +60,13 @@ def write_estimate(
         write_piece_density(
             result.areas.pieces, density, result.units, folder / "capacity_density.tif"
         )
+    if result.grid is not None:
+        write_csv(result.grid.rules_report, folder / "availability_rules.csv")
+        if result.grid.calibration_report is not None:
+            write_csv(result.grid.calibration_report, folder / "calibration.csv")
     # Raster outputs (capacity_density.tif: a second streamed pass) are written alongside.
-    with grid_outputs_alongside(result.grid, result.problem, eaten_kg, intake, folder):
+    available = result.problem.available_kg
+    with grid_outputs_alongside(result.grid, available, eaten_kg, intake, folder):
         context = [
             f"{config.project.species}, {config.project.name}; "
             f"season of {result.season_days:g} days.",

@@ -23,7 +23,7 @@ from nutricap.report.formatting import (
     numeric_column,
     table,
 )
-from nutricap.trend import TREND_CAUTIONS
+from nutricap.report.trend_text import TREND_CAUTIONS
 
 #: Units drawn as small multiples in the scenario chart at most (more: total panel only).
 MAX_SCENARIO_PANELS = 12

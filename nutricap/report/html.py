@@ -1,6 +1,6 @@
 """The self-contained HTML report of an estimate.
 
-:func:`render_report` formats an :class:`~nutricap.workflow.Estimate` (and optional
+:func:`render_report` formats an :class:`~nutricap.model.estimate.Estimate` (and optional
 scenario, sensitivity and trend results) into one HTML file: figures are
 embedded as base64 ``data:image/png`` URIs and the style sheet is inline, so the
 file opens anywhere with no network and no other file. The template is
@@ -36,8 +36,8 @@ from nutricap.report.methods_text import methods
 from nutricap.report.sections import INTERVAL_COLUMNS, has_interval, is_flag, unit_table
 
 if TYPE_CHECKING:
-    from nutricap.project import Project
-    from nutricap.workflow import Estimate
+    from nutricap.inputs.project import Project
+    from nutricap.model.estimate import Estimate
 
 __all__ = ["ReportExtras", "is_flag", "methods", "render_report", "unit_table", "write_report"]
 
@@ -60,7 +60,7 @@ class ReportExtras:
         ``K_ci``, ``r_mean``, ``r_ci``, ``lambda_mean``, ``lambda_ci``, ``r_max``, ``r_max_ci``,
         ``msy_level``, ``msy_yield``, ``phase``, ``ceiling_reason``, ``series``, and the forage
         capacity of the counted area as ``ncc_animals``/``ecc_animals`` or under ``capacity``
-        (the output of :func:`nutricap.trend.analyse_series` fits).
+        (the output of :func:`nutricap.model.trend.analyse_series` fits).
     interval_level : float, optional
         Level of the ``*_lo``/``*_hi`` intervals in the per-unit table, e.g. 0.9.
     sensitivity_change : float, optional
@@ -85,12 +85,12 @@ def render_report(
 
     Parameters
     ----------
-    estimate : nutricap.workflow.Estimate
+    estimate : nutricap.model.estimate.Estimate
         The results to report.
-    project : nutricap.project.Project
+    project : nutricap.inputs.project.Project
         The project that was estimated (names, settings, input tables).
     manifest : dict
-        The run manifest (:func:`nutricap.manifest.build_manifest`), shown and used for the
+        The run manifest (:func:`nutricap.report.manifest.build_manifest`), shown and used for the
         input files' SHA-256, the area CRS and the run date.
     extras : ReportExtras, optional
         Scenario, sensitivity and trend results; each section appears only when given.

@@ -26,8 +26,8 @@ from nutricap.report.formatting import (
 from nutricap.science import energetics, forage_quality, supply
 
 if TYPE_CHECKING:
-    from nutricap.project import Project
-    from nutricap.workflow import Estimate
+    from nutricap.inputs.project import Project
+    from nutricap.model.estimate import Estimate
 
 
 # --- 12. parameters ---------------------------------------------------------------------------

@@ -1,7 +1,7 @@
 """The report's section of a raster run: the grid, what each availability rule removed, the
 calibrated biomass models and the reduction tables used, with their sources.
 
-Formats what the grid path computed (:class:`nutricap.landscape.grid_supply.GridResult`);
+Formats what the grid path computed (:class:`nutricap.landscape.grid.supply.GridResult`);
 returns None for a run without rasters.
 """
 
@@ -23,7 +23,7 @@ from nutricap.report.formatting import (
 )
 
 if TYPE_CHECKING:
-    from nutricap.workflow import Estimate
+    from nutricap.model.estimate import Estimate
 
 RULE_COLUMNS = [
     Column("rule", "Rule"),

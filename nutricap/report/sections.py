@@ -28,8 +28,8 @@ from nutricap.report.formatting import (
 )
 
 if TYPE_CHECKING:
-    from nutricap.project import Project
-    from nutricap.workflow import Estimate
+    from nutricap.inputs.project import Project
+    from nutricap.model.estimate import Estimate
 
 
 # --- 1. header --------------------------------------------------------------------------------
@@ -268,7 +268,7 @@ def _total_cell(frame: pd.DataFrame, column: Column) -> str:
 
 USE_COLUMNS = ("current_animals", "overuse", "key_use_fraction")
 
-#: Columns of the use table, shown when present (written by :mod:`nutricap.assess`).
+#: Columns of the use table, shown when present (written by :mod:`nutricap.model.use`).
 USE_TABLE_COLUMNS = [
     Column("unit_id", "Unit"),
     numeric_column("current_animals", "Current animals [animals]"),

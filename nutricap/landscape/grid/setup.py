@@ -1,7 +1,7 @@
 """What the grid path takes from the project: its rasters, forage classes, strata map,
 availability rules, calibrated groups, units and the shapes burnt into each window.
 
-Used by :func:`nutricap.landscape.grid_supply.grid_problem` to set up the first pass.
+Used by :func:`nutricap.landscape.grid.supply.grid_problem` to set up the first pass.
 """
 
 from __future__ import annotations
@@ -16,9 +16,9 @@ import pandas as pd
 from nutricap.errors import ProjectFileError
 from nutricap.landscape import availability as rules_mod
 from nutricap.landscape.calibration import fit_groups, margin_bounds
-from nutricap.landscape.grid_calibration import CalibratedGroup
+from nutricap.landscape.grid.calibration import CalibratedGroup
+from nutricap.landscape.grid.rasters import Grid, LayerSpec, ShapeBurner
 from nutricap.landscape.plots import StratumSupply, stratum_supply
-from nutricap.landscape.rasters import Grid, LayerSpec, ShapeBurner
 from nutricap.landscape.strata_raster import StrataCodes, read_strata_codes
 from nutricap.landscape.vectors import (
     M2_PER_HA,

@@ -1,7 +1,7 @@
 """Input groups for the one-at-a-time sensitivity of total NCC.
 
 Each group is a function of a multiplier that rebuilds the part of the problem
-it touches and returns total NCC [animals]; :func:`nutricap.uncertainty.one_at_a_time`
+it touches and returns total NCC [animals]; :func:`nutricap.model.uncertainty.one_at_a_time`
 turns them into a tornado table.
 """
 
@@ -12,7 +12,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from nutricap.problem import CapacityProblem
+from nutricap.model.problem import CapacityProblem
 from nutricap.science.energetics import HerdRequirement
 
 TotalFor = Callable[..., float]

@@ -1,6 +1,6 @@
 """The three CSV tables of a project: forage classes, clip plots, animal classes.
 
-Each reader declares its columns (see :mod:`nutricap.tables`) and checks the
+Each reader declares its columns (see :mod:`nutricap.inputs.columns`) and checks the
 relations inside the table (unique ids, one of two alternative columns).
 Relations between tables (a plot's forage class must be in the forage-class
 table) are checked in :mod:`nutricap.landscape.plots`.
@@ -14,13 +14,13 @@ import numpy as np
 import pandas as pd
 
 from nutricap.errors import TableError
+from nutricap.inputs.columns import Column, check_unique, read_csv_table, spreadsheet_row
 from nutricap.science.forage_quality import (
     GROSS_ENERGY_KCAL_PER_G_DEFAULT,
     digestible_energy_kcal_per_g,
     digestible_protein_pct,
 )
 from nutricap.science.supply import biomass_kg_per_ha
-from nutricap.tables import Column, check_unique, read_csv_table, spreadsheet_row
 
 FORAGE_CLASS_COLUMNS = [
     Column("forage_class", "text", meaning="name of the forage class"),

@@ -1,6 +1,6 @@
 """Assembling results: the per-unit and per-class tables, totals and notes.
 
-Turns a solved :class:`~nutricap.problem.CapacityProblem` into the tables of
+Turns a solved :class:`~nutricap.model.problem.CapacityProblem` into the tables of
 the output contract; formats nothing and writes nothing.
 """
 
@@ -13,12 +13,12 @@ import pandas as pd
 
 from nutricap.landscape.plots import StratumSupply
 from nutricap.landscape.vectors import StratumAreas
-from nutricap.problem import CapacityProblem, Solution
+from nutricap.model.problem import CapacityProblem, Solution
 from nutricap.science import energetics
 from nutricap.science.forage_quality import mixed_diet_quality
 
 if TYPE_CHECKING:
-    from nutricap.workflow import Estimate
+    from nutricap.model.estimate import Estimate
 
 HA_PER_KM2 = 100.0
 

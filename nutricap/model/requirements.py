@@ -13,9 +13,9 @@ import numpy as np
 import pandas as pd
 
 from nutricap.errors import InputError, ProjectFileError, TableError
-from nutricap.project import Project
+from nutricap.inputs.columns import Column, read_csv_table, spreadsheet_row
+from nutricap.inputs.project import Project
 from nutricap.science import energetics
-from nutricap.tables import Column, read_csv_table, spreadsheet_row
 
 #: Columns of a user's own requirement table (``[inputs] nutritional_states``), as in
 #: ``nutricap/data/nutritional_states.csv``; ``scope`` and ``description`` are optional.

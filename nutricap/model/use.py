@@ -1,6 +1,6 @@
 """Assess current use: demand of the animals there now, utilization, overuse flags.
 
-Builds on a solved :class:`~nutricap.problem.CapacityProblem`. Current numbers
+Builds on a solved :class:`~nutricap.model.problem.CapacityProblem`. Current numbers
 come from the units layer's ``current_animals`` column or, when it is absent,
 from the latest year of the counts table for each unit.
 """
@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from nutricap.problem import CapacityProblem
+from nutricap.model.problem import CapacityProblem
 from nutricap.science.use import (
     allocate_demand_kg,
     animals_at_use_limit,

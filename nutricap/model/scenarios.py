@@ -20,12 +20,18 @@ import numpy as np
 import pandas as pd
 
 from nutricap.errors import InputError, SpatialError, TableError
+from nutricap.inputs.columns import (
+    Column,
+    check_unique,
+    plain_value,
+    read_csv_table,
+    spreadsheet_row,
+)
+from nutricap.inputs.project import FIRST_YEAR, LAST_YEAR, Project, ScenarioSection
 from nutricap.landscape.vectors import M2_PER_HA, StratumAreas, check_no_overlaps, read_layer
-from nutricap.problem import ForageItems, problem_from_pieces
-from nutricap.project import FIRST_YEAR, LAST_YEAR, Project, ScenarioSection
+from nutricap.model.problem import ForageItems, problem_from_pieces
 from nutricap.science.forage_quality import digestible_protein_pct
 from nutricap.science.treatment import response_at
-from nutricap.tables import Column, check_unique, plain_value, read_csv_table, spreadsheet_row
 
 RESPONSE_COLUMNS = [
     Column("treatment", "text", meaning="treatment type, as in the treatments layer"),

@@ -1,8 +1,8 @@
 """Project-file sections of the raster path: ``[rasters]`` and ``[availability]``.
 
-Same conventions as :mod:`nutricap.project`: TOML data only, unknown keys refused, paths relative
-to the project file. Which forage classes exist is only known once the forage-class table is
-read, so names of classes are checked later (:mod:`nutricap.landscape.grid_inputs`).
+Same conventions as :mod:`nutricap.inputs.project`: TOML data only, unknown keys refused, paths
+relative to the project file. Which forage classes exist is only known once the forage-class table
+is read, so names of classes are checked later (:mod:`nutricap.landscape.grid.setup`).
 """
 
 from __future__ import annotations

@@ -18,7 +18,7 @@ from typing import Literal
 from pydantic import BaseModel, Field, ValidationError, model_validator
 
 from nutricap.errors import ProjectFileError
-from nutricap.landscape.raster_config import (
+from nutricap.inputs.raster_config import (
     AvailabilitySection,
     InputPath,
     RasterSection,

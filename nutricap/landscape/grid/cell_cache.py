@@ -1,8 +1,8 @@
 """The temporary cell file of the grid path, between its two passes.
 
-The first pass (:func:`nutricap.landscape.window_pass.stream_windows`) keeps each cell's key
+The first pass (:func:`nutricap.landscape.grid.window_pass.stream_windows`) keeps each cell's key
 and the forage the availability rules left in it [kg/ha] in a :class:`CellCache`; the density
-pass (:func:`nutricap.landscape.grid_outputs.write_capacity_density`) reads them back window
+pass (:func:`nutricap.landscape.grid.outputs.write_capacity_density`) reads them back window
 by window, so the input rasters are read only once and the cells are never all in memory.
 The worker threads write their own chunks at offsets known in advance (``os.pwrite``).
 """

@@ -24,7 +24,7 @@ from typing import Protocol
 import numpy as np
 import pandas as pd
 
-from nutricap.problem import CapacityProblem, Solution
+from nutricap.model.problem import CapacityProblem, Solution
 
 FIGURES = ("ncc", "ecc", "allowable_use")
 SolveRows = Callable[[CapacityProblem], Solution]
@@ -32,7 +32,7 @@ SolveRows = Callable[[CapacityProblem], Solution]
 
 class ResampledForage(Protocol):
     """Forage of some (row, item) entries of a problem under a resampled model, e.g. a
-    calibrated group (:class:`nutricap.landscape.grid_calibration.CalibratedSums`)."""
+    calibrated group (:class:`nutricap.landscape.grid.calibration.CalibratedSums`)."""
 
     rows: np.ndarray  # (entries,) problem rows
     items: np.ndarray  # (entries,) problem items

@@ -1,11 +1,11 @@
 """Calibrated forage groups on the grid: each cell's biomass from the index raster, and the
 sums from which a refitted model's forage follows (the model bootstrap).
 
-The per-window computation (:mod:`nutricap.landscape.window_pass`) predicts each group's
+The per-window computation (:mod:`nutricap.landscape.grid.window_pass`) predicts each group's
 biomass with :func:`predict_group` and writes the per-cell terms of
 :func:`reprediction_terms`; summed by key over the grid, they become one
 :class:`CalibratedSums` per group (:func:`calibrated_sums`), which
-:mod:`nutricap.uncertainty` refits without another pass over the rasters.
+:mod:`nutricap.model.uncertainty` refits without another pass over the rasters.
 """
 
 from __future__ import annotations
@@ -157,7 +157,7 @@ def calibrated_sums(
     :func:`reprediction_terms` rows [per-cell values × cells] and the cell area [ha].
 
     Keys map to the problem's (row, item) as in
-    :func:`~nutricap.landscape.grid_outputs.density_coefficients`: the key's row, and item
+    :func:`~nutricap.landscape.grid.outputs.density_coefficients`: the key's row, and item
     ``stratum × classes + class`` (``n_classes`` classes); keys without a row are left out.
     """
     keys = np.flatnonzero(row_of_key[: terms_by_key.shape[0]] >= 0)

@@ -3,15 +3,15 @@
 For each window of the grid: the biomass of every forage class in every cell [kg/ha] (strata
 classes from the plot means of the cell's stratum, direct classes from their rasters,
 calibrated classes from the index raster and the group models, see
-:mod:`nutricap.landscape.grid_calibration`) → the availability rules
+:mod:`nutricap.landscape.grid.calibration`) → the availability rules
 (:func:`nutricap.landscape.availability.apply_rules`) → sums by (unit, stratum) key. Sums are
 taken over runs of equal key along each row (``numpy.add.reduceat``) and the run sums are
 added into the keys (``numpy.bincount``). A cell belongs to a unit or stratum polygon when its
 centre lies in it (GDAL's rasteriser); cells outside the strata map carry no forage.
 
 Worker threads read and compute the windows (:class:`WindowReader`, :func:`stream_windows`),
-each in its own reusable memory (:class:`~nutricap.landscape.rasters.Scratch`), and write
-each chunk's cells to the :class:`~nutricap.landscape.cell_cache.CellCache`; the main thread
+each in its own reusable memory (:class:`~nutricap.landscape.grid.rasters.Scratch`), and write
+each chunk's cells to the :class:`~nutricap.landscape.grid.cell_cache.CellCache`; the main thread
 adds the run sums to the :class:`Totals` in window order.
 
 Precision: per-cell arithmetic and the sums along one row of a window are float32 (relative
@@ -32,13 +32,13 @@ from rasterio.windows import Window
 from tqdm import tqdm
 
 from nutricap.landscape import availability as rules_mod
-from nutricap.landscape.cell_cache import CellCache, KeepCells
-from nutricap.landscape.grid_calibration import (
+from nutricap.landscape.grid.calibration import (
     CalibratedGroup,
     predict_group,
     reprediction_terms,
 )
-from nutricap.landscape.rasters import Grid, LayerStack, Scratch, ShapeBurner
+from nutricap.landscape.grid.cell_cache import CellCache, KeepCells
+from nutricap.landscape.grid.rasters import Grid, LayerStack, Scratch, ShapeBurner
 from nutricap.landscape.strata_raster import polygons_from_codes
 
 STRATA_RASTER_KEY = "rasters.strata.raster"

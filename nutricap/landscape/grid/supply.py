@@ -1,17 +1,17 @@
 """Forage supply on a raster grid: the grid path's entry point (capabilities 1b, 1c, 3, 5, 11).
 
 :func:`grid_problem` sets up the first pass from the project
-(:mod:`nutricap.landscape.grid_inputs`), streams the windows
-(:mod:`nutricap.landscape.window_pass`: per-cell biomass → availability rules → sums by
+(:mod:`nutricap.landscape.grid.setup`), streams the windows
+(:mod:`nutricap.landscape.grid.window_pass`: per-cell biomass → availability rules → sums by
 (unit, stratum) key), and assembles the totals by key into a
-:class:`~nutricap.problem.CapacityProblem` (one row per unit, or per unit × stratum patch)
+:class:`~nutricap.model.problem.CapacityProblem` (one row per unit, or per unit × stratum patch)
 like the vector path's, so the same solver and tables follow, with the areas, the rules and
 calibration reports, and the notes.
 
-A second streamed pass (:mod:`nutricap.landscape.grid_outputs`) writes
+A second streamed pass (:mod:`nutricap.landscape.grid.outputs`) writes
 ``capacity_density.tif``: animal-days per hectare from each cell's share of the forage eaten
 in its row of the solution. The per-cell forage left by the rules is kept between the two
-passes in a temporary file (:mod:`nutricap.landscape.cell_cache`, not in memory), so the
+passes in a temporary file (:mod:`nutricap.landscape.grid.cell_cache`, not in memory), so the
 inputs are read only once.
 """
 
@@ -29,10 +29,19 @@ from rasterio.windows import Window
 
 from nutricap.errors import ProjectFileError, SpatialError
 from nutricap.landscape import availability as rules_mod
-from nutricap.landscape.cell_cache import CellCache
-from nutricap.landscape.cluster import ClusterRun, WindowJob, new_job
-from nutricap.landscape.grid_calibration import CalibratedSums, calibrated_sums
-from nutricap.landscape.grid_inputs import (
+from nutricap.landscape.grid.calibration import CalibratedSums, calibrated_sums
+from nutricap.landscape.grid.cell_cache import CellCache
+from nutricap.landscape.grid.cluster import ClusterRun, WindowJob, new_job
+from nutricap.landscape.grid.rasters import (
+    Grid,
+    LayerSpec,
+    LayerStack,
+    ShapeBurner,
+    grid_windows,
+    read_grid,
+    streaming_env,
+)
+from nutricap.landscape.grid.setup import (
     calibrated_groups,
     cell_rules,
     class_sources,
@@ -44,18 +53,7 @@ from nutricap.landscape.grid_inputs import (
     strata_supply,
     unit_areas,
 )
-from nutricap.landscape.plots import StratumSupply
-from nutricap.landscape.rasters import (
-    Grid,
-    LayerSpec,
-    LayerStack,
-    ShapeBurner,
-    grid_windows,
-    read_grid,
-    streaming_env,
-)
-from nutricap.landscape.vectors import StratumAreas
-from nutricap.landscape.window_pass import (
+from nutricap.landscape.grid.window_pass import (
     WORKERS,
     GridSetup,
     Layout,
@@ -64,7 +62,9 @@ from nutricap.landscape.window_pass import (
     layout_of,
     stream_windows,
 )
-from nutricap.problem import CapacityProblem, build_forage_items
+from nutricap.landscape.plots import StratumSupply
+from nutricap.landscape.vectors import StratumAreas
+from nutricap.model.problem import CapacityProblem, build_forage_items
 
 Progress = Callable[[str], None]
 

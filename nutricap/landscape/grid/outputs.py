@@ -1,8 +1,8 @@
-"""The grid path's outputs: availability_rules.csv, calibration.csv and capacity_density.tif.
+"""The grid path's raster output: capacity_density.tif (its tables are written by the report).
 
 The density raster is the grid path's second pass: it reads the per-cell forage kept in the
-:class:`~nutricap.landscape.cell_cache.CellCache` window by window (or, on a Dask cluster,
-takes each window's density from the workers, :mod:`nutricap.landscape.cluster`) and writes
+:class:`~nutricap.landscape.grid.cell_cache.CellCache` window by window (or, on a Dask cluster,
+takes each window's density from the workers, :mod:`nutricap.landscape.grid.cluster`) and writes
 animal-days per hectare from each cell's share of the forage eaten in its row of the solution.
 It runs in a background thread beside the HTML report (:func:`grid_outputs_alongside`), with
 short GIL turns so that the report's Python code does not starve it.
@@ -22,12 +22,10 @@ import rasterio
 from rasterio.windows import Window
 from tqdm import tqdm
 
-from nutricap.landscape.rasters import Scratch, streaming_env
-from nutricap.problem import CapacityProblem
-from nutricap.report.tables import write_csv
+from nutricap.landscape.grid.rasters import Scratch, streaming_env
 
 if TYPE_CHECKING:
-    from nutricap.landscape.grid_supply import GridResult
+    from nutricap.landscape.grid.supply import GridResult
 
 DENSITY_NODATA = -9999.0
 COMPRESSION_LEVEL = {"zstd": {"zstd_level": 1}, "deflate": {"zlevel": 1}}
@@ -37,16 +35,17 @@ GIL_TURN_S = 0.0002
 
 
 def density_coefficients(
-    result: GridResult, problem: CapacityProblem, eaten_kg: np.ndarray, intake_kg_per_day: float
+    result: GridResult, available_kg: np.ndarray, eaten_kg: np.ndarray, intake_kg_per_day: float
 ) -> np.ndarray:
     """Animal-days per kg of each class's forage left in a cell, by key: (keys, classes).
 
     ``eaten_kg[row, item] / available_kg[row, item] / intake`` of the key's row and the
-    items of the key's stratum; 0 where nothing is available.
+    items of the key's stratum (both (rows, items) arrays of the capacity problem [kg]); 0
+    where nothing is available.
     """
     n_classes = len(result.classes)
     with np.errstate(invalid="ignore", divide="ignore"):
-        ratio = np.where(problem.available_kg > 0, eaten_kg / problem.available_kg, 0.0)
+        ratio = np.where(available_kg > 0, eaten_kg / available_kg, 0.0)
     coefficients = np.zeros((result.row_of_key.size, n_classes), dtype=np.float64)
     has_row = result.row_of_key >= 0
     rows = result.row_of_key[has_row]
@@ -76,7 +75,7 @@ def window_density(keys, kg_per_ha, per_class, dump: int, out: np.ndarray, scrat
 
 def write_capacity_density(
     result: GridResult,
-    problem: CapacityProblem,
+    available_kg: np.ndarray,
     eaten_kg: np.ndarray,
     intake_kg_per_day: float,
     path: Path,
@@ -92,7 +91,7 @@ def write_capacity_density(
     has no data.
     """
     per_class = np.ascontiguousarray(
-        density_coefficients(result, problem, eaten_kg, intake_kg_per_day).T
+        density_coefficients(result, available_kg, eaten_kg, intake_kg_per_day).T
     )
     grid = result.grid
     profile = {
@@ -162,7 +161,7 @@ def _cached_density(
 @contextmanager
 def grid_outputs_alongside(
     result: GridResult | None,
-    problem: CapacityProblem,
+    available_kg: np.ndarray,
     eaten_kg: np.ndarray,
     intake_kg_per_day: float,
     folder: Path,
@@ -178,7 +177,7 @@ def grid_outputs_alongside(
         return
     with _short_gil_turns(), ThreadPoolExecutor(max_workers=1) as pool:
         writing = pool.submit(
-            write_grid_outputs, result, problem, eaten_kg, intake_kg_per_day, folder
+            write_grid_outputs, result, available_kg, eaten_kg, intake_kg_per_day, folder
         )
         try:
             yield
@@ -206,18 +205,15 @@ def _short_gil_turns(seconds: float = GIL_TURN_S) -> Iterator[None]:
 
 def write_grid_outputs(
     result: GridResult,
-    problem: CapacityProblem,
+    available_kg: np.ndarray,
     eaten_kg: np.ndarray,
     intake_kg_per_day: float,
     folder: Path,
 ) -> None:
-    """Write availability_rules.csv, calibration.csv (when calibrated), capacity_density.tif."""
-    write_csv(result.rules_report, folder / "availability_rules.csv")
-    if result.calibration_report is not None:
-        write_csv(result.calibration_report, folder / "calibration.csv")
+    """Write capacity_density.tif into ``folder``, then close the cluster (if any)."""
     path = folder / "capacity_density.tif"
     try:
-        write_capacity_density(result, problem, eaten_kg, intake_kg_per_day, path)
+        write_capacity_density(result, available_kg, eaten_kg, intake_kg_per_day, path)
     finally:
         if result.cluster is not None:
             result.cluster.close()

@@ -6,7 +6,7 @@ the rasters itself, so the files must be reachable at the same absolute paths fr
 worker (a shared file system) and from this machine (which checks the layers first).
 
 - **First pass**: one task per window computes the window's run sums
-  (:func:`~nutricap.landscape.window_pass.window_sums`, kilobytes); this machine adds them in
+  (:func:`~nutricap.landscape.grid.window_pass.window_sums`, kilobytes); this machine adds them in
   window order, so the totals are those of a local run to the last bit.
 - **Density pass**: there is no per-cell file shared with the workers, so each task reads
   and computes its window again and returns the window's density (4 bytes per cell); this
@@ -31,8 +31,8 @@ from rasterio.windows import Window
 from tqdm import tqdm
 
 from nutricap.errors import ProjectFileError
-from nutricap.landscape.grid_outputs import window_density
-from nutricap.landscape.rasters import (
+from nutricap.landscape.grid.outputs import window_density
+from nutricap.landscape.grid.rasters import (
     Grid,
     LayerSpec,
     LayerStack,
@@ -40,7 +40,7 @@ from nutricap.landscape.rasters import (
     ShapeBurner,
     streaming_env,
 )
-from nutricap.landscape.window_pass import (
+from nutricap.landscape.grid.window_pass import (
     GridSetup,
     Totals,
     WindowReader,
@@ -99,7 +99,7 @@ def sums_task(number: int, job: WindowJob) -> WindowSums:
 
 def density_task(number: int, job: WindowJob, per_class: np.ndarray, dump: int) -> np.ndarray:
     """Density pass on a worker: window ``number`` read and computed again, then its NCC
-    animal-days per hectare (see :func:`~nutricap.landscape.grid_outputs.window_density`)."""
+    animal-days per hectare (see :func:`~nutricap.landscape.grid.outputs.window_density`)."""
     window = job.windows[number]
     height, width = int(window.height), int(window.width)
     keys = np.empty(height * width, dtype=np.int32)

@@ -1,0 +1,1 @@
+"""Inputs: reading and validation of the project file and its tables."""

@@ -1,0 +1,1 @@
+"""The raster path: grid checks, the streamed window passes and the grid outputs."""

@@ -1,0 +1,2 @@
+"""The capacity model: the problem, requirements, results, use, uncertainty, sensitivity and
+scenarios."""

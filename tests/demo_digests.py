@@ -1,0 +1,108 @@
+"""SHA-256 digests of the demo's outputs, normalised: a refactoring guard, not a check of
+correctness.
+
+The demo's two estimates (``project.toml`` on polygons, ``project_rasters.toml`` on the grid)
+are run on a copy of the committed ``example_landscape/`` and every output file is hashed.
+What changes from run to run without any change of the numbers is taken out first:
+
+- ``run.json``: ``started_utc`` and ``versions`` are dropped, and the folder of the copied
+  inputs is written ``<inputs>`` (``project_file``, the keys of ``inputs``, raster sources);
+- ``report.html``: the same folder and every time stamp, and the software-versions table
+  and the ``versions`` block of the embedded manifest;
+- GeoPackages (``capacity_by_unit.gpkg``): SQLite keeps a time stamp in the file, so the
+  features are hashed instead (attributes as CSV, geometries as WKB, the CRS).
+
+Every other file (CSV, Markdown, JSON, GeoTIFF) is hashed byte for byte.
+
+The committed digests (``tests/demo_digests.json``) are those of the code before the package
+was re-laid out (issue 18). When numbers or formats change on purpose, regenerate them
+deliberately and say so in the commit:
+
+    PYTHONPATH=$PWD .venv/bin/python tests/demo_digests.py --write
+"""
+
+from __future__ import annotations
+
+import contextlib
+import hashlib
+import io
+import json
+import re
+import shutil
+import sys
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+EXAMPLE = ROOT / "example_landscape"
+DIGESTS = Path(__file__).with_name("demo_digests.json")
+PROJECTS = {"results": "project.toml", "results_rasters": "project_rasters.toml"}
+INPUTS = "<inputs>"
+TIME = re.compile(r"\d{4}-\d{2}-\d{2}[T ]\d{2}:\d{2}(:\d{2}(\.\d+)?)?(\+00:00)?")
+VERSIONS_TABLE = re.compile(r"<caption>Software versions</caption>.*?</table>", re.S)
+VERSIONS_JSON = re.compile(r"&#34;versions&#34;: \{.*?\}", re.S)
+
+
+def run_demo(folder: Path) -> Path:
+    """Copy the example into ``folder / "inputs"`` and run both estimates; return ``folder``."""
+    from nutricap.cli import main
+
+    inputs = folder / "inputs"
+    shutil.copytree(EXAMPLE, inputs, ignore=shutil.ignore_patterns("*.py", "*.md"))
+    for out, project in PROJECTS.items():
+        with contextlib.redirect_stdout(io.StringIO()):  # the summary printed by the command
+            code = main(["estimate", str(inputs / project), "--out", str(folder / out), "--quiet"])
+        if code != 0:
+            raise RuntimeError(f"nutricap estimate {project} exited with {code}")
+    return folder
+
+
+def digests(folder: Path) -> dict[str, str]:
+    """Normalised SHA-256 of every output file under ``folder`` (as :func:`run_demo` left it)."""
+    inputs = str(folder / "inputs")
+    found = {}
+    for out in PROJECTS:
+        for path in sorted((folder / out).rglob("*")):
+            if path.is_file():
+                found[path.relative_to(folder).as_posix()] = _digest(path, inputs)
+    return found
+
+
+def _digest(path: Path, inputs: str) -> str:
+    if path.suffix == ".gpkg":
+        return _sha(_features(path))
+    if path.name == "run.json":
+        manifest = json.loads(path.read_text(encoding="utf-8").replace(inputs, INPUTS))
+        manifest.pop("started_utc")
+        manifest.pop("versions")
+        return _sha(json.dumps(manifest, indent=1, sort_keys=True).encode())
+    if path.suffix == ".html":
+        text = path.read_text(encoding="utf-8").replace(inputs, INPUTS)
+        text = VERSIONS_JSON.sub("versions", VERSIONS_TABLE.sub("versions", text))
+        return _sha(TIME.sub("<time>", text).encode())
+    return _sha(path.read_bytes())
+
+
+def _features(path: Path) -> bytes:
+    import pyogrio
+
+    frame = pyogrio.read_dataframe(path)
+    attributes = frame.drop(columns="geometry").to_csv(index=False)
+    shapes = "\n".join(frame.geometry.to_wkb(hex=True))
+    return f"{frame.crs.to_wkt()}\n{attributes}\n{shapes}".encode()
+
+
+def _sha(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
+
+
+if __name__ == "__main__":
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as temporary:
+        computed = digests(run_demo(Path(temporary)))
+    text = json.dumps(computed, indent=2) + "\n"
+    if sys.argv[1:] == ["--write"]:
+        DIGESTS.write_text(text, encoding="utf-8")
+        print(f"wrote {len(computed)} digests to {DIGESTS}")
+    else:
+        print(text, end="")
