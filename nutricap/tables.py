@@ -29,7 +29,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from nutricap.errors import TableError
+from nutricap.errors import TableError, file_problem
 
 TRUE_WORDS = frozenset({"true", "yes", "y", "1", "t"})
 FALSE_WORDS = frozenset({"false", "no", "n", "0", "f", ""})
@@ -114,10 +114,11 @@ def _read_raw(path: Path, what: str) -> pd.DataFrame:
 
 
 def _read_text(path: Path, what: str) -> str:
+    problem = file_problem(path)
+    if problem is not None:
+        raise TableError(f"{what} {problem}", source=path, expected="an existing CSV file")
     if path.is_dir():
         raise TableError(f"{what} is a folder, not a file", source=path, expected="a CSV file")
-    if not path.is_file():
-        raise TableError(f"{what} not found", source=path, expected="an existing CSV file")
     data = path.read_bytes()
     try:
         return data.decode("utf-8-sig")

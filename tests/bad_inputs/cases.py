@@ -15,6 +15,7 @@ source. To add a case: append one ``Case`` line below (see DEVELOPERS.md).
 
 from __future__ import annotations
 
+import os
 import shutil
 import warnings
 from collections.abc import Callable
@@ -128,6 +129,21 @@ def set_key(section: str, line: str) -> Recipe:
 def use_file(source: str, name: str) -> Recipe:
     """Replace ``name`` by the real broken file ``files/source``."""
     return lambda folder: shutil.copyfile(FILES / source, folder / name)
+
+
+def append_text(name: str, text: str) -> Recipe:
+    """Add ``text`` as a last line of ``name`` (which ends with a line break)."""
+
+    def recipe(folder: Path) -> None:
+        with (folder / name).open("a", encoding="utf-8") as file:
+            file.write(f"{text}\n")
+
+    return recipe
+
+
+def symlink(name: str, target: str) -> Recipe:
+    """Make ``name`` a symbolic link to ``target`` (which need not exist)."""
+    return lambda folder: (folder / name).symlink_to(target)
 
 
 def insert_line(name: str, row: int, line: str) -> Recipe:
@@ -746,5 +762,49 @@ CASES = [
         "counts: a unit without counts",
         steps(NO_CURRENT_ANIMALS, drop_rows("counts.csv", "unit_id", "Wrenfall")),
         r"counts\.csv: column 'unit_id': no count for unit 'Wrenfall'",
+    ),
+    # issue 14, second corpus: tracebacks and messages
+    Case(
+        "project: arrays nested 5,000 deep",
+        append_text("project.toml", "x = " + "[" * 5000 + "]" * 5000),
+        r"project\.toml: line 46: arrays or inline tables nested too deeply to read",
+    ),
+    Case(
+        "project: inline tables nested 3,000 deep",
+        append_text("project.toml", "x = " + "{a=" * 3000 + "1" + "}" * 3000),
+        r"project\.toml: line 46: arrays or inline tables nested too deeply to read",
+    ),
+    Case(
+        "project: input is a symbolic link to itself",
+        steps(
+            symlink("loop.csv", "loop.csv"),
+            replace_text("project.toml", '"plots.csv"', '"loop.csv"'),
+        ),
+        r"project\.toml: input file for key 'inputs\.plots' is a symbolic link that loops back on "
+        r"itself .*found /.*/loop\.csv\)",
+    ),
+    Case(
+        "project: input is a link to /dev/zero",
+        steps(
+            symlink("zero.csv", "/dev/zero"),
+            replace_text("project.toml", '"plots.csv"', '"zero.csv"'),
+        ),
+        r"project\.toml: input file for key 'inputs\.plots' is not a regular file but a character "
+        r"device .*found /.*/zero\.csv\)",
+    ),
+    Case(
+        "project: input is a named pipe",
+        steps(
+            lambda folder: os.mkfifo(folder / "pipe.gpkg"),
+            replace_text("project.toml", '"units.gpkg"', '"pipe.gpkg"'),
+        ),
+        r"project\.toml: input file for key 'inputs\.units' is not a regular file but a named pipe "
+        r"\(FIFO\) .*found /.*/pipe\.gpkg\)",
+    ),
+    Case(
+        "project: units layer is the project's own folder",
+        replace_text("project.toml", '"units.gpkg"', '"."'),
+        r"project\.toml: input file for key 'inputs\.units' is a folder that holds the project "
+        r"file",
     ),
 ]
