@@ -32,7 +32,12 @@ from nutricap.tables import Column, read_csv_table, spreadsheet_row
 
 COUNT_COLUMNS = [
     Column("unit_id", "text", required=False, meaning="management unit the count belongs to"),
-    Column("year", meaning="calendar year of the count, a whole number such as 2019"),
+    Column(
+        "year",
+        minimum=1000,
+        maximum=3000,
+        meaning="calendar year of the count, a whole number such as 2019",
+    ),
     Column("count", above=0, meaning="animals counted (or a count index) that year, > 0"),
     Column(
         "removals",

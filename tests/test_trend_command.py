@@ -149,6 +149,9 @@ def test_short_series_gets_rates_but_no_logistic(tmp_path, capsys):
         ),
         ("unit_id,year,count\nA,2014,10\n,2015,11\nA,2016,12\n", ["row 3", "'unit_id'"]),
         ("year,count\n", ["no data rows"]),
+        # A year of 10^12 once asked numpy for 7 TiB; -5000 passed to the fit as NaN.
+        ("year,count\n2014,10\n1000000000000,11\n2016,12\n", ["row 3", "'year'", "<= 3000"]),
+        ("year,count\n-5000,10\n2015,11\n2016,12\n", ["row 2", "'year'", ">= 1000"]),
     ],
 )
 def test_bad_counts_give_one_clear_message(tmp_path, text, words):

@@ -807,4 +807,15 @@ CASES = [
         r"project\.toml: input file for key 'inputs\.units' is a folder that holds the project "
         r"file",
     ),
+    Case(
+        "counts: year of 10^12",
+        set_cell("counts.csv", 2, "year", "1000000000000"),
+        r"counts\.csv: row 2, column 'year': value out of range \(expected a number >= 1000 and "
+        r"<= 3000",
+    ),
+    Case(
+        "counts: year -5000",
+        set_cell("counts.csv", 5, "year", "-5000"),
+        r"counts\.csv: row 5, column 'year': value out of range .*found -5000",
+    ),
 ]
