@@ -818,4 +818,23 @@ CASES = [
         set_cell("counts.csv", 5, "year", "-5000"),
         r"counts\.csv: row 5, column 'year': value out of range .*found -5000",
     ),
+    Case(
+        "animal classes: intake of 1 g a day",
+        edit_csv(A, lambda t: t.assign(intake_kg_per_day=["0.001", "", ""])),
+        r"animal_classes\.csv: row 2, column 'intake_kg_per_day': intake too small for the "
+        r"requirement of 'adult_female' in state 'gestation': its diet would need .* kcal DE/g "
+        r".*found 0\.001 kg/day",
+    ),
+    Case(
+        "animal classes: intake of a non-target class of 250 g a day",
+        edit_csv(A, lambda t: t.assign(intake_kg_per_day=["", "", "0.25"])),
+        r"animal_classes\.csv: row 4, column 'intake_kg_per_day': intake too small for the "
+        r"requirement of 'adult_male' in state 'maintenance'",
+    ),
+    Case(
+        "project: target state misspelt",
+        replace_text("project.toml", 'state = "gestation"', 'state = "gestaton"'),
+        r"project\.toml: key 'target\.state': unknown nutritional state 'gestaton' \(expected "
+        r"one of the known states gestation, .*found 'gestaton'\)",
+    ),
 ]
