@@ -179,6 +179,15 @@ def _raster_crs(src, path: Path, key: str):
             expected="a GeoTIFF with a CRS",
             found="none",
         )
+    if CRS.from_wkt(src.crs.to_wkt()).geodetic_crs is None:
+        raise SpatialError(
+            "raster has a local (engineering) coordinate reference system, not tied to the Earth",
+            source=path,
+            location=f"key {key!r}",
+            expected="a projected CRS (e.g. the local UTM zone); georeference a site grid "
+            "before use",
+            found=f"CRS {CRS.from_wkt(src.crs.to_wkt()).name!r}",
+        )
     return src.crs
 
 

@@ -278,6 +278,8 @@ P, F, A = "plots.csv", "forage_classes.csv", "animal_classes.csv"
 U, S = "units.gpkg", "strata.gpkg"
 ROW1 = r": row 1 \(header\): "
 RASTER_KEY = r"big_sagebrush\.tif: key 'rasters\.biomass\.big_sagebrush': "
+SITE_GRID = 'LOCAL_CS["site grid",UNIT["metre",1]]'
+"""A local engineering CRS in metres with no datum on the Earth (WKT 1)."""
 NO_CURRENT_ANIMALS = edit_layer(U, lambda g: g.drop(columns=["current_animals"]))
 
 CASES = [
@@ -836,5 +838,25 @@ CASES = [
         replace_text("project.toml", 'state = "gestation"', 'state = "gestaton"'),
         r"project\.toml: key 'target\.state': unknown nutritional state 'gestaton' \(expected "
         r"one of the known states gestation, .*found 'gestaton'\)",
+    ),
+    Case(
+        "units: local engineering CRS",
+        edit_layer(U, lambda g: g.set_crs(SITE_GRID, allow_override=True)),
+        r"units\.gpkg: units layer has a local \(engineering\) coordinate reference system, not "
+        r"tied to the Earth .*found CRS 'site grid'",
+    ),
+    Case(
+        "rasters: grid in a local engineering CRS",
+        biomass_rasters(juniper={"crs": SITE_GRID}),
+        r"juniper\.tif: key 'rasters\.biomass\.juniper': raster has a local \(engineering\) "
+        r"coordinate reference system",
+    ),
+    Case(
+        "rasters: second layer in a local engineering CRS, resampled",
+        steps(
+            biomass_rasters(juniper={}, big_sagebrush={"crs": SITE_GRID}),
+            set_key("rasters", 'resample = "bilinear"'),
+        ),
+        RASTER_KEY + r"raster has a local \(engineering\) coordinate reference system",
     ),
 ]
