@@ -120,6 +120,12 @@ class Grid:
     def window_transform(self, window: Window) -> Affine:
         return rasterio.windows.transform(window, self.transform)
 
+    def window_bounds(self, window: Window) -> tuple[float, float, float, float]:
+        """West, south, east, north of ``window`` [CRS units], whichever way the rows run
+        (north to south, or south to north in a south-up grid)."""
+        left, bottom, right, top = rasterio.windows.bounds(window, self.transform)
+        return min(left, right), min(bottom, top), max(left, right), max(bottom, top)
+
     def describe(self) -> dict:
         """The grid in words and numbers, for the run manifest."""
         return {
@@ -196,8 +202,15 @@ def alignment_problem(grid: Grid, src) -> tuple[str, str] | None:
     if CRS.from_wkt(src.crs.to_wkt()) != CRS.from_wkt(grid.crs.to_wkt()):
         return f"CRS {grid.crs.to_string()} (as {grid.source.name})", f"CRS {src.crs.to_string()}"
     t, g = src.transform, grid.transform
+    if t.b != 0 or t.d != 0:
+        return (
+            f"a grid without rotation or shear, as {grid.source.name}",
+            f"a rotated or sheared grid (rotation terms {t.b:g}, {t.d:g} in the geotransform)",
+        )
+    if (t.e > 0) != (g.e > 0) or (t.a > 0) != (g.a > 0):
+        return f"{_orientation(g)}, as {grid.source.name}", _orientation(t)
     same_size = math.isclose(t.a, g.a, rel_tol=1e-9) and math.isclose(t.e, g.e, rel_tol=1e-9)
-    if not same_size or t.b != 0 or t.d != 0:
+    if not same_size:
         return (
             f"cells of {g.a:g} × {-g.e:g} (as {grid.source.name})",
             f"cells of {t.a:g} × {-t.e:g}",
@@ -211,6 +224,14 @@ def alignment_problem(grid: Grid, src) -> tuple[str, str] | None:
             f"origin {t.c:.10g}, {t.f:.10g}: shifted by {col % 1:.3f} × {row % 1:.3f} of a cell",
         )
     return None
+
+
+def _orientation(transform: Affine) -> str:
+    """Which way the rows and columns of a grid without rotation run, in words."""
+    up = "north-up" if transform.e < 0 else "south-up"
+    rows = "north to south" if transform.e < 0 else "south to north"
+    columns = "west to east" if transform.a > 0 else "east to west"
+    return f"a {up} grid (rows from {rows}, columns from {columns})"
 
 
 @dataclass(frozen=True)
@@ -510,7 +531,7 @@ class ShapeBurner:
         if out is None:
             out = np.empty(shape, dtype=self.dtype)
         out.fill(self.fill)
-        west, south, east, north = rasterio.windows.bounds(window, grid.transform)
+        west, south, east, north = grid.window_bounds(window)
         pad_x, pad_y = abs(grid.transform.a), abs(grid.transform.e)
         clip = (west - pad_x, south - pad_y, east + pad_x, north + pad_y)
         hits = self.tree.query(shapely.box(*clip))

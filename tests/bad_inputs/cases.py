@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import os
 import shutil
+import tempfile
 import warnings
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -194,6 +195,28 @@ def biomass_rasters(**layers: dict) -> Recipe:
     return recipe
 
 
+def south_up_biomass(name: str, *, north_up: bool = False) -> Recipe:
+    """Add ``[rasters]`` with one biomass raster ``name`` over :data:`GRID`, stored south-up
+    (the first row is the southernmost; ``north_up=True``: the same values stored north-up).
+    Values rise by 2 kg/ha a row northwards, so that a flipped grid shows in the result."""
+
+    def recipe(folder: Path) -> None:
+        from_south = np.arange(100, dtype="float32")[:, np.newaxis] * 2.0 + 40.0
+        values = np.repeat(from_south, 150, axis=1)
+        transform = Affine(100.0, 0.0, GRID.c, 0.0, 100.0, GRID.f - 100 * 100.0)
+        if north_up:
+            values, transform = values[::-1], GRID
+        profile = {"driver": "GTiff", "height": 100, "width": 150, "count": 1, "dtype": "float32"}
+        with rasterio.open(
+            folder / f"{name}.tif", "w", **profile, crs="EPSG:32612", transform=transform
+        ) as dst:
+            dst.write(values, 1)
+        with (folder / "project.toml").open("a", encoding="utf-8") as file:
+            file.write(f'\n[rasters]\nbiomass = {{ {name} = "{name}.tif" }}\n')
+
+    return recipe
+
+
 def edit_layer(name: str, change: Callable[[gpd.GeoDataFrame], gpd.GeoDataFrame]) -> Recipe:
     """Read the one layer of ``name`` (GeoPackage), apply ``change``, write a new file."""
 
@@ -263,6 +286,25 @@ def true_areas(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> No
     expected = pd.Series(geodesic_ha, index=units["unit_id"])
     np.testing.assert_allclose(table["area_ha"], expected[table["unit_id"]], rtol=1e-5)
     np.testing.assert_allclose(table["ncc_per_km2"], reference["ncc_per_km2"], rtol=1e-4)
+
+
+def same_as_north_up(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> None:
+    """A south-up raster gives the table of the same values stored north-up (the land is the
+    same; only the order of the rows in the file differs)."""
+    from nutricap.cli import main
+
+    with tempfile.TemporaryDirectory() as scratch:
+        copy = Path(scratch) / "inputs"
+        shutil.copytree(folder, copy)
+        (copy / "project.toml").write_text(
+            (copy / "project.toml").read_text(encoding="utf-8").split("\n[rasters]")[0] + "\n",
+            encoding="utf-8",
+        )
+        south_up_biomass("juniper", north_up=True)(copy)
+        out = Path(scratch) / "results"
+        assert main(["estimate", str(copy / "project.toml"), "--out", str(out), "--quiet"]) == 0
+        pd.testing.assert_frame_equal(table, pd.read_csv(out / "capacity_by_unit.csv"))
+    assert (table["ncc_animals"] > 0).all()
 
 
 def nothing_meets_target(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> None:
@@ -858,5 +900,30 @@ CASES = [
             set_key("rasters", 'resample = "bilinear"'),
         ),
         RASTER_KEY + r"raster has a local \(engineering\) coordinate reference system",
+    ),
+    Case(
+        "rasters: grid stored south-up (valid: as north-up)",
+        south_up_biomass("juniper"),
+        r"Total NCC",
+        exit_code=0,
+        verify=same_as_north_up,
+    ),
+    Case(
+        "rasters: second layer south-up",
+        biomass_rasters(
+            juniper={},
+            big_sagebrush={"transform": Affine(100.0, 0.0, GRID.c, 0.0, 100.0, GRID.f - 1e4)},
+        ),
+        RASTER_KEY + r"raster is not on the grid of the first raster layer \(expected a north-up "
+        r"grid .*found a south-up grid \(rows from south to north",
+    ),
+    Case(
+        "rasters: second layer sheared",
+        biomass_rasters(
+            juniper={},
+            big_sagebrush={"transform": Affine(100.0, 1.0, GRID.c, 0.0, -100.0, GRID.f)},
+        ),
+        RASTER_KEY + r"raster is not on the grid of the first raster layer \(expected a grid "
+        r"without rotation or shear, .*found a rotated or sheared grid \(rotation terms 1, 0",
     ),
 ]
