@@ -362,13 +362,16 @@ class GridLayer:
         inner, target = self._intersection(window)
         if inner is None:
             return np.zeros(shape, dtype=np.float32), np.zeros(shape, dtype=bool)
-        if scratch is not None and (int(inner.height), int(inner.width)) == shape:
-            part = scratch.take(f"values {self.spec.key}", shape, np.float32)
-            self.dataset.read(1, window=inner, out=part)
-        else:
-            part = self.dataset.read(1, window=inner, out_dtype=np.float32)
-            scratch = None
-        ok = self._valid(part, inner, scratch)
+        try:
+            if scratch is not None and (int(inner.height), int(inner.width)) == shape:
+                part = scratch.take(f"values {self.spec.key}", shape, np.float32)
+                self.dataset.read(1, window=inner, out=part)
+            else:
+                part = self.dataset.read(1, window=inner, out_dtype=np.float32)
+                scratch = None
+            ok = self._valid(part, inner, scratch)
+        except RasterioIOError as exc:
+            raise self._unreadable(inner, exc) from None
         self._check_range(part, ok, inner)
         if part.shape == shape:
             return part, ok
@@ -377,6 +380,18 @@ class GridLayer:
         values[target] = part
         valid[target] = ok
         return values, valid
+
+    def _unreadable(self, inner: Window, exc: RasterioIOError) -> SpatialError:
+        """The error of a window GDAL cannot read: a truncated or corrupt file."""
+        detail = str(exc.__cause__ or exc)
+        return SpatialError(
+            "cannot read the raster's cells: the file is truncated or corrupt",
+            source=self.spec.path,
+            location=f"key {self.spec.key!r}, cells from row {int(inner.row_off)}, "
+            f"column {int(inner.col_off)}",
+            expected="a complete GeoTIFF (copy or export it again)",
+            found=f"GDAL: {detail.removeprefix(self.spec.path.name + ', ')}",
+        )
 
     def _check_range(self, part: np.ndarray, ok: np.ndarray, inner: Window) -> None:
         """Refuse a value outside the layer's possible range, naming the first such cell."""

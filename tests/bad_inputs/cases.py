@@ -926,4 +926,12 @@ CASES = [
         RASTER_KEY + r"raster is not on the grid of the first raster layer \(expected a grid "
         r"without rotation or shear, .*found a rotated or sheared grid \(rotation terms 1, 0",
     ),
+    Case(
+        "rasters: GeoTIFF cut off halfway",
+        steps(
+            biomass_rasters(juniper={}), rewrite_bytes("juniper.tif", lambda b: b[: len(b) // 2])
+        ),
+        r"juniper\.tif: key 'rasters\.biomass\.juniper', cells from row \d+, column \d+: cannot "
+        r"read the raster's cells: the file is truncated or corrupt",
+    ),
 ]
