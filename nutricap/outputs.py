@@ -20,6 +20,7 @@ Leftovers of other machines or of running processes are never touched.
 
 from __future__ import annotations
 
+import errno
 import os
 import re
 import shutil
@@ -80,10 +81,31 @@ def staged_folder(out: Path) -> Iterator[Path]:
     staging = Path(tempfile.mkdtemp(prefix=f"{_prefix(out, 'partial')}-", dir=out.parent))
     try:
         yield staging
+    except OSError as exc:
+        shutil.rmtree(staging, ignore_errors=True)
+        raise write_error(exc, out) from None
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)
         raise
     _replace(staging, out)
+
+
+NO_ROOM_ERRNOS = frozenset({errno.ENOSPC, errno.EDQUOT, errno.EFBIG, errno.EROFS})
+"""Errors of the disk being written (full, over quota, file too large, read-only): they carry
+no file name, so the output path is named instead."""
+
+
+def write_error(exc: OSError, out: Path) -> OSError | OutputError:
+    """The error to show for ``exc``, raised while writing output ``out``: a full (or read-only)
+    disk becomes an :class:`OutputError` naming ``out``; anything else is left as it is."""
+    if exc.errno not in NO_ROOM_ERRNOS:
+        return exc
+    written = f" (while writing {Path(exc.filename).name})" if exc.filename else ""
+    return OutputError(
+        f"cannot write the results: {exc.strerror or exc}{written}; nothing was written",
+        source=out,
+        expected="room for the results on that disk: free some space or choose another --out",
+    )
 
 
 def _require_replaceable(out: Path) -> None:

@@ -26,7 +26,7 @@ import pandas as pd
 from nutricap.cautions import CAUTION
 from nutricap.errors import InputError, TableError
 from nutricap.manifest import package_versions, sha256_of_file
-from nutricap.outputs import check_output_folder
+from nutricap.outputs import check_output_folder, write_error
 from nutricap.science import population
 from nutricap.tables import Column, read_csv_table, spreadsheet_row
 
@@ -436,6 +436,9 @@ def _write_atomically(target: Path, text: str) -> None:
         with os.fdopen(handle, "w", encoding="utf-8") as stream:
             stream.write(text)
         os.replace(temporary, target)
+    except OSError as exc:
+        Path(temporary).unlink(missing_ok=True)
+        raise write_error(exc, target) from None
     except BaseException:
         Path(temporary).unlink(missing_ok=True)
         raise

@@ -8,7 +8,9 @@ tests/test_population.py.
 from __future__ import annotations
 
 import argparse
+import errno
 import json
+import os
 import sys
 import types
 from pathlib import Path
@@ -185,6 +187,35 @@ def test_out_writes_trend_json_and_leaves_no_temporary_file(tmp_path, capsys):
     written = json.loads((tmp_path / "results" / "trend.json").read_text(encoding="utf-8"))
     assert written == printed
     assert [path.name for path in (tmp_path / "results").iterdir()] == ["trend.json"]
+
+
+def test_a_full_disk_names_trend_json_and_leaves_nothing(tmp_path, monkeypatch):
+    counts = write_csv(tmp_path / "in", TWO_UNITS)
+    real_fdopen = os.fdopen
+
+    class FullDisk:
+        """A file whose write fails as write(2) does on a full disk (ENOSPC, no file name)."""
+
+        def __init__(self, *args, **kwargs):
+            self.stream = real_fdopen(*args, **kwargs)
+
+        def __enter__(self):
+            return self
+
+        def __exit__(self, *exc):
+            self.stream.close()
+
+        def write(self, text):
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+    monkeypatch.setattr(trend.os, "fdopen", FullDisk)
+    out = tmp_path / "results"
+    args = argparse.Namespace(
+        counts=counts, unit=None, project=None, json=True, out=out, level=0.95
+    )
+    with pytest.raises(OutputError, match=r"trend\.json: cannot write the results: No space left"):
+        trend.run(args)
+    assert list(out.iterdir()) == []
 
 
 def test_out_refuses_the_counts_folder(tmp_path):
