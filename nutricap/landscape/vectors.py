@@ -123,6 +123,8 @@ def _open_layer(path: Path, layer: str | None, what: str) -> gpd.GeoDataFrame:
         detail = str(exc)
         if "not recognized as being in a supported file format" in detail:
             detail = "not a vector format GDAL can read"
+        elif "malformed" in detail or "not a database" in detail:
+            detail = "the file is truncated or corrupt (SQLite: the database image is malformed)"
         raise SpatialError(
             f"cannot read {what}: {detail}",
             source=path,

@@ -934,4 +934,9 @@ CASES = [
         r"juniper\.tif: key 'rasters\.biomass\.juniper', cells from row \d+, column \d+: cannot "
         r"read the raster's cells: the file is truncated or corrupt",
     ),
+    Case(
+        "units: GeoPackage cut off halfway",
+        rewrite_bytes(U, lambda b: b[: len(b) // 2]),
+        r"units\.gpkg: cannot read units layer: the file is truncated or corrupt",
+    ),
 ]
