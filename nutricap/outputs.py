@@ -38,7 +38,14 @@ RESULTS_MARKER = "run.json"
 
 def check_output_folder(out: Path, input_paths: Iterable[Path], *, overwrite: bool) -> Path:
     """Return ``out`` resolved after checking it may be written; raise OutputError if not."""
-    out = Path(out).resolve()
+    try:
+        out = Path(out).resolve()
+    except (RuntimeError, OSError):  # Python < 3.13 raises RuntimeError for a loop
+        raise OutputError(
+            "the output path is a symbolic link that loops back on itself",
+            source=Path(out).absolute(),
+            expected="a folder, or a link to one",
+        ) from None
     for path in input_paths:
         folder = Path(path).resolve().parent
         if out == folder or folder in out.parents:

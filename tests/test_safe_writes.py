@@ -96,6 +96,14 @@ def test_out_is_a_file(project, tmp_path, capsys):
     assert target.read_text() == "field notes\n"
 
 
+def test_out_is_a_symbolic_link_loop(project, tmp_path, capsys):
+    out = tmp_path / "results"
+    out.symlink_to(out)
+    line = _refused(capsys, ("estimate", project, "--out", out, "--quiet"), "loops back on itself")
+    assert line.startswith(f"nutricap: error: {out}: the output path is a symbolic link"), line
+    assert out.is_symlink()
+
+
 def test_existing_results_replaced_only_with_overwrite(project, tmp_path, capsys):
     out = tmp_path / "results"
     assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
