@@ -8,6 +8,8 @@ traceback is shown for these.
 
 from __future__ import annotations
 
+import errno
+import stat
 from pathlib import Path
 
 
@@ -79,3 +81,29 @@ class SpatialError(InputError):
 
 class OutputError(InputError):
     """The output folder cannot be used (inside an input folder, exists, ...)."""
+
+
+FILE_MISSING = "does not exist"
+SPECIAL_FILES = (
+    (stat.S_ISFIFO, "a named pipe (FIFO)"),
+    (stat.S_ISCHR, "a character device"),
+    (stat.S_ISBLK, "a block device"),
+    (stat.S_ISSOCK, "a socket"),
+)
+
+
+def file_problem(path: Path) -> str | None:
+    """Why ``path`` cannot be opened as an input, in words ("does not exist", "is not a regular
+    file but a named pipe (FIFO)", ...); None for a file or a folder (links are followed)."""
+    try:
+        mode = path.stat().st_mode
+    except OSError as exc:
+        if exc.errno == errno.ELOOP:
+            return "is a symbolic link that loops back on itself"
+        if exc.errno in (errno.ENOENT, errno.ENOTDIR):
+            return FILE_MISSING
+        return f"cannot be opened ({exc.strerror})"
+    if stat.S_ISREG(mode) or stat.S_ISDIR(mode):
+        return None
+    kind = next((name for test, name in SPECIAL_FILES if test(mode)), "a special file")
+    return f"is not a regular file but {kind}"

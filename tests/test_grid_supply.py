@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import json
 import re
+import shutil
 from dataclasses import replace
 from pathlib import Path
 
@@ -691,3 +692,13 @@ def test_exact_line_and_identical_plots_collapse_the_intervals(tmp_path):
         np.testing.assert_allclose(hi - lo, 0.0, atol=1e-9 * point.max())
         np.testing.assert_allclose(lo, point, rtol=1e-5)
     assert table["ncc_animals"].max() > 100
+
+
+def test_a_truncated_index_raster_is_named(landscape, tmp_path):
+    folder = tmp_path / "inputs"
+    shutil.copytree(landscape, folder)
+    index = folder / "index.tif"
+    index.write_bytes(index.read_bytes()[: index.stat().st_size // 2])
+    expected = r"index\.tif: key 'rasters\.calibrated\.index': cannot read .*truncated or corrupt"
+    with pytest.raises(SpatialError, match=expected):
+        _grid_run(folder, RASTERS)

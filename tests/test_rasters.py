@@ -183,6 +183,25 @@ def test_burnt_polygon_agrees_with_cell_centres(tmp_path):
     assert inside.sum() > 100
 
 
+def test_burnt_polygon_on_a_south_up_grid_agrees_with_cell_centres(tmp_path):
+    # Rows from south to north (positive row step): GEOS once refused the window's clip box.
+    south = NORTH - 40 * CELL
+    grid = read_grid(
+        write(tmp_path / "up.tif", field(), transform=Affine(CELL, 0, WEST, 0, CELL, south)), "grid"
+    )
+    polygon = Polygon([(WEST + 37, south + 11), (WEST + 1411, south + 95),
+                       (WEST + 1203, south + 1150), (WEST + 88, south + 777)])  # fmt: skip
+    burner = ShapeBurner([polygon], [7], "int64")
+    burnt = np.zeros((40, 60), dtype=np.int64)
+    for window in grid_windows(grid, 16):
+        burnt[window.toslices()] = burner.burn(window, grid)
+    rows, cols = np.mgrid[0:40, 0:60]
+    x, y = WEST + (cols + 0.5) * CELL, south + (rows + 0.5) * CELL
+    inside = shapely.contains_xy(polygon, x, y)  # independent point-in-polygon (shapely/GEOS)
+    np.testing.assert_array_equal(burnt == 7, inside)
+    assert inside.sum() > 100
+
+
 def test_layer_stack_reads_every_layer(tmp_path):
     grid_path = write(tmp_path / "grid.tif", field())
     other = write(tmp_path / "other.tif", field() * 2)

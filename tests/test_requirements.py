@@ -1,4 +1,4 @@
-"""Tests of nutricap.requirements: the run's requirement table and the target diet.
+"""Tests of nutricap.model.requirements: the run's requirement table and the target diet.
 
 Check values are hand-computed from the Hobbs & Swift (1985) relation (minimum diet quality =
 requirement ÷ intake) and Kleiber's 70 W^0.75 with ME = 0.82 DE (NRC 1996, read); the table

@@ -5,6 +5,7 @@ Runs use a private copy of the invented example project. The kill test starts
 staging folder; the previous results must stay byte-identical.
 """
 
+import errno
 import hashlib
 import json
 import os
@@ -95,6 +96,14 @@ def test_out_is_a_file(project, tmp_path, capsys):
     assert target.read_text() == "field notes\n"
 
 
+def test_out_is_a_symbolic_link_loop(project, tmp_path, capsys):
+    out = tmp_path / "results"
+    out.symlink_to(out)
+    line = _refused(capsys, ("estimate", project, "--out", out, "--quiet"), "loops back on itself")
+    assert line.startswith(f"nutricap: error: {out}: the output path is a symbolic link"), line
+    assert out.is_symlink()
+
+
 def test_existing_results_replaced_only_with_overwrite(project, tmp_path, capsys):
     out = tmp_path / "results"
     assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
@@ -155,6 +164,34 @@ def test_failure_while_writing_keeps_previous_results(project, tmp_path, capsys,
             main(["estimate", str(project), "--out", str(out), "--overwrite", "--quiet"])
     assert "capacity_by_unit.csv" in written, "the failure came part-way through writing"
     assert _digest(out) == first
+    assert _hidden_leftovers(tmp_path) == []
+
+
+@pytest.mark.parametrize("earlier_results", [False, True])
+def test_a_full_disk_names_the_output_folder(project, tmp_path, capsys, monkeypatch,
+                                             earlier_results):  # fmt: skip
+    out = tmp_path / "results"
+    if earlier_results:
+        assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
+    first = _digest(out) if earlier_results else None
+    real_write_csv = nutricap.report.bundle.write_csv
+
+    def disk_full_at_the_third_table(table, path):
+        if len(list(path.parent.iterdir())) >= 2:
+            # What write(2) raises on a full disk: errno ENOSPC and no file name.
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+        real_write_csv(table, path)
+
+    monkeypatch.setattr(nutricap.report.bundle, "write_csv", disk_full_at_the_third_table)
+    line = _refused(
+        capsys, ("estimate", project, "--out", out, "--overwrite", "--quiet"), "No space left"
+    )
+    assert line.startswith(f"nutricap: error: {out.resolve()}: cannot write the results"), line
+    assert "free some space or choose another --out" in line
+    if earlier_results:
+        assert _digest(out) == first
+    else:
+        assert not out.exists()
     assert _hidden_leftovers(tmp_path) == []
 
 

@@ -9,7 +9,9 @@ tests/test_population.py.
 from __future__ import annotations
 
 import argparse
+import errno
 import json
+import os
 import sys
 import types
 from pathlib import Path
@@ -151,6 +153,9 @@ def test_short_series_gets_rates_but_no_logistic(tmp_path, capsys):
         ),
         ("unit_id,year,count\nA,2014,10\n,2015,11\nA,2016,12\n", ["row 3", "'unit_id'"]),
         ("year,count\n", ["no data rows"]),
+        # A year of 10^12 once asked numpy for 7 TiB; -5000 passed to the fit as NaN.
+        ("year,count\n2014,10\n1000000000000,11\n2016,12\n", ["row 3", "'year'", "<= 2200"]),
+        ("year,count\n-5000,10\n2015,11\n2016,12\n", ["row 2", "'year'", ">= 1800"]),
     ],
 )
 def test_bad_counts_give_one_clear_message(tmp_path, text, words):
@@ -184,6 +189,35 @@ def test_out_writes_trend_json_and_leaves_no_temporary_file(tmp_path, capsys):
     written = json.loads((tmp_path / "results" / "trend.json").read_text(encoding="utf-8"))
     assert written == printed
     assert [path.name for path in (tmp_path / "results").iterdir()] == ["trend.json"]
+
+
+def test_a_full_disk_names_trend_json_and_leaves_nothing(tmp_path, monkeypatch):
+    counts = write_csv(tmp_path / "in", TWO_UNITS)
+    real_fdopen = os.fdopen
+
+    class FullDisk:
+        """A file whose write fails as write(2) does on a full disk (ENOSPC, no file name)."""
+
+        def __init__(self, *args, **kwargs):
+            self.stream = real_fdopen(*args, **kwargs)
+
+        def __enter__(self):
+            return self
+
+        def __exit__(self, *exc):
+            self.stream.close()
+
+        def write(self, text):
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+    monkeypatch.setattr(trend_text.os, "fdopen", FullDisk)
+    out = tmp_path / "results"
+    args = argparse.Namespace(
+        counts=counts, unit=None, project=None, json=True, out=out, level=0.95
+    )
+    with pytest.raises(OutputError, match=r"trend\.json: cannot write the results: No space left"):
+        cli.run_trend(args)
+    assert list(out.iterdir()) == []
 
 
 def test_out_refuses_the_counts_folder(tmp_path):

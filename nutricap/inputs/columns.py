@@ -29,7 +29,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from nutricap.errors import TableError
+from nutricap.errors import TableError, file_problem
 
 TRUE_WORDS = frozenset({"true", "yes", "y", "1", "t"})
 FALSE_WORDS = frozenset({"false", "no", "n", "0", "f", ""})
@@ -38,6 +38,11 @@ NEWLINE = b"\n"
 NEAR_MISS_CUTOFF = 0.8
 """An undeclared column this close (difflib ratio, ignoring case) to an absent declared one
 is taken for a misspelling and refused."""
+
+
+#: Calendar years a project may name [year], in every form: counts, treatment years and
+#: scenario spans. A year outside is taken for a typing error and refused.
+FIRST_YEAR, LAST_YEAR = 1800, 2200
 
 
 @dataclass(frozen=True)
@@ -114,10 +119,11 @@ def _read_raw(path: Path, what: str) -> pd.DataFrame:
 
 
 def _read_text(path: Path, what: str) -> str:
+    problem = file_problem(path)
+    if problem is not None:
+        raise TableError(f"{what} {problem}", source=path, expected="an existing CSV file")
     if path.is_dir():
         raise TableError(f"{what} is a folder, not a file", source=path, expected="a CSV file")
-    if not path.is_file():
-        raise TableError(f"{what} not found", source=path, expected="an existing CSV file")
     data = path.read_bytes()
     try:
         return data.decode("utf-8-sig")

@@ -13,12 +13,17 @@ import numpy as np
 import pandas as pd
 
 from nutricap.errors import TableError
-from nutricap.inputs.columns import Column, read_csv_table, spreadsheet_row
+from nutricap.inputs.columns import FIRST_YEAR, LAST_YEAR, Column, read_csv_table, spreadsheet_row
 from nutricap.science import population
 
 COUNT_COLUMNS = [
     Column("unit_id", "text", required=False, meaning="management unit the count belongs to"),
-    Column("year", meaning="calendar year of the count, a whole number such as 2019"),
+    Column(
+        "year",
+        minimum=FIRST_YEAR,
+        maximum=LAST_YEAR,
+        meaning="calendar year of the count, a whole number such as 2019",
+    ),
     Column("count", above=0, meaning="animals counted (or a count index) that year, > 0"),
     Column(
         "removals",

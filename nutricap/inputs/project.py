@@ -17,7 +17,8 @@ from typing import Literal
 
 from pydantic import BaseModel, Field, ValidationError, model_validator
 
-from nutricap.errors import ProjectFileError
+from nutricap.errors import FILE_MISSING, ProjectFileError, file_problem
+from nutricap.inputs.columns import FIRST_YEAR, LAST_YEAR
 from nutricap.inputs.raster_config import (
     AvailabilitySection,
     InputPath,
@@ -29,9 +30,6 @@ from nutricap.inputs.raster_config import (
 #: Longest season [days]: a year, leap day included. The same bound holds for
 #: ``season_days`` and for the span of ``season_start`` .. ``season_end``.
 MAX_SEASON_DAYS = 366
-
-#: Calendar years a project may name [year]: scenario spans and treatment years alike.
-FIRST_YEAR, LAST_YEAR = 1900, 2200
 
 #: Seasons of the requirement table; ``fall`` is read as ``autumn``.
 SeasonName = Literal["any", "winter", "spring", "summer", "autumn", "fall"]
@@ -222,6 +220,12 @@ class Project:
 
     def input_paths(self) -> dict[str, Path]:
         """Every input file given, by key."""
+        return {key: path.resolve() for key, path in self.written_input_paths().items()}
+
+    def written_input_paths(self) -> dict[str, Path]:
+        """Every input file given, by key, as written: in the project file's folder, symbolic
+        links not followed."""
+        inputs = self.config.inputs
         names = (
             "forage_classes",
             "plots",
@@ -231,13 +235,12 @@ class Project:
             "counts",
             "nutritional_states",
         )
-        found = {name: path for name in names if (path := self.input_path(name)) is not None}
+        found = {name: path for name in names if (path := getattr(inputs, name)) is not None}
         for name, scenario in self.config.scenarios.items():
-            found[f"scenarios.{name}.treatments"] = (self.folder / scenario.treatments).resolve()
-            found[f"scenarios.{name}.responses"] = (self.folder / scenario.responses).resolve()
-        layers = raster_input_paths(self.config.rasters, self.config.availability)
-        found.update({key: (self.folder / path).resolve() for key, path in layers.items()})
-        return found
+            found[f"scenarios.{name}.treatments"] = scenario.treatments
+            found[f"scenarios.{name}.responses"] = scenario.responses
+        found.update(raster_input_paths(self.config.rasters, self.config.availability))
+        return {key: self.folder / path for key, path in found.items()}
 
     def strata_file(self) -> Path:
         """The strata map: the polygons of ``[inputs] strata`` or the ``[rasters.strata]``
@@ -253,7 +256,13 @@ class Project:
 
 def load_project(path: str | Path) -> Project:
     """Read and validate a project file; raise :class:`ProjectFileError` on any problem."""
-    path = Path(path).resolve()
+    written = Path(path).absolute()
+    problem = file_problem(written)
+    if problem is not None or written.is_dir():
+        raise ProjectFileError(
+            f"project file {problem or 'is a folder'}", source=written, expected="a TOML file"
+        )
+    path = written.resolve()
     raw = _read_toml(path)
     try:
         config = ProjectConfig.model_validate(raw)
@@ -265,8 +274,6 @@ def load_project(path: str | Path) -> Project:
 
 
 def _read_toml(path: Path) -> dict:
-    if not path.is_file():
-        raise ProjectFileError("project file not found", source=path, expected="a TOML file")
     data = path.read_bytes()
     try:
         return tomllib.loads(data.decode("utf-8"))
@@ -281,6 +288,43 @@ def _read_toml(path: Path) -> dict:
         ) from None
     except tomllib.TOMLDecodeError as exc:
         raise ProjectFileError(f"TOML syntax error: {exc}", source=path) from None
+    except RecursionError:
+        line = _deep_nesting_line(data.decode("utf-8"))
+        raise ProjectFileError(
+            "arrays or inline tables nested too deeply to read",
+            source=path,
+            location=f"line {line}" if line is not None else None,
+            expected=f"at most {NESTING_SHOWN} levels (no key of a project file needs more "
+            "than three)",
+            found="deeper nesting",
+        ) from None
+
+
+NESTING_SHOWN = 50
+"""Depth of nested arrays and inline tables at which the line is named when the file is too
+deep to parse (no key of the schema nests more than three levels)."""
+
+
+def _deep_nesting_line(text: str) -> int | None:
+    """The first line where ``[``/``{`` nesting outside quoted strings exceeds
+    :data:`NESTING_SHOWN` (a rough scan: for the message only)."""
+    depth = 0
+    for number, line in enumerate(text.splitlines(), start=1):
+        quote = None
+        for char in line:
+            if quote is not None:
+                quote = None if char == quote else quote
+            elif char in "\"'":
+                quote = char
+            elif char == "#":
+                break
+            elif char in "[{":
+                depth += 1
+                if depth > NESTING_SHOWN:
+                    return number
+            elif char in "]}":
+                depth -= 1
+    return None
 
 
 def _describe_problems(exc: ValidationError, raw: dict) -> str:
@@ -349,12 +393,18 @@ def _lookup(raw: dict, location: list[str]) -> object:
 
 
 def _check_inputs_exist(project: Project) -> None:
-    for name, path in project.input_paths().items():
-        if not path.exists():
-            key = name if "." in name else f"inputs.{name}"
+    """Every input can be opened: it exists, is a file (or a folder, as some vector formats
+    are) and not the project's own folder; links are followed, paths named as written."""
+    for name, path in project.written_input_paths().items():
+        key = name if "." in name else f"inputs.{name}"
+        problem = file_problem(path)
+        if problem is None and path.is_dir() and project.path.is_relative_to(path.resolve()):
+            problem = "is a folder that holds the project file"
+        if problem is not None:
             raise ProjectFileError(
-                f"input file for key '{key}' does not exist",
+                f"input file for key '{key}' {problem}",
                 source=project.path,
-                expected="a path relative to the project file",
+                expected="a path relative to the project file"
+                + ("" if problem == FILE_MISSING else ", to a regular file"),
                 found=str(path),
             )

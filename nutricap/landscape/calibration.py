@@ -43,6 +43,7 @@ import numpy as np
 import pandas as pd
 import rasterio
 from pyproj import CRS, Transformer
+from rasterio.errors import RasterioIOError
 
 from nutricap.errors import SpatialError, TableError
 from nutricap.inputs.columns import (
@@ -442,9 +443,19 @@ def sample_index(index_path: Path, where: pd.DataFrame, plots_crs: str | None, p
         inside = (rows >= 0) & (rows < src.height) & (cols >= 0) & (cols < src.width)
         values = np.full(x.size, np.nan)
         if inside.any():
-            sampled = np.ma.masked_array(
-                [v[0] for v in src.sample(zip(x[inside], y[inside]), indexes=1, masked=True)]
-            )
+            try:
+                sampled = np.ma.masked_array(
+                    [v[0] for v in src.sample(zip(x[inside], y[inside]), indexes=1, masked=True)]
+                )
+            except RasterioIOError as exc:
+                raise SpatialError(
+                    "cannot read the index raster at the calibration plots: the file is "
+                    "truncated or corrupt",
+                    source=index_path,
+                    location="key 'rasters.calibrated.index'",
+                    expected="a complete GeoTIFF (copy or export it again)",
+                    found=f"GDAL: {exc.__cause__ or exc}",
+                ) from None
             values[inside] = np.ma.filled(sampled.astype(float), np.nan)
     bad = ~np.isfinite(values)
     if bad.any():

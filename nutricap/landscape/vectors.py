@@ -83,9 +83,24 @@ def read_layer(path: Path, *, layer: str | None, columns: list[str], what: str) 
             expected="a layer with a defined CRS (GeoPackage preferred)",
             found="none",
         )
+    _check_on_earth(frame, path, what)
     _check_geometries(frame, path, what)
     _check_geographic_range(frame, path, what)
     return frame
+
+
+def _check_on_earth(frame: gpd.GeoDataFrame, path: Path, what: str) -> None:
+    """Refuse a local (engineering) CRS: without a datum on the Earth the layer can be set
+    neither on the other layers nor on an equal-area projection."""
+    crs = CRS.from_user_input(frame.crs)
+    if crs.geodetic_crs is None:
+        raise SpatialError(
+            f"{what} has a local (engineering) coordinate reference system, not tied to the Earth",
+            source=path,
+            expected="a geographic or projected CRS (e.g. the local UTM zone); georeference "
+            "a site grid before use",
+            found=f"CRS {crs.name!r}",
+        )
 
 
 def _open_layer(path: Path, layer: str | None, what: str) -> gpd.GeoDataFrame:
@@ -108,6 +123,8 @@ def _open_layer(path: Path, layer: str | None, what: str) -> gpd.GeoDataFrame:
         detail = str(exc)
         if "not recognized as being in a supported file format" in detail:
             detail = "not a vector format GDAL can read"
+        elif "malformed" in detail or "not a database" in detail:
+            detail = "the file is truncated or corrupt (SQLite: the database image is malformed)"
         raise SpatialError(
             f"cannot read {what}: {detail}",
             source=path,

@@ -70,6 +70,14 @@ class DietTarget:
     derivation: str
 
 
+DIET_DE_CEILING_KCAL_PER_G = 5.0
+"""The richest diet any forage gives [kcal DE/g DM]: gross energy of plant dry matter is about
+4.4 kcal/g (from memory), and the project file's ``diet_de_min_kcal_per_g`` has the same bound."""
+DIET_DP_CEILING_PCT = 40.0
+"""The richest protein diet any forage gives [% DP of DM] (common practice: browse and forbs
+stay well below it); the bound of the project file's ``diet_dp_min_pct``."""
+
+
 def _check_states(animals: pd.DataFrame, project: Project, table: pd.DataFrame) -> None:
     season = project.config.project.season
     for index, state in animals["state"].items():
@@ -94,6 +102,14 @@ def herd_requirement(
     """
     _check_states(animals, project, table)
     season = project.config.project.season
+    for index, row in animals[animals["intake_kg_per_day"].notna()].iterrows():
+        requirement = energetics.daily_de_requirement_kcal_per_day(
+            row["body_mass_kg"], row["state"], season, table=table
+        )
+        de_min = float(
+            energetics.required_diet_de_kcal_per_g(requirement, row["intake_kg_per_day"])
+        )
+        _refuse_impossible_diet(animals, index, row["state"], de_min, None, project)
     mass = animals["body_mass_kg"].to_numpy()
     herd = energetics.herd_requirement(
         mass, animals["share"].to_numpy(), animals["state"].tolist(), season, table=table
@@ -140,6 +156,7 @@ def diet_target(animals: pd.DataFrame, project: Project, table: pd.DataFrame) ->
         )
     row = _target_class(animals, project)
     season = project.config.project.season
+    _check_target_state(project, table)
     mass = float(row["body_mass_kg"])
     intake = float(row["intake_kg_per_day"])
     if np.isnan(intake):
@@ -156,11 +173,66 @@ def diet_target(animals: pd.DataFrame, project: Project, table: pd.DataFrame) ->
             mass, target.state, season, table=table
         )
         dp_min = float(energetics.required_diet_dp_pct(dp_requirement, intake))
+    _refuse_impossible_diet(
+        animals, row.name, target.state, None if given_de else de_min, dp_min, project
+    )
     derivation = (
         f"{target.animal_class} ({mass:g} kg) in state {target.state!r}, season {season!r}: "
         f"DE requirement {de_requirement:,.0f} kcal/day over intake {intake:.3g} kg DM/day"
     )
     return DietTarget(de_min, dp_min, derivation)
+
+
+def _check_target_state(project: Project, table: pd.DataFrame) -> None:
+    """The target state is one of the nutritional-state table's (else the key is named)."""
+    target = project.config.target
+    try:
+        energetics.state_parameters(target.state, project.config.project.season, table=table)
+    except InputError as exc:
+        raise ProjectFileError(
+            exc.message,
+            source=project.path,
+            location="key 'target.state'",
+            expected=exc.expected,
+            found=repr(target.state),
+        ) from None
+
+
+def _refuse_impossible_diet(
+    animals: pd.DataFrame,
+    index: int,
+    state: str,
+    de_min_kcal_per_g: float | None,
+    dp_min_pct: float | None,
+    project: Project,
+) -> None:
+    """Refuse an intake at which the diet would have to be richer than any forage.
+
+    ``de_min_kcal_per_g`` [kcal/g DM] and ``dp_min_pct`` [% DM] are the diet the animal class of
+    row ``index`` needs in ``state`` (None when not derived from the intake); above
+    :data:`DIET_DE_CEILING_KCAL_PER_G` or :data:`DIET_DP_CEILING_PCT` the intake (or, without an
+    override, the body mass) is taken for a typing or unit error.
+    """
+    too_rich = []
+    if de_min_kcal_per_g is not None and de_min_kcal_per_g > DIET_DE_CEILING_KCAL_PER_G:
+        too_rich.append(f"{de_min_kcal_per_g:.3g} kcal DE/g")
+    if dp_min_pct is not None and dp_min_pct > DIET_DP_CEILING_PCT:
+        too_rich.append(f"{dp_min_pct:.3g} % digestible protein")
+    if not too_rich:
+        return
+    row = animals.loc[index]
+    intake = float(row["intake_kg_per_day"])
+    given = not np.isnan(intake)
+    raise TableError(
+        f"intake too small for the requirement of {row['animal_class']!r} in state {state!r}: "
+        f"its diet would need {' and '.join(too_rich)}",
+        source=project.input_path("animal_classes"),
+        location=f"row {spreadsheet_row(index)}, column "
+        + ("'intake_kg_per_day'" if given else "'body_mass_kg'"),
+        expected=f"an intake in kg of dry matter per animal per day at which the diet needs at "
+        f"most {DIET_DE_CEILING_KCAL_PER_G:g} kcal DE/g and {DIET_DP_CEILING_PCT:g} % DP",
+        found=f"{intake:g} kg/day" if given else f"{float(row['body_mass_kg']):g} kg",
+    )
 
 
 def _target_class(animals: pd.DataFrame, project: Project) -> pd.Series:

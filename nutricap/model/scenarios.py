@@ -21,13 +21,15 @@ import pandas as pd
 
 from nutricap.errors import InputError, SpatialError, TableError
 from nutricap.inputs.columns import (
+    FIRST_YEAR,
+    LAST_YEAR,
     Column,
     check_unique,
     plain_value,
     read_csv_table,
     spreadsheet_row,
 )
-from nutricap.inputs.project import FIRST_YEAR, LAST_YEAR, Project, ScenarioSection
+from nutricap.inputs.project import Project, ScenarioSection
 from nutricap.landscape.vectors import M2_PER_HA, StratumAreas, check_no_overlaps, read_layer
 from nutricap.model.problem import ForageItems, problem_from_pieces
 from nutricap.science.forage_quality import digestible_protein_pct

@@ -20,6 +20,7 @@ Leftovers of other machines or of running processes are never touched.
 
 from __future__ import annotations
 
+import errno
 import os
 import re
 import shutil
@@ -37,7 +38,14 @@ RESULTS_MARKER = "run.json"
 
 def check_output_folder(out: Path, input_paths: Iterable[Path], *, overwrite: bool) -> Path:
     """Return ``out`` resolved after checking it may be written; raise OutputError if not."""
-    out = Path(out).resolve()
+    try:
+        out = Path(out).resolve()
+    except (RuntimeError, OSError):  # Python < 3.13 raises RuntimeError for a loop
+        raise OutputError(
+            "the output path is a symbolic link that loops back on itself",
+            source=Path(out).absolute(),
+            expected="a folder, or a link to one",
+        ) from None
     for path in input_paths:
         folder = Path(path).resolve().parent
         if out == folder or folder in out.parents:
@@ -80,10 +88,31 @@ def staged_folder(out: Path) -> Iterator[Path]:
     staging = Path(tempfile.mkdtemp(prefix=f"{_prefix(out, 'partial')}-", dir=out.parent))
     try:
         yield staging
+    except OSError as exc:
+        shutil.rmtree(staging, ignore_errors=True)
+        raise write_error(exc, out) from None
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)
         raise
     _replace(staging, out)
+
+
+NO_ROOM_ERRNOS = frozenset({errno.ENOSPC, errno.EDQUOT, errno.EFBIG, errno.EROFS})
+"""Errors of the disk being written (full, over quota, file too large, read-only): they carry
+no file name, so the output path is named instead."""
+
+
+def write_error(exc: OSError, out: Path) -> OSError | OutputError:
+    """The error to show for ``exc``, raised while writing output ``out``: a full (or read-only)
+    disk becomes an :class:`OutputError` naming ``out``; anything else is left as it is."""
+    if exc.errno not in NO_ROOM_ERRNOS:
+        return exc
+    written = f" (while writing {Path(exc.filename).name})" if exc.filename else ""
+    return OutputError(
+        f"cannot write the results: {exc.strerror or exc}{written}; nothing was written",
+        source=out,
+        expected="room for the results on that disk: free some space or choose another --out",
+    )
 
 
 def _require_replaceable(out: Path) -> None:

@@ -15,6 +15,7 @@ from nutricap.cautions import CAUTION
 from nutricap.inputs.counts import ROW_CONVENTION, TOTAL_LABEL
 from nutricap.model.trend import above_below, animals_text
 from nutricap.report.manifest import package_versions, sha256_of_file
+from nutricap.report.output_folder import write_error
 
 TREND_CAUTIONS = (
     "Counts are usually indices: animals missed (detection below 1) and counting error make "
@@ -76,6 +77,9 @@ def write_atomically(target: Path, text: str) -> None:
         with os.fdopen(handle, "w", encoding="utf-8") as stream:
             stream.write(text)
         os.replace(temporary, target)
+    except OSError as exc:
+        Path(temporary).unlink(missing_ok=True)
+        raise write_error(exc, target) from None
     except BaseException:
         Path(temporary).unlink(missing_ok=True)
         raise

@@ -1,11 +1,11 @@
 """Population trend from yearly counts: rates of increase, a logistic ceiling, MSY.
 
 Pure functions on arrays of years and counts; the counts table is read in
-:mod:`nutricap.trend`. Years may have gaps: every rate is per year, computed
+:mod:`nutricap.model.trend`. Years may have gaps: every rate is per year, computed
 over the real interval between two counts.
 
 Counts are treated as exact numbers of animals. Real counts are indices with
-detection error; :mod:`nutricap.trend` and ``docs/trend.md`` say what that
+detection error; :mod:`nutricap.model.trend` and ``docs/trend.md`` say what that
 does to each figure.
 """
 

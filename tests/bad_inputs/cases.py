@@ -15,7 +15,9 @@ source. To add a case: append one ``Case`` line below (see DEVELOPERS.md).
 
 from __future__ import annotations
 
+import os
 import shutil
+import tempfile
 import warnings
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -130,6 +132,21 @@ def use_file(source: str, name: str) -> Recipe:
     return lambda folder: shutil.copyfile(FILES / source, folder / name)
 
 
+def append_text(name: str, text: str) -> Recipe:
+    """Add ``text`` as a last line of ``name`` (which ends with a line break)."""
+
+    def recipe(folder: Path) -> None:
+        with (folder / name).open("a", encoding="utf-8") as file:
+            file.write(f"{text}\n")
+
+    return recipe
+
+
+def symlink(name: str, target: str) -> Recipe:
+    """Make ``name`` a symbolic link to ``target`` (which need not exist)."""
+    return lambda folder: (folder / name).symlink_to(target)
+
+
 def insert_line(name: str, row: int, line: str) -> Recipe:
     """Insert a text line so that it becomes spreadsheet row ``row``."""
 
@@ -174,6 +191,28 @@ def biomass_rasters(**layers: dict) -> Recipe:
         entries = ", ".join(f'{name} = "{name}.tif"' for name in layers)
         with (folder / "project.toml").open("a", encoding="utf-8") as file:
             file.write(f"\n[rasters]\nbiomass = {{ {entries} }}\n")
+
+    return recipe
+
+
+def south_up_biomass(name: str, *, north_up: bool = False) -> Recipe:
+    """Add ``[rasters]`` with one biomass raster ``name`` over :data:`GRID`, stored south-up
+    (the first row is the southernmost; ``north_up=True``: the same values stored north-up).
+    Values rise by 2 kg/ha a row northwards, so that a flipped grid shows in the result."""
+
+    def recipe(folder: Path) -> None:
+        from_south = np.arange(100, dtype="float32")[:, np.newaxis] * 2.0 + 40.0
+        values = np.repeat(from_south, 150, axis=1)
+        transform = Affine(100.0, 0.0, GRID.c, 0.0, 100.0, GRID.f - 100 * 100.0)
+        if north_up:
+            values, transform = values[::-1], GRID
+        profile = {"driver": "GTiff", "height": 100, "width": 150, "count": 1, "dtype": "float32"}
+        with rasterio.open(
+            folder / f"{name}.tif", "w", **profile, crs="EPSG:32612", transform=transform
+        ) as dst:
+            dst.write(values, 1)
+        with (folder / "project.toml").open("a", encoding="utf-8") as file:
+            file.write(f'\n[rasters]\nbiomass = {{ {name} = "{name}.tif" }}\n')
 
     return recipe
 
@@ -249,6 +288,25 @@ def true_areas(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> No
     np.testing.assert_allclose(table["ncc_per_km2"], reference["ncc_per_km2"], rtol=1e-4)
 
 
+def same_as_north_up(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> None:
+    """A south-up raster gives the table of the same values stored north-up (the land is the
+    same; only the order of the rows in the file differs)."""
+    from nutricap.cli import main
+
+    with tempfile.TemporaryDirectory() as scratch:
+        copy = Path(scratch) / "inputs"
+        shutil.copytree(folder, copy)
+        (copy / "project.toml").write_text(
+            (copy / "project.toml").read_text(encoding="utf-8").split("\n[rasters]")[0] + "\n",
+            encoding="utf-8",
+        )
+        south_up_biomass("juniper", north_up=True)(copy)
+        out = Path(scratch) / "results"
+        assert main(["estimate", str(copy / "project.toml"), "--out", str(out), "--quiet"]) == 0
+        pd.testing.assert_frame_equal(table, pd.read_csv(out / "capacity_by_unit.csv"))
+    assert (table["ncc_animals"] > 0).all()
+
+
 def nothing_meets_target(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> None:
     """No diet reaches the target: NCC 0 and the reason 'intake'; the ECC is unchanged."""
     assert (table["ncc_animals"] == 0).all(), table["ncc_animals"]
@@ -262,6 +320,8 @@ P, F, A = "plots.csv", "forage_classes.csv", "animal_classes.csv"
 U, S = "units.gpkg", "strata.gpkg"
 ROW1 = r": row 1 \(header\): "
 RASTER_KEY = r"big_sagebrush\.tif: key 'rasters\.biomass\.big_sagebrush': "
+SITE_GRID = 'LOCAL_CS["site grid",UNIT["metre",1]]'
+"""A local engineering CRS in metres with no datum on the Earth (WKT 1)."""
 NO_CURRENT_ANIMALS = edit_layer(U, lambda g: g.drop(columns=["current_animals"]))
 
 CASES = [
@@ -746,5 +806,137 @@ CASES = [
         "counts: a unit without counts",
         steps(NO_CURRENT_ANIMALS, drop_rows("counts.csv", "unit_id", "Wrenfall")),
         r"counts\.csv: column 'unit_id': no count for unit 'Wrenfall'",
+    ),
+    # issue 14, second corpus: tracebacks and messages
+    Case(
+        "project: arrays nested 5,000 deep",
+        append_text("project.toml", "x = " + "[" * 5000 + "]" * 5000),
+        r"project\.toml: line 46: arrays or inline tables nested too deeply to read",
+    ),
+    Case(
+        "project: inline tables nested 3,000 deep",
+        append_text("project.toml", "x = " + "{a=" * 3000 + "1" + "}" * 3000),
+        r"project\.toml: line 46: arrays or inline tables nested too deeply to read",
+    ),
+    Case(
+        "project: input is a symbolic link to itself",
+        steps(
+            symlink("loop.csv", "loop.csv"),
+            replace_text("project.toml", '"plots.csv"', '"loop.csv"'),
+        ),
+        r"project\.toml: input file for key 'inputs\.plots' is a symbolic link that loops back on "
+        r"itself .*found /.*/loop\.csv\)",
+    ),
+    Case(
+        "project: input is a link to /dev/zero",
+        steps(
+            symlink("zero.csv", "/dev/zero"),
+            replace_text("project.toml", '"plots.csv"', '"zero.csv"'),
+        ),
+        r"project\.toml: input file for key 'inputs\.plots' is not a regular file but a character "
+        r"device .*found /.*/zero\.csv\)",
+    ),
+    Case(
+        "project: input is a named pipe",
+        steps(
+            lambda folder: os.mkfifo(folder / "pipe.gpkg"),
+            replace_text("project.toml", '"units.gpkg"', '"pipe.gpkg"'),
+        ),
+        r"project\.toml: input file for key 'inputs\.units' is not a regular file but a named pipe "
+        r"\(FIFO\) .*found /.*/pipe\.gpkg\)",
+    ),
+    Case(
+        "project: units layer is the project's own folder",
+        replace_text("project.toml", '"units.gpkg"', '"."'),
+        r"project\.toml: input file for key 'inputs\.units' is a folder that holds the project "
+        r"file",
+    ),
+    Case(
+        "counts: year of 10^12",
+        set_cell("counts.csv", 2, "year", "1000000000000"),
+        r"counts\.csv: row 2, column 'year': value out of range \(expected a number >= 1800 and "
+        r"<= 2200",
+    ),
+    Case(
+        "counts: year -5000",
+        set_cell("counts.csv", 5, "year", "-5000"),
+        r"counts\.csv: row 5, column 'year': value out of range .*found -5000",
+    ),
+    Case(
+        "animal classes: intake of 1 g a day",
+        edit_csv(A, lambda t: t.assign(intake_kg_per_day=["0.001", "", ""])),
+        r"animal_classes\.csv: row 2, column 'intake_kg_per_day': intake too small for the "
+        r"requirement of 'adult_female' in state 'gestation': its diet would need .* kcal DE/g "
+        r".*found 0\.001 kg/day",
+    ),
+    Case(
+        "animal classes: intake of a non-target class of 250 g a day",
+        edit_csv(A, lambda t: t.assign(intake_kg_per_day=["", "", "0.25"])),
+        r"animal_classes\.csv: row 4, column 'intake_kg_per_day': intake too small for the "
+        r"requirement of 'adult_male' in state 'maintenance'",
+    ),
+    Case(
+        "project: target state misspelt",
+        replace_text("project.toml", 'state = "gestation"', 'state = "gestaton"'),
+        r"project\.toml: key 'target\.state': unknown nutritional state 'gestaton' \(expected "
+        r"one of the known states gestation, .*found 'gestaton'\)",
+    ),
+    Case(
+        "units: local engineering CRS",
+        edit_layer(U, lambda g: g.set_crs(SITE_GRID, allow_override=True)),
+        r"units\.gpkg: units layer has a local \(engineering\) coordinate reference system, not "
+        r"tied to the Earth .*found CRS 'site grid'",
+    ),
+    Case(
+        "rasters: grid in a local engineering CRS",
+        biomass_rasters(juniper={"crs": SITE_GRID}),
+        r"juniper\.tif: key 'rasters\.biomass\.juniper': raster has a local \(engineering\) "
+        r"coordinate reference system",
+    ),
+    Case(
+        "rasters: second layer in a local engineering CRS, resampled",
+        steps(
+            biomass_rasters(juniper={}, big_sagebrush={"crs": SITE_GRID}),
+            set_key("rasters", 'resample = "bilinear"'),
+        ),
+        RASTER_KEY + r"raster has a local \(engineering\) coordinate reference system",
+    ),
+    Case(
+        "rasters: grid stored south-up (valid: as north-up)",
+        south_up_biomass("juniper"),
+        r"Total NCC",
+        exit_code=0,
+        verify=same_as_north_up,
+    ),
+    Case(
+        "rasters: second layer south-up",
+        biomass_rasters(
+            juniper={},
+            big_sagebrush={"transform": Affine(100.0, 0.0, GRID.c, 0.0, 100.0, GRID.f - 1e4)},
+        ),
+        RASTER_KEY + r"raster is not on the grid of the first raster layer \(expected a north-up "
+        r"grid .*found a south-up grid \(rows from south to north",
+    ),
+    Case(
+        "rasters: second layer sheared",
+        biomass_rasters(
+            juniper={},
+            big_sagebrush={"transform": Affine(100.0, 1.0, GRID.c, 0.0, -100.0, GRID.f)},
+        ),
+        RASTER_KEY + r"raster is not on the grid of the first raster layer \(expected a grid "
+        r"without rotation or shear, .*found a rotated or sheared grid \(rotation terms 1, 0",
+    ),
+    Case(
+        "rasters: GeoTIFF cut off halfway",
+        steps(
+            biomass_rasters(juniper={}), rewrite_bytes("juniper.tif", lambda b: b[: len(b) // 2])
+        ),
+        r"juniper\.tif: key 'rasters\.biomass\.juniper', cells from row \d+, column \d+: cannot "
+        r"read the raster's cells: the file is truncated or corrupt",
+    ),
+    Case(
+        "units: GeoPackage cut off halfway",
+        rewrite_bytes(U, lambda b: b[: len(b) // 2]),
+        r"units\.gpkg: cannot read units layer: the file is truncated or corrupt",
     ),
 ]

@@ -120,6 +120,12 @@ class Grid:
     def window_transform(self, window: Window) -> Affine:
         return rasterio.windows.transform(window, self.transform)
 
+    def window_bounds(self, window: Window) -> tuple[float, float, float, float]:
+        """West, south, east, north of ``window`` [CRS units], whichever way the rows run
+        (north to south, or south to north in a south-up grid)."""
+        left, bottom, right, top = rasterio.windows.bounds(window, self.transform)
+        return min(left, right), min(bottom, top), max(left, right), max(bottom, top)
+
     def describe(self) -> dict:
         """The grid in words and numbers, for the run manifest."""
         return {
@@ -179,6 +185,15 @@ def _raster_crs(src, path: Path, key: str):
             expected="a GeoTIFF with a CRS",
             found="none",
         )
+    if CRS.from_wkt(src.crs.to_wkt()).geodetic_crs is None:
+        raise SpatialError(
+            "raster has a local (engineering) coordinate reference system, not tied to the Earth",
+            source=path,
+            location=f"key {key!r}",
+            expected="a projected CRS (e.g. the local UTM zone); georeference a site grid "
+            "before use",
+            found=f"CRS {CRS.from_wkt(src.crs.to_wkt()).name!r}",
+        )
     return src.crs
 
 
@@ -187,8 +202,15 @@ def alignment_problem(grid: Grid, src) -> tuple[str, str] | None:
     if CRS.from_wkt(src.crs.to_wkt()) != CRS.from_wkt(grid.crs.to_wkt()):
         return f"CRS {grid.crs.to_string()} (as {grid.source.name})", f"CRS {src.crs.to_string()}"
     t, g = src.transform, grid.transform
+    if t.b != 0 or t.d != 0:
+        return (
+            f"a grid without rotation or shear, as {grid.source.name}",
+            f"a rotated or sheared grid (rotation terms {t.b:g}, {t.d:g} in the geotransform)",
+        )
+    if (t.e > 0) != (g.e > 0) or (t.a > 0) != (g.a > 0):
+        return f"{_orientation(g)}, as {grid.source.name}", _orientation(t)
     same_size = math.isclose(t.a, g.a, rel_tol=1e-9) and math.isclose(t.e, g.e, rel_tol=1e-9)
-    if not same_size or t.b != 0 or t.d != 0:
+    if not same_size:
         return (
             f"cells of {g.a:g} × {-g.e:g} (as {grid.source.name})",
             f"cells of {t.a:g} × {-t.e:g}",
@@ -202,6 +224,14 @@ def alignment_problem(grid: Grid, src) -> tuple[str, str] | None:
             f"origin {t.c:.10g}, {t.f:.10g}: shifted by {col % 1:.3f} × {row % 1:.3f} of a cell",
         )
     return None
+
+
+def _orientation(transform: Affine) -> str:
+    """Which way the rows and columns of a grid without rotation run, in words."""
+    up = "north-up" if transform.e < 0 else "south-up"
+    rows = "north to south" if transform.e < 0 else "south to north"
+    columns = "west to east" if transform.a > 0 else "east to west"
+    return f"a {up} grid (rows from {rows}, columns from {columns})"
 
 
 @dataclass(frozen=True)
@@ -332,13 +362,16 @@ class GridLayer:
         inner, target = self._intersection(window)
         if inner is None:
             return np.zeros(shape, dtype=np.float32), np.zeros(shape, dtype=bool)
-        if scratch is not None and (int(inner.height), int(inner.width)) == shape:
-            part = scratch.take(f"values {self.spec.key}", shape, np.float32)
-            self.dataset.read(1, window=inner, out=part)
-        else:
-            part = self.dataset.read(1, window=inner, out_dtype=np.float32)
-            scratch = None
-        ok = self._valid(part, inner, scratch)
+        try:
+            if scratch is not None and (int(inner.height), int(inner.width)) == shape:
+                part = scratch.take(f"values {self.spec.key}", shape, np.float32)
+                self.dataset.read(1, window=inner, out=part)
+            else:
+                part = self.dataset.read(1, window=inner, out_dtype=np.float32)
+                scratch = None
+            ok = self._valid(part, inner, scratch)
+        except RasterioIOError as exc:
+            raise self._unreadable(inner, exc) from None
         self._check_range(part, ok, inner)
         if part.shape == shape:
             return part, ok
@@ -347,6 +380,18 @@ class GridLayer:
         values[target] = part
         valid[target] = ok
         return values, valid
+
+    def _unreadable(self, inner: Window, exc: RasterioIOError) -> SpatialError:
+        """The error of a window GDAL cannot read: a truncated or corrupt file."""
+        detail = str(exc.__cause__ or exc)
+        return SpatialError(
+            "cannot read the raster's cells: the file is truncated or corrupt",
+            source=self.spec.path,
+            location=f"key {self.spec.key!r}, cells from row {int(inner.row_off)}, "
+            f"column {int(inner.col_off)}",
+            expected="a complete GeoTIFF (copy or export it again)",
+            found=f"GDAL: {detail.removeprefix(self.spec.path.name + ', ')}",
+        )
 
     def _check_range(self, part: np.ndarray, ok: np.ndarray, inner: Window) -> None:
         """Refuse a value outside the layer's possible range, naming the first such cell."""
@@ -501,7 +546,7 @@ class ShapeBurner:
         if out is None:
             out = np.empty(shape, dtype=self.dtype)
         out.fill(self.fill)
-        west, south, east, north = rasterio.windows.bounds(window, grid.transform)
+        west, south, east, north = grid.window_bounds(window)
         pad_x, pad_y = abs(grid.transform.a), abs(grid.transform.e)
         clip = (west - pad_x, south - pad_y, east + pad_x, north + pad_y)
         hits = self.tree.query(shapely.box(*clip))

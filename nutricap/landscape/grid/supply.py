@@ -24,7 +24,6 @@ from dataclasses import dataclass, field
 import geopandas as gpd
 import numpy as np
 import pandas as pd
-import rasterio
 from rasterio.windows import Window
 
 from nutricap.errors import ProjectFileError, SpatialError
@@ -331,7 +330,7 @@ def _layers_without_data(shape, specs: list[LayerSpec], grid: Grid, project) -> 
     cells = 0
     with streaming_env(), LayerStack(specs, grid, resample) as stack:
         for window in grid_windows(grid):
-            w_west, w_south, w_east, w_north = rasterio.windows.bounds(window, grid.transform)
+            w_west, w_south, w_east, w_north = grid.window_bounds(window)
             if w_east < west or w_west > east or w_north < south or w_south > north:
                 continue
             unit = burner.burn(window, grid) > 0
