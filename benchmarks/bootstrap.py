@@ -15,7 +15,9 @@ included), and the RSS before the bootstrap (``VmRSS`` of ``/proc/self/status``)
 ``--calibrated`` also makes the first forage class of every stratum a calibrated-raster
 group (a linear model fitted to 40 invented plots; its per-entry sums S0, S1 invented), as
 on the grid path. ``--limit-gb G`` caps each child's address space (``RLIMIT_AS``) so that
-an unbounded run fails with MemoryError instead of exhausting the machine.
+an unbounded run fails with MemoryError instead of exhausting the machine. ``--memory-mb M``
+sets the bootstrap's chunk budget (``nutricap.uncertainty.BOOTSTRAP_MEMORY_BYTES``) in the
+child; ``--profile`` prints the child's 15 costliest calls (cProfile, cumulative).
 
     python benchmarks/bootstrap.py [--replicates 1000] [--repeat 3]
     python benchmarks/bootstrap.py --units 1000 5000 20000 [--calibrated] [--limit-gb 12]
@@ -24,18 +26,22 @@ an unbounded run fails with MemoryError instead of exhausting the machine.
 from __future__ import annotations
 
 import argparse
+import cProfile
 import json
+import pstats
 import resource
 import subprocess
 import sys
 import tempfile
 import time
 from dataclasses import replace
+from functools import partial
 from pathlib import Path
 from types import SimpleNamespace
 
 import numpy as np
 
+import nutricap.uncertainty as uncertainty
 from nutricap.example import write_example_landscape
 from nutricap.problem import CapacityProblem
 from nutricap.project import load_project
@@ -115,7 +121,7 @@ def rss_mb() -> float:
     return float("nan")
 
 
-def child(n_units: int, replicates: int, calibrated: bool) -> dict:
+def child(n_units: int, replicates: int, calibrated: bool, memory_mb: float | None) -> dict:
     """Bootstrap of ``n_units`` synthesised units; time [s] and memory [MB]."""
     with tempfile.TemporaryDirectory() as folder:
         project_file = write_example_landscape(Path(folder) / "example")
@@ -131,6 +137,8 @@ def child(n_units: int, replicates: int, calibrated: bool) -> dict:
     if calibrated:
         group = calibrated_group(problem, supply.classes[0])
         grid = SimpleNamespace(calibrated_sums=[group])  # what assess_uncertainty reads
+    if memory_mb is not None:
+        uncertainty.BOOTSTRAP_MEMORY_BYTES = int(memory_mb * 2**20)
     before_mb = rss_mb()
     began = time.perf_counter()
     result = assess_uncertainty(project, inputs, supply, problem, herd, target, say, grid)
@@ -140,10 +148,14 @@ def child(n_units: int, replicates: int, calibrated: bool) -> dict:
     return {"seconds": seconds, "peak_rss_mb": peak_mb, "rss_before_mb": before_mb, "sum": total}
 
 
-def run_child(n_units: int, replicates: int, calibrated: bool, limit_gb: float | None) -> str:
+def run_child(n_units: int, args: argparse.Namespace) -> str:
     """One child process; its result line (or the way it failed)."""
+    replicates, calibrated, limit_gb = args.replicates, args.calibrated, args.limit_gb
     command = [sys.executable, __file__, "--child", "--units", str(n_units)]
     command += ["--replicates", str(replicates)] + (["--calibrated"] if calibrated else [])
+    if args.memory_mb is not None:
+        command += ["--memory-mb", str(args.memory_mb)]
+    command += ["--profile"] if args.profile else []
 
     def limit() -> None:
         if limit_gb is not None:
@@ -158,9 +170,12 @@ def run_child(n_units: int, replicates: int, calibrated: bool, limit_gb: float |
             f"units={n_units} replicates={replicates} FAILED after "
             f"{time.perf_counter() - began:.1f} s (exit {done.returncode}): {last}"
         )
+    if args.profile:
+        print("\n".join(done.stdout.strip().splitlines()[:-1]))
     figures = json.loads(done.stdout.strip().splitlines()[-1])
     return (
         f"units={n_units} replicates={replicates} calibrated={calibrated} "
+        f"memory_mb={args.memory_mb or uncertainty.BOOTSTRAP_MEMORY_BYTES / 2**20:g} "
         f"bootstrap_s={figures['seconds']:.2f} peak_rss_mb={figures['peak_rss_mb']:.0f} "
         f"rss_before_mb={figures['rss_before_mb']:.0f} ncc_sum={figures['sum']:.6e}"
     )
@@ -173,16 +188,25 @@ def main() -> None:
     parser.add_argument("--units", type=int, nargs="+")
     parser.add_argument("--calibrated", action="store_true")
     parser.add_argument("--limit-gb", type=float)
+    parser.add_argument("--memory-mb", type=float)
+    parser.add_argument("--profile", action="store_true")
     parser.add_argument("--child", action="store_true", help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.child:
-        print(json.dumps(child(args.units[0], args.replicates, args.calibrated)))
+        run = partial(child, args.units[0], args.replicates, args.calibrated, args.memory_mb)
+        if args.profile:
+            profiler = cProfile.Profile()
+            figures = profiler.runcall(run)
+            pstats.Stats(profiler).sort_stats("cumulative").print_stats(15)
+        else:
+            figures = run()
+        print(json.dumps(figures))
         return
     if args.units:
         for n_units in args.units:
             load = Path("/proc/loadavg").read_text().split()[0]
             print(f"load_1min={load}", flush=True)
-            print(run_child(n_units, args.replicates, args.calibrated, args.limit_gb), flush=True)
+            print(run_child(n_units, args), flush=True)
         return
     with tempfile.TemporaryDirectory() as folder:
         project_file = write_example_landscape(Path(folder) / "example")
