@@ -243,6 +243,11 @@ class ModelFits:
         values = (model.intercept, model.slope, model.smearing)
         return cls(*(np.full(replicates, value) for value in values))
 
+    def __getitem__(self, replicates: slice) -> ModelFits:
+        """The fits of the replicates in ``replicates`` (e.g. one chunk of the bootstrap)."""
+        values = (self.intercept, self.slope, self.smearing)
+        return ModelFits(*(value[replicates] for value in values))
+
 
 def pairs_bootstrap(model: BiomassModel, replicates: int, rng: np.random.Generator) -> ModelFits:
     """Refit ``model.kind`` to its calibration plots drawn with replacement, ``replicates`` times.

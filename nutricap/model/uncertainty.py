@@ -6,8 +6,10 @@ plots are resampled with replacement *within each stratum*, the stratum means
 are recomputed, and every replicate's capacity problem is solved. In the
 calibrated-raster mode each group's calibration plots are resampled too (pairs
 bootstrap, ch. 9) and its index → biomass model refitted. The spatial work
-(overlay, hectares, raster pass) is done once; all replicates are stacked into
-one problem and solved in a single vectorised call.
+(overlay, hectares, raster pass) is done once; the replicates are stacked into
+one problem and solved in vectorised calls, as many replicates at a time as a
+memory budget allows (:data:`BOOTSTRAP_MEMORY_BYTES`), so that memory does not
+grow with units × replicates beyond the per-unit results.
 
 Sensitivity: each input group is moved down and up by a stated fraction, one
 at a time, and the change in total NCC is recorded (a tornado table). This is
@@ -17,9 +19,9 @@ is needed.
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, replace
-from typing import Protocol
+from typing import Any, Protocol
 
 import numpy as np
 import pandas as pd
@@ -29,6 +31,15 @@ from nutricap.model.problem import CapacityProblem, Solution
 FIGURES = ("ncc", "ecc", "allowable_use")
 SolveRows = Callable[[CapacityProblem], Solution]
 
+BOOTSTRAP_MEMORY_BYTES = 256 * 2**20
+"""Memory budget of one chunk of stacked replicates [bytes]: the replicate forage and the
+solver's temporaries (the per-unit results of every replicate are kept besides)."""
+SOLVE_BYTES_PER_ENTRY = 128
+"""Peak memory of a stacked solve per (replicate, row, item) entry [bytes]: the float64
+forage (8 B) and the solver's temporaries. Measured: (peak RSS − RSS before) ÷ entries
+of one block of 1,000 replicates × 1,000 units × 66 items, about 13 × 8 B (see
+benchmarks/README.md); rounded up to 16 × 8 B."""
+
 
 class ResampledForage(Protocol):
     """Forage of some (row, item) entries of a problem under a resampled model, e.g. a
@@ -37,8 +48,12 @@ class ResampledForage(Protocol):
     rows: np.ndarray  # (entries,) problem rows
     items: np.ndarray  # (entries,) problem items
 
-    def resampled_forage_kg(self, replicates: int, rng: np.random.Generator) -> np.ndarray:
-        """Forage of each entry in each replicate [kg], (replicates, entries)."""
+    def resampled_fits(self, replicates: int, rng: np.random.Generator) -> Any:
+        """Every replicate's resampled model, drawn from ``rng`` (compact: parameters per
+        replicate, no per-entry arrays); indexing it by a slice of replicates gives theirs."""
+
+    def forage_kg(self, fits: Any) -> np.ndarray:
+        """Forage of each entry under the models ``fits`` [kg], (replicates of fits, entries)."""
 
 
 @dataclass(frozen=True)
@@ -135,6 +150,7 @@ def bootstrap_capacity(
     level: float,
     seed: int,
     calibrated: Sequence[ResampledForage] = (),
+    memory_bytes: int | None = None,
 ) -> BootstrapResult:
     """Stratified bootstrap of NCC, ECC and allowable-use capacity per unit.
 
@@ -149,10 +165,13 @@ def bootstrap_capacity(
     labels : (strata, classes)
         Names of the strata and of the columns of ``plot_biomass_kg_per_ha``.
     solve_rows : callable
-        Solves a problem (all replicates are stacked into one).
+        Solves a problem (a chunk of replicates is stacked into one).
     calibrated : sequence of ResampledForage, optional
         The calibrated groups of the grid path (``GridResult.calibrated_sums``): their
         entries take the forage of each replicate's refitted model.
+    memory_bytes : int, optional
+        Budget of one chunk of stacked replicates [bytes]; default
+        :data:`BOOTSTRAP_MEMORY_BYTES`. At least one replicate is solved at a time.
 
     Notes
     -----
@@ -167,7 +186,11 @@ def bootstrap_capacity(
     strata plots, stratum by stratum (:func:`resample_stratum_means`), then each
     calibrated group's plots in the order of ``calibrated``
     (:func:`nutricap.landscape.calibration.pairs_bootstrap`). Without calibrated
-    groups only the strata plots are drawn.
+    groups only the strata plots are drawn. Every draw is made before the first solve
+    and kept compactly (stratum means per replicate, model parameters per replicate);
+    the replicates are then built and solved in chunks (:func:`replicate_chunks`). Each
+    unit is solved on its own and the per-replicate forage is elementwise, so the
+    result does not depend on the chunk size, bit for bit.
 
     On the grid both rescalings are approximations where the minimum-density rule
     acts (it is evaluated at the point estimate); a refitted linear model is exact
@@ -187,16 +210,39 @@ def bootstrap_capacity(
     c = pd.Index(classes).get_indexer(problem.items.forage_class)
     sampled = (s >= 0) & (c >= 0) & (problem.items.variant == "")
     item_ratio = np.where(sampled, ratio[:, np.maximum(s, 0), np.maximum(c, 0)], 1.0)
-    available = problem.available_kg[None, :, :] * item_ratio[:, None, :]
-    for group in calibrated:
-        available[:, group.rows, group.items] = group.resampled_forage_kg(replicates, rng)
-    rows = problem.row_unit.size
+    fits = [group.resampled_fits(replicates, rng) for group in calibrated]
+    days = {name: np.empty((replicates, problem.unit_ids.size)) for name in FIGURES}
+    entries = problem.available_kg.size
+    for chunk in replicate_chunks(replicates, entries, memory_bytes or BOOTSTRAP_MEMORY_BYTES):
+        available = problem.available_kg[None, :, :] * item_ratio[chunk, None, :]
+        for group, group_fits in zip(calibrated, fits):
+            available[:, group.rows, group.items] = group.forage_kg(group_fits[chunk])
+        for name, values in solve_stacked(problem, available, solve_rows).items():
+            days[name][chunk] = values
+    return BootstrapResult(days, level)
+
+
+def replicate_chunks(replicates: int, entries: int, memory_bytes: int) -> Iterator[slice]:
+    """Consecutive slices of ``range(replicates)``, each as long as ``memory_bytes`` allows a
+    stacked solve of ``entries`` (rows × items) per replicate (at least one replicate)."""
+    step = max(1, memory_bytes // max(1, entries * SOLVE_BYTES_PER_ENTRY))
+    for start in range(0, replicates, step):
+        yield slice(start, min(start + step, replicates))
+
+
+def solve_stacked(
+    problem: CapacityProblem, available_kg: np.ndarray, solve_rows: SolveRows
+) -> dict[str, np.ndarray]:
+    """Capacity per replicate and unit [animal-days], ``figure → (replicates, units)``, of
+    ``problem`` with the forage ``available_kg`` (replicates, rows, items) [kg], all replicates
+    stacked into one problem."""
+    count, rows = available_kg.shape[:2]
     stacked = replace(
         problem,
-        row_unit=np.tile(problem.row_unit, replicates)
-        + np.repeat(np.arange(replicates) * problem.unit_ids.size, rows),
-        unit_ids=np.tile(problem.unit_ids, replicates),
-        available_kg=available.reshape(replicates * rows, -1),
+        row_unit=np.tile(problem.row_unit, count)
+        + np.repeat(np.arange(count) * problem.unit_ids.size, rows),
+        unit_ids=np.tile(problem.unit_ids, count),
+        available_kg=available_kg.reshape(count * rows, -1),
     )
     solution = solve_rows(stacked)
     per_figure = {
@@ -204,11 +250,7 @@ def bootstrap_capacity(
         "ecc": solution.ecc_animal_days,
         "allowable_use": solution.allowable_use_animal_days,
     }
-    shape = (replicates, problem.unit_ids.size)
-    return BootstrapResult(
-        {name: stacked.sum_by_unit(days).reshape(shape) for name, days in per_figure.items()},
-        level,
-    )
+    return {name: stacked.sum_by_unit(d).reshape(count, -1) for name, d in per_figure.items()}
 
 
 def add_intervals(table: pd.DataFrame, result: BootstrapResult, season_days: float) -> pd.DataFrame:

@@ -144,10 +144,11 @@ class CalibratedSums:
             return linear_forage(fits, self.terms[:, 0], self.terms[:, 1])
         return binned_loglinear_forage(self.model, fits, self.terms, self.mean_index)
 
-    def resampled_forage_kg(self, replicates: int, rng: np.random.Generator) -> np.ndarray:
-        """:meth:`forage_kg` of ``replicates`` pairs-bootstrap refits of the model (the draws
-        from ``rng`` are those of :func:`~nutricap.landscape.calibration.pairs_bootstrap`)."""
-        return self.forage_kg(pairs_bootstrap(self.model, replicates, rng))
+    def resampled_fits(self, replicates: int, rng: np.random.Generator) -> ModelFits:
+        """``replicates`` pairs-bootstrap refits of the model (the draws from ``rng`` are those
+        of :func:`~nutricap.landscape.calibration.pairs_bootstrap`); their forage follows by
+        :meth:`forage_kg`, a slice of replicates at a time."""
+        return pairs_bootstrap(self.model, replicates, rng)
 
 
 def calibrated_sums(
