@@ -8,7 +8,32 @@ traceback is shown for these.
 
 from __future__ import annotations
 
+import unicodedata
 from pathlib import Path
+
+UNPRINTABLE = ("Cc", "Cf", "Cs", "Co", "Cn", "Zl", "Zp")
+"""Unicode categories printed escaped: controls (escape sequences, NUL, newline), format
+characters (e.g. right-to-left overrides), surrogates, private-use and unassigned code
+points, line and paragraph separators."""
+
+
+def printable(text: object) -> str:
+    """``text`` with every unprintable character escaped as Python writes it (``\\x1b``).
+
+    Whatever an input holds (a unit id with an escape sequence, a newline) then shows as
+    plain characters on one line of a terminal, a log or a chart, and cannot move the
+    cursor, clear the screen or fake a line of output.
+    """
+    text = str(text)
+    if text.isprintable():  # the common case, fast (spaces count as printable)
+        return text
+    return "".join(_escaped(char) for char in text)
+
+
+def _escaped(char: str) -> str:
+    if char == " " or unicodedata.category(char) not in UNPRINTABLE:
+        return char
+    return repr(char)[1:-1]
 
 
 class NutricapError(Exception):
@@ -62,7 +87,7 @@ class InputError(NutricapError):
             details.append(f"found {self.found}")
         if details:
             text += f" ({'; '.join(details)})"
-        return text
+        return printable(text)
 
 
 class ProjectFileError(InputError):

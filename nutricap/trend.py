@@ -16,7 +16,6 @@ import argparse
 import json
 import math
 import os
-import tempfile
 import textwrap
 from pathlib import Path
 
@@ -26,7 +25,7 @@ import pandas as pd
 from nutricap.cautions import CAUTION
 from nutricap.errors import InputError, TableError
 from nutricap.manifest import package_versions, sha256_of_file
-from nutricap.outputs import check_output_folder
+from nutricap.outputs import check_output_folder, record_output
 from nutricap.science import population
 from nutricap.tables import Column, read_csv_table, spreadsheet_row
 
@@ -111,6 +110,7 @@ def run(args: argparse.Namespace) -> int:
     text = json.dumps(payload, indent=2, ensure_ascii=False, allow_nan=False)
     if out is not None:
         _write_atomically(out / JSON_NAME, text + "\n")
+        record_output(out, JSON_NAME)
     print(text if args.json else format_text(payload))
     return 0
 
@@ -424,9 +424,9 @@ def _json_ready(value):
 def _write_atomically(target: Path, text: str) -> None:
     """Write ``text`` to a temporary file beside ``target``, then move it into place."""
     target.parent.mkdir(parents=True, exist_ok=True)
-    handle, temporary = tempfile.mkstemp(
-        prefix=f".{target.name}.", suffix=".partial", dir=target.parent
-    )
+    temporary = target.with_name(f".{target.name}.{os.getpid()}-{os.urandom(4).hex()}.partial")
+    flags = os.O_WRONLY | os.O_CREAT | os.O_EXCL
+    handle = os.open(temporary, flags, 0o666)  # the user's umask applies (mkstemp: 0600)
     try:
         with os.fdopen(handle, "w", encoding="utf-8") as stream:
             stream.write(text)
@@ -442,7 +442,7 @@ def _check_out(out: Path | None, counts_path: Path, project) -> Path | None:
     inputs = [counts_path]
     if project is not None:
         inputs += [project.path, *project.input_paths().values()]
-    return check_output_folder(out, inputs, overwrite=True)
+    return check_output_folder(out, inputs, overwrite=True, whole=False)
 
 
 def format_text(payload: dict) -> str:

@@ -1,6 +1,7 @@
 """Tests of the command line: exit codes, one-line messages, nothing written on error."""
 
 import re
+from pathlib import Path
 
 import geopandas as gpd
 import pandas as pd
@@ -24,7 +25,7 @@ def test_help_shows_caution(capsys):
 
 
 def test_estimate_succeeds(project, tmp_path, capsys):
-    code, out, _ = _run(capsys, "estimate", project, "--out", tmp_path / "results", "--quiet")
+    code, out, _ = _run(capsys, "estimate", project, "--out", tmp_path / "results")
     assert code == 0
     assert "capacity_by_unit.csv" in out and "CAUTION" in out
 
@@ -41,13 +42,13 @@ def test_report_written_by_default_and_skipped_on_request(project, tmp_path, cap
 
 def test_check_writes_nothing(project, capsys):
     before = sorted(p.name for p in project.parent.iterdir())
-    code, out, _ = _run(capsys, "check", project, "--quiet")
+    code, out, _ = _run(capsys, "check", project)
     assert code == 0 and "OK" in out
     assert sorted(p.name for p in project.parent.iterdir()) == before
 
 
 def test_demo_runs(tmp_path, capsys):
-    code, out, _ = _run(capsys, "demo", "--out", tmp_path / "demo", "--quiet")
+    code, out, _ = _run(capsys, "demo", "--out", tmp_path / "demo")
     assert code == 0
     # The example's over-stocked unit (invented for the example) is flagged in the summary.
     assert "flag: unit Petrelhollow" in out and "report.html" in out
@@ -59,6 +60,36 @@ def test_demo_runs(tmp_path, capsys):
     }
     assert "On the 50 m grid" in out
     assert out.rstrip().splitlines()[-1].startswith("CAUTION:")
+
+
+def _tree(folder):
+    """Relative path → bytes of every file under ``folder``."""
+    return {p.relative_to(folder): p.read_bytes() for p in folder.rglob("*") if p.is_file()}
+
+
+def test_demo_overwrite_deletes_only_what_the_demo_wrote(tmp_path, capsys):
+    demo = tmp_path / "demo"
+    assert _run(capsys, "demo", "--out", demo, "--quiet") == (0, "", "")
+    for where in ("example_landscape/my_plots.csv", "results/notes.txt", "my_map.qgz"):
+        (demo / where).write_text("the user's own file\n")
+        before = _tree(demo)
+        code, out, err = _run(capsys, "demo", "--out", demo, "--overwrite", "--quiet")
+        assert code == 2 and out == "" and len(err.strip().splitlines()) == 1, err
+        assert Path(where).name in err
+        assert _tree(demo) == before, "nothing deleted, nothing written"
+        (demo / where).unlink()
+    # Unchanged, the demo's own folders are replaced.
+    assert _run(capsys, "demo", "--out", demo, "--overwrite", "--quiet") == (0, "", "")
+    assert sorted(p.name for p in demo.iterdir()) == ["example_landscape", "results",
+                                                      "results_rasters"]  # fmt: skip
+
+
+def test_overwrite_policy_is_in_the_help(capsys):
+    for command in ("estimate", "demo", "compare"):
+        with pytest.raises(SystemExit):
+            main([command, "--help"])
+        text = " ".join(capsys.readouterr().out.split())
+        assert "only if it holds nothing but an earlier run's outputs, unchanged" in text
 
 
 def _mutate_csv(path, change):
