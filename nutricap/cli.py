@@ -248,8 +248,8 @@ def run_demo(args: argparse.Namespace) -> int:
 
 
 def say(text: str) -> None:
-    """Print ``text`` on stdout, every unprintable character escaped (line by line)."""
-    print("\n".join(printable(line) for line in str(text).split("\n")))
+    """Print ``text`` on one line of stdout, every unprintable character (newlines too) escaped."""
+    print(printable(text))
 
 
 def _print_summary(result, out: Path, *, caution: bool = True, quiet: bool = False) -> None:
@@ -266,7 +266,8 @@ def _print_summary(result, out: Path, *, caution: bool = True, quiet: bool = Fal
         heading += f", the {SHOWN_UNITS} largest of {len(table)} units by NCC"
     say(heading + ":")
     shown = shown.assign(unit_id=shown["unit_id"].map(printable))
-    say(shown.to_string(index=False, float_format=lambda v: f"{v:,.0f}"))
+    for line in shown.to_string(index=False, float_format=lambda v: f"{v:,.0f}").split("\n"):
+        say(line)
     if len(table) > SHOWN_UNITS:
         say(f"... and {len(table) - SHOWN_UNITS} more units in the table")
     ncc, ecc = table["ncc_animals"].sum(), table["ecc_animals"].sum()

@@ -23,7 +23,7 @@ import numpy as np
 import pandas as pd
 
 from nutricap.cautions import CAUTION
-from nutricap.errors import InputError, TableError
+from nutricap.errors import InputError, TableError, printable
 from nutricap.manifest import package_versions, sha256_of_file
 from nutricap.outputs import check_output_folder, record_output
 from nutricap.science import population
@@ -111,7 +111,10 @@ def run(args: argparse.Namespace) -> int:
     if out is not None:
         _write_atomically(out / JSON_NAME, text + "\n")
         record_output(out, JSON_NAME)
-    print(text if args.json else format_text(payload))
+    if args.json:  # JSON escapes what is unprintable as \\uXXXX; the newlines are its layout
+        print("\n".join(printable(line, json_escapes=True) for line in text.split("\n")))
+    else:
+        print("\n".join(printable(line) for line in format_text(payload).split("\n")))
     return 0
 
 

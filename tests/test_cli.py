@@ -1,9 +1,13 @@
 """Tests of the command line: exit codes, one-line messages, nothing written on error."""
 
 import re
+import subprocess
+import sys
 from pathlib import Path
+from types import SimpleNamespace
 
 import geopandas as gpd
+import numpy as np
 import pandas as pd
 import pytest
 from shapely.affinity import translate
@@ -181,3 +185,96 @@ def test_existing_output_needs_overwrite_and_survives_failure(project, tmp_path,
     code, _, _ = _run(capsys, "estimate", project, "--out", out, "--overwrite", "--quiet")
     assert code == 2
     assert (out / "capacity_by_unit.csv").read_bytes() == first
+
+
+# --- what is printed: --quiet, the largest units, escaped text --------------------------------
+
+
+@pytest.mark.parametrize("command", ["estimate", "check", "compare"])
+def test_quiet_prints_nothing_on_success(project, tmp_path, capsys, command):
+    argv = [command, project, "--quiet"]
+    if command != "check":
+        argv += ["--out", tmp_path / "out", "--no-report"]
+    if command == "compare":
+        argv += ["--scenario", "prescribed_burn"]
+    assert _run(capsys, *argv) == (0, "", "")
+
+
+def test_quiet_console_command_shows_no_python_warning(project, tmp_path):
+    # A warning raised during the run (simulated) reaches the terminal without --quiet only.
+    script = (
+        "import sys, warnings; import nutricap.workflow as w; real = w.estimate\n"
+        "def warned(*a, **k):\n    warnings.warn('simulated warning'); return real(*a, **k)\n"
+        "w.estimate = warned; from nutricap.cli import run_and_exit; run_and_exit()"
+    )
+    for quiet in (True, False):
+        argv = [sys.executable, "-c", script, "check", str(project)] + ["--quiet"] * quiet
+        done = subprocess.run(argv, capture_output=True, text=True, check=False)
+        assert done.returncode == 0, done.stderr
+        assert ("simulated warning" in done.stderr) is not quiet, done.stderr
+        assert (done.stdout == "") is quiet
+
+
+def _fake_result(count):
+    """A per-unit table of ``count`` units with invented figures (for printing only)."""
+    rng = np.random.default_rng(7)
+    ncc = rng.permutation(count) * 10.0 + 5.0
+    table = pd.DataFrame(
+        {
+            "unit_id": [f"U{i:03d}" for i in range(count)],
+            "ncc_animals": ncc,
+            "ecc_animals": ncc * 4,
+            "allowable_use_animals": ncc * 2,
+            "limiting_factor": "protein",
+            "current_animals": ncc * 3,
+            "overuse": True,
+            "above_ncc": True,
+            "key_class": "browse",
+            "key_use_fraction": 0.9,
+            "key_allowable_use": 0.5,
+        }
+    )
+    return SimpleNamespace(by_unit=table, season_days=120.0, notes=[])
+
+
+def test_summary_shows_the_20_largest_units_the_totals_and_the_table(tmp_path, capsys):
+    from nutricap.cli import _print_summary
+
+    result = _fake_result(200)
+    _print_summary(result, tmp_path)
+    lines = capsys.readouterr().out.splitlines()
+    printed = [line.split()[0] for line in lines if re.match(r"\s*U\d{3}\s", line)]
+    table = result.by_unit
+    largest = sorted(zip(table["ncc_animals"], table["unit_id"]), reverse=True)[:20]
+    assert printed == [unit for _, unit in largest]
+    assert any("180 more units" in line for line in lines)
+    assert f"Total NCC {table['ncc_animals'].sum():,.0f} animals;" in "\n".join(lines)
+    assert any(str(tmp_path / "capacity_by_unit.csv") in line for line in lines)
+    flags = [line for line in lines if line.startswith("flag: unit")]
+    assert len(flags) == 20 and any("180 more units flagged" in line for line in lines)
+    assert len(lines) < 50
+
+
+def test_ids_are_printed_escaped(tmp_path, capsys):
+    from nutricap.cli import _print_summary
+
+    result = _fake_result(3)
+    result.by_unit.loc[0, "unit_id"] = "\x1b[2J\x1b[Hfake\nnutricap: OK\u202e"
+    result.notes.append("unit '\x1b]0;title\x07' has one plot")
+    _print_summary(result, tmp_path)
+    out = capsys.readouterr().out
+    assert "\x1b" not in out and "\x07" not in out and "\u202e" not in out
+    assert "\\x1b[2J\\x1b[Hfake\\nnutricap: OK\\u202e" in out
+    assert not any(line.startswith("nutricap: OK") for line in out.splitlines())
+    assert "\\x1b]0;title\\x07" in out
+
+
+def test_error_messages_escape_ids(project, tmp_path, capsys):
+    units = gpd.read_file(project.parent / "units.gpkg")
+    units.loc[1, "unit_id"] = "\x1b[31mred\nfake line"
+    units.loc[2, "unit_id"] = "\x1b[31mred\nfake line"
+    units.to_file(project.parent / "units.gpkg", layer="units", driver="GPKG")
+    code, out, err = _run(capsys, "check", project, "--quiet")
+    assert code == 2 and out == ""
+    assert err.count("\n") == 1 and "\x1b" not in err
+    assert "\\x1b[31mred\\nfake line" in err
