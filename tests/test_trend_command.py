@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 import types
 from pathlib import Path
@@ -18,7 +19,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from nutricap import trend
+from nutricap import outputs, trend
 from nutricap.errors import InputError, OutputError, TableError
 
 REQUIRED_KEYS = {"r_mean", "r_ci", "K", "r_max", "msy_level", "msy_yield"}
@@ -182,6 +183,24 @@ def test_out_writes_trend_json_and_leaves_no_temporary_file(tmp_path, capsys):
     written = json.loads((tmp_path / "results" / "trend.json").read_text(encoding="utf-8"))
     assert written == printed
     assert [path.name for path in (tmp_path / "results").iterdir()] == ["trend.json"]
+
+
+def test_trend_json_added_to_results_keeps_them_replaceable(tmp_path, capsys):
+    # trend.json written into an estimate's output folder joins its list of outputs, so that a
+    # later --overwrite may replace the folder; the file follows the umask (not mkstemp's 0600).
+    out = tmp_path / "results"
+    out.mkdir()
+    outputs.write_outputs_list(out)
+    counts = write_csv(tmp_path / "in", TWO_UNITS)
+    previous = os.umask(0o022)
+    try:
+        run_trend([counts, "--out", out], capsys)
+    finally:
+        os.umask(previous)
+    assert (out / "trend.json").stat().st_mode & 0o777 == 0o644  # 0666 minus umask 022 (POSIX)
+    assert outputs.foreign_files(out) == []
+    (out / "trend.json").write_text("{}\n")
+    assert outputs.foreign_files(out) == ["trend.json (changed since nutricap wrote it)"]
 
 
 def test_out_refuses_the_counts_folder(tmp_path):
