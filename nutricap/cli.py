@@ -9,26 +9,35 @@ from __future__ import annotations
 
 import argparse
 import gc
-import shutil
 import sys
 import textwrap
 import time
+import warnings
 from collections.abc import Sequence
 from pathlib import Path
 
 from nutricap import __version__
 from nutricap.cautions import CAUTION
-from nutricap.errors import InputError
+from nutricap.errors import InputError, printable
 
 EXIT_OK = 0
 EXIT_BAD_INPUT = 2
 EXIT_INTERRUPTED = 130  # 128 + SIGINT, the shell's convention
+DEMO_PARTS = ("example_landscape", "results", "results_rasters")
+"""What ``demo`` writes into its folder (each part staged, with its list of outputs)."""
+OVERWRITE_HELP = (
+    "replace an existing output folder, only if it holds nothing but an earlier run's "
+    "outputs, unchanged (files added or changed since are never deleted: the run is refused)"
+)
 
+QUIET_HELP = "print nothing but errors (no progress, no summary, no warnings)"
 DESCRIPTION = (
     "Nutritional carrying capacity (NCC) of ungulate range per management unit, beside the "
     "forage-quantity ceiling (ECC) and the capacity at allowable use."
 )
 EPILOG = f"CAUTION: {CAUTION}"
+SHOWN_UNITS = 20
+"""Units (the largest by NCC) and flags printed at most; the tables hold every unit."""
 
 
 class StepPrinter:
@@ -43,7 +52,8 @@ class StepPrinter:
         self.count += 1
         if not self.quiet:
             elapsed = time.perf_counter() - self.start
-            print(f"[{self.count}] {elapsed:6.1f} s  {message}", file=sys.stderr, flush=True)
+            line = f"[{self.count}] {elapsed:6.1f} s  {printable(message)}"
+            print(line, file=sys.stderr, flush=True)
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -86,8 +96,12 @@ def _add_demo(commands) -> None:
         default=Path("nutricap_demo"),
         help="folder for the example inputs and results (default: nutricap_demo)",
     )
-    parser.add_argument("--overwrite", action="store_true", help="replace an existing folder")
-    parser.add_argument("--quiet", action="store_true", help="no progress messages")
+    parser.add_argument(
+        "--overwrite",
+        action="store_true",
+        help=f"{OVERWRITE_HELP}; the demo's folder may hold only " + ", ".join(DEMO_PARTS),
+    )
+    parser.add_argument("--quiet", action="store_true", help=QUIET_HELP)
     parser.set_defaults(handler=run_demo)
 
 
@@ -112,17 +126,15 @@ def _add_output_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--out", type=Path, required=True, help="output folder (not an input folder)"
     )
-    parser.add_argument(
-        "--overwrite", action="store_true", help="replace an existing output folder"
-    )
+    parser.add_argument("--overwrite", action="store_true", help=OVERWRITE_HELP)
     parser.add_argument("--no-report", action="store_true", help="skip report.html")
-    parser.add_argument("--quiet", action="store_true", help="no progress messages")
+    parser.add_argument("--quiet", action="store_true", help=QUIET_HELP)
 
 
 def _add_check(commands) -> None:
     parser = _subparser(commands, "check", "Validate a project and its inputs; write nothing.")
     parser.add_argument("project", type=Path, help="project file (TOML)")
-    parser.add_argument("--quiet", action="store_true", help="no progress messages")
+    parser.add_argument("--quiet", action="store_true", help=QUIET_HELP)
     parser.set_defaults(handler=run_check)
 
 
@@ -174,6 +186,7 @@ def run_trend(args: argparse.Namespace) -> int:
     """Run the ``trend`` command; return 0, raise :class:`InputError` on bad input."""
     from nutricap.inputs.counts import read_counts, select_series
     from nutricap.model.trend import add_capacity, analyse_series, capacity_table
+    from nutricap.report.output_folder import record_output
     from nutricap.report.trend_text import (
         JSON_NAME,
         build_payload,
@@ -201,7 +214,11 @@ def run_trend(args: argparse.Namespace) -> int:
     text = json_text(payload)
     if out is not None:
         write_atomically(out / JSON_NAME, text + "\n")
-    print(text if args.json else format_text(payload))
+        record_output(out, JSON_NAME)
+    if args.json:  # JSON escapes what is unprintable as \\uXXXX; the newlines are its layout
+        print("\n".join(printable(line, json_escapes=True) for line in text.split("\n")))
+    else:
+        print("\n".join(printable(line) for line in format_text(payload).split("\n")))
     return 0
 
 
@@ -225,7 +242,7 @@ def _check_trend_out(out: Path | None, counts_path: Path, project) -> Path | Non
     inputs = [counts_path]
     if project is not None:
         inputs += [project.path, *project.input_paths().values()]
-    return check_output_folder(out, inputs, overwrite=True)
+    return check_output_folder(out, inputs, overwrite=True, whole=False)
 
 
 def run_estimate_command(args: argparse.Namespace) -> int:
@@ -245,7 +262,7 @@ def run_estimate_command(args: argparse.Namespace) -> int:
         progress=progress,
         checksums=checksums,
     )
-    _print_summary(result, args.out)
+    _print_summary(result, args.out, quiet=args.quiet)
     return EXIT_OK
 
 
@@ -267,12 +284,14 @@ def run_compare_command(args: argparse.Namespace) -> int:
         progress=progress,
         checksums=checksums,
     )
+    if args.quiet:
+        return EXIT_OK
     totals = table.groupby("year")[["ncc_animals_baseline", "ncc_animals_scenario"]].sum()
-    print(f"Scenario {args.scenario!r}: total NCC by year (baseline → scenario)")
+    say(f"Scenario {args.scenario!r}: total NCC by year (baseline → scenario)")
     for year, row in totals.iterrows():
-        print(f"  {year}: {row['ncc_animals_baseline']:,.0f} → {row['ncc_animals_scenario']:,.0f}")
-    print(f"Table: {Path(args.out) / 'scenario_by_unit.csv'}")
-    print(f"CAUTION: {CAUTION}")
+        say(f"  {year}: {row['ncc_animals_baseline']:,.0f} → {row['ncc_animals_scenario']:,.0f}")
+    say(f"Table: {Path(args.out) / 'scenario_by_unit.csv'}")
+    say(f"CAUTION: {CAUTION}")
     return EXIT_OK
 
 
@@ -282,64 +301,84 @@ def run_check(args: argparse.Namespace) -> int:
 
     project = load_project(args.project)
     result = estimate(project, StepPrinter(args.quiet))
+    if args.quiet:
+        return EXIT_OK
     units = len(result.by_unit)
     strata = len(result.supply.strata)
     plots = int(result.supply.n_plots.sum())
-    print(f"{project.path}: OK — {units} units, {strata} strata, {plots} plots; nothing written.")
+    say(f"{project.path}: OK — {units} units, {strata} strata, {plots} plots; nothing written.")
     for note in result.notes:
-        print(f"note: {note}")
+        say(f"note: {note}")
     return EXIT_OK
 
 
 def run_demo(args: argparse.Namespace) -> int:
     from nutricap.example import write_example_landscape
     from nutricap.inputs.project import load_project
-    from nutricap.report.output_folder import check_output_folder
+    from nutricap.report.output_folder import check_output_folder, staged_folder
     from nutricap.workflow import run_estimate
 
     progress = StepPrinter(args.quiet)
-    out = check_output_folder(args.out, [], overwrite=args.overwrite)
-    inputs = out / "example_landscape"
-    results = out / "results"
+    overwrite = args.overwrite
+    out = check_output_folder(args.out, [], overwrite=overwrite, parts=DEMO_PARTS)
+    inputs, results, raster_results = (out / part for part in DEMO_PARTS)
     progress(f"writing the invented example landscape to {inputs}")
-    if inputs.exists():
-        shutil.rmtree(inputs)
-    project_file = write_example_landscape(inputs)
-    result = run_estimate(load_project(project_file), results, overwrite=True, progress=progress)
-    _print_summary(result, results, caution=False)
-    raster_results = out / "results_rasters"
+    with staged_folder(inputs, overwrite=overwrite) as staging:
+        write_example_landscape(staging)
+    project_file = inputs / "project.toml"
+    project = load_project(project_file)
+    result = run_estimate(project, results, overwrite=overwrite, progress=progress)
+    _print_summary(result, results, caution=False, quiet=args.quiet)
     progress("the same landscape on a 50 m grid with snow, slope and minimum-density rules")
     raster_project = load_project(project_file.with_name("project_rasters.toml"))
-    on_grid = run_estimate(raster_project, raster_results, overwrite=True, progress=progress)
+    on_grid = run_estimate(raster_project, raster_results, overwrite=overwrite, progress=progress)
+    if args.quiet:
+        return EXIT_OK
     ncc, ecc = on_grid.by_unit["ncc_animals"].sum(), on_grid.by_unit["ecc_animals"].sum()
-    print(
+    say(
         f"On the 50 m grid with snow burial, slope and minimum-density rules "
         f"(project_rasters.toml): total NCC {ncc:,.0f} animals; ECC {ecc:,.0f}. "
         f"What each rule removed: {raster_results / 'availability_rules.csv'}; "
         f"report: {raster_results / 'report.html'}"
     )
-    print(f"CAUTION: {CAUTION}")
+    say(f"CAUTION: {CAUTION}")
     return EXIT_OK
 
 
-def _print_summary(result, out: Path, *, caution: bool = True) -> None:
+def say(text: str) -> None:
+    """Print ``text`` on one line of stdout, every unprintable character (newlines too) escaped."""
+    print(printable(text))
+
+
+def _print_summary(result, out: Path, *, caution: bool = True, quiet: bool = False) -> None:
+    """The largest units (at most :data:`SHOWN_UNITS`), the totals and where the tables are."""
+    if quiet:
+        return
     table = result.by_unit
     table_path = Path(out) / "capacity_by_unit.csv"
-    print(f"Capacity by unit ({result.season_days:g}-day season), table: {table_path}")
-    shown = table[
-        ["unit_id", "ncc_animals", "ecc_animals", "allowable_use_animals", "limiting_factor"]
-    ]
-    print(shown.to_string(index=False, float_format=lambda v: f"{v:,.0f}"))
+    columns = ["unit_id", "ncc_animals", "ecc_animals", "allowable_use_animals", "limiting_factor"]
+    shown = table[columns]
+    heading = f"Capacity by unit ({result.season_days:g}-day season)"
+    if len(table) > SHOWN_UNITS:
+        shown = shown.sort_values("ncc_animals", ascending=False, kind="stable")[:SHOWN_UNITS]
+        heading += f", the {SHOWN_UNITS} largest of {len(table)} units by NCC"
+    say(heading + ":")
+    shown = shown.assign(unit_id=shown["unit_id"].map(printable))
+    for line in shown.to_string(index=False, float_format=lambda v: f"{v:,.0f}").split("\n"):
+        say(line)
+    if len(table) > SHOWN_UNITS:
+        say(f"... and {len(table) - SHOWN_UNITS} more units in the table")
     ncc, ecc = table["ncc_animals"].sum(), table["ecc_animals"].sum()
-    print(f"Total NCC {ncc:,.0f} animals; ECC {ecc:,.0f}.")
+    say(f"Total NCC {ncc:,.0f} animals; ECC {ecc:,.0f}.")
+    say(f"Table of every unit: {table_path}")
     _print_flags(table)
     for note in result.notes:
-        print(f"note: {note}")
+        say(f"note: {note}")
     report = Path(out) / "report.html"
     if report.exists():
-        print(f"Report: {report}")
+        say(f"Report: {report}")
     if caution:
-        print(f"CAUTION: {CAUTION}")
+        say(f"CAUTION: {CAUTION}")
 
 
 def _print_flags(table) -> None:
@@ -347,7 +386,7 @@ def _print_flags(table) -> None:
     if "current_animals" not in table.columns:
         return
     flagged = table[table["overuse"] | table["above_ncc"]]
-    for row in flagged.itertuples():
+    for row in flagged[:SHOWN_UNITS].itertuples():
         reasons = []
         if row.above_ncc:
             reasons.append(f"{row.current_animals:,.0f} animals > NCC {row.ncc_animals:,.0f}")
@@ -356,13 +395,25 @@ def _print_flags(table) -> None:
                 f"{row.key_class} used {row.key_use_fraction:.0%} > allowable "
                 f"{row.key_allowable_use:.0%}"
             )
-        print(f"flag: unit {row.unit_id}: " + "; ".join(reasons) + " (advisory)")
+        say(f"flag: unit {row.unit_id}: " + "; ".join(reasons) + " (advisory)")
+    if len(flagged) > SHOWN_UNITS:
+        say(
+            f"flag: {len(flagged) - SHOWN_UNITS} more units flagged "
+            "(columns above_ncc and overuse of the table)"
+        )
 
 
-def main(argv: Sequence[str] | None = None) -> int:
-    """Entry point; returns the exit code."""
+def main(argv: Sequence[str] | None = None, *, quiet_warnings: bool = False) -> int:
+    """Entry point; returns the exit code.
+
+    ``quiet_warnings``: with ``--quiet``, Python warnings are not shown either (unless asked
+    for with ``-W`` or ``PYTHONWARNINGS``); the console command sets it. Left off, warnings
+    reach the caller (the tests assert there are none).
+    """
     parser = build_parser()
     args = parser.parse_args(argv)
+    if quiet_warnings and getattr(args, "quiet", False) and not sys.warnoptions:
+        warnings.simplefilter("ignore")
     try:
         return args.handler(args)
     except InputError as exc:
@@ -375,7 +426,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     except OSError as exc:
         # The file system refused (permission denied, disk full, ...): the path and the reason.
         where = f"{exc.filename}: " if exc.filename else ""
-        print(f"nutricap: error: {where}{exc.strerror or exc}", file=sys.stderr)
+        print(f"nutricap: error: {printable(f'{where}{exc.strerror or exc}')}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         print("nutricap: interrupted; earlier results were left as they were", file=sys.stderr)
@@ -389,7 +440,7 @@ def run_and_exit() -> None:
     libraries loaded (about a quarter of a second) is skipped with :func:`gc.freeze`; files
     are closed and temporary files removed before (context managers, ``atexit`` finalizers).
     """
-    code = main()
+    code = main(quiet_warnings=True)
     gc.freeze()
     sys.exit(code)
 

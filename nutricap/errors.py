@@ -10,7 +10,36 @@ from __future__ import annotations
 
 import errno
 import stat
+import unicodedata
 from pathlib import Path
+
+UNPRINTABLE = ("Cc", "Cf", "Cs", "Co", "Cn", "Zl", "Zp")
+"""Unicode categories printed escaped: controls (escape sequences, NUL, newline), format
+characters (e.g. right-to-left overrides), surrogates, private-use and unassigned code
+points, line and paragraph separators."""
+
+
+def printable(text: object, *, json_escapes: bool = False) -> str:
+    """``text`` with every unprintable character escaped as Python writes it (``\\x1b``).
+
+    Whatever an input holds (a unit id with an escape sequence, a newline) then shows as
+    plain characters on one line of a terminal, a log or a chart, and cannot move the
+    cursor, clear the screen or fake a line of output. ``json_escapes``: written as JSON's
+    ``\\uXXXX`` instead, for a line of JSON (where such characters occur only in strings).
+    """
+    text = str(text)
+    if text.isprintable():  # the common case, fast (spaces count as printable)
+        return text
+    return "".join(_escaped(char, json_escapes) for char in text)
+
+
+def _escaped(char: str, json_escapes: bool) -> str:
+    if char == " " or unicodedata.category(char) not in UNPRINTABLE:
+        return char
+    if json_escapes:
+        units = char.encode("utf-16-be", errors="surrogatepass")
+        return "".join(f"\\u{units[i]:02x}{units[i + 1]:02x}" for i in range(0, len(units), 2))
+    return repr(char)[1:-1]
 
 
 class NutricapError(Exception):
@@ -64,7 +93,7 @@ class InputError(NutricapError):
             details.append(f"found {self.found}")
         if details:
             text += f" ({'; '.join(details)})"
-        return text
+        return printable(text)
 
 
 class ProjectFileError(InputError):

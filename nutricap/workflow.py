@@ -408,7 +408,7 @@ def run_estimate(
     checksums = checksums or BackgroundChecksums(project.files())
     result = estimate(project, progress)
     say(f"writing outputs to {out}")
-    with staged_folder(out) as staging:
+    with staged_folder(out, overwrite=overwrite) as staging:
         write_estimate(result, project, staging, report=report, checksums=checksums)
     return result
 
@@ -493,7 +493,7 @@ def run_compare(
     checksums = checksums or BackgroundChecksums(project.files())
     result, table = compare(project, scenario_name, progress)
     say(f"writing outputs to {out}")
-    with staged_folder(out) as staging:
+    with staged_folder(out, overwrite=overwrite) as staging:
         write_estimate(
             result, project, staging, report=report, scenario_table=table, checksums=checksums
         )

@@ -70,6 +70,9 @@ def digests(folder: Path) -> dict[str, str]:
 def _digest(path: Path, inputs: str) -> str:
     if path.suffix == ".gpkg":
         return _sha(_features(path))
+    if path.name == ".nutricap_outputs.json":  # sizes and modification times: names only
+        names = sorted(json.loads(path.read_text(encoding="utf-8"))["files"])
+        return _sha("\n".join(names).encode())
     if path.name == "run.json":
         manifest = json.loads(path.read_text(encoding="utf-8").replace(inputs, INPUTS))
         manifest.pop("started_utc")

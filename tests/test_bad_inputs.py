@@ -3,7 +3,11 @@
 Each case breaks a fresh copy of the invented example project. ``check`` and ``estimate`` must
 then exit 2 with exactly one line on stderr that names the file (in full) and the row, column,
 feature or key, show no traceback, warn nothing, write no output folder and leave every input
-file as it was. Cases marked valid must exit 0 and pass their own check of the table.
+file as it was. Cases marked valid must exit 0 and pass their own check of the table: ``check
+--quiet`` must print nothing at all, and ``estimate`` (without ``--quiet``, so that its summary
+is printed) only progress lines on stderr. A case that prepares the output folder
+(``prepare_out``) is an output-folder problem: only ``estimate`` runs (``check`` writes
+nothing), the message names the output folder, and the folder must be left as it was.
 """
 
 import hashlib
@@ -20,6 +24,8 @@ from nutricap.cli import main
 
 # Warnings the command line does not show by default (Python's default warning filters).
 HIDDEN_WARNINGS = (DeprecationWarning, PendingDeprecationWarning, ImportWarning, ResourceWarning)
+PROGRESS = re.compile(r"\[\d+\] +\d+\.\d s  |[a-z ]+: +\d+%\|")
+"""A progress line on stderr: a step (cli.StepPrinter) or a raster pass's bar (tqdm)."""
 
 
 def _run(capsys, argv):
@@ -69,28 +75,41 @@ def test_case(case, example_project, tmp_path, capsys, request):
     shutil.copytree(example_project.parent, folder)
     case.recipe(folder)
     project, out = folder / "project.toml", tmp_path / "results"
-    before = _snapshot(folder)
+    runs = [("check", project, "--quiet"), ("estimate", project, "--out", out, "--quiet")]
+    if case.prepare_out is not None:
+        case.prepare_out(out)
+        runs = [("estimate", project, "--out", out, "--overwrite", "--quiet")]
+    before, out_before = _snapshot(folder), _snapshot(out) if out.exists() else None
     capsys.readouterr()
     messages = []
-    for argv in (("check", project, "--quiet"), ("estimate", project, "--out", out, "--quiet")):
+    for argv in runs:
+        if case.exit_code == 0 and argv[0] == "estimate":
+            argv = argv[:-1]  # without --quiet: the summary the pattern is searched in
         code, stdout, stderr, shown = _run(capsys, argv)
         assert code == case.exit_code, (argv[0], stderr or stdout)
         assert "Traceback" not in stderr + stdout
         assert not shown, [str(w.message) for w in shown]
         if case.exit_code == 0:
-            assert stderr == ""
-            assert re.search(" OK " if argv[0] == "check" else case.pattern, stdout), stdout
+            if argv[0] == "check":
+                assert stdout == stderr == "", "--quiet prints nothing on success"
+                continue
+            assert all(PROGRESS.match(line) for line in stderr.splitlines() if line), stderr
+            assert re.search(case.pattern, stdout), stdout
             continue
         lines = stderr.splitlines()
         assert len(lines) == 1, stderr
         assert lines[0].startswith("nutricap: error: "), lines[0]
         assert re.search(case.pattern, lines[0]), lines[0]
-        assert str(folder) in lines[0], "the file is named in full"
+        named = out if case.prepare_out is not None else folder
+        assert str(named) in lines[0], "the file is named in full"
         messages.append(lines[0])
     assert _snapshot(folder) == before, "inputs changed"
     if case.exit_code == 0:
         table = pd.read_csv(out / "capacity_by_unit.csv")
         case.verify(folder, table, request.getfixturevalue("reference_table"))
+    elif case.prepare_out is not None:
+        assert _snapshot(out) == out_before, "the output folder was left as it was"
+        assert sorted(p.name for p in tmp_path.iterdir()) == ["inputs", "results"]
     else:
         assert not out.exists()
         assert messages[0] == messages[1], "check and estimate say the same"

@@ -10,9 +10,11 @@ capacity is right. Parsing uses Python's html.parser (standard library).
 from __future__ import annotations
 
 import base64
+import csv
 import dataclasses
 import re
 import struct
+import warnings
 from html.parser import HTMLParser
 
 import geopandas as gpd
@@ -24,6 +26,7 @@ from matplotlib.container import ErrorbarContainer
 from shapely.geometry import box
 
 from nutricap.cautions import CAUTION
+from nutricap.errors import printable
 from nutricap.inputs.project import load_project
 from nutricap.report import figures
 from nutricap.report.html import ReportExtras, is_flag, render_report, write_report
@@ -603,3 +606,74 @@ def test_tornado_limits_inputs():
     )
     figure = figures.tornado_figure(table, max_inputs=3)
     assert sorted(t.get_text() for t in figure.axes[0].get_yticklabels()) == ["d", "e", "f"]
+
+
+# --- CSV and Markdown outputs (nutricap.report.tables): text from the inputs stays text ------
+
+HOSTILE_IDS = ["=1+2", "+cmd|' /C calc'!A0", "-3.5", "@SUM(A1)", "\tTab", "\rCR", "-x", "a=b",
+               "x\r=cmd", "y\n@cmd"]  # fmt: skip
+
+
+def test_csv_cells_that_would_run_as_formulas_get_an_apostrophe(tmp_path):
+    # OWASP, "CSV Injection": prefix cells beginning with = + - @ tab or CR with '. Read back
+    # with Python's csv module (independent of pandas, which wrote the file).
+    from nutricap.report.tables import write_csv
+
+    table = pd.DataFrame({"unit_id": HOSTILE_IDS, "change_animals": -3.5, "=x": "ok"})
+    write_csv(table, tmp_path / "t.csv")
+    with open(tmp_path / "t.csv", newline="", encoding="utf-8") as stream:
+        header, *rows = list(csv.reader(stream))
+    assert header == ["unit_id", "change_animals", "'=x"]
+    # A line break inside a text does not start a row of its own.
+    assert [row[0] for row in rows] == [
+        "'=1+2",
+        "'+cmd|' /C calc'!A0",
+        "-3.5",
+        "'@SUM(A1)",
+        "'\tTab",
+        "'\rCR",
+        "'-x",
+        "a=b",
+        "x\r=cmd",
+        "y\n@cmd",
+    ]
+    assert {row[1] for row in rows} == {"-3.5"}, "numbers stay numbers"
+
+
+def _unescaped_pipes(line: str) -> int:
+    """Cell separators of a GFM table row: pipes not escaped by a backslash (GFM spec 0.29)."""
+    return len(re.findall(r"(?<!\\)(?:\\\\)*\|", line))
+
+
+def test_markdown_ids_cannot_break_the_table_or_inject_html():
+    from nutricap.report.tables import markdown_table
+
+    ids = ["a|b", "line\nbreak", "<script>alert(1)</script>", "[x](http://e.invalid)",
+           "`code` *em* _u_ \\| $x$", "\x1b[2Jfake", "007"]  # fmt: skip
+    table = pd.DataFrame({"unit_id": ids, "ncc_animals": np.arange(len(ids), dtype=float)})
+    text = markdown_table(table, title="T", context_lines=["<b>species</b> | name"])
+    lines = text.splitlines()
+    start = next(i for i, line in enumerate(lines) if line.startswith("| Unit"))
+    rows = lines[start + 2 : start + 2 + len(ids)]
+    assert all(_unescaped_pipes(row) == 3 for row in lines[start : start + 2 + len(ids)]), rows
+    assert lines[start + 2 + len(ids)] == "", "one line per unit"
+    body = "\n".join(lines[:-3])  # all but the caution (ours)
+    assert "<" not in body.replace("\\<", "") and "\x1b" not in body
+    # Removing CommonMark's backslash escapes gives back each id, unprintables escaped.
+    shown = [
+        re.sub(r"\\([!-/:-@\[-`{-~])", r"\1", row.split(" | ")[0][2:].rstrip()) for row in rows
+    ]
+    assert shown == [printable(name) for name in ids]
+    assert "\\<b\\>species\\</b\\> \\| name" in text
+
+
+def test_figure_labels_are_plain_text(plain_estimate):
+    # An id with an escape sequence or mathtext: no missing-glyph warning, no maths, no error.
+    first = plain_estimate.by_unit["unit_id"].iloc[0]
+    table = plain_estimate.by_unit.replace({"unit_id": {first: "\x1b[2J $\\frac{1}$"}})
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        figure = figures.capacity_figure(table, season_days=120)
+        figures.figure_png(figure)
+    labels = [label.get_text() for label in figure.axes[0].get_yticklabels()]
+    assert "\\x1b[2J \\$\\frac{1}\\$" in labels

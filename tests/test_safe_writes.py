@@ -106,16 +106,58 @@ def test_out_is_a_symbolic_link_loop(project, tmp_path, capsys):
 
 def test_existing_results_replaced_only_with_overwrite(project, tmp_path, capsys):
     out = tmp_path / "results"
-    assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
+    assert _run(capsys, "estimate", project, "--out", out, "--quiet")[0] == 0
     first = _digest(out)
     _refused(capsys, ("estimate", project, "--out", out, "--quiet"), "--overwrite")
     assert _digest(out) == first
-    (out / "stale.txt").write_text("from an older run\n")
     code, _, _ = _run(capsys, "estimate", project, "--out", out, "--overwrite", "--quiet",
                       "--no-report")  # fmt: skip
     assert code == 0
-    assert not (out / "stale.txt").exists(), "the folder was replaced, not written into"
+    assert not (out / "report.html").exists(), "the folder was replaced, not written into"
     assert _tables(out) == _tables_of(first)
+    assert _hidden_leftovers(tmp_path) == []
+
+
+@pytest.mark.parametrize("change", ["file added", "file changed", "folder added"])
+def test_overwrite_never_deletes_a_file_nutricap_did_not_write(project, tmp_path, capsys,
+                                                               change):  # fmt: skip
+    out = tmp_path / "results"
+    assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
+    if change == "file added":
+        (out / "field_notes.txt").write_text("my notes\n")
+    elif change == "file changed":
+        with open(out / "capacity_by_unit.csv", "a") as table:
+            table.write("my own row\n")
+    else:
+        (out / "photos").mkdir()
+        (out / "photos" / "a.jpg").write_bytes(b"jpeg")
+    before = _digest(out)
+    argv = ("estimate", project, "--out", out, "--overwrite", "--quiet", "--no-report")
+    line = _refused(capsys, argv, "not nutricap results")
+    words = {"file added": "field_notes.txt (not written by nutricap)",
+             "file changed": "capacity_by_unit.csv (changed since nutricap wrote it)",
+             "folder added": "photos/ (not written by nutricap)"}  # fmt: skip
+    assert words[change] in line
+    assert _digest(out) == before
+    assert _hidden_leftovers(tmp_path) == []
+
+
+def test_file_added_while_the_run_computes_is_not_deleted(project, tmp_path, capsys,
+                                                          monkeypatch):  # fmt: skip
+    # The check at the start passed; a file appears before the old results are moved aside.
+    out = tmp_path / "results"
+    assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
+    write = nutricap.report.bundle.write_csv
+
+    def add_a_file_meanwhile(table, path):
+        (out / "added_meanwhile.txt").write_text("new\n")
+        write(table, path)
+
+    monkeypatch.setattr(nutricap.report.bundle, "write_csv", add_a_file_meanwhile)
+    argv = ("estimate", project, "--out", out, "--overwrite", "--quiet", "--no-report")
+    _refused(capsys, argv, "added_meanwhile.txt (not written by nutricap)")
+    assert (out / "added_meanwhile.txt").read_text() == "new\n"
+    assert (out / "capacity_by_unit.csv").is_file()
     assert _hidden_leftovers(tmp_path) == []
 
 
@@ -138,6 +180,67 @@ def test_empty_existing_folder_is_used_without_overwrite(project, tmp_path, caps
     out.mkdir()
     assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
     assert (out / "capacity_by_unit.csv").is_file()
+
+
+# --- two runs at once; permissions -----------------------------------------------------------
+
+
+def _estimate_process(project, out):
+    command = [sys.executable, "-m", "nutricap", "estimate", str(project), "--out", str(out),
+               "--quiet", "--no-report"]  # fmt: skip
+    return subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+
+
+@pytest.mark.parametrize("target", ["new folder", "empty folder"])
+def test_two_runs_to_the_same_new_folder_one_wins(project, tmp_path, target):
+    out = tmp_path / "results"
+    if target == "empty folder":
+        out.mkdir()
+    runs = [_estimate_process(project, out) for _ in range(2)]
+    finished = [(run.wait(), *run.communicate()) for run in runs]
+    codes = sorted(code for code, _, _ in finished)
+    assert codes == [0, 2], finished
+    (loser,) = [err for code, _, err in finished if code == 2]
+    assert len(loser.strip().splitlines()) == 1 and "Traceback" not in loser, loser
+    assert str(out) in loser
+    assert all(out == "" for _, out, _ in finished), "--quiet prints nothing"
+    # The winner's results are whole: every file it listed, unchanged, and nothing else.
+    assert outputs.foreign_files(out) == []
+    listed = json.loads((out / outputs.OUTPUTS_LIST).read_text())["files"]
+    assert {"capacity_by_unit.csv", "run.json", "capacity_by_unit.gpkg"} <= set(listed)
+    assert _hidden_leftovers(tmp_path) == []
+
+
+def test_a_run_that_finishes_second_is_refused_at_its_final_move(tmp_path):
+    # The check at the start saw a new folder; another run moved its results there meanwhile.
+    out = tmp_path / "results"
+    with pytest.raises(OutputError, match="another run wrote this output folder"):
+        with staged_folder(out) as slow:
+            (slow / "capacity_by_unit.csv").write_text("slow\n")
+            with staged_folder(out) as fast:
+                (fast / "capacity_by_unit.csv").write_text("fast\n")
+    assert (out / "capacity_by_unit.csv").read_text() == "fast\n"
+    assert outputs.foreign_files(out) == []
+    assert _hidden_leftovers(tmp_path) == []
+
+
+UMASKS = [(0o022, 0o755, 0o644), (0o027, 0o750, 0o640)]
+
+
+@pytest.mark.skipif(os.name != "posix", reason="POSIX permissions")
+@pytest.mark.parametrize(("umask", "folder_mode", "file_mode"), UMASKS)
+def test_outputs_follow_the_umask(project, tmp_path, capsys, umask, folder_mode, file_mode):
+    # Modes expected from POSIX open(2)/mkdir(2): requested mode 0666/0777 minus the umask.
+    out = tmp_path / "shared" / "results"
+    previous = os.umask(umask)
+    try:
+        assert _run(capsys, "estimate", project, "--out", out, "--quiet")[0] == 0
+    finally:
+        os.umask(previous)
+    modes = {path.name: path.stat().st_mode & 0o777 for path in [out, *out.rglob("*")]}
+    assert modes.pop("results") == folder_mode
+    assert modes and set(modes.values()) == {file_mode}, modes
+    assert (out.parent.stat().st_mode & 0o777) == folder_mode
 
 
 # --- failures part-way leave the previous results ---------------------------------------------
@@ -269,8 +372,10 @@ def _dead_pid():
 
 
 def _results(folder, text):
+    """A folder as a run leaves it: run.json and the list of the files written."""
     folder.mkdir()
     (folder / "run.json").write_text(text)
+    outputs.write_outputs_list(folder)
     return folder
 
 
@@ -316,8 +421,11 @@ def test_staged_folder_refuses_a_folder_without_results(tmp_path):
     out = tmp_path / "photos"
     out.mkdir()
     (out / "a.jpg").write_bytes(b"jpeg")
-    with pytest.raises(OutputError, match="not nutricap results"), staged_folder(out):
+    with pytest.raises(OutputError, match="not empty"), staged_folder(out):
         pytest.fail("must not be reached")
+    with pytest.raises(OutputError, match="not nutricap results"):
+        with staged_folder(out, overwrite=True):
+            pytest.fail("must not be reached")
     assert [p.name for p in tmp_path.iterdir()] == ["photos"]
 
 
@@ -330,7 +438,7 @@ def test_paths_resolved_from_the_project_file_and_reported_in_full(project, tmp_
     elsewhere.mkdir()
     monkeypatch.chdir(elsewhere)
     relative = os.path.relpath(project, elsewhere)
-    code, out, _ = _run(capsys, "check", relative, "--quiet")
+    code, out, _ = _run(capsys, "check", relative)
     assert code == 0 and str(project.resolve()) in out
     plots = project.parent / "plots.csv"
     plots.write_text(plots.read_text().replace(",21.5,", ",-21.5,", 1))
@@ -349,4 +457,5 @@ def test_project_file_values_are_data_never_code(project, tmp_path, capsys):
     out = tmp_path / "results"
     assert _run(capsys, "estimate", project, "--out", out, "--quiet", "--no-report")[0] == 0
     assert not marker.exists()
-    assert "__import__('os').system" in (out / "capacity_by_unit.md").read_text(encoding="utf-8")
+    markdown = (out / "capacity_by_unit.md").read_text(encoding="utf-8")
+    assert r"\_\_import\_\_('os').system" in markdown  # kept as text (Markdown-escaped)

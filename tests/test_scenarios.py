@@ -104,9 +104,7 @@ def test_stratum_change_moves_the_treated_area(project):
 
 def test_compare_command_writes_table_and_chart(project, tmp_path, capsys):
     out = tmp_path / "compare"
-    code = main(
-        ["compare", str(project), "--scenario", "prescribed_burn", "--out", str(out), "--quiet"]
-    )
+    code = main(["compare", str(project), "--scenario", "prescribed_burn", "--out", str(out)])
     assert code == 0
     table = pd.read_csv(out / "scenario_by_unit.csv")
     required = [

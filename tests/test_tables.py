@@ -42,6 +42,24 @@ def test_negative_mass_names_row_and_column(tmp_path):
         read_plots(path)
 
 
+@pytest.mark.parametrize(
+    ("text", "where"),
+    [
+        ("p1,s,grass,1,0.25\np\x002,s,grass,3,0.25\n", r"row 3, column 'plot_id'"),
+        ("p1,s,gr\x00ass,1,0.25\n", r"row 2, column 'forage_class'"),
+        ("p1,s,grass,1,0.25\n", r"row 1 \(header\), column 5"),
+    ],
+)
+def test_nul_character_refused_with_row_and_column(tmp_path, text, where):
+    header = "plot_id,stratum,forage_class,dry_mass_g,frame_area_m2"
+    if "header" in where:
+        header = header.replace("frame_area_m2", "frame\x00area_m2")
+    path = _csv(tmp_path, "plots.csv", header + "\n" + text)
+    with pytest.raises(TableError, match=where + r": plots table holds a NUL character") as info:
+        read_plots(path)
+    assert r"\x00" in str(info.value) and "\x00" not in str(info.value), "shown escaped"
+
+
 def test_zero_frame_area_refused(tmp_path):
     path = _csv(
         tmp_path,

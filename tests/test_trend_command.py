@@ -23,6 +23,7 @@ import pytest
 
 from nutricap import cli
 from nutricap.errors import InputError, OutputError, TableError
+from nutricap.report import output_folder as outputs
 from nutricap.report import trend_text
 
 REQUIRED_KEYS = {"r_mean", "r_ci", "K", "r_max", "msy_level", "msy_yield"}
@@ -218,6 +219,24 @@ def test_a_full_disk_names_trend_json_and_leaves_nothing(tmp_path, monkeypatch):
     with pytest.raises(OutputError, match=r"trend\.json: cannot write the results: No space left"):
         cli.run_trend(args)
     assert list(out.iterdir()) == []
+
+
+def test_trend_json_added_to_results_keeps_them_replaceable(tmp_path, capsys):
+    # trend.json written into an estimate's output folder joins its list of outputs, so that a
+    # later --overwrite may replace the folder; the file follows the umask (not mkstemp's 0600).
+    out = tmp_path / "results"
+    out.mkdir()
+    outputs.write_outputs_list(out)
+    counts = write_csv(tmp_path / "in", TWO_UNITS)
+    previous = os.umask(0o022)
+    try:
+        run_trend([counts, "--out", out], capsys)
+    finally:
+        os.umask(previous)
+    assert (out / "trend.json").stat().st_mode & 0o777 == 0o644  # 0666 minus umask 022 (POSIX)
+    assert outputs.foreign_files(out) == []
+    (out / "trend.json").write_text("{}\n")
+    assert outputs.foreign_files(out) == ["trend.json (changed since nutricap wrote it)"]
 
 
 def test_out_refuses_the_counts_folder(tmp_path):

@@ -6,6 +6,8 @@ example landscape's numbers are invented for the example and only used for
 consistency checks.
 """
 
+import warnings
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -70,6 +72,39 @@ def test_reduction_clears_the_flag():
     after = use_of(limit)
     assert (after <= allowable + 1e-12).all()
     assert np.isclose(after / allowable, 1.0).any()  # the most used class sits at its limit
+
+
+def test_no_animals_means_no_limit_reached_without_a_warning():
+    # Zero animals use nothing (0 × anything): no class reaches its limit (inf); with 100
+    # animals using 0.25 of a class whose allowable use is 0.5 the limit is 200 (hand computed).
+    use = np.array([[0.0, 0.0], [0.25, 0.1]])
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        limit = animals_at_use_limit(np.array([0.0, 100.0]), use, np.array([0.5, 0.5]))
+    np.testing.assert_array_equal(limit, [np.inf, 200.0])
+
+
+def test_assess_with_a_unit_without_animals(example_estimate):
+    # A unit with no animals needs no reduction (0, not blank) and uses no forage.
+    estimate = example_estimate
+    by_unit = estimate.by_unit[list(_capacity_columns())]
+    current = np.where(np.arange(len(by_unit)) == 2, 0.0, by_unit["ncc_animals"] * 2)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        table, by_class = assess_use(
+            estimate.problem,
+            by_unit,
+            current,
+            intake_kg_per_day=estimate.herd.intake_kg_per_day,
+            season_days=estimate.season_days,
+        )
+    empty = table.iloc[2]
+    assert empty["reduction_for_key_use_animals"] == 0.0
+    assert empty["reduction_for_ncc_animals"] == 0.0
+    assert empty["key_use_fraction"] == 0.0 and not empty["overuse"] and not empty["above_ncc"]
+    reductions = table[["reduction_for_key_use_animals", "reduction_for_ncc_animals"]]
+    assert reductions.notna().all().all()
+    assert (table.drop(index=2)["reduction_for_ncc_animals"] > 0).all()
 
 
 def test_assess_on_example_at_allowable_use_capacity(example_estimate):

@@ -5,6 +5,8 @@ same CRS and pyproj's geodesic area on the WGS84 ellipsoid (Karney 2013
 algorithm as implemented in pyproj.Geod).
 """
 
+import sqlite3
+
 import geopandas as gpd
 import numpy as np
 import pytest
@@ -151,3 +153,25 @@ def test_invalid_geometry_is_refused_with_feature_number(tmp_path):
     path = _write(frame, tmp_path / "bad.gpkg", "s")
     with pytest.raises(SpatialError, match="feature 2 \\(of 2\\)"):
         read_strata(path, None)
+
+
+def _put_nul(path, table, column, old, new):
+    """Write ``new`` (holding a NUL) over ``old`` with SQLite, as GDAL itself cannot."""
+    with sqlite3.connect(path) as db:
+        for name in ("ST_IsEmpty", "ST_MinX", "ST_MaxX", "ST_MinY", "ST_MaxY"):
+            db.create_function(name, 1, lambda geometry: 0)  # named by GDAL's R-tree triggers
+        db.execute(f"UPDATE {table} SET {column} = ? WHERE {column} = ?", (new, old))
+    db.close()
+
+
+def test_nul_in_a_geopackage_id_refused(layers, tmp_path):
+    # GDAL reads text up to the NUL: without the check, unit "so\0uth" would be read as "so".
+    *_, units, _ = layers
+    _put_nul(units, "units", "unit_id", "south", "so\0uth")
+    assert gpd.read_file(units)["unit_id"].tolist() == ["north", "so"]  # GDAL's reading
+    with pytest.raises(SpatialError, match=r"feature 2 \(of 2\): units layer has a NUL") as info:
+        read_units(units, None)
+    assert r"'so\x00uth'" in str(info.value)
+    assert sorted(p.name for p in units.parent.iterdir() if p.name.startswith("units")) == [
+        "units.gpkg"
+    ], "read only: no journal or -shm file"

@@ -115,7 +115,31 @@ def _read_raw(path: Path, what: str) -> pd.DataFrame:
     except (pd.errors.ParserError, pd.errors.EmptyDataError) as exc:
         raise _parser_error(exc, path, what) from None
     frame.columns = [str(name).strip() for name in frame.columns]
-    return frame.apply(lambda col: col.str.strip())
+    frame = frame.apply(lambda col: col.str.strip())
+    _refuse_nul(frame, path, what)
+    return frame
+
+
+def _refuse_nul(frame: pd.DataFrame, path: Path, what: str) -> None:
+    """Refuse a NUL character in the header or a cell: other programs cut text there."""
+    nul_cells = frame.apply(lambda col: col.str.contains("\0", regex=False)).to_numpy()
+    names = [name for name in frame.columns if "\0" in name]
+    if not names and not nul_cells.any():
+        return
+    if names:
+        position = f"row 1 (header), column {list(frame.columns).index(names[0]) + 1}"
+        value = names[0]
+    else:
+        index, column = (int(i[0]) for i in np.nonzero(nul_cells))
+        position = f"row {spreadsheet_row(index)}, column {frame.columns[column]!r}"
+        value = frame.iat[index, column]
+    raise TableError(
+        f"{what} holds a NUL character (byte 0), as a damaged or binary file does",
+        source=path,
+        location=position,
+        expected="text without NUL characters",
+        found=repr(value),
+    )
 
 
 def _read_text(path: Path, what: str) -> str:

@@ -10,6 +10,7 @@ longitudes and latitudes is refused (its CRS is wrong).
 
 from __future__ import annotations
 
+from contextlib import closing
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -137,7 +138,71 @@ def _open_layer(path: Path, layer: str | None, what: str) -> gpd.GeoDataFrame:
             expected="a vector layer of polygons (GeoPackage preferred)",
             found="a table without geometries",
         )
+    _refuse_nul_text(frame, path, layer, what)
     return frame
+
+
+def _refuse_nul_text(frame: gpd.GeoDataFrame, path: Path, layer: str | None, what: str) -> None:
+    """Refuse a text attribute holding a NUL character (byte 0).
+
+    GDAL reads text only up to a NUL, so ``"Cold\\0marrow"`` would become unit ``"Cold"``; in a
+    GeoPackage the whole text is read again with SQLite to see it.
+    """
+    for column in frame.columns.drop(frame.geometry.name):
+        text = frame[column].map(lambda value: isinstance(value, str) and "\0" in value)
+        if text.any():
+            where = _feature(frame, text.to_numpy(dtype=bool))
+            _raise_nul(path, where, column, frame[column][text].iloc[0], what)
+    found = _geopackage_nul(path, layer)
+    if found is not None:
+        index, column, value = found
+        _raise_nul(path, f"feature {index} (of {len(frame)})", column, value, what)
+
+
+def _raise_nul(path: Path, where: str, column: str, value: str, what: str) -> None:
+    raise SpatialError(
+        f"{what} has a NUL character (byte 0) in attribute {column!r}; GDAL reads text "
+        "only up to it",
+        source=path,
+        location=where,
+        expected="text without NUL characters",
+        found=repr(value),
+    )
+
+
+def _geopackage_nul(path: Path, layer: str | None) -> tuple[int, str, str] | None:
+    """(feature number, column, text) of the first text holding a NUL in a GeoPackage layer."""
+    import sqlite3
+
+    try:
+        with open(path, "rb") as stream:
+            if stream.read(16) != b"SQLite format 3\0":
+                return None
+        layer = layer or _layer_names(path, spatial_only=True)[0]
+        uri = Path(path).resolve().as_uri() + "?mode=ro&immutable=1"  # never writes
+        with closing(sqlite3.connect(uri, uri=True)) as db:
+            table = '"' + layer.replace('"', '""') + '"'
+            columns = db.execute(f"SELECT name, type FROM pragma_table_info({_quoted(layer)})")
+            for column, kind in columns.fetchall():
+                if not str(kind).upper().startswith("TEXT"):
+                    continue
+                name = '"' + column.replace('"', '""') + '"'
+                hit = db.execute(
+                    f"SELECT rowid, CAST({name} AS BLOB) FROM {table} "
+                    f"WHERE instr(CAST({name} AS BLOB), X'00') > 0 ORDER BY rowid LIMIT 1"
+                ).fetchone()
+                if hit is not None:
+                    rank = db.execute(f"SELECT COUNT(*) FROM {table} WHERE rowid <= ?", hit[:1])
+                    text = bytes(hit[1]).decode("utf-8", errors="replace")
+                    return int(rank.fetchone()[0]), column, text
+    except (OSError, IndexError, sqlite3.Error):
+        return None  # not a GeoPackage SQLite can read: GDAL's reading stands
+    return None
+
+
+def _quoted(text: str) -> str:
+    """``text`` as an SQL string literal."""
+    return "'" + text.replace("'", "''") + "'"
 
 
 def _layer_names(path: Path, *, spatial_only: bool = False) -> list[str]:

@@ -36,6 +36,8 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.ticker import FuncFormatter
 
+from nutricap.errors import printable
+
 #: Okabe & Ito (2008) colour-blind-safe palette (hex codes from memory).
 OKABE_ITO = {
     "black": "#000000",
@@ -147,13 +149,18 @@ def _density_norm(values: np.ndarray) -> Normalize:
     return Normalize(low, high if high > low else low + 1.0)
 
 
+def _label(text: object) -> str:
+    """An id as chart text: unprintable characters escaped, ``$`` not read as mathtext."""
+    return printable(text).replace("$", r"\$")
+
+
 def _label_units(ax, frame: gpd.GeoDataFrame) -> None:
     halo = [patheffects.withStroke(linewidth=2.5, foreground="white")]
     for unit_id, point in zip(frame["unit_id"], frame.geometry.representative_point()):
         if point is None or point.is_empty:
             continue
         ax.annotate(
-            str(unit_id),
+            _label(unit_id),
             (point.x, point.y),
             ha="center",
             va="center",
@@ -232,7 +239,7 @@ def capacity_figure(
             color=OKABE_ITO["black"],
             label="Current animals",
         )
-    ax.set_yticks(rows, [str(unit) for unit in shown["unit_id"]])
+    ax.set_yticks(rows, [_label(unit) for unit in shown["unit_id"]])
     ax.set_ylabel("Management unit")
     days = f" for the {season_days:g}-day season" if season_days else ""
     ax.set_xlabel(f"Capacity [animals{days}]")
@@ -389,7 +396,7 @@ def scenario_figure(scenario_table: pd.DataFrame, *, per_unit: bool = False) -> 
     for index, unit in enumerate(units if per_unit else []):
         ax = figure.add_subplot(grid[1 + index // columns, index % columns])
         _scenario_panel(ax, scenario_table[scenario_table["unit_id"] == unit], legend=False)
-        ax.set_title(str(unit), fontsize=9)
+        ax.set_title(_label(unit), fontsize=9)
         ax.tick_params(labelsize=7)
         ax.xaxis.label.set_size(7)
         ax.yaxis.label.set_size(7)

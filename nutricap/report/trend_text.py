@@ -6,7 +6,6 @@ from __future__ import annotations
 import json
 import math
 import os
-import tempfile
 from pathlib import Path
 
 import numpy as np
@@ -70,9 +69,9 @@ def _json_ready(value):
 def write_atomically(target: Path, text: str) -> None:
     """Write ``text`` to a temporary file beside ``target``, then move it into place."""
     target.parent.mkdir(parents=True, exist_ok=True)
-    handle, temporary = tempfile.mkstemp(
-        prefix=f".{target.name}.", suffix=".partial", dir=target.parent
-    )
+    temporary = target.with_name(f".{target.name}.{os.getpid()}-{os.urandom(4).hex()}.partial")
+    flags = os.O_WRONLY | os.O_CREAT | os.O_EXCL
+    handle = os.open(temporary, flags, 0o666)  # the user's umask applies (mkstemp: 0600)
     try:
         with os.fdopen(handle, "w", encoding="utf-8") as stream:
             stream.write(text)

@@ -92,9 +92,11 @@ def animals_at_use_limit(current_animals, use_fraction, allowable_use):
     Returns
     -------
     array, shape (units,)
-        Animals at the limit; ``inf`` where no considered class is used.
+        Animals at the limit; ``inf`` where no considered class is used (among them every
+        unit without animals: no use, so no limit is reached).
     """
     use = np.asarray(use_fraction, dtype=float)
     allowed = np.broadcast_to(np.asarray(allowable_use, dtype=float), use.shape)
-    ratio = np.divide(allowed, use, out=np.full_like(use, np.inf), where=use > 0)
-    return np.asarray(current_animals, dtype=float) * ratio.min(axis=-1)
+    ratio = np.divide(allowed, use, out=np.full_like(use, np.inf), where=use > 0).min(axis=-1)
+    current = np.broadcast_to(np.asarray(current_animals, dtype=float), ratio.shape)
+    return np.multiply(current, ratio, out=np.full_like(ratio, np.inf), where=np.isfinite(ratio))

@@ -15,11 +15,15 @@ source. To add a case: append one ``Case`` line below (see DEVELOPERS.md).
 
 from __future__ import annotations
 
+import csv
 import os
+import re
 import shutil
+import sqlite3
 import tempfile
 import warnings
 from collections.abc import Callable
+from contextlib import closing
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -29,10 +33,13 @@ import pandas as pd
 import pyogrio
 import rasterio
 from affine import Affine
+from markupsafe import escape
 from pyproj import Geod
 from rasterio.transform import from_origin
 from shapely.affinity import translate
 from shapely.geometry import Point, Polygon
+
+from nutricap.report.output_folder import write_outputs_list
 
 FILES = Path(__file__).parent / "files"
 GRID = from_origin(452_000.0, 4_291_000.0, 100.0, 100.0)
@@ -53,6 +60,8 @@ class Case:
     verify: Callable[[Path, pd.DataFrame, pd.DataFrame], None] | None = None
     known_gap: str | None = None
     """Why nutricap does not yet behave as the case asks (the test is then a strict xfail)."""
+    prepare_out: Recipe | None = None
+    """Fills the output folder before the run (then ``estimate --overwrite`` alone runs)."""
 
 
 # --- recipes ---------------------------------------------------------------------------------
@@ -312,6 +321,127 @@ def nothing_meets_target(folder: Path, table: pd.DataFrame, reference: pd.DataFr
     assert (table["ncc_animals"] == 0).all(), table["ncc_animals"]
     assert (table["limiting_factor"] == "intake").all(), table["limiting_factor"]
     pd.testing.assert_series_equal(table["ecc_animals"], reference["ecc_animals"])
+
+
+# --- issue 14, second corpus: helpers (output safety, injection) -----------------------------
+
+
+def sql_update(name: str, table: str, column: str, old: str, new: str) -> Recipe:
+    """Set ``column`` from ``old`` to ``new`` in a GeoPackage with SQLite (GDAL cannot write a
+    NUL inside a text; SQLite keeps the whole text)."""
+
+    def recipe(folder: Path) -> None:
+        with closing(sqlite3.connect(folder / name)) as db:
+            for function in ("ST_IsEmpty", "ST_MinX", "ST_MaxX", "ST_MinY", "ST_MaxY"):
+                db.create_function(function, 1, lambda geometry: 0)  # named in GDAL's triggers
+            changed = db.execute(f"UPDATE {table} SET {column} = ? WHERE {column} = ?", (new, old))
+            if changed.rowcount == 0:
+                raise AssertionError(f"recipe: no {column} {old!r} in {name}")
+            db.commit()
+
+    return recipe
+
+
+def set_unit_ids(*ids: str) -> Recipe:
+    """Give the six example units these ids (in feature order)."""
+    return edit_layer(U, lambda g: g.assign(unit_id=list(ids)))
+
+
+def set_current_animals(*numbers: float) -> Recipe:
+    return edit_layer(U, lambda g: g.assign(current_animals=list(numbers)))
+
+
+def results_of(folder: Path) -> Path:
+    """The output folder of a case: ``results`` beside the inputs (tests/test_bad_inputs.py)."""
+    return folder.parent / "results"
+
+
+def earlier_results(*extra: tuple[str, str], changed: str | None = None) -> Recipe:
+    """An output folder as an earlier run left it (run.json, a table, the list of outputs),
+    then ``extra`` files (name, text) added and file ``changed`` appended to."""
+
+    def recipe(out: Path) -> None:
+        out.mkdir()
+        (out / "run.json").write_text('{"command": "estimate"}\n', encoding="utf-8")
+        (out / "capacity_by_unit.csv").write_text("unit_id\nA\n", encoding="utf-8")
+        write_outputs_list(out)
+        for name, text in extra:
+            (out / name).parent.mkdir(parents=True, exist_ok=True)
+            (out / name).write_text(text, encoding="utf-8")
+        if changed is not None:
+            with open(out / changed, "a", encoding="utf-8") as stream:
+                stream.write("a row of my own\n")
+
+    return recipe
+
+
+def other_files(out: Path) -> None:
+    """A folder of someone else's files (no list of outputs)."""
+    out.mkdir()
+    (out / "run.json").write_text("{}\n", encoding="utf-8")
+    (out / "thesis.docx").write_bytes(b"irreplaceable")
+
+
+def _numbers_as_reference(table: pd.DataFrame, reference: pd.DataFrame) -> None:
+    numeric = reference.select_dtypes("number").columns
+    pd.testing.assert_frame_equal(table[numeric], reference[numeric], rtol=1e-6)
+
+
+def formulas_defused(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> None:
+    """No cell of any CSV output begins as a formula would (OWASP, "CSV Injection": =, +, -, @,
+    tab, CR) unless it is a number (Python's float() reads it); the ids are kept behind a
+    leading apostrophe; the numbers are the unbroken example's (only names changed)."""
+    for path in sorted(results_of(folder).glob("*.csv")):
+        with open(path, newline="", encoding="utf-8") as stream:
+            for row in csv.reader(stream):
+                for cell in row:
+                    if cell[:1] in ("=", "+", "-", "@", "\t", "\r"):
+                        float(cell)  # raises for text
+    assert '\'=HYPERLINK("http://e.invalid","x")' in set(table["unit_id"])
+    assert {"'+1+1", "'-2+3", "'@SUM(A1)", "-3.5"} <= set(table["unit_id"].astype(str))
+    _numbers_as_reference(table, reference)
+
+
+def _cell_separators(line: str) -> int:
+    """Pipes of a GFM table row not escaped by a backslash (GFM spec, tables extension)."""
+    return len(re.findall(r"(?<!\\)(?:\\\\)*\|", line))
+
+
+def markup_escaped(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> None:
+    """capacity_by_unit.md: one row per unit with the header's cells, no raw HTML; report.html:
+    the ids HTML-escaped (markupsafe, the escaping Jinja2 uses, computes the expected text)."""
+    out = results_of(folder)
+    markdown = (out / "capacity_by_unit.md").read_text(encoding="utf-8")
+    rows = [line for line in markdown.splitlines() if line.startswith("| ")]
+    assert len(rows) == 1 + len(reference), rows
+    assert {_cell_separators(row) for row in rows} == {_cell_separators(rows[0])}, rows
+    assert "<" not in markdown.replace("\\<", ""), "no raw HTML"
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert "<script>alert(1)</script>" not in html and "<b onmouseover" not in html
+    assert str(escape("<script>alert(1)</script>")) in html
+    _numbers_as_reference(table, reference)
+
+
+def no_reduction_without_animals(unit: str) -> Callable:
+    """A unit without animals needs no reduction (0, not blank) and is not flagged; the
+    capacity figures are the unbroken example's (current numbers do not change capacity)."""
+
+    def verify(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> None:
+        row = table.set_index("unit_id").loc[unit]
+        assert row["current_animals"] == 0 and row["demand_kg"] == 0, row
+        assert row["reduction_for_key_use_animals"] == 0, row
+        assert row["reduction_for_ncc_animals"] == 0, row
+        assert not row["overuse"] and not row["above_ncc"], row
+        reductions = ["reduction_for_key_use_animals", "reduction_for_ncc_animals"]
+        assert table[reductions].notna().all().all(), table[reductions]
+        capacity = ["ncc_animals", "ecc_animals", "allowable_use_animals", "area_ha"]
+        pd.testing.assert_frame_equal(table[capacity], reference[capacity])
+
+    return verify
+
+
+NO_ESCAPE_AND = r"^(?![\s\S]*\x1b)[\s\S]*"
+"""Pattern prefix: stdout holds no ESC character at all (and then what follows)."""
 
 
 # --- the corpus ------------------------------------------------------------------------------
@@ -938,5 +1068,126 @@ CASES = [
         "units: GeoPackage cut off halfway",
         rewrite_bytes(U, lambda b: b[: len(b) // 2]),
         r"units\.gpkg: cannot read units layer: the file is truncated or corrupt",
+    ),
+    # issue 14, second corpus: output safety, injection
+    # Wrong numbers with exit 0: no animals, NUL characters (other programs cut text there).
+    Case(
+        "units: a unit without animals (valid: reduction 0, not blank)",
+        set_current_animals(1095, 1131, 0, 992, 575, 540),
+        r"Total NCC",
+        exit_code=0,
+        verify=no_reduction_without_animals("Petrelhollow"),
+    ),
+    Case(
+        "plots: NUL in a plot id",
+        set_cell(P, 3, "plot_id", "P0\x0001"),
+        r"plots\.csv: row 3, column 'plot_id': plots table holds a NUL character \(byte 0\)"
+        r".*found 'P0\\x0001'",
+    ),
+    Case(
+        "forage classes: NUL in a class name",
+        set_cell(F, 4, "forage_class", "cheat\x00grass"),
+        r"forage_classes\.csv: row 4, column 'forage_class': forage-class table holds a NUL",
+    ),
+    Case(
+        "animal classes: NUL in the header",
+        replace_text(A, "body_mass_kg", "body_mass\x00kg"),
+        r"animal_classes\.csv: row 1 \(header\), column 2: animal-class table holds a NUL",
+    ),
+    Case(
+        "counts: NUL in a unit id",
+        set_cell("counts.csv", 5, "unit_id", "Flint\x00whistle"),
+        r"counts\.csv: row 5, column 'unit_id': counts table holds a NUL",
+    ),
+    Case(
+        "units: NUL in a unit id (GDAL reads 'Cold')",
+        sql_update(U, "units", "unit_id", "Coldmarrow", "Cold\x00marrow"),
+        r"units\.gpkg: feature 2 \(of 6\): units layer has a NUL character \(byte 0\) in "
+        r"attribute 'unit_id'.*found 'Cold\\x00marrow'",
+    ),
+    Case(
+        "strata: NUL in a stratum name",
+        sql_update(S, "strata", "stratum", "aspen", "asp\x00en"),
+        r"strata\.gpkg: feature \d+ \(of 70\): strata layer has a NUL character .*'stratum'",
+    ),
+    # Injection: spreadsheet formulas, Markdown and HTML, terminal escape sequences.
+    Case(
+        "units and a forage class named like formulas (valid: defused in every CSV)",
+        steps(
+            set_unit_ids(
+                '=HYPERLINK("http://e.invalid","x")', "+1+1", "-2+3", "@SUM(A1)", "-3.5", "Wrenfall"
+            ),
+            replace_text(P, "cheatgrass", "=cheatgrass", count=-1),
+            replace_text(F, "cheatgrass", "=cheatgrass", count=-1),
+        ),
+        r"Total NCC",
+        exit_code=0,
+        verify=formulas_defused,
+    ),
+    Case(
+        "units: ids with Markdown and HTML (valid: escaped in the .md and the report)",
+        set_unit_ids(
+            "a|b",
+            "two\nlines",
+            "<script>alert(1)</script>",
+            "[link](http://e.invalid)",
+            '<b onmouseover="x">bold</b>',
+            "`code` *em* $x$",
+        ),
+        r"Total NCC",
+        exit_code=0,
+        verify=markup_escaped,
+    ),
+    Case(
+        "units: id with escape sequences (valid: printed escaped)",
+        set_unit_ids(
+            "Flintwhistle",
+            "\x1b[2J\x1b[Hnutricap: OK",
+            "Petrelhollow",
+            "Rimgrass",
+            "Thistlemoss",
+            "Wrenfall\u202e",
+        ),
+        NO_ESCAPE_AND + r"\\x1b\[2J\\x1b\[Hnutricap: OK .*\n[\s\S]*Wrenfall\\u202e",
+        exit_code=0,
+        verify=lambda folder, table, reference: _numbers_as_reference(table, reference),
+    ),
+    Case(
+        "units: an id with an escape sequence, twice",
+        set_unit_ids("A", "\x1b[31mB", "C", "\x1b[31mB", "E", "F"),
+        r"units\.gpkg: feature 4 \(of 6\): duplicate unit_id .*found '\\x1b\[31mB'\)$",
+    ),
+    Case(
+        "units: an id with a newline, twice (one line)",
+        set_unit_ids("A", "B\nnutricap: fake", "C", "D", "B\nnutricap: fake", "F"),
+        r"units\.gpkg: feature 5 \(of 6\): duplicate unit_id .*found 'B\\nnutricap: fake'\)$",
+    ),
+    # The output folder: --overwrite removes only an earlier run's own, unchanged files.
+    Case(
+        "output: --overwrite onto results holding a file of the user's",
+        lambda folder: None,
+        r"results: the output folder holds files that are not nutricap results; it is not "
+        r"replaced .*found notes\.txt \(not written by nutricap\)",
+        prepare_out=earlier_results(("notes.txt", "my notes\n")),
+    ),
+    Case(
+        "output: --overwrite onto results with a table changed since",
+        lambda folder: None,
+        r"results: the output folder holds files .*capacity_by_unit\.csv \(changed since "
+        r"nutricap wrote it\)",
+        prepare_out=earlier_results(changed="capacity_by_unit.csv"),
+    ),
+    Case(
+        "output: --overwrite onto results with a subfolder of the user's",
+        lambda folder: None,
+        r"results: the output folder holds files .*photos/ \(not written by nutricap\)",
+        prepare_out=earlier_results(("photos/a.jpg", "jpeg")),
+    ),
+    Case(
+        "output: --overwrite onto a folder of other files with a run.json",
+        lambda folder: None,
+        r"results: the output folder holds files that are not nutricap results.*run\.json "
+        r"\(not written by nutricap\)",
+        prepare_out=other_files,
     ),
 ]
