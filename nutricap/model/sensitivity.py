@@ -14,6 +14,7 @@ import numpy as np
 
 from nutricap.model.problem import CapacityProblem
 from nutricap.science.energetics import HerdRequirement
+from nutricap.science.forage_quality import digestible_protein_pct
 
 TotalFor = Callable[..., float]
 
@@ -33,6 +34,22 @@ def scaled_item_attribute(
     values = getattr(problem.items, attribute)
     changed = np.where(mask, np.minimum(values * factor, upper), values)
     return replace(problem, items=replace(problem.items, **{attribute: changed}))
+
+
+def scaled_crude_protein(
+    problem: CapacityProblem, mask: np.ndarray, factor: float
+) -> CapacityProblem:
+    """``problem`` with the crude protein of the masked items × ``factor`` (at most 100 %) and
+    their digestible protein recomputed from it (Robbins et al. 1987, linear).
+
+    The laboratory value moves, not DP itself: scaling a negative DP would make a poorer
+    forage of a "richer" one.
+    """
+    items = problem.items
+    crude = np.where(mask, np.minimum(items.cp_pct * factor, 100.0), items.cp_pct)
+    recomputed = digestible_protein_pct(np.nan_to_num(crude), items.tannin)
+    digestible = np.where(mask, recomputed, items.dp_pct)
+    return replace(problem, items=replace(items, cp_pct=crude, dp_pct=digestible))
 
 
 def input_groups(
@@ -61,11 +78,8 @@ def input_groups(
             mask,
         )
         if protein:
-            groups[f"DP of {name}"] = _bind(
-                lambda f, m: total_for(
-                    problem=scaled_item_attribute(problem, "dp_pct", m, f, upper=100.0)
-                ),
-                mask,
+            groups[f"crude protein of {name}"] = _bind(
+                lambda f, m: total_for(problem=scaled_crude_protein(problem, m, f)), mask
             )
     everything = np.ones(problem.items.size, dtype=bool)
     groups["allowable use (all classes)"] = lambda f: total_for(

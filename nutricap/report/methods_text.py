@@ -46,16 +46,21 @@ METHODS = (
         "ME = m · BMR;  DE = ME / 0.82    [kcal/day]",
         "m is the multiple of basal metabolism for the state and season (parameter table "
         "below). 0.82 converts metabolizable to digestible energy for ruminants on forage.",
-        "Multipliers: Robbins, C.T. 1993. Wildlife Feeding and Nutrition, 2nd ed., Academic "
-        "Press (from memory, see each row's source). ME = 0.82 · DE: National Research Council "
-        "1996, Nutrient Requirements of Beef Cattle, 7th rev. ed., p. 126.",
+        "Multipliers: National Research Council 2007, Nutrient Requirements of Small Ruminants "
+        "(cervid maintenance, winter and summer) and the studies each row of the parameter "
+        "table names; a cervid default. ME = 0.82 · DE: National Research Council 1996, "
+        "Nutrient Requirements of Beef Cattle, 7th rev. ed., p. 126.",
     ),
     Method(
         "Intake, protein requirement and minimum diet quality",
         "I = i · W^0.75 / 1000 [kg DM/day];  R_DP = p · W^0.75 [g/day];\n"
         "q_DE = DE / (1000 · I) [kcal/g];  q_DP = 100 · R_DP / (1000 · I) [%]",
-        "The diet must supply the requirement within the intake limit. A herd is its "
-        "share-weighted average animal.",
+        "The diet must supply the requirement within the intake limit. The thresholds are "
+        "those of the target class in the target state, so that the diet keeps those animals "
+        "in the chosen condition. Every animal-day of the tables is a day of the herd's "
+        "share-weighted average animal: an NCC or allowable-use animal-day eats its intake I, "
+        "an ECC animal-day supplies its maintenance energy R_maint. Intake is held fixed "
+        "whatever the diet quality, an assumption of the method (intake falls on poor diets).",
         "Hobbs, N.T. & Swift, D.M. 1985. J. Wildl. Manage. 49:814–822; i and p from memory "
         "or common practice (parameter table).",
     ),
@@ -68,8 +73,11 @@ METHODS = (
     ),
     Method(
         "Digestible protein of forage",
-        "DP = max(0, −3.87 + 0.9283 · CP − 11.82 · BSA)    [% DM]",
-        "CP is crude protein [% DM]; BSA the tannins' protein precipitation [mg/mg].",
+        "DP = −3.87 + 0.9283 · CP − 11.82 · BSA    [% DM]",
+        "CP is crude protein [% DM]; BSA the tannins' protein precipitation [mg/mg]. Not "
+        "clipped at 0: the intercept is metabolic faecal protein lost per unit eaten, so "
+        "forage below about 4.2 % CP has negative DP and a diet's DP is the mass-weighted mean "
+        "of its items' linear values.",
         "Robbins, C.T., Hanley, T.A., Hagerman, A.E. et al. 1987. Ecology 68:98–107 "
         "(abstract read); −3.87 + 0.9283 · CP read in a secondary table citing Hanley et al. "
         "1992, Ecology 73:537–541; BSA slope from memory.",
@@ -96,8 +104,10 @@ METHODS = (
     Method(
         "Ecological carrying capacity (forage-quantity ceiling)",
         "ECC [animal-days] = 1000 · Σ a_i q_i / R_maint",
-        "All forage counts, whatever its quality; R_maint is the herd's DE requirement at "
-        "maintenance [kcal/day]. The ceiling NCC is set against.",
+        "All forage counts, whatever its quality, and no allowable-use cap applies: the "
+        "ceiling the herd would grow to. R_maint is the herd's average animal's DE requirement "
+        "at maintenance in the same season [kcal/day]. NCC ≤ ECC whenever T · I · 1000 ≥ "
+        "R_maint, which the packaged requirement table guarantees for every state and season.",
         "Hobbs, N.T. & Swift, D.M. 1985. J. Wildl. Manage. 49:814–822.",
     ),
     Method(
@@ -108,9 +118,11 @@ METHODS = (
     ),
     Method(
         "Animal units",
-        "AUE = (W / 453.6)^0.75 [AU];  AUM = animal-days · AUE / 30",
-        "One animal unit is a 1000-lb (453.6 kg) cow eating 26 lb (11.8 kg) oven-dry forage a "
-        "day; one AUM is 30 animal-unit days.",
+        "AUE = (W / 453.6)^0.75 [AU];  AUM = forage [kg DM] / 353.8",
+        "An AUM is a quantity of forage: one animal unit (a 1000-lb, 453.6 kg cow) eats 26 lb "
+        "(11.8 kg) oven-dry forage a day, 780 lb (353.8 kg) in a 30-day month. ncc_aum is the "
+        "forage eaten at NCC, allowable_use_aum the forage usable at allowable use, each over "
+        "353.8 kg.",
         "USDA NRCS National Range and Pasture Handbook (attribution from memory; values read "
         "in secondary sources); Society for Range Management 1998 glossary (30-day AUM).",
     ),

@@ -131,6 +131,11 @@ def replace_text(name: str, old: str, new: str, count: int = 1) -> Recipe:
     return recipe
 
 
+def write_text(name: str, text: str) -> Recipe:
+    """Write a new file ``name`` holding ``text`` into the project folder."""
+    return lambda folder: (folder / name).write_text(text, encoding="utf-8")
+
+
 def set_key(section: str, line: str) -> Recipe:
     """Add ``line`` at the top of the project file's ``[section]``."""
     return replace_text("project.toml", f"[{section}]\n", f"[{section}]\n{line}\n")
@@ -1189,5 +1194,58 @@ CASES = [
         r"results: the output folder holds files that are not nutricap results.*run\.json "
         r"\(not written by nutricap\)",
         prepare_out=other_files,
+    ),
+    # issue 12: strict project-file types and ranges, the user's own requirement table
+    Case(
+        "project: season_days = true (a boolean is not a number)",
+        replace_text("project.toml", "season_days = 120", "season_days = true"),
+        r"project\.toml: 1 problem: key 'project\.season_days': Input should be a valid number "
+        r"\(found True\)",
+    ),
+    Case(
+        "project: season dates spanning 730 days",
+        replace_text(
+            "project.toml",
+            "season_days = 120",
+            "season_start = 2025-01-01\nseason_end = 2026-12-31",
+        ),
+        r"project\.toml: 1 problem: key 'project': season_start to season_end spans 730 days; a "
+        r"season is at most 366 days",
+    ),
+    Case(
+        "project: infinite interval level and a decimal replicate count",
+        replace_text(
+            "project.toml",
+            "bootstrap_replicates = 1000\ninterval_level = 0.9",
+            "bootstrap_replicates = 1000.0\ninterval_level = inf",
+        ),
+        r"project\.toml: 2 problems: key 'uncertainty\.bootstrap_replicates': Input should be a "
+        r"valid integer \(found 1000\.0\); key 'uncertainty\.interval_level': Input should be a "
+        r"finite number \(found inf\)",
+    ),
+    Case(
+        "project: own requirement table with a negative multiplier",
+        steps(
+            write_text(
+                "my_states.csv",
+                "state,season,bmr_multiplier,intake_g_per_kg075_per_day,dp_g_per_kg075_per_day,"
+                "source\nmaintenance,any,2.0,75,2.5,invented\ngestation,any,-2.1,78,2.6,invented\n"
+                "growth,any,2.9,95,9.0,invented\n",
+            ),
+            set_key("inputs", 'nutritional_states = "my_states.csv"'),
+        ),
+        r"my_states\.csv: row 3, column 'bmr_multiplier': value out of range",
+    ),
+    Case(
+        "project: own requirement table without the target's state",
+        steps(
+            write_text(
+                "my_states.csv",
+                "state,season,bmr_multiplier,intake_g_per_kg075_per_day,dp_g_per_kg075_per_day,"
+                "source\nmaintenance,any,2.0,75,2.5,invented\ngrowth,any,2.9,95,9.0,invented\n",
+            ),
+            set_key("inputs", 'nutritional_states = "my_states.csv"'),
+        ),
+        r"animal_classes\.csv: row 2, column 'state': unknown nutritional state 'gestation'",
     ),
 ]
