@@ -94,14 +94,12 @@ def unit_class_table(problem: CapacityProblem, solution: Solution) -> pd.DataFra
 
 def unreachable_notes(by_unit: pd.DataFrame) -> list[str]:
     """Units whose NCC is zero because no mix of their forage reaches the target diet."""
-    unreachable = by_unit.loc[by_unit["limiting_factor"] == "intake", "unit_id"].tolist()
-    if not unreachable:
-        return []
-    return [
-        "no mix of the available forage reaches the target diet in unit(s) "
-        + ", ".join(map(str, unreachable))
-        + ": their NCC is 0 (limiting factor 'intake')"
-    ]
+    return _units_note(
+        by_unit,
+        by_unit["limiting_factor"] == "intake",
+        "no mix of the available forage reaches the target diet in unit(s) {units}: their NCC "
+        "is 0 (limiting factor 'intake')",
+    )
 
 
 def ordering_notes(by_unit: pd.DataFrame) -> list[str]:
@@ -111,16 +109,19 @@ def ordering_notes(by_unit: pd.DataFrame) -> list[str]:
     own table, explicit diet thresholds or intake overrides can break it, and the run says so.
     """
     ncc, ecc = by_unit["ncc_animal_days"], by_unit["ecc_animal_days"]
-    above = by_unit.loc[ncc > ecc * (1 + 1e-9) + 1e-9, "unit_id"].tolist()
-    if not above:
-        return []
-    return [
-        "NCC exceeds ECC in unit(s) "
-        + ", ".join(map(str, above))
-        + ": the target diet threshold times the herd's intake supplies less energy than the "
-        "herd's maintenance requirement; check the requirement table, the diet thresholds "
-        "given in [target] and any intake_kg_per_day overrides"
-    ]
+    return _units_note(
+        by_unit,
+        ncc > ecc * (1 + 1e-9) + 1e-9,
+        "NCC exceeds ECC in unit(s) {units}: the target diet threshold times the herd's intake "
+        "supplies less energy than the herd's maintenance requirement; check the requirement "
+        "table, the diet thresholds given in [target] and any intake_kg_per_day overrides",
+    )
+
+
+def _units_note(by_unit: pd.DataFrame, where: pd.Series, text: str) -> list[str]:
+    """``[text]`` with ``{units}`` naming the units where ``where`` holds; [] when none."""
+    units = by_unit.loc[where, "unit_id"].tolist()
+    return [text.format(units=", ".join(map(str, units)))] if units else []
 
 
 def supply_notes(supply: StratumSupply, plots: pd.DataFrame) -> list[str]:
