@@ -1197,6 +1197,12 @@ CASES = [
     ),
     # issue 12: strict project-file types and ranges, the user's own requirement table
     Case(
+        "units: current_animals = inf",
+        set_current_animals(1095, 1131, float("inf"), 992, 575, 540),
+        r"units\.gpkg: feature 3 \(of 6\): units layer has a bad current_animals \(expected a "
+        r"number at least 0; found inf\)",
+    ),
+    Case(
         "project: season_days = true (a boolean is not a number)",
         replace_text("project.toml", "season_days = 120", "season_days = true"),
         r"project\.toml: 1 problem: key 'project\.season_days': Input should be a valid number "
