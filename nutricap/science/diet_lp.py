@@ -457,4 +457,8 @@ def solve_homogeneous_lp(allowed_kg: np.ndarray, rows: np.ndarray) -> tuple[np.n
     rest = np.flatnonzero(~ok)
     if rest.size:
         eaten[rest], multipliers[rest] = _highs(allowed[rest], rows[rest])
-    return eaten * scale[:, np.newaxis], multipliers, ~ok
+    # Items eaten in full get exactly their bound back (no rounding from the rescaling).
+    eaten_kg = np.where(
+        eaten >= allowed, allowed_kg, np.minimum(eaten * scale[:, None], allowed_kg)
+    )
+    return eaten_kg, multipliers, ~ok
