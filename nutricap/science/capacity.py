@@ -103,7 +103,11 @@ class NutritionalCapacity:
         (the diet-quality constraint(s) with a positive Lagrange multiplier: relaxing them would
         raise capacity); ``"quantity"`` (everything allowed is eaten, quality not binding);
         ``"intake"`` (no mix of the available forage reaches the target diet quality, so
-        capacity is 0); ``"no_forage"`` (nothing available after use caps).
+        capacity is 0); ``"no_forage"`` (nothing available after use caps). With
+        diet-composition limits also ``"diet_mix"`` (some diet meets the quality targets,
+        none that also meets the composition limits: capacity 0) and the binding limits
+        joined by "+" in the order energy, protein, diet_share, diet_group (e.g.
+        ``"protein+diet_group"``); see :data:`LIMITING_FACTORS`.
     diet_de_kcal_per_g : ndarray, shape (units,)
         Mass-weighted DE of the eaten diet [kcal/g DM]; 0.0 when nothing is eaten.
     diet_dp_pct : ndarray, shape (units,), or None
@@ -544,6 +548,13 @@ def nutritional_capacity(
         Minimum DP of the mixed diet, P [% DM]. Give it together with ``dp_pct``.
     use_cap : array_like, scalar, (items,) or (units, items), optional
         Largest fraction of each item that may be eaten, c in [0, 1]; default 1.
+    max_diet_share : array_like, shape (items,) or (units, items), optional
+        Largest share of each item in the diet, s in [0, 1] [-]; 1 sets no limit.
+    diet_groups : array_like of bool, shape (groups, items), optional
+        Membership of items in groups (e.g. growth forms); an item may be in several groups.
+    min_group_share, max_group_share : array_like, shape (groups,), optional
+        Smallest and largest share of each group in the diet, m <= M in [0, 1] [-];
+        defaults 0 and 1. Only with ``diet_groups``.
 
     Returns
     -------
@@ -554,7 +565,8 @@ def nutritional_capacity(
     ------
     nutricap.errors.InputError
         For a wrong shape, a NaN or infinite value, negative forage or DE, intake <= 0, a cap
-        outside [0, 1], or only one of ``dp_pct``/``dp_min_pct``.
+        or share outside [0, 1], only one of ``dp_pct``/``dp_min_pct``, group shares without
+        ``diet_groups``, non-boolean groups, or a group minimum above its maximum.
 
     Notes
     -----
@@ -574,6 +586,21 @@ def nutritional_capacity(
 
     so that the diet DE equals T exactly. An item whose DE is within ``QUALITY_TOL`` of T
     counts as meeting T. With DP as well, see ``docs/methods.md``.
+
+    Diet-composition constraints (common practice in diet linear programmes), with
+    X = sum_j x_j:
+
+    .. math::
+
+        x_i \\le s_i X, \\qquad m_g X \\le \\sum_{i \\in g} x_i \\le M_g X
+
+    All constraints but the box are homogeneous, so x = 0 is always feasible. A unit whose
+    optimum without them already meets them keeps it (a relaxation's optimum that is feasible
+    is optimal); the others are solved by a batched bounded-variable simplex, each answer
+    certified by LP duality, or else by HiGHS (:mod:`nutricap.science.diet_lp`). A limit
+    binds when its Lagrange multiplier exceeds 1e-9, as for energy and protein; the label
+    joins the binding families (``"energy+diet_share"``). ``"diet_mix"``: a diet meets the
+    quality targets without the composition limits, but only x = 0 meets them all.
 
     References
     ----------
