@@ -590,3 +590,260 @@ def test_ncc_never_exceeds_ecc_at_the_threshold_for_every_state_pair(season, tar
     ecc = ecological_capacity(available, de, herd.maintenance_de_kcal_per_day)
     assert ncc.animal_days[0] == pytest.approx(3000.0 / herd.intake_kg_per_day, rel=1e-9)
     assert ncc.animal_days[0] <= ecc[0] * (1 + 1e-12)
+
+
+# --- diet-composition limits (science core of issue 16) -------------------------------------
+# Reference: scipy.optimize.linprog (HiGHS) on the NCC LP with the composition rows written
+# out term by term in _composition_lp (x_i - s_i sum x <= 0; sum_g x - M_g sum x <= 0;
+# m_g sum x - sum_g x <= 0), independent of nutricap.science.diet_lp.
+
+
+def _composition_problems(rng: np.random.Generator, n_units: int, n_items: int) -> dict:
+    """Two-nutrient random problems with use caps, per-unit share caps and two groups."""
+    problem = _random_problems(rng, n_units, n_items)
+    groups = np.zeros((2, n_items), dtype=bool)
+    groups[0, : max(1, n_items // 3)] = True
+    groups[1, n_items // 3 : max(n_items // 3 + 1, 2 * n_items // 3)] = True
+    problem.update(
+        dp_pct=rng.uniform(-2.0, 16.0, (n_units, n_items)),
+        dp_min_pct=rng.uniform(3.0, 9.0, n_units),
+        max_diet_share=np.where(
+            rng.random((n_units, n_items)) < 0.6, rng.uniform(0.1, 0.8, (n_units, n_items)), 1.0
+        ),
+        diet_groups=groups,
+        min_group_share=rng.uniform(0.0, 0.3, 2),
+        max_group_share=rng.uniform(0.5, 1.0, 2),
+    )
+    return problem
+
+
+def _composition_lp(problem: dict, u: int) -> tuple[np.ndarray, np.ndarray, list[str]]:
+    """HiGHS optimum x [kg], the row multipliers and the row families for unit u."""
+    allowed = problem["available_kg"][u] * problem["use_cap"][u]
+    n = allowed.size
+    total = np.ones(n)
+    rows = [problem["de_min_kcal_per_g"][u] - problem["de_kcal_per_g"][u]]
+    rows.append(problem["dp_min_pct"][u] - problem["dp_pct"][u])
+    families = ["energy", "protein"]
+    for i in range(n):
+        rows.append(np.eye(n)[i] - problem["max_diet_share"][u, i] * total)
+        families.append("diet_share")
+    for g, members in enumerate(problem["diet_groups"].astype(float)):
+        rows.append(members - problem["max_group_share"][g] * total)
+        rows.append(problem["min_group_share"][g] * total - members)
+        families += ["diet_group", "diet_group"]
+    scale = max(allowed.max(initial=0.0), 1e-300)
+    res = linprog(
+        -np.ones(n),
+        A_ub=np.array(rows),
+        b_ub=np.zeros(len(rows)),
+        bounds=np.column_stack([np.zeros(n), allowed / scale]),
+        method="highs",
+    )
+    assert res.status == 0, res.message
+    return res.x * scale, -res.ineqlin.marginals, families
+
+
+def _expected_composition_label(x, allowed, marginals, families, relaxed_days) -> str:
+    """Label read off the HiGHS solution: families with a multiplier clearly above 0."""
+    if allowed.sum() == 0.0:
+        return "no_forage"
+    if relaxed_days == 0.0:
+        return "intake"
+    if x.sum() <= 1e-9 * allowed.sum():
+        return "diet_mix"
+    if np.all(x >= allowed * (1.0 - 1e-9)):
+        return "quantity"
+    order = ["energy", "protein", "diet_share", "diet_group"]
+    binding = {f for f, y in zip(families, marginals, strict=True) if y > 1e-7}
+    return "+".join(f for f in order if f in binding)
+
+
+@pytest.mark.parametrize("n_items", [2, 3, 5, 8, 13, 20])
+def test_composition_limits_equal_linprog_and_label(n_items: int) -> None:
+    # Source: scipy.optimize.linprog (HiGHS); 6 x 60 = 360 seeded random problems with DE, DP,
+    # use caps, share caps and two groups with minimum and maximum shares.
+    rng = np.random.default_rng(1616 + n_items)
+    problem = _composition_problems(rng, 60, n_items)
+    result = nutritional_capacity(**problem)
+    relaxed = nutritional_capacity(
+        **{k: v for k, v in problem.items() if "share" not in k and k != "diet_groups"}
+    )
+    allowed = problem["available_kg"] * problem["use_cap"]
+    for u in range(60):
+        x, marginals, families = _composition_lp(problem, u)
+        expected = x.sum() / problem["intake_kg_per_day"][u]
+        assert result.animal_days[u] == pytest.approx(expected, rel=REL, abs=1e-12)
+        label = _expected_composition_label(
+            x, allowed[u], marginals, families, relaxed.animal_days[u]
+        )
+        assert result.limiting_factor[u] == label
+    # The diet eaten meets every limit.
+    eaten, total = result.eaten_kg, result.eaten_kg.sum(axis=1)
+    assert np.all((eaten >= 0.0) & (eaten <= allowed))
+    assert np.all(eaten <= problem["max_diet_share"] * total[:, None] * (1 + 1e-9) + 1e-9)
+    group_kg = eaten @ problem["diet_groups"].T
+    assert np.all(group_kg <= problem["max_group_share"] * total[:, None] * (1 + 1e-9) + 1e-9)
+    assert np.all(group_kg >= problem["min_group_share"] * total[:, None] * (1 - 1e-9) - 1e-9)
+
+
+def test_composition_sample_covers_the_new_labels() -> None:
+    # Guards the test above against a sample that never reaches a branch.
+    rng = np.random.default_rng(16)
+    labels = set(nutritional_capacity(**_composition_problems(rng, 400, 8)).limiting_factor)
+    assert {"diet_mix", "quantity", "intake"} <= labels
+    assert any("diet_share" in label for label in labels)
+    assert any("diet_group" in label for label in labels)
+    assert any(label.startswith("energy+") and "diet" in label for label in labels)
+
+
+def test_composition_highs_fallback_agrees_with_simplex(monkeypatch: pytest.MonkeyPatch) -> None:
+    # The two exact methods inside the solver must agree: the batched simplex (default) and
+    # the block-diagonal HiGHS LP (used for units the simplex does not certify; forced here).
+    from nutricap.science import diet_lp
+
+    problem = _composition_problems(np.random.default_rng(17), 80, 6)
+    simplex = nutritional_capacity(**problem)
+    monkeypatch.setattr(
+        diet_lp, "_certified", lambda allowed, rows, x, y: (x, np.zeros(len(x), dtype=bool))
+    )
+    highs = nutritional_capacity(**problem)
+    np.testing.assert_allclose(highs.animal_days, simplex.animal_days, rtol=REL, atol=1e-12)
+    assert list(highs.limiting_factor) == list(simplex.limiting_factor)
+
+
+def test_two_classes_with_a_half_share_cap_by_hand() -> None:
+    # Inputs invented for the example; hand arithmetic on the LP. Class 0: 100 kg at DE 3.0;
+    # class 1: 300 kg at DE 2.4; T = 2.6 kcal/g; intake 2 kg/day.
+    # Energy: 0.4 x0 - 0.2 x1 >= 0, i.e. x1 <= 2 x0.
+    # Without limits: x0 = 100, x1 = 200 (energy binds): 300 kg / 2 = 150 animal-days.
+    # Class 1 at most 50 % of the diet: x1 <= 0.5 (x0 + x1), i.e. x1 <= x0 <= 100, so
+    # x0 = x1 = 100: 200 kg / 2 = 100 animal-days; diet DE (300 + 240) / 200 = 2.7 > 2.6, so
+    # energy does not bind, the share cap does.
+    args = ([100.0, 300.0], [3.0, 2.4], 2.0, 2.6)
+    free = nutritional_capacity(*args)
+    np.testing.assert_allclose(free.animal_days, [150.0], rtol=1e-12)
+    assert free.limiting_factor.tolist() == ["energy"]
+    capped = nutritional_capacity(*args, max_diet_share=[1.0, 0.5])
+    np.testing.assert_allclose(capped.eaten_kg, [[100.0, 100.0]], rtol=1e-12)
+    np.testing.assert_allclose(capped.animal_days, [100.0], rtol=1e-12)
+    np.testing.assert_allclose(capped.diet_de_kcal_per_g, [2.7], rtol=1e-12)
+    assert capped.limiting_factor.tolist() == ["diet_share"]
+    # Class 0 at most 50 % instead: x0 <= x1; the unlimited diet (x0 share 100/300 = 1/3)
+    # already meets it: 150 animal-days, unchanged.
+    other = nutritional_capacity(*args, max_diet_share=[0.5, 1.0])
+    np.testing.assert_array_equal(other.animal_days, free.animal_days)
+    assert other.limiting_factor.tolist() == ["energy"]
+
+
+def test_min_shares_that_cannot_be_met_give_diet_mix() -> None:
+    # Inputs invented for the example; hand arithmetic on the LP. Two classes, each its own
+    # group; T = 2.6 kcal/g; intake 2 kg/day.
+    # Unit 0: no forage of group 0, which must be at least 30 % of the diet: only x = 0
+    #   meets it, although class 1 alone (DE 2.8 >= T) would feed 50 / 2 = 25 animal-days.
+    # Unit 1: x0 >= 0.3 (x0 + x1) with x0 <= 10 gives x1 <= (0.7 / 0.3) x0 = 23.333 kg;
+    #   energy 0.4 x0 - 0.1 x1 >= 0 allows x1 <= 40 kg: x = (10, 23.333), 16.667 days, and
+    #   the group limit binds (diet DE (30 + 58.333) / 33.333 = 2.65 > 2.6).
+    # Unit 2: minimum shares 0.6 + 0.5 > 1: no diet meets both.
+    groups = np.array([[True, False], [False, True]])
+    result = nutritional_capacity(
+        [[0.0, 50.0], [10.0, 50.0], [10.0, 50.0]],
+        [[3.0, 2.8], [3.0, 2.5], [3.0, 2.8]],
+        2.0,
+        2.6,
+        diet_groups=groups,
+        min_group_share=[0.3, 0.0],
+    )
+    assert result.animal_days[0] == 0.0
+    np.testing.assert_allclose(result.animal_days[1], (10.0 + 70.0 / 3.0) / 2.0, rtol=1e-12)
+    np.testing.assert_allclose(result.diet_de_kcal_per_g[1], 2.65, rtol=1e-12)
+    assert result.limiting_factor[:2].tolist() == ["diet_mix", "diet_group"]
+    assert result.marginal_item[0] == -1
+    both = nutritional_capacity(
+        [10.0, 50.0], [3.0, 2.8], 2.0, 2.6, diet_groups=groups, min_group_share=[0.6, 0.5]
+    )
+    assert both.animal_days.tolist() == [0.0]
+    assert both.limiting_factor.tolist() == ["diet_mix"]
+
+
+def test_no_quality_mix_stays_intake_with_composition_limits() -> None:
+    # Both items below T (as in test_no_item_reaches_threshold_gives_intake): capacity 0 with
+    # or without composition limits, and the reason is the diet quality.
+    result = nutritional_capacity([10.0, 20.0], [2.0, 2.4], 2.0, 2.5, max_diet_share=[0.5, 0.5])
+    assert result.animal_days.tolist() == [0.0]
+    assert result.limiting_factor.tolist() == ["intake"]
+
+
+# Properties (hypothesis), each following from the LP (docs/methods.md): a looser bound
+# enlarges the feasible set; a share of 1 or a group bound of [0, 1] holds for every diet.
+
+
+@st.composite
+def _shared_problems(draw: st.DrawFn) -> tuple[dict, dict]:
+    problem = draw(_problems())
+    n_items = problem["available_kg"].shape[1]
+    share = st.floats(0.0, 1.0)
+    groups = draw(hnp.arrays(bool, (2, n_items)))
+    low = draw(hnp.arrays(float, 2, elements=st.floats(0.0, 0.5)))
+    limits = {
+        "max_diet_share": draw(hnp.arrays(float, n_items, elements=share)),
+        "diet_groups": groups,
+        "min_group_share": low,
+        "max_group_share": low + draw(hnp.arrays(float, 2, elements=st.floats(0.0, 0.5))),
+    }
+    return problem, limits
+
+
+@settings(max_examples=150, deadline=None)
+@given(_shared_problems(), st.data())
+def test_loosening_a_share_bound_never_lowers_ncc(drawn, data: st.DataObject) -> None:
+    problem, limits = drawn
+    n_items = len(limits["max_diet_share"])
+    item = data.draw(st.integers(0, n_items - 1))
+    looser = dict(limits, max_diet_share=limits["max_diet_share"].copy())
+    looser["max_diet_share"][item] = data.draw(st.floats(looser["max_diet_share"][item], 1.0))
+    group = data.draw(st.integers(0, 1))
+    looser["min_group_share"] = limits["min_group_share"].copy()
+    looser["min_group_share"][group] *= data.draw(st.floats(0.0, 1.0))
+    before, after = _ncc(problem, **limits), _ncc(problem, **looser)
+    assert np.all(after >= before - _tol(problem))
+    assert np.all(after <= _ncc(problem) + _tol(problem))  # never above the unlimited NCC
+
+
+@settings(max_examples=100, deadline=None)
+@given(_problems(), st.data())
+def test_share_of_one_and_group_bounds_of_zero_to_one_change_nothing(problem, data) -> None:
+    n_items = problem["available_kg"].shape[1]
+    groups = data.draw(hnp.arrays(bool, (3, n_items)))
+    free = nutritional_capacity(**problem)
+    for limits in (
+        {"max_diet_share": np.ones(n_items)},
+        {"diet_groups": groups, "min_group_share": np.zeros(3), "max_group_share": np.ones(3)},
+    ):
+        limited = nutritional_capacity(**problem, **limits)
+        np.testing.assert_array_equal(limited.animal_days, free.animal_days)
+        np.testing.assert_array_equal(limited.eaten_kg, free.eaten_kg)
+        assert list(limited.limiting_factor) == list(free.limiting_factor)
+
+
+@pytest.mark.parametrize(
+    ("limits", "source", "location"),
+    [
+        ({"max_diet_share": [0.5, 1.5]}, "max_diet_share", "item 1"),
+        ({"max_diet_share": [[0.5, np.nan]]}, "max_diet_share", "unit 0, item 1"),
+        ({"max_diet_share": [0.5, 0.5, 0.5]}, "max_diet_share", None),
+        ({"diet_groups": [[1, 0]]}, "diet_groups", None),
+        ({"min_group_share": [0.2]}, "min_group_share", None),
+        ({"diet_groups": [[True, False]], "min_group_share": [-0.1]}, "min_group_share", "group 0"),
+        (
+            {"diet_groups": [[True, False]], "min_group_share": [0.6], "max_group_share": [0.5]},
+            "min_group_share",
+            "group 0",
+        ),
+    ],
+)
+def test_bad_composition_limits_raise_input_error(limits, source, location) -> None:
+    with pytest.raises(InputError) as info:
+        nutritional_capacity([[10.0, 30.0]], [3.0, 2.0], 2.0, 2.5, **limits)
+    assert info.value.source == source
+    assert info.value.location == location

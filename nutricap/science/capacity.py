@@ -44,6 +44,13 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from nutricap.errors import InputError
+from nutricap.science.diet_lp import (
+    CompositionRows,
+    composition_labels,
+    composition_rows,
+    meets_rows,
+    solve_homogeneous_lp,
+)
 
 #: Items whose quality is within this distance of the threshold count as meeting it
 #: [kcal/g for DE, % for DP]. Also the tolerance on the diet quality of a certified solution.
@@ -52,10 +59,23 @@ QUALITY_TOL = 1e-12
 #: Grams per kilogram (exact).
 G_PER_KG = 1000.0
 
-#: Limiting-factor labels, indexed by the integer codes used inside this module.
-LIMITING_FACTORS = ("no_forage", "intake", "quantity", "energy", "protein", "energy+protein")
+#: Limiting-factor labels. The first six are those of a problem without diet-composition
+#: limits, indexed by the integer codes used inside this module; then "diet_mix" (no diet
+#: that meets the composition limits and the diet quality), then the binding limits joined
+#: by "+" in the order energy, protein, diet_share, diet_group.
+_BASE_FACTORS = ("no_forage", "intake", "quantity", "energy", "protein", "energy+protein")
+_COMPOSITION_FACTORS = ("diet_share", "diet_group", "diet_share+diet_group")
+LIMITING_FACTORS = (
+    *_BASE_FACTORS,
+    "diet_mix",
+    *(
+        f"{quality}+{limit}" if quality else limit
+        for quality in ("", "energy", "protein", "energy+protein")
+        for limit in _COMPOSITION_FACTORS
+    ),
+)
 _NO_FORAGE, _INTAKE, _QUANTITY, _ENERGY, _PROTEIN, _BOTH = range(6)
-_LABELS = np.array(LIMITING_FACTORS)
+_LABELS = np.array(_BASE_FACTORS)
 
 #: Tolerances of the two-nutrient vertex solution: box bounds (relative), duality gap (relative,
 #: plus QUALITY_TOL times the allowed forage as an absolute floor for capacities near 0), and the
@@ -83,7 +103,11 @@ class NutritionalCapacity:
         (the diet-quality constraint(s) with a positive Lagrange multiplier: relaxing them would
         raise capacity); ``"quantity"`` (everything allowed is eaten, quality not binding);
         ``"intake"`` (no mix of the available forage reaches the target diet quality, so
-        capacity is 0); ``"no_forage"`` (nothing available after use caps).
+        capacity is 0); ``"no_forage"`` (nothing available after use caps). With
+        diet-composition limits also ``"diet_mix"`` (some diet meets the quality targets,
+        none that also meets the composition limits: capacity 0) and the binding limits
+        joined by "+" in the order energy, protein, diet_share, diet_group (e.g.
+        ``"protein+diet_group"``); see :data:`LIMITING_FACTORS`.
     diet_de_kcal_per_g : ndarray, shape (units,)
         Mass-weighted DE of the eaten diet [kcal/g DM]; 0.0 when nothing is eaten.
     diet_dp_pct : ndarray, shape (units,), or None
@@ -446,6 +470,49 @@ def _assemble(
     )
 
 
+# --- diet-composition limits ----------------------------------------------------------------
+
+
+def _with_composition(
+    result: NutritionalCapacity,
+    allowed: np.ndarray,
+    quality_rows: np.ndarray,
+    limits: CompositionRows,
+    de: np.ndarray,
+    intake: np.ndarray,
+    dp: np.ndarray | None,
+) -> NutritionalCapacity:
+    """Re-solve, with the composition limits, the units whose diet breaks one of them.
+
+    The problem without them is a relaxation: where its optimum meets every composition
+    limit it is optimal, and that unit keeps its result unchanged.
+    """
+    eaten = result.eaten_kg
+    redo = np.flatnonzero((eaten.sum(axis=1) > 0.0) & ~meets_rows(eaten, limits.rows))
+    if redo.size == 0:
+        return result
+    n_rows = limits.rows.shape[1]
+    composition = np.broadcast_to(limits.rows, (len(eaten), n_rows, eaten.shape[1]))[redo]
+    rows = np.concatenate([quality_rows[redo], composition], axis=1)
+    family = np.array(["energy", "protein"][: len(quality_rows[0])] + list(limits.family))
+    solved, multipliers, _ = solve_homogeneous_lp(allowed[redo], rows)
+    eaten, marginal = eaten.copy(), result.marginal_item.copy()
+    eaten[redo] = solved
+    marginal[redo] = _lowest_de_partial(solved, allowed[redo], de[redo])
+    labels = result.limiting_factor.astype(np.array(LIMITING_FACTORS).dtype)
+    labels[redo] = composition_labels(allowed[redo], solved, multipliers, family, _MULTIPLIER_TOL)
+    total = eaten.sum(axis=1)
+    marginal[redo] = np.where(np.isin(labels[redo], ["quantity", "diet_mix"]), -1, marginal[redo])
+    return NutritionalCapacity(
+        animal_days=total / intake,
+        eaten_kg=eaten,
+        limiting_factor=labels,
+        diet_de_kcal_per_g=_mean_quality(eaten, total, de),
+        diet_dp_pct=None if dp is None else _mean_quality(eaten, total, dp),
+        marginal_item=marginal,
+    )
+
+
 # --- public API ------------------------------------------------------------------------------
 
 
@@ -458,6 +525,10 @@ def nutritional_capacity(
     dp_pct: ArrayLike | None = None,
     dp_min_pct: ArrayLike | None = None,
     use_cap: ArrayLike | None = None,
+    max_diet_share: ArrayLike | None = None,
+    diet_groups: ArrayLike | None = None,
+    min_group_share: ArrayLike | None = None,
+    max_group_share: ArrayLike | None = None,
 ) -> NutritionalCapacity:
     """Nutritional carrying capacity per unit at a minimum diet DE (and optionally DP).
 
@@ -477,6 +548,13 @@ def nutritional_capacity(
         Minimum DP of the mixed diet, P [% DM]. Give it together with ``dp_pct``.
     use_cap : array_like, scalar, (items,) or (units, items), optional
         Largest fraction of each item that may be eaten, c in [0, 1]; default 1.
+    max_diet_share : array_like, shape (items,) or (units, items), optional
+        Largest share of each item in the diet, s in [0, 1] [-]; 1 sets no limit.
+    diet_groups : array_like of bool, shape (groups, items), optional
+        Membership of items in groups (e.g. growth forms); an item may be in several groups.
+    min_group_share, max_group_share : array_like, shape (groups,), optional
+        Smallest and largest share of each group in the diet, m <= M in [0, 1] [-];
+        defaults 0 and 1. Only with ``diet_groups``.
 
     Returns
     -------
@@ -487,7 +565,8 @@ def nutritional_capacity(
     ------
     nutricap.errors.InputError
         For a wrong shape, a NaN or infinite value, negative forage or DE, intake <= 0, a cap
-        outside [0, 1], or only one of ``dp_pct``/``dp_min_pct``.
+        or share outside [0, 1], only one of ``dp_pct``/``dp_min_pct``, group shares without
+        ``diet_groups``, non-boolean groups, or a group minimum above its maximum.
 
     Notes
     -----
@@ -507,6 +586,21 @@ def nutritional_capacity(
 
     so that the diet DE equals T exactly. An item whose DE is within ``QUALITY_TOL`` of T
     counts as meeting T. With DP as well, see ``docs/methods.md``.
+
+    Diet-composition constraints (common practice in diet linear programmes), with
+    X = sum_j x_j:
+
+    .. math::
+
+        x_i \\le s_i X, \\qquad m_g X \\le \\sum_{i \\in g} x_i \\le M_g X
+
+    All constraints but the box are homogeneous, so x = 0 is always feasible. A unit whose
+    optimum without them already meets them keeps it (a relaxation's optimum that is feasible
+    is optimal); the others are solved by a batched bounded-variable simplex, each answer
+    certified by LP duality, or else by HiGHS (:mod:`nutricap.science.diet_lp`). A limit
+    binds when its Lagrange multiplier exceeds 1e-9, as for energy and protein; the label
+    joins the binding families (``"energy+diet_share"``). ``"diet_mix"``: a diet meets the
+    quality targets without the composition limits, but only x = 0 meets them all.
 
     References
     ----------
@@ -535,15 +629,23 @@ def nutritional_capacity(
             expected="a value",
             found="None",
         )
+    limits = composition_rows(shape, max_diet_share, diet_groups, min_group_share, max_group_share)
     dp = None
     if dp_pct is None:
         eaten, marginal = _fill_to_threshold(allowed, d)
         code = np.full(shape[0], _ENERGY)
+        surpluses = [d]
     else:
         dp = _per_item(dp_pct, "dp_pct", shape, -np.inf, 100.0)
         dp_min = _per_unit(dp_min_pct, "dp_min_pct", shape[0], -np.inf, 100.0)
-        eaten, marginal, code = _two_nutrients(allowed, d, _quality_surplus(dp, dp_min), de)
-    return _assemble(allowed, eaten, marginal, code, de, dp, intake)
+        e = _quality_surplus(dp, dp_min)
+        eaten, marginal, code = _two_nutrients(allowed, d, e, de)
+        surpluses = [d, e]
+    result = _assemble(allowed, eaten, marginal, code, de, dp, intake)
+    if limits is None:
+        return result
+    quality_rows = -np.stack(surpluses, axis=1)
+    return _with_composition(result, allowed, quality_rows, limits, de, intake, dp)
 
 
 def ecological_capacity(
