@@ -566,13 +566,15 @@ CASES = [
     Case(
         "strata: accessible fraction above 1",
         edit_layer(S, lambda g: g.assign(accessible_fraction=[1.5] + [1.0] * (len(g) - 1))),
-        r"strata\.gpkg: feature 1 \(of 70\): strata layer has a bad accessible_fraction "
+        r"strata\.gpkg: feature 1 \(of 70\), attribute 'accessible_fraction': strata layer has a "
+        r"bad accessible_fraction "
         r"\(expected a number between 0 and 1; found 1\.5\)",
     ),
     Case(
         "units: negative current animals",
         edit_layer(U, lambda g: g.assign(current_animals=[10, 20, -5, 40, 50, 60])),
-        r"units\.gpkg: feature 3 \(of 6\): units layer has a bad current_animals",
+        r"units\.gpkg: feature 3 \(of 6\), attribute 'current_animals': units layer has a bad "
+        r"current_animals",
     ),
     # Duplicate ids.
     Case(
@@ -595,7 +597,8 @@ CASES = [
     Case(
         "units: id twice",
         edit_layer(U, lambda g: g.assign(unit_id=g["unit_id"].where(g.index != 4, "Coldmarrow"))),
-        r"units\.gpkg: feature 5 \(of 6\): duplicate unit_id .*found 'Coldmarrow'",
+        r"units\.gpkg: feature 5 \(of 6\), attribute 'unit_id': duplicate unit_id .*found "
+        r"'Coldmarrow'",
     ),
     Case(
         "plots: plot in two strata",
@@ -1155,12 +1158,14 @@ CASES = [
     Case(
         "units: an id with an escape sequence, twice",
         set_unit_ids("A", "\x1b[31mB", "C", "\x1b[31mB", "E", "F"),
-        r"units\.gpkg: feature 4 \(of 6\): duplicate unit_id .*found '\\x1b\[31mB'\)$",
+        r"units\.gpkg: feature 4 \(of 6\), attribute 'unit_id': duplicate unit_id .*found "
+        r"'\\x1b\[31mB'\)$",
     ),
     Case(
         "units: an id with a newline, twice (one line)",
         set_unit_ids("A", "B\nnutricap: fake", "C", "D", "B\nnutricap: fake", "F"),
-        r"units\.gpkg: feature 5 \(of 6\): duplicate unit_id .*found 'B\\nnutricap: fake'\)$",
+        r"units\.gpkg: feature 5 \(of 6\), attribute 'unit_id': duplicate unit_id .*found "
+        r"'B\\nnutricap: fake'\)$",
     ),
     # The output folder: --overwrite removes only an earlier run's own, unchanged files.
     Case(
