@@ -266,7 +266,7 @@ def test_a_mapping_onto_a_column_the_file_also_has_is_refused(tmp_path):
 
 def test_a_mapping_for_an_input_the_project_lacks_is_refused(project):
     project.write_text(project.read_text() + '\n[columns.nutritional_states]\nstate = "S"\n')
-    with pytest.raises(ProjectFileError, match=r"\[columns\] names 'nutritional_states'"):
+    with pytest.raises(ProjectFileError, match=r"key 'columns\.nutritional_states': "):
         load_project(project)
 
 

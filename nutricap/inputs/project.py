@@ -235,17 +235,6 @@ class ProjectConfig(StrictSection):
             )
         return self
 
-    @model_validator(mode="after")
-    def _names_for_given_inputs(self) -> ProjectConfig:
-        given = self.given_inputs()
-        for section in ("columns", "sheets"):
-            for key, value in getattr(self, section):
-                if value and key not in given:
-                    raise ValueError(
-                        f"[{section}] names {key!r}, an input this project does not read"
-                    )
-        return self
-
     def given_inputs(self) -> set[str]:
         """The keys of ``[columns]`` and ``[sheets]`` naming an input this project reads."""
         inputs = self.inputs
@@ -374,8 +363,26 @@ def load_project(path: str | Path) -> Project:
     except ValidationError as exc:
         raise ProjectFileError(_describe_problems(exc, raw), source=path) from None
     project = Project(path, config)
+    _check_names_for_given_inputs(project)
     _check_inputs_exist(project)
     return project
+
+
+def _check_names_for_given_inputs(project: Project) -> None:
+    """``[columns.KEY]`` and ``[sheets] KEY`` name inputs the project reads (else a typing
+    error, or a file left out, would pass unnoticed)."""
+    given = project.config.given_inputs()
+    for section in ("columns", "sheets"):
+        for key, value in getattr(project.config, section):
+            if value and key not in given:
+                raise ProjectFileError(
+                    f"[{section}] names the input {key!r}, which this project does not read",
+                    source=project.path,
+                    location=f"key '{section}.{key}'",
+                    expected="names for inputs given in [inputs], [scenarios.*] or [rasters]: "
+                    + ", ".join(sorted(given)),
+                    found=repr(key),
+                )
 
 
 def _read_toml(path: Path) -> dict:
