@@ -180,32 +180,21 @@ def apply_column_names(
     """
     taken: dict[str, str] = {}
     for ours, theirs in source.columns.items():
-        key = f"key '{source.key_of('columns')}.{ours}'"
         if ours not in declared:
-            close = closest_name(ours, declared)
-            raise ProjectFileError(
-                f"the {what} has no column {ours!r} to map"
-                + (f"; did you mean {close!r}?" if close else ""),
-                source=source.project_file,
-                location=key,
+            _mapping_error(
+                source, ours, f"the {what} has no column {ours!r} to map", ours, declared,
                 expected="one of the columns nutricap reads from it: " + ", ".join(declared),
-                found=repr(ours),
-            )
+            )  # fmt: skip
         if theirs not in names:
-            close = closest_name(theirs, names)
-            raise ProjectFileError(
-                f"{source.path} has no column {theirs!r}"
-                + (f"; did you mean {close!r}?" if close else ""),
-                source=source.project_file,
-                location=key,
+            _mapping_error(
+                source, ours, f"{source.path} has no column {theirs!r}", theirs, names,
                 expected="a column of the file: " + ", ".join(map(repr, names)),
-                found=repr(theirs),
-            )
+            )  # fmt: skip
         if theirs in taken:
             raise ProjectFileError(
                 f"column {theirs!r} is mapped twice, to {taken[theirs]!r} and {ours!r}",
                 source=source.project_file,
-                location=key,
+                location=f"key '{source.key_of('columns')}.{ours}'",
                 expected="each of the file's columns mapped once",
                 found=f"{theirs!r} again",
             )
@@ -213,12 +202,26 @@ def apply_column_names(
             raise ProjectFileError(
                 f"{source.path} has a column {ours!r} of its own besides {theirs!r} mapped to it",
                 source=source.project_file,
-                location=key,
+                location=f"key '{source.key_of('columns')}.{ours}'",
                 expected=f"one column to read as {ours!r}: rename or drop the other",
                 found=f"columns {ours!r} and {theirs!r}",
             )
         taken[theirs] = ours
     return taken
+
+
+def _mapping_error(
+    source: TableSource, ours: str, message: str, name: str, known: list[str], *, expected: str
+) -> None:
+    """Raise the error of mapping ``ours``: ``name`` is not among ``known`` (did you mean)."""
+    close = closest_name(name, known)
+    raise ProjectFileError(
+        message + (f"; did you mean {close!r}?" if close else ""),
+        source=source.project_file,
+        location=f"key '{source.key_of('columns')}.{ours}'",
+        expected=expected,
+        found=repr(name),
+    )
 
 
 def spreadsheet_row(index: int) -> int:
