@@ -433,9 +433,7 @@ def class_shares(plots: pd.DataFrame, groups: dict[str, list[str]], path: Path) 
     return shares
 
 
-def sample_index(
-    index_path: Path, where: pd.DataFrame, plots_crs: str | None, plots_path: Source
-):
+def sample_index(index_path: Path, where: pd.DataFrame, plots_crs: str | None, plots_path: Source):
     """The index raster's value at each plot (first band).
 
     Raises :class:`SpatialError` naming the first plot that lies outside the raster or on a
