@@ -54,7 +54,9 @@ class InputError(NutricapError):
     message : str
         What is wrong, in plain words.
     source : str or Path, optional
-        The file (or project key) the problem is in; shown first.
+        The file (or project key) the problem is in; shown first. An object with a
+        ``relabel(location)`` method (``inputs.columns.TableSource``) rewrites the location
+        (the user's own column names, a spreadsheet's sheet).
     location : str, optional
         Where in the source: ``"row 12, column dry_mass_g"``, ``"key target.state"``.
     expected, found : str, optional
@@ -70,6 +72,9 @@ class InputError(NutricapError):
         expected: str | None = None,
         found: str | None = None,
     ) -> None:
+        relabel = getattr(source, "relabel", None)  # a table read under the user's names
+        if relabel is not None:
+            location = relabel(location)
         self.message = message
         self.source = str(source) if source is not None else None
         self.location = location

@@ -157,16 +157,16 @@ def read_inputs(project: Project, say: Progress) -> Inputs:
     """Read and check every table and layer of the project."""
     config = project.config
     say("reading tables")
-    forage_classes = read_forage_classes(project.input_path("forage_classes"))
-    plots = read_plots(project.input_path("plots"))
-    animals = read_animal_classes(project.input_path("animal_classes"))
+    forage_classes = read_forage_classes(project.source("forage_classes"))
+    plots = read_plots(project.source("plots"))
+    animals = read_animal_classes(project.source("animal_classes"))
     say("reading layers")
-    units = read_units(project.input_path("units"), config.inputs.units_layer)
+    units = read_units(project.source("units"), config.inputs.units_layer)
     strata = None  # a strata raster is read window by window on the grid path
     if not config.strata_as_raster:
-        strata = read_strata(project.input_path("strata"), config.inputs.strata_layer)
-    counts_path = project.input_path("counts")
-    counts = read_counts(counts_path) if counts_path is not None else None
+        strata = read_strata(project.source("strata"), config.inputs.strata_layer)
+    given = config.inputs.counts is not None
+    counts = read_counts(project.source("counts")) if given else None
     states, state_notes = requirement_table(project)
     return Inputs(forage_classes, plots, animals, units, strata, counts, states, state_notes)
 
@@ -180,8 +180,8 @@ def build_supply(
     areas = overlay_strata_on_units(
         inputs.units,
         inputs.strata,
-        units_path=project.input_path("units"),
-        strata_path=project.input_path("strata"),
+        units_path=project.source("units"),
+        strata_path=project.source("strata"),
     )
     _require_units_on_map(areas, project)
     say("summarising clip plots by stratum")
@@ -189,8 +189,8 @@ def build_supply(
         inputs.plots,
         _general_classes(inputs.forage_classes),
         sorted(inputs.strata["stratum"].unique()),
-        plots_path=project.input_path("plots"),
-        strata_path=project.input_path("strata"),
+        plots_path=project.source("plots"),
+        strata_path=project.source("strata"),
         strata_without_forage=config.supply.strata_without_forage,
     )
     items = build_forage_items(supply, inputs.forage_classes)
@@ -312,7 +312,7 @@ def counts_trend(project: Project, counts: pd.DataFrame | None, say: Progress) -
     """Trend figures of the project's counts (the total over units), with the fitted curve."""
     if counts is None:
         return None
-    path = project.input_path("counts")
+    path = project.source("counts")
     say("population trend of the counts")
     series = select_series(counts, path, None)
     name = TOTAL_LABEL if TOTAL_LABEL in series else next(iter(series))
@@ -341,7 +341,7 @@ def current_animals(
         return areas.units["current_animals"].to_numpy(dtype=float)
     if counts is None:
         return None
-    counts_path = project.input_path("counts")
+    counts_path = project.source("counts")
     latest = current_animals_from_counts(counts, areas.units["unit_id"].to_numpy())
     missing = np.isnan(latest)
     if missing.all():
@@ -381,7 +381,7 @@ def _require_units_on_map(areas: StratumAreas, project: Project) -> None:
     if unmapped:
         raise InputError(
             f"unit {unmapped[0]!r} does not overlap any vegetation stratum",
-            source=project.input_path("units"),
+            source=project.source("units"),
             location="attribute 'unit_id'",
             expected="every unit at least partly covered by the strata layer "
             f"({project.input_path('strata')})",

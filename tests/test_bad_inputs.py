@@ -70,6 +70,8 @@ def _param(case):
 
 @pytest.mark.parametrize("case", [_param(case) for case in CASES])
 def test_case(case, example_project, tmp_path, capsys, request):
+    if case.needs is not None:
+        pytest.importorskip(case.needs)
     request.config.stash.setdefault(CASES_RUN, []).append(case.name)
     folder = (tmp_path / "inputs").resolve()
     shutil.copytree(example_project.parent, folder)

@@ -15,26 +15,43 @@ the header is refused; an undeclared column named almost like an absent declared
 one (``tanin`` for ``tannin``) is refused as a misspelling; empty rows at the end
 are ignored, an empty row between data rows is refused (every later row number
 would be off by one); a table with no data rows is refused.
+
+A table may also be an ``.xlsx`` workbook (one sheet, read with openpyxl and validated exactly
+like a CSV file, rows being the sheet's own), and its columns may carry the user's own names:
+a :class:`TableSource` holds the file with the project's ``[columns.KEY]`` mapping and
+``[sheets]`` entry; the mapping is applied here, once, as the table is read, and every later
+message about a mapped column names the file's own column (``column 'ELK_NOW' (mapped to
+current_animals)``).
 """
 
 from __future__ import annotations
 
 import csv
+import datetime as dt
 import difflib
+import functools
 import io
 import re
-from dataclasses import dataclass
+import zipfile
+from collections.abc import Mapping
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from nutricap.errors import TableError, file_problem
+from nutricap.errors import ProjectFileError, TableError, file_problem
 
 TRUE_WORDS = frozenset({"true", "yes", "y", "1", "t"})
 FALSE_WORDS = frozenset({"false", "no", "n", "0", "f", ""})
 OTHER_SEPARATORS = {";": "semicolons", "\t": "tabs", "|": "vertical bars"}
 NEWLINE = b"\n"
+SPREADSHEET_SUFFIXES = (".xlsx", ".xlsm")
+OTHER_SPREADSHEETS = (".xls", ".ods", ".numbers")
+NOT_AVAILABLE = frozenset({"na", "n/a"})
+"""Cell texts read as blank (case-insensitive) where a column accepts blanks."""
+DATE_LIKE = re.compile(r"^\d{1,4}[/.-]\d{1,2}[/.-]\d{1,4}([ T]\d{1,2}:\d{2}(:\d{2})?)?$")
+ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}([ T]\d{2}:\d{2}(:\d{2})?)?$")
 NEAR_MISS_CUTOFF = 0.8
 """An undeclared column this close (difflib ratio, ignoring case) to an absent declared one
 is taken for a misspelling and refused."""
@@ -64,18 +81,162 @@ class Column:
     meaning: str = ""
 
 
+@dataclass(frozen=True)
+class TableSource:
+    """An input table or layer as the project names it.
+
+    Attributes
+    ----------
+    path : Path
+        The file.
+    key : str
+        The project's name of the input (``"plots"``, ``"units"``): the ``KEY`` of
+        ``[columns.KEY]`` and ``[sheets] KEY``; empty for a file read on its own.
+    columns : Mapping of str to str
+        The user's ``[columns.KEY]`` table: our column name → the file's own.
+    sheet : str, optional
+        The sheet of a spreadsheet to read (``[sheets] KEY``); the first sheet when None.
+    project_file : Path, optional
+        The project file, named in messages about the mapping.
+    recognised : dict of str to str
+        Our column name → the file's, for names recognised at read time (a shapefile's
+        10-character forms). Filled by the reader; not part of equality.
+
+    Notes
+    -----
+    Passed as ``source`` of an :class:`~nutricap.errors.InputError`, it names the file and
+    rewrites the location so that a mapped column reads ``'ELK_NOW' (mapped to
+    current_animals)`` and a spreadsheet's rows are preceded by the sheet's name.
+    """
+
+    path: Path
+    key: str = ""
+    columns: Mapping[str, str] = field(default_factory=dict)
+    sheet: str | None = None
+    project_file: Path | None = None
+    recognised: dict[str, str] = field(default_factory=dict, compare=False, repr=False)
+
+    def __str__(self) -> str:
+        return str(self.path)
+
+    def __fspath__(self) -> str:
+        return str(self.path)
+
+    @property
+    def name(self) -> str:
+        """The file's name (as ``Path.name``)."""
+        return self.path.name
+
+    @property
+    def is_spreadsheet(self) -> bool:
+        return self.path.suffix.lower() in SPREADSHEET_SUFFIXES
+
+    def mapped(self) -> dict[str, str]:
+        """Every renamed column, ours → the file's: the user's mapping and the recognised."""
+        return {**self.columns, **self.recognised}
+
+    @functools.cached_property
+    def sheet_name(self) -> str | None:
+        """The sheet read: the one named in the project file, or the workbook's first."""
+        if self.sheet is not None or not self.is_spreadsheet:
+            return self.sheet
+        try:
+            return _sheet_names(self.path)[0]
+        except (OSError, ValueError, KeyError, IndexError, zipfile.BadZipFile, ImportError):
+            return None
+
+    def relabel(self, location: str | None) -> str | None:
+        """``location`` with mapped columns under the file's names and the sheet first."""
+        if location is not None:
+            for ours, theirs in self.mapped().items():
+                location = location.replace(repr(ours), f"{theirs!r} (mapped to {ours})")
+        if self.is_spreadsheet and self.sheet_name is not None:
+            sheet = f"sheet {self.sheet_name!r}"
+            location = f"{sheet}, {location}" if location else sheet
+        return location
+
+    def key_of(self, table: str) -> str:
+        """The project-file key of one of this input's sections (``columns.units``)."""
+        return f"{table}.{self.key}" if self.key else table
+
+
+Source = Path | TableSource
+"""A table's file: a bare path, or a :class:`TableSource` with the user's names."""
+
+
+def as_source(path: Path | TableSource) -> TableSource:
+    """``path`` as a :class:`TableSource` (a bare path: no mapping, first sheet)."""
+    return path if isinstance(path, TableSource) else TableSource(Path(path))
+
+
+def apply_column_names(
+    names: list[str], source: TableSource, declared: list[str], what: str
+) -> dict[str, str]:
+    """The renaming (file's name → ours) that gives a table its declared column names.
+
+    The user's ``[columns.KEY]`` mapping is checked against ``declared`` (our names) and
+    ``names`` (the file's); a problem is one :class:`~nutricap.errors.ProjectFileError`
+    naming the project file and the key.
+    """
+    taken: dict[str, str] = {}
+    for ours, theirs in source.columns.items():
+        if ours not in declared:
+            _mapping_error(
+                source, ours, f"the {what} has no column {ours!r} to map", ours, declared,
+                expected="one of the columns nutricap reads from it: " + ", ".join(declared),
+            )  # fmt: skip
+        if theirs not in names:
+            _mapping_error(
+                source, ours, f"{source.path} has no column {theirs!r}", theirs, names,
+                expected="a column of the file: " + ", ".join(map(repr, names)),
+            )  # fmt: skip
+        if theirs in taken:
+            raise ProjectFileError(
+                f"column {theirs!r} is mapped twice, to {taken[theirs]!r} and {ours!r}",
+                source=source.project_file,
+                location=f"key '{source.key_of('columns')}.{ours}'",
+                expected="each of the file's columns mapped once",
+                found=f"{theirs!r} again",
+            )
+        if ours in names and ours != theirs:
+            raise ProjectFileError(
+                f"{source.path} has a column {ours!r} of its own besides {theirs!r} mapped to it",
+                source=source.project_file,
+                location=f"key '{source.key_of('columns')}.{ours}'",
+                expected=f"one column to read as {ours!r}: rename or drop the other",
+                found=f"columns {ours!r} and {theirs!r}",
+            )
+        taken[theirs] = ours
+    return taken
+
+
+def _mapping_error(
+    source: TableSource, ours: str, message: str, name: str, known: list[str], *, expected: str
+) -> None:
+    """Raise the error of mapping ``ours``: ``name`` is not among ``known`` (did you mean)."""
+    close = closest_name(name, known)
+    raise ProjectFileError(
+        message + (f"; did you mean {close!r}?" if close else ""),
+        source=source.project_file,
+        location=f"key '{source.key_of('columns')}.{ours}'",
+        expected=expected,
+        found=repr(name),
+    )
+
+
 def spreadsheet_row(index: int) -> int:
     """Row number a user sees in a spreadsheet for data row ``index`` (0-based)."""
     return int(index) + 2
 
 
-def read_csv_table(path: Path, columns: list[Column], *, what: str) -> pd.DataFrame:
+def read_csv_table(path: Path | TableSource, columns: list[Column], *, what: str) -> pd.DataFrame:
     """Read ``path`` and validate it against ``columns``.
 
     Parameters
     ----------
-    path : Path
-        The CSV file.
+    path : Path or TableSource
+        The CSV file or ``.xlsx`` workbook; a :class:`TableSource` carries the user's column
+        names and sheet.
     columns : list of Column
         The declared columns. Columns not declared are kept as text.
     what : str
@@ -84,43 +245,165 @@ def read_csv_table(path: Path, columns: list[Column], *, what: str) -> pd.DataFr
     Returns
     -------
     pandas.DataFrame
-        Numbers as float, flags as bool, text stripped.
+        Numbers as float, flags as bool, text stripped; columns under our names.
     """
-    frame = _read_raw(path, what)
-    _check_columns(frame, columns, path)
-    frame = _without_empty_rows(frame, path, what)
+    source = as_source(path)
+    frame = _read_sheet(source, what) if source.is_spreadsheet else _read_raw(source, what)
+    renaming = apply_column_names(list(frame.columns), source, [c.name for c in columns], what)
+    frame = frame.rename(columns=renaming)
+    _check_columns(frame, columns, source)
+    frame = _without_empty_rows(frame, source, what)
     for column in columns:
         if column.name in frame.columns:
-            frame[column.name] = _convert_column(frame[column.name], column, path)
+            frame[column.name] = _convert_column(frame[column.name], column, source)
     return frame
 
 
-def _read_raw(path: Path, what: str) -> pd.DataFrame:
-    text = _read_text(path, what)
+def _read_raw(source: TableSource, what: str) -> pd.DataFrame:
+    _refuse_sheet_of_csv(source)
+    text = _read_text(source, what)
     lines = text.splitlines()
     header = lines[0].strip() if lines else ""
     if not header:
         raise TableError(
             f"{what} is empty" if not text.strip() else f"{what} has no header on row 1",
-            source=path,
+            source=source,
             location="row 1",
             expected="a header row naming the columns",
         )
-    _refuse_other_separators(header, path, what)
-    _refuse_repeated_columns(header, path)
+    _refuse_other_separators(header, source, what)
+    _refuse_repeated_columns([name.strip() for name in next(csv.reader([header]))], source)
     try:
         frame = pd.read_csv(
             io.StringIO(text), dtype=str, keep_default_na=False, skip_blank_lines=False
         )
     except (pd.errors.ParserError, pd.errors.EmptyDataError) as exc:
-        raise _parser_error(exc, path, what) from None
+        raise _parser_error(exc, source, what) from None
+    return _stripped(frame, source, what)
+
+
+def _stripped(frame: pd.DataFrame, source: TableSource, what: str) -> pd.DataFrame:
     frame.columns = [str(name).strip() for name in frame.columns]
     frame = frame.apply(lambda col: col.str.strip())
-    _refuse_nul(frame, path, what)
+    _refuse_nul(frame, source, what)
     return frame
 
 
-def _refuse_nul(frame: pd.DataFrame, path: Path, what: str) -> None:
+def _refuse_sheet_of_csv(source: TableSource) -> None:
+    if source.sheet is not None:
+        raise ProjectFileError(
+            f"a sheet is named for {source.path}, which is not a spreadsheet",
+            source=source.project_file,
+            location=f"key 'sheets.{source.key}'",
+            expected="a sheet only for an .xlsx workbook",
+            found=repr(source.sheet),
+        )
+
+
+def _sheet_names(path: Path) -> list[str]:
+    import openpyxl
+
+    book = openpyxl.load_workbook(path, read_only=True, data_only=True)
+    try:
+        return [sheet.title for sheet in book.worksheets]
+    finally:
+        book.close()
+
+
+def _read_sheet(source: TableSource, what: str) -> pd.DataFrame:
+    """One sheet of an ``.xlsx`` workbook as text cells, row 1 the header (as a CSV file).
+
+    Cells are read as the workbook saved them (formulas as their last computed values);
+    numbers are written back in full (``repr``), whole numbers without ``.0``, dates in ISO
+    form, true/false as words.
+    """
+    rows = _sheet_rows(source, what)
+    width = max((len(row) for row in rows), default=0)
+    rows = [[_cell_text(value) for value in row] + [""] * (width - len(row)) for row in rows]
+    if not rows or not any(rows[0]):
+        raise TableError(
+            f"{what} is empty"
+            if not any(any(row) for row in rows)
+            else f"{what} has no header on row 1",
+            source=source,
+            location="row 1",
+            expected="a header row naming the columns",
+        )
+    header, body = rows[0], rows[1:]
+    kept = [i for i, name in enumerate(header) if name.strip() or any(row[i] for row in body)]
+    header = [header[i].strip() or f"Unnamed: {i}" for i in kept]
+    _refuse_repeated_columns(header, source)
+    frame = pd.DataFrame([[row[i] for i in kept] for row in body], columns=header, dtype=str)
+    return _stripped(frame, source, what)
+
+
+def _sheet_rows(source: TableSource, what: str) -> list[tuple]:
+    problem = file_problem(source.path)
+    if problem is not None or source.path.is_dir():
+        raise TableError(
+            f"{what} {problem or 'is a folder, not a file'}",
+            source=source,
+            expected="an existing .xlsx workbook",
+        )
+    try:
+        import openpyxl
+    except ImportError:
+        raise TableError(
+            f"{what} is a spreadsheet and openpyxl, which reads them, is not installed",
+            source=source,
+            expected="openpyxl >= 3.1 installed (a dependency of nutricap)",
+        ) from None
+    try:
+        book = openpyxl.load_workbook(source.path, read_only=True, data_only=True)
+    except (OSError, ValueError, KeyError, zipfile.BadZipFile) as exc:
+        raise TableError(
+            f"{what} cannot be read as an .xlsx workbook ({type(exc).__name__})",
+            source=source,
+            expected="an Excel workbook saved as .xlsx",
+            found="a truncated file, or another format named .xlsx",
+        ) from None
+    try:
+        sheet = _chosen_sheet(book, source)
+        return list(sheet.iter_rows(min_row=1, values_only=True))
+    finally:
+        book.close()
+
+
+def _chosen_sheet(book, source: TableSource):
+    names = [sheet.title for sheet in book.worksheets]
+    if not names:
+        raise TableError("the workbook has no sheets", source=source, expected="one sheet")
+    if source.sheet is None:
+        return book.worksheets[0]
+    if source.sheet not in names:
+        close = closest_name(source.sheet, names)
+        raise ProjectFileError(
+            f"{source.path} has no sheet {source.sheet!r}"
+            + (f"; did you mean {close!r}?" if close else ""),
+            source=source.project_file,
+            location=f"key 'sheets.{source.key}'",
+            expected="one of the workbook's sheets: " + ", ".join(map(repr, names)),
+            found=repr(source.sheet),
+        )
+    return book[source.sheet]
+
+
+def _cell_text(value: object) -> str:
+    """A cell's value as the text a CSV file would hold."""
+    if value is None:
+        return ""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, float):
+        return str(int(value)) if value.is_integer() else repr(value)
+    if isinstance(value, dt.datetime) and value.time() == dt.time(0):
+        return value.date().isoformat()
+    if isinstance(value, dt.date | dt.time):
+        return value.isoformat()
+    return str(value)
+
+
+def _refuse_nul(frame: pd.DataFrame, path: Source, what: str) -> None:
     """Refuse a NUL character in the header or a cell: other programs cut text there."""
     nul_cells = frame.apply(lambda col: col.str.contains("\0", regex=False)).to_numpy()
     names = [name for name in frame.columns if "\0" in name]
@@ -142,12 +425,20 @@ def _refuse_nul(frame: pd.DataFrame, path: Path, what: str) -> None:
     )
 
 
-def _read_text(path: Path, what: str) -> str:
+def _read_text(source: TableSource, what: str) -> str:
+    path = source.path
     problem = file_problem(path)
     if problem is not None:
-        raise TableError(f"{what} {problem}", source=path, expected="an existing CSV file")
+        raise TableError(f"{what} {problem}", source=source, expected="an existing CSV file")
     if path.is_dir():
-        raise TableError(f"{what} is a folder, not a file", source=path, expected="a CSV file")
+        raise TableError(f"{what} is a folder, not a file", source=source, expected="a CSV file")
+    if path.suffix.lower() in OTHER_SPREADSHEETS:
+        raise TableError(
+            f"{what} is a {path.suffix} spreadsheet",
+            source=source,
+            expected="a CSV file or an .xlsx workbook",
+            found=f"a {path.suffix} file; save it as .xlsx or CSV",
+        )
     data = path.read_bytes()
     try:
         return data.decode("utf-8-sig")
@@ -162,7 +453,7 @@ def _read_text(path: Path, what: str) -> str:
         ) from None
 
 
-def _refuse_other_separators(header: str, path: Path, what: str) -> None:
+def _refuse_other_separators(header: str, path: Source, what: str) -> None:
     if "," in header:
         return
     for separator, words in OTHER_SEPARATORS.items():
@@ -176,8 +467,7 @@ def _refuse_other_separators(header: str, path: Path, what: str) -> None:
             )
 
 
-def _refuse_repeated_columns(header: str, path: Path) -> None:
-    names = [name.strip() for name in next(csv.reader([header]))]
+def _refuse_repeated_columns(names: list[str], path: Path | TableSource) -> None:
     seen: set[str] = set()
     for number, name in enumerate(names, start=1):
         if name and name in seen:
@@ -191,7 +481,7 @@ def _refuse_repeated_columns(header: str, path: Path) -> None:
         seen.add(name)
 
 
-def _parser_error(exc: Exception, path: Path, what: str) -> TableError:
+def _parser_error(exc: Exception, path: Source, what: str) -> TableError:
     match = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", str(exc))
     if match is None:
         return TableError(f"{what} cannot be read as CSV: {exc}", source=path)
@@ -206,7 +496,7 @@ def _parser_error(exc: Exception, path: Path, what: str) -> TableError:
     )
 
 
-def _without_empty_rows(frame: pd.DataFrame, path: Path, what: str) -> pd.DataFrame:
+def _without_empty_rows(frame: pd.DataFrame, path: Source, what: str) -> pd.DataFrame:
     """Drop empty rows at the end; refuse one between data rows (row numbers would shift)."""
     empty = (frame == "").all(axis=1).to_numpy()
     filled = np.flatnonzero(~empty)
@@ -244,7 +534,7 @@ def closest_name(name: str, candidates: list[str], cutoff: float = 0.6) -> str |
     return lowered[close[0]] if close else None
 
 
-def _check_columns(frame: pd.DataFrame, columns: list[Column], path: Path) -> None:
+def _check_columns(frame: pd.DataFrame, columns: list[Column], path: Source) -> None:
     present = list(frame.columns)
     found = "columns " + ", ".join(repr(name) for name in present)
     for column in columns:
@@ -262,7 +552,7 @@ def _check_columns(frame: pd.DataFrame, columns: list[Column], path: Path) -> No
     _refuse_near_misses(present, columns, path)
 
 
-def _refuse_near_misses(present: list[str], columns: list[Column], path: Path) -> None:
+def _refuse_near_misses(present: list[str], columns: list[Column], path: Source) -> None:
     """Refuse an undeclared column named almost like an absent declared one.
 
     A misspelt optional column (``tanin``, ``dry_mass_kg``) would otherwise be kept as a
@@ -287,7 +577,9 @@ def _refuse_near_misses(present: list[str], columns: list[Column], path: Path) -
             )
 
 
-def _convert_column(values: pd.Series, column: Column, path: Path) -> pd.Series:
+def _convert_column(values: pd.Series, column: Column, path: Source) -> pd.Series:
+    if column.allow_blank:
+        values = values.mask(values.str.lower().isin(NOT_AVAILABLE), "")
     if column.kind == "text":
         _check_blanks(values, column, path)
         return values
@@ -296,7 +588,7 @@ def _convert_column(values: pd.Series, column: Column, path: Path) -> pd.Series:
     return _convert_numbers(values, column, path)
 
 
-def _check_blanks(values: pd.Series, column: Column, path: Path) -> None:
+def _check_blanks(values: pd.Series, column: Column, path: Source) -> None:
     if column.allow_blank:
         return
     blank = values == ""
@@ -311,7 +603,7 @@ def _check_blanks(values: pd.Series, column: Column, path: Path) -> None:
         )
 
 
-def _convert_flags(values: pd.Series, column: Column, path: Path) -> pd.Series:
+def _convert_flags(values: pd.Series, column: Column, path: Source) -> pd.Series:
     lowered = values.str.lower()
     unknown = ~lowered.isin(TRUE_WORDS | FALSE_WORDS)
     if unknown.any():
@@ -326,13 +618,13 @@ def _convert_flags(values: pd.Series, column: Column, path: Path) -> pd.Series:
     return lowered.isin(TRUE_WORDS)
 
 
-def _convert_numbers(values: pd.Series, column: Column, path: Path) -> pd.Series:
+def _convert_numbers(values: pd.Series, column: Column, path: Source) -> pd.Series:
     numbers = pd.to_numeric(values.where(values != ""), errors="coerce").astype(float)
     bad_text = numbers.isna() & (values != "")
     if bad_text.any():
         index = int(np.flatnonzero(bad_text.to_numpy())[0])
         raise TableError(
-            "not a number",
+            "not a number" + _date_words(values.iloc[index]),
             source=path,
             location=f"row {spreadsheet_row(index)}, column {column.name!r}",
             expected=column.meaning or "a number",
@@ -344,7 +636,18 @@ def _convert_numbers(values: pd.Series, column: Column, path: Path) -> pd.Series
     return numbers
 
 
-def _check_range(numbers: pd.Series, column: Column, path: Path) -> None:
+def _date_words(text: str) -> str:
+    """Words saying that ``text`` is a date (and whether in ISO form), or ``""``."""
+    if ISO_DATE.match(text):
+        return ": a date"
+    if DATE_LIKE.match(text):
+        return (
+            ": a date, and not in ISO form (YYYY-MM-DD; 12/1/2026 may be 1 December or 12 January)"
+        )
+    return ""
+
+
+def _check_range(numbers: pd.Series, column: Column, path: Source) -> None:
     finite = numbers.to_numpy()
     problems = np.isinf(finite)
     if column.minimum is not None:
@@ -377,7 +680,7 @@ def _range_words(column: Column) -> str:
     return f"a number {bounds}{unit}".strip()
 
 
-def check_unique(frame: pd.DataFrame, keys: list[str], path: Path) -> None:
+def check_unique(frame: pd.DataFrame, keys: list[str], path: Source) -> None:
     """Raise :class:`TableError` at the first row repeating an earlier ``keys`` combination."""
     duplicated = frame.duplicated(subset=keys, keep="first").to_numpy()
     if duplicated.any():
@@ -398,7 +701,7 @@ def plain_value(value: object) -> object:
 
 
 def check_known(
-    frame: pd.DataFrame, column: str, known: set[str], path: Path, *, known_from: str
+    frame: pd.DataFrame, column: str, known: set[str], path: Source, *, known_from: str
 ) -> None:
     """Raise :class:`TableError` at the first value of ``column`` not in ``known``."""
     unknown = ~frame[column].isin(known).to_numpy()

@@ -13,7 +13,14 @@ import numpy as np
 import pandas as pd
 
 from nutricap.errors import TableError
-from nutricap.inputs.columns import FIRST_YEAR, LAST_YEAR, Column, read_csv_table, spreadsheet_row
+from nutricap.inputs.columns import (
+    FIRST_YEAR,
+    LAST_YEAR,
+    Column,
+    Source,
+    read_csv_table,
+    spreadsheet_row,
+)
 from nutricap.science import population
 
 COUNT_COLUMNS = [
@@ -37,7 +44,7 @@ TOTAL_LABEL = "total"
 ROW_CONVENTION = "rows are spreadsheet rows: the header is row 1, the first data row is row 2"
 
 
-def read_counts(path: Path) -> pd.DataFrame:
+def read_counts(path: Source) -> pd.DataFrame:
     """Read and validate the counts table.
 
     Returns

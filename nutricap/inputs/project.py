@@ -13,12 +13,12 @@ import tomllib
 import types
 import typing
 from pathlib import Path
-from typing import Literal
+from typing import Annotated, Literal
 
 from pydantic import BaseModel, Field, ValidationError, model_validator
 
 from nutricap.errors import FILE_MISSING, ProjectFileError, file_problem
-from nutricap.inputs.columns import FIRST_YEAR, LAST_YEAR
+from nutricap.inputs.columns import FIRST_YEAR, LAST_YEAR, TableSource
 from nutricap.inputs.raster_config import (
     AvailabilitySection,
     InputPath,
@@ -150,6 +150,53 @@ class ScenarioSection(StrictSection):
         return self
 
 
+ColumnName = Annotated[str, Field(min_length=1)]
+ColumnMap = dict[ColumnName, ColumnName]
+
+
+class ColumnsSection(StrictSection):
+    """``[columns.KEY]``: our column name → the file's own, for each input (layers included).
+
+    ``treatments`` and ``treatment_responses`` apply to every scenario's files.
+    """
+
+    forage_classes: ColumnMap = Field(default_factory=dict)
+    plots: ColumnMap = Field(default_factory=dict)
+    animal_classes: ColumnMap = Field(default_factory=dict)
+    counts: ColumnMap = Field(default_factory=dict)
+    nutritional_states: ColumnMap = Field(default_factory=dict)
+    units: ColumnMap = Field(default_factory=dict)
+    strata: ColumnMap = Field(default_factory=dict)
+    treatments: ColumnMap = Field(default_factory=dict)
+    treatment_responses: ColumnMap = Field(default_factory=dict)
+    strata_codes: ColumnMap = Field(default_factory=dict)
+    calibration_plots: ColumnMap = Field(default_factory=dict)
+
+
+SheetName = Annotated[str, Field(min_length=1, max_length=31)]  # Excel's longest sheet name
+
+
+class SheetsSection(StrictSection):
+    """``[sheets]``: the sheet to read of a table given as an ``.xlsx`` workbook (default:
+    the first)."""
+
+    forage_classes: SheetName | None = None
+    plots: SheetName | None = None
+    animal_classes: SheetName | None = None
+    counts: SheetName | None = None
+    nutritional_states: SheetName | None = None
+    treatment_responses: SheetName | None = None
+    strata_codes: SheetName | None = None
+    calibration_plots: SheetName | None = None
+
+
+#: Inputs whose project key is not ``inputs.KEY``: the key of their path.
+SOURCE_PATH_KEYS = {
+    "strata_codes": "rasters.strata.codes",
+    "calibration_plots": "rasters.calibrated.plots",
+}
+
+
 class ProjectConfig(StrictSection):
     """The whole project file."""
 
@@ -163,6 +210,8 @@ class ProjectConfig(StrictSection):
     scenarios: dict[str, ScenarioSection] = Field(default_factory=dict)
     rasters: RasterSection | None = None
     availability: AvailabilitySection | None = None
+    columns: ColumnsSection = ColumnsSection()
+    sheets: SheetsSection = SheetsSection()
 
     @model_validator(mode="before")
     @classmethod
@@ -186,6 +235,18 @@ class ProjectConfig(StrictSection):
             )
         return self
 
+    def given_inputs(self) -> set[str]:
+        """The keys of ``[columns]`` and ``[sheets]`` naming an input this project reads."""
+        inputs = self.inputs
+        given = {key for key in InputsSection.model_fields if getattr(inputs, key) is not None}
+        if self.scenarios:
+            given |= {"treatments", "treatment_responses"}
+        if self.strata_as_raster:
+            given.add("strata_codes")
+        if self.rasters is not None and self.rasters.calibrated is not None:
+            given.add("calibration_plots")
+        return given
+
     @property
     def strata_as_raster(self) -> bool:
         """Whether the strata map is a categorical raster (``[rasters.strata]``)."""
@@ -206,6 +267,39 @@ class Project:
     def __init__(self, path: Path, config: ProjectConfig) -> None:
         self.path = path
         self.config = config
+        self._sources: dict[tuple[str, Path], TableSource] = {}
+
+    def source(self, key: str, path: Path | None = None) -> TableSource:
+        """Input ``key`` (``"plots"``, ``"units"``, ``"treatments"``...) with the user's column
+        names (``[columns.KEY]``) and sheet (``[sheets] KEY``); ``path`` for the inputs of
+        scenarios. The same object for the same file: it records what was read under which
+        names (:meth:`column_names`)."""
+        if path is None:
+            path = self.input_paths()[SOURCE_PATH_KEYS.get(key, key)]
+        cached = self._sources.get((key, path))
+        if cached is None:
+            cached = TableSource(
+                path,
+                key,
+                columns=dict(getattr(self.config.columns, key)),
+                sheet=getattr(self.config.sheets, key, None),
+                project_file=self.path,
+            )
+            self._sources[(key, path)] = cached
+        return cached
+
+    def column_names(self) -> dict[str, dict]:
+        """The inputs read under other column names than ours, by file: the input's key, the
+        user's mapping and the names recognised (a shapefile's 10-character forms)."""
+        found = {}
+        for (key, path), source in sorted(self._sources.items(), key=lambda item: str(item[0])):
+            if source.columns or source.recognised:
+                found[str(path)] = {
+                    "input": key,
+                    "mapped": dict(source.columns),
+                    "recognised": dict(source.recognised),
+                }
+        return found
 
     @property
     def folder(self) -> Path:
@@ -269,8 +363,26 @@ def load_project(path: str | Path) -> Project:
     except ValidationError as exc:
         raise ProjectFileError(_describe_problems(exc, raw), source=path) from None
     project = Project(path, config)
+    _check_names_for_given_inputs(project)
     _check_inputs_exist(project)
     return project
+
+
+def _check_names_for_given_inputs(project: Project) -> None:
+    """``[columns.KEY]`` and ``[sheets] KEY`` name inputs the project reads (else a typing
+    error, or a file left out, would pass unnoticed)."""
+    given = project.config.given_inputs()
+    for section in ("columns", "sheets"):
+        for key, value in getattr(project.config, section):
+            if value and key not in given:
+                raise ProjectFileError(
+                    f"[{section}] names the input {key!r}, which this project does not read",
+                    source=project.path,
+                    location=f"key '{section}.{key}'",
+                    expected="names for inputs given in [inputs], [scenarios.*] or [rasters]: "
+                    + ", ".join(sorted(given)),
+                    found=repr(key),
+                )
 
 
 def _read_toml(path: Path) -> dict:

@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 
 from nutricap.errors import TableError
-from nutricap.inputs.columns import Column, check_unique, read_csv_table, spreadsheet_row
+from nutricap.inputs.columns import Column, Source, check_unique, read_csv_table, spreadsheet_row
 from nutricap.science.forage_quality import (
     GROSS_ENERGY_KCAL_PER_G_DEFAULT,
     digestible_energy_kcal_per_g,
@@ -136,7 +136,7 @@ ANIMAL_CLASS_COLUMNS = [
 ]
 
 
-def read_forage_classes(path: Path) -> pd.DataFrame:
+def read_forage_classes(path: Source) -> pd.DataFrame:
     """Read the forage-class table and derive DE [kcal/g] and DP [%] for every row.
 
     Rows with a blank ``stratum`` hold a class's values; rows with a stratum
@@ -218,7 +218,7 @@ def _require_class_rows(table: pd.DataFrame, path: Path) -> None:
         )
 
 
-def read_plots(path: Path) -> pd.DataFrame:
+def read_plots(path: Source) -> pd.DataFrame:
     """Read the clip-plot table; return it with a ``biomass_kg_per_ha`` column."""
     table = read_csv_table(path, PLOT_COLUMNS, what="plots table")
     has_frame = {"dry_mass_g", "frame_area_m2"} <= set(table.columns)
@@ -301,7 +301,7 @@ def _require_one_stratum_per_plot(table: pd.DataFrame, path: Path) -> None:
         )
 
 
-def read_animal_classes(path: Path) -> pd.DataFrame:
+def read_animal_classes(path: Source) -> pd.DataFrame:
     """Read the animal-class table (herd composition)."""
     table = read_csv_table(path, ANIMAL_CLASS_COLUMNS, what="animal-class table")
     if "intake_kg_per_day" not in table.columns:

@@ -48,6 +48,7 @@ from rasterio.errors import RasterioIOError
 from nutricap.errors import SpatialError, TableError
 from nutricap.inputs.columns import (
     Column,
+    Source,
     check_known,
     check_unique,
     read_csv_table,
@@ -360,7 +361,7 @@ def binned_loglinear_forage(
     return scale[:, None] * forage
 
 
-def read_calibration_plots(path: Path, known_classes: set[str]) -> pd.DataFrame:
+def read_calibration_plots(path: Source, known_classes: set[str]) -> pd.DataFrame:
     """Read the plots-with-coordinates table; return it with ``biomass_kg_per_ha``.
 
     One row per plot × forage class found (a class not recorded on a plot is 0 there);
@@ -432,7 +433,7 @@ def class_shares(plots: pd.DataFrame, groups: dict[str, list[str]], path: Path) 
     return shares
 
 
-def sample_index(index_path: Path, where: pd.DataFrame, plots_crs: str | None, plots_path: Path):
+def sample_index(index_path: Path, where: pd.DataFrame, plots_crs: str | None, plots_path: Source):
     """The index raster's value at each plot (first band).
 
     Raises :class:`SpatialError` naming the first plot that lies outside the raster or on a
@@ -514,7 +515,7 @@ def calibration_table(models: list[BiomassModel], reasons: list[str], groups: di
 
 
 def fit_groups(
-    plots_path: Path,
+    plots_path: Source,
     index_path: Path,
     groups: dict[str, list[str]],
     choice: str,

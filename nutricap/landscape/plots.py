@@ -9,13 +9,12 @@ from __future__ import annotations
 
 import difflib
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
 from nutricap.errors import TableError
-from nutricap.inputs.columns import check_known
+from nutricap.inputs.columns import Source, check_known
 from nutricap.science.supply import stratum_mean_and_standard_error
 
 
@@ -76,8 +75,8 @@ def stratum_supply(
     classes: list[str],
     map_strata: list[str],
     *,
-    plots_path: Path,
-    strata_path: Path,
+    plots_path: Source,
+    strata_path: Source,
     strata_without_forage: list[str],
 ) -> StratumSupply:
     """Mean, standard error and n of biomass per stratum of the map and forage class.
@@ -105,7 +104,10 @@ def stratum_supply(
 
 
 def _require_plots_everywhere(
-    plots: pd.DataFrame, map_strata: list[str], strata_path: Path, strata_without_forage: list[str]
+    plots: pd.DataFrame,
+    map_strata: list[str],
+    strata_path: Source,
+    strata_without_forage: list[str],
 ) -> None:
     sampled = set(plots["stratum"])
     missing = sorted(set(map_strata) - sampled - set(strata_without_forage))

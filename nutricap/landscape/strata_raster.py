@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from nutricap.errors import TableError
-from nutricap.inputs.columns import Column, check_unique, read_csv_table, spreadsheet_row
+from nutricap.inputs.columns import Column, Source, check_unique, read_csv_table, spreadsheet_row
 
 MAX_CODE = 2**24 - 1
 """Largest code: rasters are read as float32, which holds every integer up to 2^24 exactly."""
@@ -69,7 +69,7 @@ class StrataCodes:
         return lookup
 
 
-def read_strata_codes(path: Path) -> StrataCodes:
+def read_strata_codes(path: Source) -> StrataCodes:
     """Read and check the codes table (whole codes, each listed once)."""
     table = read_csv_table(path, CODE_COLUMNS, what="strata codes table")
     codes = table["code"].to_numpy(dtype=float)

@@ -10,6 +10,7 @@ longitudes and latitudes is refused (its CRS is wrong).
 
 from __future__ import annotations
 
+import warnings
 from contextlib import closing
 from dataclasses import dataclass
 from pathlib import Path
@@ -22,9 +23,19 @@ from pyproj import CRS, Proj
 from shapely.validation import explain_validity
 
 from nutricap.errors import SpatialError
-from nutricap.inputs.columns import closest_name, plain_value
+from nutricap.inputs.columns import (
+    Source,
+    TableSource,
+    apply_column_names,
+    as_source,
+    closest_name,
+    plain_value,
+)
 
 M2_PER_HA = 10_000.0
+DBF_NAME_CHARS = 10
+"""A shapefile's attribute names (dBASE fields) hold at most this many characters; GDAL cuts
+longer names when it writes one and numbers the names a cut makes equal (``current_1``)."""
 OVERLAP_TOLERANCE_M2 = 1.0
 """Two polygons sharing more than this area [m²] count as overlapping."""
 AREAL_SCALE_TOLERANCE = 0.005
@@ -32,6 +43,12 @@ AREAL_SCALE_TOLERANCE = 0.005
 for areas. UTM inside its zone stays within about 0.2 % (point scale k0 = 0.9996 on the central
 meridian, k ≈ k0 (1 + x²/2R²) away from it; Snyder 1987, USGS Professional Paper 1395, from
 memory)."""
+
+
+UNIT_OPTIONAL = ("current_animals",)
+"""Attributes of the units layer read when present."""
+STRATA_OPTIONAL = ("accessible_fraction",)
+"""Attributes of the strata layer read when present (``accessible_fraction`` 1 when absent)."""
 
 
 @dataclass(frozen=True)
@@ -60,19 +77,39 @@ class StratumAreas:
     pieces: gpd.GeoDataFrame | None = None
 
 
-def read_layer(path: Path, *, layer: str | None, columns: list[str], what: str) -> gpd.GeoDataFrame:
-    """Read a vector layer GDAL can open and check its columns, CRS and geometries."""
-    frame = _open_layer(path, layer, what)
+def read_layer(
+    path: Source,
+    *,
+    layer: str | None,
+    columns: list[str],
+    what: str,
+    optional: tuple[str, ...] = (),
+) -> gpd.GeoDataFrame:
+    """Read a vector layer GDAL can open and check its columns, CRS and geometries.
+
+    ``columns`` are required, ``optional`` read when present; both are renamed from the
+    file's names: the user's ``[columns.KEY]`` mapping of a :class:`TableSource` and, in a
+    shapefile, our names cut to 10 characters (``current_an``), recorded in the source.
+    """
+    source = as_source(path)
+    frame = _open_layer(source, layer, what)
     if frame.empty:
-        raise SpatialError(f"{what} has no features", source=path, expected="polygons")
+        raise SpatialError(f"{what} has no features", source=source, expected="polygons")
+    declared = [*columns, *optional]
+    frame = frame.rename(columns=_layer_renaming(frame, source, layer, declared, what))
     for column in columns:
         if column not in frame.columns:
             attributes = [str(c) for c in frame.columns if c != "geometry"]
             close = closest_name(column, attributes)
             raise SpatialError(
                 f"{what} has no column {column!r}"
-                + (f"; did you mean to name {close!r} {column!r}?" if close else ""),
-                source=path,
+                + (
+                    f"; did you mean to name {close!r} {column!r}? (or map it in the project "
+                    f"file: [{source.key_of('columns')}] {column} = {close!r})"
+                    if close
+                    else ""
+                ),
+                source=source,
                 location=f"attribute {column!r}",
                 expected=f"attribute {column!r}",
                 found="attributes " + ", ".join(map(repr, attributes)),
@@ -80,17 +117,84 @@ def read_layer(path: Path, *, layer: str | None, columns: list[str], what: str) 
     if frame.crs is None:
         raise SpatialError(
             f"{what} has no coordinate reference system",
-            source=path,
+            source=source,
             expected="a layer with a defined CRS (GeoPackage preferred)",
             found="none",
         )
-    _check_on_earth(frame, path, what)
-    _check_geometries(frame, path, what)
-    _check_geographic_range(frame, path, what)
+    _check_on_earth(frame, source, what)
+    _check_geometries(frame, source, what)
+    _check_geographic_range(frame, source, what)
     return frame
 
 
-def _check_on_earth(frame: gpd.GeoDataFrame, path: Path, what: str) -> None:
+def _layer_renaming(
+    frame: gpd.GeoDataFrame,
+    source: TableSource,
+    layer: str | None,
+    declared: list[str],
+    what: str,
+) -> dict[str, str]:
+    """File's name → ours: the user's mapping, then our long names cut to 10 characters."""
+    names = [str(c) for c in frame.columns if c != frame.geometry.name]
+    renaming = apply_column_names(names, source, declared, what)
+    shapefile = _is_shapefile(source.path, layer)
+    for ours in declared:
+        cut = ours[:DBF_NAME_CHARS]
+        if ours in names or ours in source.columns or cut == ours or cut not in names:
+            continue
+        if cut in renaming:  # the user mapped that column to another of ours
+            continue
+        twins = [n for n in names if n != cut and _same_cut(n, ours)]
+        others = [o for o in declared if o != ours and o[:DBF_NAME_CHARS] == cut]
+        if not shapefile or twins or others:
+            _refuse_cut_name(source, names, ours, cut, [*twins, *others], what)
+        renaming[cut] = ours
+        source.recognised[ours] = cut
+    return renaming
+
+
+def _same_cut(name: str, ours: str) -> bool:
+    """Whether ``name`` is GDAL's numbered form of ``ours`` cut short (``current_1``)."""
+    stem, _, number = name.rpartition("_")
+    return number.isdigit() and bool(stem) and ours.startswith(stem)
+
+
+def _refuse_cut_name(
+    source: TableSource, names: list[str], ours: str, cut: str, rivals: list[str], what: str
+) -> None:
+    line = f"[{source.key_of('columns')}] {ours} = {cut!r}"
+    if rivals:
+        why = f"is {ours!r} cut to {DBF_NAME_CHARS} characters, but so could be " + ", ".join(
+            map(repr, rivals)
+        )
+    else:
+        why = f"looks like {ours!r} cut to {DBF_NAME_CHARS} characters (as a shapefile cuts it)"
+    raise SpatialError(
+        f"{what} attribute {cut!r} {why}; say which column is {ours!r} in the project file",
+        source=source.path,
+        location=f"attribute {cut!r}",
+        expected=f"attribute {ours!r}, or the line {line} under the project file's columns",
+        found="attributes " + ", ".join(map(repr, names)),
+    )
+
+
+def _is_shapefile(path: Path, layer: str | None) -> bool:
+    """Whether ``path`` is read by GDAL's shapefile driver (``.shp``, ``.dbf``, a folder or
+    zip of them): its attribute names were cut to 10 characters."""
+    suffix = path.suffix.lower()
+    if suffix in (".shp", ".dbf", ".shz"):
+        return True
+    if suffix not in (".zip", "") and not path.is_dir():
+        return False
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # several layers, none named: the first is asked
+            return pyogrio.read_info(path, layer=layer)["driver"] == "ESRI Shapefile"
+    except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, ValueError):
+        return False
+
+
+def _check_on_earth(frame: gpd.GeoDataFrame, path: Source, what: str) -> None:
     """Refuse a local (engineering) CRS: without a datum on the Earth the layer can be set
     neither on the other layers nor on an equal-area projection."""
     crs = CRS.from_user_input(frame.crs)
@@ -104,7 +208,8 @@ def _check_on_earth(frame: gpd.GeoDataFrame, path: Path, what: str) -> None:
         )
 
 
-def _open_layer(path: Path, layer: str | None, what: str) -> gpd.GeoDataFrame:
+def _open_layer(source: TableSource, layer: str | None, what: str) -> gpd.GeoDataFrame:
+    path = source.path
     if layer is None:
         layer = _only_spatial_layer(path, what)
     try:
@@ -230,7 +335,7 @@ def _only_spatial_layer(path: Path, what: str) -> str | None:
     return spatial[0] if spatial else None
 
 
-def _check_geographic_range(frame: gpd.GeoDataFrame, path: Path, what: str) -> None:
+def _check_geographic_range(frame: gpd.GeoDataFrame, path: Source, what: str) -> None:
     """A layer labelled geographic must have longitudes and latitudes (a mislabelled CRS?)."""
     if not CRS.from_user_input(frame.crs).is_geographic:
         return
@@ -255,19 +360,21 @@ def _check_geographic_range(frame: gpd.GeoDataFrame, path: Path, what: str) -> N
         )
 
 
-def read_units(path: Path, layer: str | None) -> gpd.GeoDataFrame:
+def read_units(path: Source, layer: str | None) -> gpd.GeoDataFrame:
     """Read the management units.
 
     ``unit_id`` must be filled and unique; ``current_animals``, when present, >= 0.
     """
-    units = read_layer(path, layer=layer, columns=["unit_id"], what="units layer")
+    units = read_layer(
+        path, layer=layer, columns=["unit_id"], optional=UNIT_OPTIONAL, what="units layer"
+    )
     _require_filled_text(units, "unit_id", path, "units layer")
     duplicated = units["unit_id"].duplicated().to_numpy()
     if duplicated.any():
         raise SpatialError(
             "duplicate unit_id",
             source=path,
-            location=_feature(units, duplicated),
+            location=_feature(units, duplicated, "unit_id"),
             expected="each unit_id once",
             found=repr(units["unit_id"][duplicated].iloc[0]),
         )
@@ -276,12 +383,14 @@ def read_units(path: Path, layer: str | None) -> gpd.GeoDataFrame:
     return units
 
 
-def read_strata(path: Path, layer: str | None) -> gpd.GeoDataFrame:
+def read_strata(path: Source, layer: str | None) -> gpd.GeoDataFrame:
     """Read the vegetation strata.
 
     ``stratum`` must be filled; ``accessible_fraction`` lies in [0, 1] (default 1).
     """
-    strata = read_layer(path, layer=layer, columns=["stratum"], what="strata layer")
+    strata = read_layer(
+        path, layer=layer, columns=["stratum"], optional=STRATA_OPTIONAL, what="strata layer"
+    )
     _require_filled_text(strata, "stratum", path, "strata layer")
     if "accessible_fraction" in strata.columns:
         _require_numbers(strata, "accessible_fraction", path, "strata layer", low=0.0, high=1.0)
@@ -290,14 +399,14 @@ def read_strata(path: Path, layer: str | None) -> gpd.GeoDataFrame:
     return strata
 
 
-def _require_filled_text(frame: gpd.GeoDataFrame, column: str, path: Path, what: str) -> None:
+def _require_filled_text(frame: gpd.GeoDataFrame, column: str, path: Source, what: str) -> None:
     text = frame[column].astype("string").str.strip()
     blank = (text.isna() | (text == "")).to_numpy()
     if blank.any():
         raise SpatialError(
             f"{what} has an empty {column}",
             source=path,
-            location=_feature(frame, blank),
+            location=_feature(frame, blank, column),
             expected=f"a {column} for every feature",
             found="an empty value",
         )
@@ -305,7 +414,7 @@ def _require_filled_text(frame: gpd.GeoDataFrame, column: str, path: Path, what:
 
 
 def _require_numbers(
-    frame: gpd.GeoDataFrame, column: str, path: Path, what: str, *, low: float, high: float | None
+    frame: gpd.GeoDataFrame, column: str, path: Source, what: str, *, low: float, high: float | None
 ) -> None:
     values = pd.to_numeric(frame[column], errors="coerce").to_numpy(dtype=float)
     bad = ~np.isfinite(values) | (values < low)
@@ -316,14 +425,14 @@ def _require_numbers(
         raise SpatialError(
             f"{what} has a bad {column}",
             source=path,
-            location=_feature(frame, bad),
+            location=_feature(frame, bad, column),
             expected=f"a number {bounds}",
             found=repr(plain_value(frame[column][bad].iloc[0])),
         )
     frame[column] = values
 
 
-def _check_geometries(frame: gpd.GeoDataFrame, path: Path, what: str) -> None:
+def _check_geometries(frame: gpd.GeoDataFrame, path: Source, what: str) -> None:
     geometry = frame.geometry
     empty = (geometry.isna() | geometry.is_empty).to_numpy()
     if empty.any():
@@ -356,9 +465,10 @@ def _check_geometries(frame: gpd.GeoDataFrame, path: Path, what: str) -> None:
         )
 
 
-def _feature(frame: gpd.GeoDataFrame, mask: np.ndarray) -> str:
+def _feature(frame: gpd.GeoDataFrame, mask: np.ndarray, column: str | None = None) -> str:
     index = int(np.flatnonzero(mask)[0])
-    return f"feature {index + 1} (of {len(frame)})"
+    attribute = f", attribute {column!r}" if column is not None else ""
+    return f"feature {index + 1} (of {len(frame)}){attribute}"
 
 
 def choose_area_crs(units: gpd.GeoDataFrame) -> tuple[CRS, str]:
@@ -408,7 +518,7 @@ def _centre_lon_lat(units: gpd.GeoDataFrame) -> tuple[float, float]:
     return (west + east) / 2.0, (south + north) / 2.0
 
 
-def check_no_overlaps(frame: gpd.GeoDataFrame, id_column: str, path: Path, what: str) -> None:
+def check_no_overlaps(frame: gpd.GeoDataFrame, id_column: str, path: Source, what: str) -> None:
     """Raise :class:`SpatialError` when two polygons share more than the tolerance."""
     left, right = frame.sindex.query(frame.geometry, predicate="intersects")
     pairs = left < right
@@ -436,7 +546,7 @@ def check_no_overlaps(frame: gpd.GeoDataFrame, id_column: str, path: Path, what:
 
 
 def overlay_strata_on_units(
-    units: gpd.GeoDataFrame, strata: gpd.GeoDataFrame, *, units_path: Path, strata_path: Path
+    units: gpd.GeoDataFrame, strata: gpd.GeoDataFrame, *, units_path: Source, strata_path: Source
 ) -> StratumAreas:
     """Hectares of each stratum in each unit, in the area CRS.
 
@@ -465,4 +575,4 @@ def overlay_strata_on_units(
 
 
 def _extra_unit_columns(units: gpd.GeoDataFrame) -> list[str]:
-    return [name for name in ("current_animals",) if name in units.columns]
+    return [name for name in UNIT_OPTIONAL if name in units.columns]

@@ -38,14 +38,14 @@ def requirement_table(project: Project) -> tuple[pd.DataFrame, list[str]]:
     read and checked like every other table. A user's table under which NCC could exceed ECC
     (a state asking less than maintenance of its season) is used as given, with a note.
     """
-    path = project.input_path("nutritional_states")
-    if path is None:
+    if project.config.inputs.nutritional_states is None:
         return energetics.NUTRITIONAL_STATES, []
+    path = project.source("nutritional_states")
     frame = read_csv_table(path, STATE_TABLE_COLUMNS, what="nutritional-state table")
     for optional in ("scope", "description"):
         if optional not in frame.columns:
             frame[optional] = ""
-    table = energetics.check_nutritional_states(frame, source=str(path))
+    table = energetics.check_nutritional_states(frame, source=path)
     problems = energetics.capacity_ordering_problems(table)
     notes = [f"{path.name}: {problem}: NCC can exceed ECC" for problem in problems]
     return table, notes
@@ -86,7 +86,7 @@ def _check_states(animals: pd.DataFrame, project: Project, table: pd.DataFrame) 
         except InputError as exc:
             raise TableError(
                 exc.message,
-                source=project.input_path("animal_classes"),
+                source=project.source("animal_classes"),
                 location=f"row {spreadsheet_row(index)}, column 'state'",
                 expected=exc.expected,
                 found=repr(state),
@@ -226,7 +226,7 @@ def _refuse_impossible_diet(
     raise TableError(
         f"intake too small for the requirement of {row['animal_class']!r} in state {state!r}: "
         f"its diet would need {' and '.join(too_rich)}",
-        source=project.input_path("animal_classes"),
+        source=project.source("animal_classes"),
         location=f"row {spreadsheet_row(index)}, column "
         + ("'intake_kg_per_day'" if given else "'body_mass_kg'"),
         expected=f"an intake in kg of dry matter per animal per day at which the diet needs at "
@@ -256,7 +256,7 @@ def require_protein_values(forage_classes: pd.DataFrame, project: Project) -> No
         index = int(np.flatnonzero(blank)[0])
         raise TableError(
             "crude protein missing while the target requires digestible protein",
-            source=project.input_path("forage_classes"),
+            source=project.source("forage_classes"),
             location=f"row {spreadsheet_row(index)}, column 'cp_pct'",
             expected="crude protein in percent of dry matter (or protein = false in [target])",
             found="an empty cell",

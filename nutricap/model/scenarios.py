@@ -13,7 +13,6 @@ set beside the baseline.
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
-from pathlib import Path
 
 import geopandas as gpd
 import numpy as np
@@ -24,6 +23,7 @@ from nutricap.inputs.columns import (
     FIRST_YEAR,
     LAST_YEAR,
     Column,
+    Source,
     check_unique,
     plain_value,
     read_csv_table,
@@ -87,7 +87,8 @@ def load_scenario(project: Project, name: str, areas: StratumAreas, strata: list
     section = _section(project, name)
     treatments_path = (project.folder / section.treatments).resolve()
     responses_path = (project.folder / section.responses).resolve()
-    responses = read_responses(responses_path)
+    responses = read_responses(project.source("treatment_responses", responses_path))
+    treatments_path = project.source("treatments", treatments_path)
     treatments = read_treatments(treatments_path, section.treatments_layer, strata)
     known = set(responses["treatment"])
     missing = sorted(set(treatments["treatment"]) - known)
@@ -117,7 +118,7 @@ def _section(project: Project, name: str) -> ScenarioSection:
     return scenarios[name]
 
 
-def read_responses(path: Path) -> pd.DataFrame:
+def read_responses(path: Source) -> pd.DataFrame:
     """Read the response table; each row names a forage class or a growth form, not both."""
     table = read_csv_table(path, RESPONSE_COLUMNS, what="treatment-response table")
     for name in ("forage_class", "growth_form"):
@@ -140,12 +141,18 @@ def read_responses(path: Path) -> pd.DataFrame:
     return table.sort_values(keys, kind="stable").reset_index(drop=True)
 
 
-def read_treatments(path: Path, layer: str | None, strata: list[str]) -> gpd.GeoDataFrame:
+def read_treatments(path: Source, layer: str | None, strata: list[str]) -> gpd.GeoDataFrame:
     """Read the treatment polygons.
 
     Attributes: ``treatment`` (type), whole-number ``year``, optional ``new_stratum``.
     """
-    frame = read_layer(path, layer=layer, columns=["treatment", "year"], what="treatments layer")
+    frame = read_layer(
+        path,
+        layer=layer,
+        columns=["treatment", "year"],
+        optional=("new_stratum",),
+        what="treatments layer",
+    )
     frame["treatment"] = frame["treatment"].astype(str).str.strip()
     years = pd.to_numeric(frame["year"], errors="coerce").to_numpy(dtype=float)
     with np.errstate(invalid="ignore"):

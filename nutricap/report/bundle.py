@@ -82,6 +82,7 @@ def write_estimate(
             settings=config.model_dump(mode="json"),
             derived=_derived_values(result),
             checksums=None if checksums is None else checksums.result(),
+            column_names=project.column_names(),
         )
         write_json(manifest, folder / "run.json")
         if report:

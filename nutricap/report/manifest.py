@@ -80,9 +80,51 @@ def package_versions() -> dict[str, str]:
     return found
 
 
+SHAPEFILE_PARTS = (
+    ".shp",
+    ".shx",
+    ".dbf",
+    ".prj",
+    ".cpg",
+    ".qix",
+    ".sbn",
+    ".sbx",
+    ".fbn",
+    ".fbx",
+    ".ain",
+    ".aih",
+    ".atx",
+    ".ixs",
+    ".mxs",
+    ".qmd",
+    ".shp.xml",
+)
+"""Files of one shapefile: the geometry (.shp), its index (.shx), the attributes (.dbf), the
+CRS (.prj), the text encoding (.cpg) and the sidecars GIS programs add (spatial indexes,
+metadata). GDAL reads them beside the .shp; each can change the layer read."""
+
+
+def with_shapefile_parts(paths) -> list[Path]:
+    """``paths`` with every existing part of each shapefile among them (same stem, any case)."""
+    found = []
+    for path in map(Path, paths):
+        found.append(path)
+        if path.suffix.lower() not in (".shp", ".dbf"):
+            continue
+        stem = path.name[: -len(path.suffix)].lower()
+        if path.parent.is_dir():
+            found += [
+                part
+                for part in path.parent.iterdir()
+                if part.name.lower() in {stem + suffix for suffix in SHAPEFILE_PARTS}
+            ]
+    return found
+
+
 def input_checksums(paths) -> dict[str, dict]:
-    """SHA-256 and size of every existing file among ``paths``, by path (sorted)."""
-    files = sorted({Path(path) for path in paths})
+    """SHA-256 and size of every existing file among ``paths`` (every part of a shapefile),
+    by path (sorted)."""
+    files = sorted(set(with_shapefile_parts(paths)))
     return {
         str(path): {"sha256": sha256_of_file(path), "bytes": path.stat().st_size}
         for path in files
@@ -98,11 +140,13 @@ def build_manifest(
     settings: dict,
     derived: dict,
     checksums: dict[str, dict] | None = None,
+    column_names: dict[str, dict] | None = None,
 ) -> dict:
     """Assemble the manifest dictionary (JSON-serialisable).
 
     ``checksums`` (from :func:`input_checksums`) may be computed ahead, e.g. while the
-    estimate runs; otherwise they are computed here.
+    estimate runs; otherwise they are computed here. ``column_names``: the inputs read under
+    the file's own column names, by file (``Project.column_names()``).
     """
     if checksums is None:
         checksums = input_checksums([project_path, *input_paths.values()])
@@ -111,6 +155,7 @@ def build_manifest(
         "started_utc": dt.datetime.now(dt.UTC).isoformat(timespec="seconds"),
         "project_file": str(project_path),
         "inputs": checksums,
+        "column_names": column_names or {},
         "settings": settings,
         "derived": derived,
         "versions": package_versions(),

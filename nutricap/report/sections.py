@@ -103,6 +103,7 @@ def inputs(estimate: Estimate, project: Project, manifest: dict, *, n_animal_cla
     }
     return {
         "files": _input_files(manifest, project),
+        "column_names": _column_names(manifest, project),
         "counts": {key: f"{value:,}" for key, value in counts.items()},
         "settings": settings,
         "notes": list(estimate.notes),
@@ -125,6 +126,23 @@ def _input_files(manifest: dict, project: Project) -> list[dict]:
                 "bytes": f"{info['bytes']:,}" if "bytes" in info else "–",
             }
         )
+    return rows
+
+
+def _column_names(manifest: dict, project: Project) -> list[dict]:
+    """One row per column read under another name: the file, its column, ours, and why."""
+    rows = []
+    for path, names in manifest.get("column_names", {}).items():
+        file = _relative(Path(path), project.folder)
+        key = names.get("input", "")
+        for why, mapping in (
+            (f"[columns.{key}] in the project file", names.get("mapped", {})),
+            ("a shapefile's name cut to 10 characters", names.get("recognised", {})),
+        ):
+            rows += [
+                {"file": file, "theirs": theirs, "ours": ours, "why": why}
+                for ours, theirs in mapping.items()
+            ]
     return rows
 
 

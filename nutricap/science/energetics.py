@@ -223,7 +223,7 @@ def _normalise_season(season: object) -> str:
 
 
 def check_nutritional_states(
-    table: pd.DataFrame, source: str = "nutritional states"
+    table: pd.DataFrame, source: object = "nutritional states"
 ) -> pd.DataFrame:
     """Validate a nutritional-state parameter table and return a cleaned copy.
 
@@ -231,8 +231,9 @@ def check_nutritional_states(
     ----------
     table : pandas.DataFrame
         Columns at least :data:`STATE_TABLE_COLUMNS`; one row per (state, season).
-    source : str
-        Name of the table shown in error messages (e.g. its file name).
+    source : str or object
+        The table shown in error messages (its file name, or an object the error classes
+        take as a source).
 
     Returns
     -------

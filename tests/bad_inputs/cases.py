@@ -62,6 +62,9 @@ class Case:
     """Why nutricap does not yet behave as the case asks (the test is then a strict xfail)."""
     prepare_out: Recipe | None = None
     """Fills the output folder before the run (then ``estimate --overwrite`` alone runs)."""
+    needs: str | None = None
+    """A module the recipe or the run needs beyond the test tools (the case is skipped when it
+    cannot be imported, e.g. ``openpyxl`` for a workbook)."""
 
 
 # --- recipes ---------------------------------------------------------------------------------
@@ -449,6 +452,64 @@ NO_ESCAPE_AND = r"^(?![\s\S]*\x1b)[\s\S]*"
 """Pattern prefix: stdout holds no ESC character at all (and then what follows)."""
 
 
+# --- recipes of issue 13: column mapping, shapefiles, spreadsheets ----------------------------
+
+
+def as_shapefile(name: str, change=lambda g: g) -> Recipe:
+    """Write layer ``name`` (GeoPackage) as a shapefile, as GDAL writes one (names cut to 10
+    characters), and point the project file at it."""
+
+    def recipe(folder: Path) -> None:
+        path = folder / name
+        frame = change(gpd.read_file(path))
+        path.unlink()
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # GDAL's note that it cuts names: on purpose
+            frame.to_file(path.with_suffix(".shp"), driver="ESRI Shapefile")
+        replace_text("project.toml", f'"{name}"', f'"{path.stem}.shp"')(folder)
+
+    return recipe
+
+
+def as_workbook(name: str, sheet: str = "Sheet1", change=None) -> Recipe:
+    """Write CSV table ``name`` as an .xlsx workbook (numbers as numbers) on ``sheet``, after
+    a sheet of notes, change cells (``change(worksheet)``) and point the project file at it."""
+
+    def recipe(folder: Path) -> None:
+        import openpyxl
+
+        path = folder / name
+        with path.open(newline="", encoding="utf-8") as stream:
+            rows = list(csv.reader(stream))
+        book = openpyxl.Workbook()
+        book.active.title = "Notes"
+        book.active["A1"] = "invented for the example"
+        worksheet = book.create_sheet(sheet)
+        for row in rows:
+            worksheet.append([_number_or_text(cell) for cell in row])
+        if change is not None:
+            change(worksheet)
+        book.save(path.with_suffix(".xlsx"))
+        path.unlink()
+        replace_text("project.toml", f'"{name}"', f'"{path.stem}.xlsx"')(folder)
+        append_text("project.toml", f'[sheets]\n{path.stem} = "{sheet}"')(folder)
+
+    return recipe
+
+
+def _number_or_text(cell: str) -> float | str:
+    try:
+        return float(cell)
+    except ValueError:
+        return cell
+
+
+def map_columns(table: str, **names: str) -> Recipe:
+    """Add ``[columns.TABLE]`` with our name = the file's to the project file."""
+    lines = "\n".join(f'{ours} = "{theirs}"' for ours, theirs in names.items())
+    return append_text("project.toml", f"[columns.{table}]\n{lines}")
+
+
 # --- the corpus ------------------------------------------------------------------------------
 
 P, F, A = "plots.csv", "forage_classes.csv", "animal_classes.csv"
@@ -571,13 +632,15 @@ CASES = [
     Case(
         "strata: accessible fraction above 1",
         edit_layer(S, lambda g: g.assign(accessible_fraction=[1.5] + [1.0] * (len(g) - 1))),
-        r"strata\.gpkg: feature 1 \(of 70\): strata layer has a bad accessible_fraction "
+        r"strata\.gpkg: feature 1 \(of 70\), attribute 'accessible_fraction': strata layer has a "
+        r"bad accessible_fraction "
         r"\(expected a number between 0 and 1; found 1\.5\)",
     ),
     Case(
         "units: negative current animals",
         edit_layer(U, lambda g: g.assign(current_animals=[10, 20, -5, 40, 50, 60])),
-        r"units\.gpkg: feature 3 \(of 6\): units layer has a bad current_animals",
+        r"units\.gpkg: feature 3 \(of 6\), attribute 'current_animals': units layer has a bad "
+        r"current_animals",
     ),
     # Duplicate ids.
     Case(
@@ -600,7 +663,8 @@ CASES = [
     Case(
         "units: id twice",
         edit_layer(U, lambda g: g.assign(unit_id=g["unit_id"].where(g.index != 4, "Coldmarrow"))),
-        r"units\.gpkg: feature 5 \(of 6\): duplicate unit_id .*found 'Coldmarrow'",
+        r"units\.gpkg: feature 5 \(of 6\), attribute 'unit_id': duplicate unit_id .*found "
+        r"'Coldmarrow'",
     ),
     Case(
         "plots: plot in two strata",
@@ -1160,12 +1224,14 @@ CASES = [
     Case(
         "units: an id with an escape sequence, twice",
         set_unit_ids("A", "\x1b[31mB", "C", "\x1b[31mB", "E", "F"),
-        r"units\.gpkg: feature 4 \(of 6\): duplicate unit_id .*found '\\x1b\[31mB'\)$",
+        r"units\.gpkg: feature 4 \(of 6\), attribute 'unit_id': duplicate unit_id .*found "
+        r"'\\x1b\[31mB'\)$",
     ),
     Case(
         "units: an id with a newline, twice (one line)",
         set_unit_ids("A", "B\nnutricap: fake", "C", "D", "B\nnutricap: fake", "F"),
-        r"units\.gpkg: feature 5 \(of 6\): duplicate unit_id .*found 'B\\nnutricap: fake'\)$",
+        r"units\.gpkg: feature 5 \(of 6\), attribute 'unit_id': duplicate unit_id .*found "
+        r"'B\\nnutricap: fake'\)$",
     ),
     # The output folder: --overwrite removes only an earlier run's own, unchanged files.
     Case(
@@ -1199,8 +1265,8 @@ CASES = [
     Case(
         "units: current_animals = inf",
         set_current_animals(1095, 1131, float("inf"), 992, 575, 540),
-        r"units\.gpkg: feature 3 \(of 6\): units layer has a bad current_animals \(expected a "
-        r"number at least 0; found inf\)",
+        r"units\.gpkg: feature 3 \(of 6\), attribute 'current_animals': units layer has a bad "
+        r"current_animals \(expected a number at least 0; found inf\)",
     ),
     Case(
         "project: season_days = true (a boolean is not a number)",
@@ -1253,5 +1319,155 @@ CASES = [
             set_key("inputs", 'nutritional_states = "my_states.csv"'),
         ),
         r"animal_classes\.csv: row 2, column 'state': unknown nutritional state 'gestation'",
+    ),
+    # issue 13: column mapping, shapefiles, spreadsheets
+    Case(
+        "units: mapping names an attribute the layer lacks",
+        map_columns("units", unit_id="UNIT_NAME"),
+        r"project\.toml: key 'columns\.units\.unit_id': \S*units\.gpkg has no column "
+        r"'UNIT_NAME'; did you mean 'unit_id'\?",
+    ),
+    Case(
+        "plots: mapping with a name nutricap does not read",
+        map_columns("plots", plot_idd="plot_id"),
+        r"project\.toml: key 'columns\.plots\.plot_idd': the plots table has no column "
+        r"'plot_idd' to map; did you mean 'plot_id'\?",
+    ),
+    Case(
+        "counts: mapping onto a column beside one of ours",
+        map_columns("counts", count="year"),
+        r"project\.toml: key 'columns\.counts\.count': \S*counts\.csv has a column 'count' of "
+        r"its own besides 'year' mapped to it",
+    ),
+    Case(
+        "forage classes: one column mapped twice",
+        steps(
+            rename_column(F, "cp_pct", "CP"),
+            map_columns("forage_classes", cp_pct="CP", dmd_pct="CP"),
+        ),
+        r"project\.toml: key 'columns\.forage_classes\.dmd_pct': column 'CP' is mapped twice, "
+        r"to 'cp_pct' and 'dmd_pct'",
+    ),
+    Case(
+        "project: mapping for an input the project does not read",
+        map_columns("nutritional_states", state="STATE"),
+        r"project\.toml: key 'columns\.nutritional_states': \[columns\] names the input "
+        r"'nutritional_states', which this project does not read",
+    ),
+    Case(
+        "units: bad value of a mapped attribute names the layer's own",
+        steps(
+            edit_layer(
+                U,
+                lambda g: g.rename(columns={"current_animals": "ELK_NOW"}).assign(
+                    ELK_NOW=[10, 20, -5, 40, 50, 60]
+                ),
+            ),
+            map_columns("units", current_animals="ELK_NOW"),
+        ),
+        r"units\.gpkg: feature 3 \(of 6\), attribute 'ELK_NOW' \(mapped to current_animals\): "
+        r"units layer has a bad current_animals",
+    ),
+    Case(
+        "plots: bad value of a mapped column names the table's own",
+        steps(
+            rename_column(P, "dry_mass_g", "Mass (g)"),
+            set_cell(P, 5, "Mass (g)", "-1"),
+            map_columns("plots", dry_mass_g="Mass (g)"),
+        ),
+        r"plots\.csv: row 5, column 'Mass \(g\)' \(mapped to dry_mass_g\): value out of range",
+    ),
+    Case(
+        "units and strata: shapefiles with names cut to 10 characters (valid)",
+        steps(as_shapefile(U), as_shapefile(S)),
+        r"Total NCC",
+        exit_code=0,
+        verify=same_as_reference,
+    ),
+    Case(
+        "strata: shapefile whose cut name has a numbered twin",
+        as_shapefile(S, lambda g: g.assign(accessible_fraction_2019=0.3)),
+        r"strata\.shp: attribute 'accessible': strata layer attribute 'accessible' is "
+        r"'accessible_fraction' cut to 10 characters, but so could be 'accessib_1'.*"
+        r"\[columns\.strata\] accessible_fraction = 'accessible'",
+    ),
+    Case(
+        "units: GeoPackage attribute named as a shapefile cuts current_animals",
+        edit_layer(U, lambda g: g.rename(columns={"current_animals": "current_an"})),
+        r"units\.gpkg: attribute 'current_an': units layer attribute 'current_an' looks like "
+        r"'current_animals' cut to 10 characters.*\[columns\.units\] current_animals = "
+        r"'current_an'",
+    ),
+    Case(
+        "plots: a sheet named for a CSV table",
+        append_text("project.toml", '[sheets]\nplots = "Field 2026"'),
+        r"project\.toml: key 'sheets\.plots': a sheet is named for \S*plots\.csv, which is not "
+        r"a spreadsheet",
+    ),
+    Case(
+        "plots: an .xls workbook",
+        lambda folder: (
+            shutil.copyfile(folder / P, folder / "plots.xls"),
+            replace_text("project.toml", '"plots.csv"', '"plots.xls"')(folder),
+        ),
+        r"plots\.xls: plots table is a \.xls spreadsheet \(expected a CSV file or an \.xlsx "
+        r"workbook",
+    ),
+    Case(
+        "plots: workbook on a named sheet (valid)",
+        as_workbook(P, "Field 2026"),
+        r"Total NCC",
+        exit_code=0,
+        verify=same_as_reference,
+        needs="openpyxl",
+    ),
+    Case(
+        "plots: workbook without the sheet named",
+        steps(
+            as_workbook(P, "Field 2026"),
+            replace_text("project.toml", 'plots = "Field 2026"', 'plots = "Field 2025"'),
+        ),
+        r"project\.toml: key 'sheets\.plots': \S*plots\.xlsx has no sheet 'Field 2025'; did "
+        r"you mean 'Field 2026'\?",
+        needs="openpyxl",
+    ),
+    Case(
+        "plots: workbook with a negative mass (sheet and row named)",
+        as_workbook(P, "Field 2026", change=lambda sheet: sheet.cell(7, 4, -3.0)),
+        r"plots\.xlsx: sheet 'Field 2026', row 7, column 'dry_mass_g': value out of range",
+        needs="openpyxl",
+    ),
+    Case(
+        "plots: workbook with a non-ISO date for a number",
+        as_workbook(P, "Field 2026", change=lambda sheet: sheet.cell(4, 4, "12/1/2026")),
+        r"plots\.xlsx: sheet 'Field 2026', row 4, column 'dry_mass_g': not a number: a date, "
+        r"and not in ISO form \(YYYY-MM-DD",
+        needs="openpyxl",
+    ),
+    Case(
+        "plots: a text file named .xlsx",
+        lambda folder: (
+            shutil.copyfile(folder / P, folder / "plots.xlsx"),
+            replace_text("project.toml", '"plots.csv"', '"plots.xlsx"')(folder),
+        ),
+        r"plots\.xlsx: plots table cannot be read as an \.xlsx workbook",
+        needs="openpyxl",
+    ),
+    Case(
+        "counts: a year written as a date in month/day/year form",
+        set_cell("counts.csv", 3, "year", "12/1/2026"),
+        r"counts\.csv: row 3, column 'year': not a number: a date, and not in ISO form",
+    ),
+    Case(
+        "forage classes: NA where a blank is allowed (valid)",
+        set_cell(F, 2, "height_cm", "NA"),
+        r"Total NCC",
+        exit_code=0,
+        verify=same_as_reference,
+    ),
+    Case(
+        "forage classes: n/a where a value is required",
+        set_cell(F, 2, "allowable_use", "n/a"),
+        r"forage_classes\.csv: row 2, column 'allowable_use': not a number",
     ),
 ]

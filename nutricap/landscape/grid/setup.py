@@ -69,7 +69,7 @@ def cell_rules(project, forage_classes: pd.DataFrame, classes: list[str], partia
         if missing:
             raise ProjectFileError(
                 f"forage class {missing[0]!r} has no height_cm, which the snow rule needs",
-                source=project.input_path("forage_classes"),
+                source=project.source("forage_classes"),
                 location="column 'height_cm'",
                 expected="a height for every forage class when [availability] snow_depth is set",
                 found=f"{len(missing)} class(es) without: " + ", ".join(map(repr, missing)),
@@ -126,7 +126,7 @@ def strata_map(project, strata: gpd.GeoDataFrame | None) -> StrataMap:
             project.strata_file(),
             polygons=strata,
         )
-    codes = read_strata_codes(project.input_paths()["rasters.strata.codes"])
+    codes = read_strata_codes(project.source("strata_codes"))
     return StrataMap(codes.strata, codes.accessible_fraction, project.strata_file(), codes=codes)
 
 
@@ -141,7 +141,7 @@ def strata_supply(plots, strata: StrataMap, strata_classes, all_classes, project
         plots,
         all_classes,
         map_strata,
-        plots_path=project.input_path("plots"),
+        plots_path=project.source("plots"),
         strata_path=strata.path if strata.codes is None else strata.codes.path,
         strata_without_forage=project.config.supply.strata_without_forage,
     )
@@ -176,7 +176,7 @@ def calibrated_groups(project, calibrated, classes):
     if calibrated is None:
         return [], None
     models, shares, report = fit_groups(
-        project.input_paths()["rasters.calibrated.plots"],
+        project.source("calibration_plots"),
         project.input_paths()["rasters.calibrated.index"],
         calibrated.groups,
         calibrated.model,
@@ -216,7 +216,7 @@ def unit_areas(units, strata: StrataMap, project) -> tuple[gpd.GeoDataFrame, obj
     """Units with their polygon area [ha] in the area CRS (as in the vector path)."""
     area_crs, reason = choose_area_crs(units)
     in_area_crs = units.to_crs(area_crs)
-    check_no_overlaps(in_area_crs, "unit_id", project.input_path("units"), "units")
+    check_no_overlaps(in_area_crs, "unit_id", project.source("units"), "units")
     if strata.polygons is not None:
         check_no_overlaps(
             strata.polygons.to_crs(area_crs), "stratum", strata.path, "strata polygons"

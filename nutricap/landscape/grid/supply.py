@@ -281,7 +281,7 @@ def _assemble(
 
 def _check_units(project, units_table, cells, without_data, specs, grid) -> None:
     """Refuse units with no cell on the grid, no mapped cell, or no cell with data."""
-    units_path = project.input_path("units")
+    units_path = project.source("units")
     ids = units_table["unit_id"].to_numpy()
     on_grid = cells.sum(axis=1)
     mapped = cells[:, :-1].sum(axis=1)
