@@ -407,21 +407,6 @@ def test_report_shows_the_grid_rules_models_and_tables(tmp_path):
     assert "overlaying the strata on the units" not in methods  # the vector path's wording
 
 
-def test_compare_on_a_raster_project_is_refused_before_any_work(landscape, tmp_path, capsys):
-    text = project_text(RASTERS, SNOW) + (
-        '\n[scenarios.thinning]\ntreatments = "units.gpkg"\nresponses = "plots.csv"\n'
-        "first_year = 2027\nlast_year = 2030\n"
-    )
-    (landscape / "compare.toml").write_text(text)
-    out = tmp_path / "compare_out"
-    arguments = ["compare", str(landscape / "compare.toml"), "--scenario", "thinning"]
-    code = main([*arguments, "--out", str(out), "--quiet"])
-    error = capsys.readouterr().err
-    assert code == 2 and not out.exists()
-    assert len(error.strip().splitlines()) == 1
-    assert "key 'scenarios.thinning': treatment scenarios are computed on the polygon path" in error
-
-
 def test_patch_pooling(landscape):
     unit = _grid_run(landscape, RASTERS, SNOW).by_unit.set_index("unit_id")
     patch_result = _grid_run(landscape, RASTERS, SNOW, pooling="patch")
