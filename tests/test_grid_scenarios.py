@@ -10,6 +10,7 @@ and with the baseline itself (an identity response changes nothing).
 
 from __future__ import annotations
 
+import geopandas as gpd
 import numpy as np
 import pandas as pd
 import pytest
@@ -32,24 +33,31 @@ from test_grid_supply import (
     write_landscape,
 )
 
-import geopandas as gpd
 from nutricap.cli import main
 from nutricap.workflow import compare, estimate
 
 M2_PER_HA = 10_000.0
-RESPONSES = """treatment,forage_class,growth_form,years_since,biomass_multiplier,de_shift_kcal_per_g,cp_shift_pct
-thin,grass,,0,0.5,0.1,0
+HEADER = (
+    "treatment,forage_class,growth_form,years_since,biomass_multiplier,de_shift_kcal_per_g,"
+    "cp_shift_pct\n"
+)
+RESPONSES = (
+    HEADER
+    + """thin,grass,,0,0.5,0.1,0
 thin,grass,,5,1.8,0,0
 thin,sage,,0,0.2,0,0
 thin,sage,,10,1.0,0,0
 burn,grass,,0,2.0,0,1.5
 burn,grass,,6,1.2,0,0
 """
-IDENTITY = """treatment,forage_class,growth_form,years_since,biomass_multiplier,de_shift_kcal_per_g,cp_shift_pct
-thin,grass,,0,1,0,0
+)
+IDENTITY = (
+    HEADER
+    + """thin,grass,,0,1,0,0
 thin,,browse,0,1,0,0
 burn,sage,,3,1,0,0
 """
+)
 SCENARIO = """
 [scenarios.work]
 treatments = "treatments.gpkg"
@@ -97,7 +105,7 @@ def _piece_areas_ha(pooled: bool = False):
     strata_names = sorted(strata["stratum"])
     polygon = np.zeros((4, 2, 3))
     for u, unit in enumerate(units.geometry):
-        for s_row, (name, stratum) in enumerate(zip(strata["stratum"], strata.geometry)):
+        for name, stratum in zip(strata["stratum"], strata.geometry):
             s = strata_names.index(name)
             piece = unit.intersection(stratum)
             for t, treated in enumerate(treatments.geometry):

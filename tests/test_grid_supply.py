@@ -22,7 +22,6 @@ import shapely
 from rasterio.transform import from_origin
 from shapely.geometry import Polygon, box
 
-from nutricap.cli import main
 from nutricap.errors import InputError, SpatialError
 from nutricap.inputs.project import load_project
 from nutricap.landscape import calibration
