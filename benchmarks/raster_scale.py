@@ -22,6 +22,16 @@ Each is run ``--repeat`` times (default 3) and the fastest run is kept, since th
 may be shared. The last line printed is exactly
 ``cells=N ratio_to_read_floor=R ratio_to_exactextract=E peak_rss_mb=M`` with R = (b)/(a),
 E = (b)/(c) and M the peak RSS of (b) [MB].
+
+With ``--mosaic`` the landscape of ``--cells`` cells is a GDAL VRT mosaic (one VRTDataset per
+layer, a SimpleSource per tile) of k × k copies of the cached landscape of ``--tile-cells``
+cells (default 1e8: no new raster data is written), with 2,000 units and the strata drawn
+anew over the whole mosaic. Then (a) the read floor of the mosaic, (b) `nutricap estimate` on
+this machine's threads and (d) the same estimate on a Dask LocalCluster of two worker
+processes (``[rasters] dask_scheduler``); exactextract is not run. The last line is then
+``cells=N mosaic_tiles=K ratio_to_read_floor=R peak_rss_mb=M cluster_s=S equal=yes|no``,
+``equal`` saying whether the two estimates' tables and density rasters are the same to the
+last byte. Check on a tiny size first: ``--cells 4000000 --tile-cells 1000000 --repeat 1``.
 """
 
 from __future__ import annotations
@@ -148,7 +158,9 @@ def _voronoi(points: np.ndarray, frame) -> np.ndarray:
     return shapely.intersection(shapely.get_parts(diagram), frame)
 
 
-def _write_vectors(folder: Path, side: int, rng) -> None:
+def _write_vectors(
+    folder: Path, side: int, rng, n_units: int = N_UNITS, tile_side: int | None = None
+) -> None:
     east, south = WEST + side * CELL_M, NORTH - side * CELL_M
     frame = shapely.box(WEST, south, east, NORTH)
     inner = shapely.box(WEST + 45.0, south + 45.0, east - 45.0, NORTH - 45.0)
@@ -156,7 +168,13 @@ def _write_vectors(folder: Path, side: int, rng) -> None:
     def random_points(n):
         return np.column_stack([rng.uniform(WEST, east, n), rng.uniform(south, NORTH, n)])
 
-    units = shapely.intersection(_voronoi(random_points(N_UNITS), frame), inner)
+    seeds = random_points(n_units)
+    if tile_side is not None:  # no seed in a tile's lake: every unit holds cells with data
+        seeds = seeds[~_in_lake(seeds, tile_side)]
+        while seeds.shape[0] < n_units:
+            more = random_points(n_units)
+            seeds = np.vstack([seeds, more[~_in_lake(more, tile_side)]])[:n_units]
+    units = shapely.intersection(_voronoi(seeds, frame), inner)
     gpd.GeoDataFrame(
         {"unit_id": [f"U{i:03d}" for i in range(len(units))]}, geometry=units, crs=CRS
     ).to_file(folder / "units.gpkg", driver="GPKG")
@@ -166,7 +184,15 @@ def _write_vectors(folder: Path, side: int, rng) -> None:
     strata.dissolve("stratum").reset_index().to_file(folder / "strata.gpkg", driver="GPKG")
 
 
-def _write_tables(folder: Path, rng) -> None:
+def _in_lake(points: np.ndarray, tile_side: int) -> np.ndarray:
+    """Points within the lake of their mosaic tile (see _write_layer), with a margin."""
+    tile_m = tile_side * CELL_M
+    x = ((points[:, 0] - WEST) % tile_m) / tile_m
+    y = ((NORTH - points[:, 1]) % tile_m) / tile_m
+    return (x - 0.3) ** 2 + (y - 0.6) ** 2 < 0.003
+
+
+def _write_tables(folder: Path, rng, suffix: str = ".tif") -> None:
     (folder / "forage_classes.csv").write_text(FORAGE_TABLE)
     (folder / "animals.csv").write_text("animal_class,body_mass_kg,share,state\n"
                                         "doe,65,1.0,maintenance\n")  # fmt: skip
@@ -179,13 +205,14 @@ def _write_tables(folder: Path, rng) -> None:
     pd.DataFrame(rows, columns=["plot_id", "stratum", "forage_class", "biomass_kg_per_ha"]).to_csv(
         folder / "plots.csv", index=False
     )
-    biomass = ", ".join(f'{name} = "{name}.tif"' for name in CLASSES)
-    (folder / "project.toml").write_text(PROJECT.replace("BIOMASS", biomass))
+    biomass = ", ".join(f'{name} = "{name}{suffix}"' for name in CLASSES)
+    text = PROJECT.replace("BIOMASS", biomass).replace("snow_depth.tif", f"snow_depth{suffix}")
+    (folder / "project.toml").write_text(text)
 
 
-def read_floor(folder: Path) -> float:
+def read_floor(folder: Path, suffix: str = ".tif") -> float:
     """Seconds to read every raster once, window by window, in one thread."""
-    paths = [folder / f"{name}.tif" for name in layer_names()]
+    paths = [folder / f"{name}{suffix}" for name in layer_names()]
     windows = grid_windows(read_grid(paths[0], "grid"))
     started = time.perf_counter()
     with streaming_env():
@@ -196,10 +223,10 @@ def read_floor(folder: Path) -> float:
     return time.perf_counter() - started
 
 
-def run_estimate(folder: Path) -> tuple[float, float]:
+def run_estimate(folder: Path, project: str = "project.toml", out_name: str = "out"):
     """Wall seconds and peak RSS [MB] of `nutricap estimate` in a child process."""
-    out = folder.parent / "out"
-    command = [sys.executable, "-m", "nutricap", "estimate", str(folder / "project.toml")]
+    out = folder.parent / out_name
+    command = [sys.executable, "-m", "nutricap", "estimate", str(folder / project)]
     command += ["--out", str(out), "--overwrite", "--quiet"]
     started = time.perf_counter()
     subprocess.run(command, check=True, stdout=subprocess.DEVNULL)
@@ -230,11 +257,106 @@ def run_exactextract(folder: Path) -> tuple[float, str]:
     return time.perf_counter() - started, done.stdout.strip()
 
 
+MOSAIC_UNITS = 2_000
+
+
+def build_mosaic(folder: Path, cells: int, tile_cells: int) -> int:
+    """Write the VRT mosaic of k × k copies of the cached ``tile_cells`` landscape into
+    ``folder`` (vectors and tables drawn anew over its extent); return k."""
+    tile_folder = CACHE / f"cells_{tile_cells}" / "inputs"
+    build(tile_folder, tile_cells)
+    tiles = max(1, int(round(np.sqrt(cells / tile_cells))))
+    if (folder / "COMPLETE").exists():
+        return tiles
+    folder.mkdir(parents=True, exist_ok=True)
+    for name in layer_names():
+        write_vrt_mosaic(tile_folder / f"{name}.tif", folder / f"{name}.vrt", tiles)
+    with rasterio.open(folder / f"{CLASSES[0]}.vrt") as src:
+        side = src.width
+    rng = np.random.default_rng(SEED + 1)
+    _write_vectors(folder, side, rng, n_units=MOSAIC_UNITS, tile_side=side // tiles)
+    _write_tables(folder, rng, suffix=".vrt")
+    (folder / "COMPLETE").write_text("ok\n")
+    return tiles
+
+
+def write_vrt_mosaic(tile: Path, path: Path, tiles: int) -> None:
+    """A GDAL VRTDataset (gdal.org/drivers/raster/vrt.html) of ``tiles`` × ``tiles`` copies of
+    the GeoTIFF ``tile`` side by side, one SimpleSource each, with its blocks and nodata."""
+    with rasterio.open(tile) as src:
+        width, height, t = src.width, src.height, src.transform
+        block_rows, block_cols = src.block_shapes[0]
+        nodata, wkt = src.nodata, src.crs.to_wkt()
+    sources = [
+        f'<SimpleSource><SourceFilename relativeToVRT="0">{tile}</SourceFilename>'
+        f"<SourceBand>1</SourceBand>"
+        f'<SrcRect xOff="0" yOff="0" xSize="{width}" ySize="{height}"/>'
+        f'<DstRect xOff="{col * width}" yOff="{row * height}" xSize="{width}" '
+        f'ySize="{height}"/></SimpleSource>'
+        for row in range(tiles)
+        for col in range(tiles)
+    ]
+    nodata_xml = "" if nodata is None else f"<NoDataValue>{nodata!r}</NoDataValue>"
+    path.write_text(
+        f'<VRTDataset rasterXSize="{tiles * width}" rasterYSize="{tiles * height}">\n'
+        f"<SRS>{wkt}</SRS>\n"
+        f"<GeoTransform>{t.c!r}, {t.a!r}, 0.0, {t.f!r}, 0.0, {t.e!r}</GeoTransform>\n"
+        f'<VRTRasterBand dataType="Float32" band="1" blockXSize="{block_cols}" '
+        f'blockYSize="{block_rows}">{nodata_xml}\n' + "\n".join(sources) + "\n"
+        "</VRTRasterBand>\n</VRTDataset>\n"
+    )
+
+
+def run_mosaic(args) -> None:
+    """The --mosaic measurements: read floor, estimate on threads and on a LocalCluster."""
+    from distributed import LocalCluster
+
+    folder = CACHE / f"mosaic_{args.cells}_of_{args.tile_cells}" / "inputs"
+    tiles = build_mosaic(folder, args.cells, args.tile_cells)
+    with rasterio.open(folder / f"{CLASSES[0]}.vrt") as src:
+        cells = src.width * src.height
+    load = os.getloadavg()[0]
+    read_floor(folder, ".vrt")  # warm the page cache
+    floor = min(read_floor(folder, ".vrt") for _ in range(args.repeat))
+    estimate_s, _ = min(run_estimate(folder) for _ in range(args.repeat))
+    peak_mb = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0
+    with LocalCluster(n_workers=2, threads_per_worker=1, dashboard_address=None) as cluster:
+        text = (folder / "project.toml").read_text()
+        text = text.replace(
+            "[rasters]\n", f'[rasters]\ndask_scheduler = "{cluster.scheduler_address}"\n'
+        )
+        (folder / "project_cluster.toml").write_text(text)
+        cluster_s, _ = run_estimate(folder, "project_cluster.toml", "out_cluster")
+    local, remote = folder.parent / "out", folder.parent / "out_cluster"
+    names = ("capacity_by_unit.csv", "availability_rules.csv", "capacity_density.tif")
+    equal = all((local / n).read_bytes() == (remote / n).read_bytes() for n in names)
+    print(
+        f"mosaic of {tiles} x {tiles} tiles of {args.tile_cells:,} cells = {cells:,} cells, "
+        f"{MOSAIC_UNITS} units; read floor {floor:.2f} s; estimate {estimate_s:.2f} s on threads "
+        f"(best of {args.repeat}), {cluster_s:.2f} s on a LocalCluster of 2 worker processes; "
+        f"1-min load before {load:.2f}, after {os.getloadavg()[0]:.2f}",
+        file=sys.stderr,
+    )
+    print(
+        f"cells={cells} mosaic_tiles={tiles * tiles} ratio_to_read_floor={estimate_s / floor:.2f} "
+        f"peak_rss_mb={peak_mb:.0f} cluster_s={cluster_s:.2f} equal={'yes' if equal else 'no'}"
+    )
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--cells", type=int, required=True, help="about how many cells")
     parser.add_argument("--repeat", type=int, default=3, help="runs of each step (fastest kept)")
+    parser.add_argument(
+        "--mosaic", action="store_true", help="a VRT mosaic of tiles of a cached landscape"
+    )
+    parser.add_argument(
+        "--tile-cells", type=int, default=100_000_000, help="cells of each mosaic tile"
+    )
     args = parser.parse_args()
+    if args.mosaic:
+        run_mosaic(args)
+        return
     folder = CACHE / f"cells_{args.cells}" / "inputs"
     build(folder, args.cells)
     side = int(round(np.sqrt(args.cells)))

@@ -25,6 +25,8 @@ EXIT_BAD_INPUT = 2
 EXIT_INTERRUPTED = 130  # 128 + SIGINT, the shell's convention
 DEMO_PARTS = ("example_landscape", "results", "results_rasters")
 """What ``demo`` writes into its folder (each part staged, with its list of outputs)."""
+DEMO_GRID_SCENARIO = "juniper_thinning"
+"""The scenario the demo's raster run compares (``compare`` on project_rasters.toml)."""
 OVERWRITE_HELP = (
     "replace an existing output folder, only if it holds nothing but an earlier run's "
     "outputs, unchanged (files added or changed since are never deleted: the run is refused)"
@@ -316,7 +318,7 @@ def run_demo(args: argparse.Namespace) -> int:
     from nutricap.example import write_example_landscape
     from nutricap.inputs.project import load_project
     from nutricap.report.output_folder import check_output_folder, staged_folder
-    from nutricap.workflow import run_estimate
+    from nutricap.workflow import run_compare, run_estimate
 
     progress = StepPrinter(args.quiet)
     overwrite = args.overwrite
@@ -329,17 +331,25 @@ def run_demo(args: argparse.Namespace) -> int:
     project = load_project(project_file)
     result = run_estimate(project, results, overwrite=overwrite, progress=progress)
     _print_summary(result, results, caution=False, quiet=args.quiet)
-    progress("the same landscape on a 50 m grid with snow, slope and minimum-density rules")
+    progress(
+        "the same landscape on a 50 m grid with snow, slope and minimum-density rules, "
+        f"with the scenario {DEMO_GRID_SCENARIO!r} burnt on the grid"
+    )
     raster_project = load_project(project_file.with_name("project_rasters.toml"))
-    on_grid = run_estimate(raster_project, raster_results, overwrite=overwrite, progress=progress)
+    on_grid, table = run_compare(
+        raster_project, DEMO_GRID_SCENARIO, raster_results, overwrite=overwrite, progress=progress
+    )
     if args.quiet:
         return EXIT_OK
     ncc, ecc = on_grid.by_unit["ncc_animals"].sum(), on_grid.by_unit["ecc_animals"].sum()
+    last = table[table["year"] == table["year"].max()]
     say(
         f"On the 50 m grid with snow burial, slope and minimum-density rules "
-        f"(project_rasters.toml): total NCC {ncc:,.0f} animals; ECC {ecc:,.0f}. "
-        f"What each rule removed: {raster_results / 'availability_rules.csv'}; "
-        f"report: {raster_results / 'report.html'}"
+        f"(project_rasters.toml): total NCC {ncc:,.0f} animals; ECC {ecc:,.0f}; with the "
+        f"scenario {DEMO_GRID_SCENARIO!r} in {int(last['year'].iloc[0])}: NCC "
+        f"{last['ncc_animals_scenario'].sum():,.0f}. "
+        f"What each rule removed: {raster_results / 'availability_rules.csv'}; by year: "
+        f"{raster_results / 'scenario_by_unit.csv'}; report: {raster_results / 'report.html'}"
     )
     say(f"CAUTION: {CAUTION}")
     return EXIT_OK

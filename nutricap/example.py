@@ -202,7 +202,8 @@ slope = "slope_pct.tif"
 min_forage_kg_per_ha = 20
 """
 """The raster variant of the project (project_rasters.toml): the same landscape on a 50 m
-grid with snow burial, the packaged slope table and a minimum forage density."""
+grid with snow burial, the packaged slope table and a minimum forage density (and the same
+treatment scenarios, burnt on the grid by ``compare``)."""
 
 
 def raster_fields() -> tuple[np.ndarray, np.ndarray]:
@@ -511,7 +512,7 @@ def write_example_landscape(folder: Path, seed: int = SEED) -> Path:
         'name = "Tallowreed Basin winter range, snow and slope on a 50 m grid"',
     )
     (folder / "project_rasters.toml").write_text(
-        raster_project + RASTER_PROJECT_TOML, encoding="utf-8"
+        raster_project + RASTER_PROJECT_TOML + SCENARIOS_TOML, encoding="utf-8"
     )
     project = folder / "project.toml"
     project.write_text(PROJECT_TOML + SCENARIOS_TOML, encoding="utf-8")

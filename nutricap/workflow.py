@@ -21,6 +21,7 @@ from nutricap.inputs.project import Project
 from nutricap.inputs.tables import read_animal_classes, read_forage_classes, read_plots
 from nutricap.landscape.grid.supply import GridResult, grid_problem
 from nutricap.landscape.plots import StratumSupply, plot_biomass_matrix, stratum_supply
+from nutricap.landscape.strata_raster import read_strata_codes
 from nutricap.landscape.vectors import (
     StratumAreas,
     overlay_strata_on_units,
@@ -28,6 +29,7 @@ from nutricap.landscape.vectors import (
     read_units,
 )
 from nutricap.model.estimate import Estimate, Uncertainty
+from nutricap.model.grid_scenarios import GridScenario, grid_scenario_year
 from nutricap.model.problem import (
     CapacityProblem,
     Solution,
@@ -50,8 +52,8 @@ from nutricap.model.results import (
     unreachable_notes,
 )
 from nutricap.model.scenarios import (
-    Scenario,
     load_scenario,
+    read_scenario,
     scenario_problem,
     years_since_latest_treatment,
 )
@@ -90,16 +92,24 @@ class Inputs:
     requirement_notes: list[str] = field(default_factory=list)
 
 
-def estimate(project: Project, progress: Progress | None = None) -> Estimate:
+def estimate(
+    project: Project,
+    progress: Progress | None = None,
+    *,
+    inputs: Inputs | None = None,
+    treatments: gpd.GeoDataFrame | None = None,
+) -> Estimate:
     """Run the whole estimate for ``project`` and return the results (nothing is written).
 
-    supply → availability → pool by unit → solve → uncertainty → current use.
+    supply → availability → pool by unit → solve → uncertainty → current use. ``inputs``
+    may be read already; ``treatments`` (raster projects only) are a scenario's polygons,
+    whose cells' sums the grid pass then also gives (``result.grid.treated``).
     """
     say = progress or (lambda message: None)
     days = project.config.project.days
-    inputs = read_inputs(project, say)
+    inputs = inputs or read_inputs(project, say)
     grid = None
-    if project.config.rasters is not None or project.config.availability is not None:
+    if on_grid(project):
         grid = grid_problem(
             project,
             inputs.units,
@@ -108,6 +118,7 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
             inputs.forage_classes,
             project.config.pooling.mode,
             progress,
+            treatments,
         )
         areas, supply, problem = grid.areas, grid.supply, grid.problem
     else:
@@ -151,6 +162,11 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
         + (grid.notes if grid is not None else []),
         grid=grid,
     )
+
+
+def on_grid(project: Project) -> bool:
+    """Whether ``project`` is estimated on a raster grid ([rasters] or [availability])."""
+    return project.config.rasters is not None or project.config.availability is not None
 
 
 def read_inputs(project: Project, say: Progress) -> Inputs:
@@ -421,42 +437,58 @@ def compare(project: Project, scenario_name: str, progress: Progress | None = No
     and the same pair for ECC and allowable-use capacity.
     """
     say = progress or (lambda message: None)
-    config = project.config
-    if config.rasters is not None or config.availability is not None:
-        raise InputError(
-            "treatment scenarios are computed on the polygon path only",
-            source=project.path,
-            location=f"key 'scenarios.{scenario_name}'",
-            expected="a project without [rasters] and [availability] (strata polygons, plots)",
-            found="a raster project",
-        )
+    if on_grid(project):
+        return _compare_on_grid(project, scenario_name, say, progress)
     result = estimate(project, progress)
     scenario = load_scenario(project, scenario_name, result.areas, result.supply.strata)
     section = scenario.section
     say(f"scenario {scenario_name!r}: {section.first_year}–{section.last_year}")
-    years = range(section.first_year, section.last_year + 1)
-    frames = [_scenario_year(project, result, scenario, year) for year in years]
+    mode = project.config.pooling.mode
+    base_items = result.problem.items.subset(result.problem.items.variant == "")
+    frames = []
+    for year in range(section.first_year, section.last_year + 1):
+        problem, pieces = scenario_problem(scenario, result.areas, base_items, year, mode)
+        since = years_since_latest_treatment(pieces, problem.unit_ids)
+        frames.append(_scenario_year(project, result, scenario.name, year, problem, since))
+    return result, pd.concat(frames, ignore_index=True)
+
+
+def _compare_on_grid(project: Project, scenario_name: str, say: Progress, progress):
+    """:func:`compare` on a raster project: the treatment polygons burnt in the one pass."""
+    inputs = read_inputs(project, say)
+    if inputs.strata is not None:
+        strata = sorted(inputs.strata["stratum"].unique())
+    else:
+        strata = read_strata_codes(project.input_paths()["rasters.strata.codes"]).strata
+    section, treatments, responses = read_scenario(project, scenario_name, strata)
+    result = estimate(project, progress, inputs=inputs, treatments=treatments)
+    scenario = GridScenario(scenario_name, section, treatments, responses)
+    say(f"scenario {scenario_name!r} on the grid: {section.first_year}–{section.last_year}")
+    mode = project.config.pooling.mode
+    frames = []
+    for year in range(section.first_year, section.last_year + 1):
+        problem, since = grid_scenario_year(result.grid, scenario, year, mode)
+        frames.append(_scenario_year(project, result, scenario.name, year, problem, since))
     return result, pd.concat(frames, ignore_index=True)
 
 
 def _scenario_year(
-    project: Project, result: Estimate, scenario: Scenario, year: int
+    project: Project,
+    result: Estimate,
+    name: str,
+    year: int,
+    problem: CapacityProblem,
+    years_since: np.ndarray,
 ) -> pd.DataFrame:
+    """One year's rows of the scenario table: the problem solved, beside the baseline."""
     days = project.config.project.days
-    problem, pieces = scenario_problem(
-        scenario,
-        result.areas,
-        result.problem.items.subset(result.problem.items.variant == ""),
-        year,
-        project.config.pooling.mode,
-    )
     solution = solve(problem, result.herd, result.target, project)
     table = pd.DataFrame(
         {
             "unit_id": problem.unit_ids,
-            "scenario": scenario.name,
+            "scenario": name,
             "year": year,
-            "years_since_treatment": years_since_latest_treatment(pieces, problem.unit_ids),
+            "years_since_treatment": years_since,
         }
     )
     figures = {
@@ -464,12 +496,12 @@ def _scenario_year(
         "ecc": solution.ecc_animal_days,
         "allowable_use": solution.allowable_use_animal_days,
     }
-    for name, animal_days in figures.items():
-        baseline = result.by_unit[f"{name}_animals"].to_numpy()
+    for figure, animal_days in figures.items():
+        baseline = result.by_unit[f"{figure}_animals"].to_numpy()
         changed = problem.sum_by_unit(animal_days) / days
-        table[f"{name}_animals_baseline"] = baseline
-        table[f"{name}_animals_scenario"] = changed
-        table[f"{name}_change_animals"] = changed - baseline
+        table[f"{figure}_animals_baseline"] = baseline
+        table[f"{figure}_animals_scenario"] = changed
+        table[f"{figure}_change_animals"] = changed - baseline
     table["change_animals"] = table["ncc_change_animals"]
     return table
 

@@ -19,10 +19,10 @@ import pandas as pd
 import pytest
 import rasterio
 import shapely
+from affine import Affine
 from rasterio.transform import from_origin
 from shapely.geometry import Polygon, box
 
-from nutricap.cli import main
 from nutricap.errors import InputError, SpatialError
 from nutricap.inputs.project import load_project
 from nutricap.landscape import calibration
@@ -407,21 +407,6 @@ def test_report_shows_the_grid_rules_models_and_tables(tmp_path):
     assert "overlaying the strata on the units" not in methods  # the vector path's wording
 
 
-def test_compare_on_a_raster_project_is_refused_before_any_work(landscape, tmp_path, capsys):
-    text = project_text(RASTERS, SNOW) + (
-        '\n[scenarios.thinning]\ntreatments = "units.gpkg"\nresponses = "plots.csv"\n'
-        "first_year = 2027\nlast_year = 2030\n"
-    )
-    (landscape / "compare.toml").write_text(text)
-    out = tmp_path / "compare_out"
-    arguments = ["compare", str(landscape / "compare.toml"), "--scenario", "thinning"]
-    code = main([*arguments, "--out", str(out), "--quiet"])
-    error = capsys.readouterr().err
-    assert code == 2 and not out.exists()
-    assert len(error.strip().splitlines()) == 1
-    assert "key 'scenarios.thinning': treatment scenarios are computed on the polygon path" in error
-
-
 def test_patch_pooling(landscape):
     unit = _grid_run(landscape, RASTERS, SNOW).by_unit.set_index("unit_id")
     patch_result = _grid_run(landscape, RASTERS, SNOW, pooling="patch")
@@ -702,3 +687,69 @@ def test_a_truncated_index_raster_is_named(landscape, tmp_path):
     expected = r"index\.tif: key 'rasters\.calibrated\.index': cannot read .*truncated or corrupt"
     with pytest.raises(SpatialError, match=expected):
         _grid_run(folder, RASTERS)
+
+
+# --- GDAL virtual mosaics (VRT) -------------------------------------------------------------
+
+
+def _vrt_mosaic(folder: Path, name: str, splits=(97, 151)) -> Path:
+    """Cut ``name.tif`` into 4 GeoTIFF tiles at row/column ``splits`` and write ``name.vrt``,
+    a GDAL VRTDataset with one SimpleSource per tile (GDAL's VRT format, gdal.org/drivers/
+    raster/vrt.html), on the same grid, nodata and 32 × 32 blocks as the GeoTIFF."""
+    with rasterio.open(folder / f"{name}.tif") as src:
+        values, profile = src.read(1), src.profile
+    row_cut, col_cut = splits
+    sources = []
+    for r0, r1 in ((0, row_cut), (row_cut, ROWS)):
+        for c0, c1 in ((0, col_cut), (col_cut, COLS)):
+            tile = f"{name}_tile_{r0}_{c0}.tif"
+            transform = TRANSFORM * Affine.translation(c0, r0)
+            _write_raster(folder / tile, values[r0:r1, c0:c1], profile["nodata"], transform)
+            sources.append(
+                f'<SimpleSource><SourceFilename relativeToVRT="1">{tile}</SourceFilename>'
+                f"<SourceBand>1</SourceBand>"
+                f'<SrcRect xOff="0" yOff="0" xSize="{c1 - c0}" ySize="{r1 - r0}"/>'
+                f'<DstRect xOff="{c0}" yOff="{r0}" xSize="{c1 - c0}" ySize="{r1 - r0}"/>'
+                "</SimpleSource>"
+            )
+    nodata = "" if profile["nodata"] is None else f"<NoDataValue>{profile['nodata']}</NoDataValue>"
+    t = TRANSFORM
+    text = (
+        f'<VRTDataset rasterXSize="{COLS}" rasterYSize="{ROWS}">'
+        f"<SRS>{rasterio.crs.CRS.from_string(CRS).to_wkt()}</SRS>"
+        f"<GeoTransform>{t.c!r}, {t.a!r}, 0.0, {t.f!r}, 0.0, {t.e!r}</GeoTransform>"
+        f'<VRTRasterBand dataType="Float32" band="1" blockXSize="32" blockYSize="32">'
+        f"{nodata}{''.join(sources)}</VRTRasterBand></VRTDataset>"
+    )
+    path = folder / f"{name}.vrt"
+    path.write_text(text)
+    return path
+
+
+def test_a_vrt_mosaic_gives_the_table_of_the_single_geotiff(tmp_path):
+    folder = tmp_path / "inputs"
+    write_landscape(folder)  # sage has a nodata patch, read through the mosaic too
+    for name in ("sage", "snow"):
+        _vrt_mosaic(folder, name)
+    with rasterio.open(folder / "sage.vrt") as vrt, rasterio.open(folder / "sage.tif") as tif:
+        assert vrt.driver == "VRT" and vrt.block_shapes == tif.block_shapes
+        np.testing.assert_array_equal(vrt.read(1), tif.read(1))  # GDAL's own mosaic
+    single = run_estimate(
+        _project(folder, project_text(RASTERS, SNOW), "single.toml"), tmp_path / "single"
+    )
+    mosaic_rasters = RASTERS.replace('"sage.tif"', '"sage.vrt"')  # the grid's first layer
+    mosaic = run_estimate(
+        _project(folder, project_text(mosaic_rasters, SNOW.replace(".tif", ".vrt")), "vrt.toml"),
+        tmp_path / "mosaic",
+    )
+    np.testing.assert_array_equal(mosaic.problem.available_kg, single.problem.available_kg)
+    pd.testing.assert_frame_equal(mosaic.by_unit, single.by_unit, check_exact=True)
+    for name in ("capacity_by_unit.csv", "availability_rules.csv", "calibration.csv"):
+        assert (tmp_path / "mosaic" / name).read_bytes() == (
+            tmp_path / "single" / name
+        ).read_bytes()
+    with (
+        rasterio.open(tmp_path / "mosaic" / "capacity_density.tif") as a,
+        rasterio.open(tmp_path / "single" / "capacity_density.tif") as b,
+    ):
+        np.testing.assert_array_equal(a.read(1), b.read(1))

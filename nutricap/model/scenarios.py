@@ -84,6 +84,16 @@ class Scenario:
 
 def load_scenario(project: Project, name: str, areas: StratumAreas, strata: list[str]) -> Scenario:
     """Read a scenario's layer and table, check them, and overlay the treatments."""
+    section, treatments, responses = read_scenario(project, name, strata)
+    treated = overlay_treatments(areas, treatments.to_crs(areas.area_crs))
+    return Scenario(name, section, treated, responses)
+
+
+def read_scenario(
+    project: Project, name: str, strata: list[str]
+) -> tuple[ScenarioSection, gpd.GeoDataFrame, pd.DataFrame]:
+    """A scenario's section, treatment polygons and response table, read and checked
+    (every treatment type has responses; ``new_stratum`` is empty or one of ``strata``)."""
     section = _section(project, name)
     treatments_path = (project.folder / section.treatments).resolve()
     responses_path = (project.folder / section.responses).resolve()
@@ -100,8 +110,7 @@ def load_scenario(project: Project, name: str, areas: StratumAreas, strata: list
             expected="one of " + ", ".join(map(repr, sorted(known))),
             found=repr(missing[0]),
         )
-    treated = overlay_treatments(areas, treatments.to_crs(areas.area_crs))
-    return Scenario(name, section, treated, responses)
+    return section, treatments, responses
 
 
 def _section(project: Project, name: str) -> ScenarioSection:
@@ -246,6 +255,23 @@ def respond(
     items: ForageItems, responses: pd.DataFrame, years_since: float, variant: str
 ) -> ForageItems:
     """``items`` of one stratum ``years_since`` years after a treatment."""
+    multiplier, de_shift, cp_shift = response_factors(items, responses, years_since)
+    cp = np.maximum(items.cp_pct + cp_shift, 0.0)
+    return replace(
+        items,
+        biomass_kg_per_ha=items.biomass_kg_per_ha * multiplier,
+        de_kcal_per_g=np.clip(items.de_kcal_per_g + de_shift, 0.0, MAX_DE_KCAL_PER_G),
+        cp_pct=cp,
+        dp_pct=np.where(cp_shift != 0, digestible_protein_pct(cp, items.tannin), items.dp_pct),
+        variant=np.full(items.size, variant, dtype=object),
+    )
+
+
+def response_factors(
+    items: ForageItems, responses: pd.DataFrame, years_since: float
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Biomass multiplier, DE shift [kcal/g] and CP shift [percentage points] of each item
+    ``years_since`` years after the treatment of ``responses`` (1, 0, 0 without rows)."""
     multiplier = np.ones(items.size)
     de_shift = np.zeros(items.size)
     cp_shift = np.zeros(items.size)
@@ -257,15 +283,7 @@ def respond(
         multiplier[index] = response_at(years, rows["biomass_multiplier"], years_since, 1.0)
         de_shift[index] = response_at(years, rows["de_shift_kcal_per_g"], years_since, 0.0)
         cp_shift[index] = response_at(years, rows["cp_shift_pct"], years_since, 0.0)
-    cp = np.maximum(items.cp_pct + cp_shift, 0.0)
-    return replace(
-        items,
-        biomass_kg_per_ha=items.biomass_kg_per_ha * multiplier,
-        de_kcal_per_g=np.clip(items.de_kcal_per_g + de_shift, 0.0, MAX_DE_KCAL_PER_G),
-        cp_pct=cp,
-        dp_pct=np.where(cp_shift != 0, digestible_protein_pct(cp, items.tannin), items.dp_pct),
-        variant=np.full(items.size, variant, dtype=object),
-    )
+    return multiplier, de_shift, cp_shift
 
 
 def _response_rows(responses: pd.DataFrame, forage_class: str, growth_form: str) -> pd.DataFrame:

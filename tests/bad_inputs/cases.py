@@ -65,6 +65,10 @@ class Case:
     needs: str | None = None
     """A module the recipe or the run needs beyond the test tools (the case is skipped when it
     cannot be imported, e.g. ``openpyxl`` for a workbook)."""
+    project: str = "project.toml"
+    """The project file of the example the case runs (``project_rasters.toml``: the grid)."""
+    scenario: str | None = None
+    """A scenario: then ``compare --scenario`` alone runs (``check`` reads no scenario)."""
 
 
 # --- recipes ---------------------------------------------------------------------------------
@@ -1469,5 +1473,57 @@ CASES = [
         "forage classes: n/a where a value is required",
         set_cell(F, 2, "allowable_use", "n/a"),
         r"forage_classes\.csv: row 2, column 'allowable_use': not a number",
+    ),
+    # issue 17: raster scenarios (compare on project_rasters.toml, refused before the pass)
+    Case(
+        "raster scenario: unknown scenario name",
+        lambda folder: None,
+        r"project_rasters\.toml: key 'scenarios\.no_such_plan': no scenario named 'no_such_plan'",
+        project="project_rasters.toml",
+        scenario="no_such_plan",
+    ),
+    Case(
+        "raster scenario: new_stratum not a stratum",
+        edit_layer(
+            "treatments_burn.gpkg",
+            lambda frame: frame.assign(new_stratum=["grass_meadow", "aspen_grove"]),
+        ),
+        r"treatments_burn\.gpkg: feature 2 \(of 2\), attribute 'new_stratum': new_stratum is "
+        r"not a stratum with plots \(expected empty, or one of .*; found 'aspen_grove'\)",
+        project="project_rasters.toml",
+        scenario="prescribed_burn",
+    ),
+    Case(
+        "raster scenario: treatment type without responses",
+        edit_layer("treatments_burn.gpkg", lambda frame: frame.assign(treatment="mowing")),
+        r"treatments_burn\.gpkg: attribute 'treatment': treatment 'mowing' has no rows in the "
+        r"response table",
+        project="project_rasters.toml",
+        scenario="prescribed_burn",
+    ),
+    Case(
+        "raster scenario: treatment year not a calendar year",
+        edit_layer("treatments_burn.gpkg", lambda frame: frame.assign(year=[2028, 20280])),
+        r"treatments_burn\.gpkg: feature 2 \(of 2\), attribute 'year': treatment year is not "
+        r"a calendar year",
+        project="project_rasters.toml",
+        scenario="prescribed_burn",
+    ),
+    Case(
+        "raster scenario: overlapping treatment polygons",
+        edit_layer(
+            "treatments_burn.gpkg",
+            lambda frame: frame.set_geometry([frame.geometry.iloc[0]] * 2, crs=frame.crs),
+        ),
+        r"treatments_burn\.gpkg: .*overlap",
+        project="project_rasters.toml",
+        scenario="prescribed_burn",
+    ),
+    Case(
+        "raster scenario: response multiplier out of range",
+        set_cell("treatment_responses.csv", 15, "biomass_multiplier", "-1"),
+        r"treatment_responses\.csv: row 15, column 'biomass_multiplier': value out of range",
+        project="project_rasters.toml",
+        scenario="prescribed_burn",
     ),
 ]

@@ -12,6 +12,7 @@ from pathlib import Path
 import geopandas as gpd
 import numpy as np
 import pandas as pd
+import shapely
 
 from nutricap.errors import ProjectFileError
 from nutricap.landscape import availability as rules_mod
@@ -226,8 +227,11 @@ def unit_areas(units, strata: StrataMap, project) -> tuple[gpd.GeoDataFrame, obj
     return table, area_crs, reason
 
 
-def shape_burners(units, strata: StrataMap, project, grid: Grid) -> dict[str, ShapeBurner]:
-    """The shapes burnt into each window: units, strata polygons (when given), exclusions."""
+def shape_burners(
+    units, strata: StrataMap, project, grid: Grid, treatments: gpd.GeoDataFrame | None = None
+) -> dict[str, ShapeBurner]:
+    """The shapes burnt into each window: units, strata polygons (when given), exclusions,
+    treatment polygons (a scenario's, when given; codes 1, 2, … in their order)."""
     burners = {
         "units": ShapeBurner(
             units.to_crs(grid.crs).geometry.to_numpy(), np.arange(1, len(units) + 1), "int32"
@@ -244,7 +248,28 @@ def shape_burners(units, strata: StrataMap, project, grid: Grid) -> dict[str, Sh
             layer = read_layer(project.input_paths()[key], layer=None, columns=[], what=key)
             shapes.extend(layer.to_crs(grid.crs).geometry.to_numpy())
         burners["exclusions"] = ShapeBurner(shapes, np.ones(len(shapes), dtype=np.uint8), "uint8")
+    if treatments is not None:
+        shapes = treatments.to_crs(grid.crs).geometry.to_numpy()
+        burners["treatments"] = ShapeBurner(shapes, np.arange(1, len(shapes) + 1), "int32")
     return burners
+
+
+def treatment_pairs(units, treatments: gpd.GeoDataFrame, grid: Grid):
+    """The (unit, treatment polygon) pairs that meet, and the lookup the windows use.
+
+    Returns ``(lookup, pair_unit, pair_polygon)``: ``lookup[unit code, polygon code]`` is the
+    pair's number (-1 where they do not meet, and for code 0: none); ``pair_unit`` and
+    ``pair_polygon`` the unit and polygon index of each pair. A cell centre inside both
+    polygons lies in both closures, so their pair is always listed.
+    """
+    unit_shapes = units.to_crs(grid.crs).geometry.to_numpy()
+    shapes = treatments.to_crs(grid.crs).geometry.to_numpy()
+    polygon, unit = shapely.STRtree(unit_shapes).query(shapes, predicate="intersects")
+    order = np.lexsort((polygon, unit))
+    pair_unit, pair_polygon = unit[order], polygon[order]
+    lookup = np.full((len(unit_shapes) + 1, len(shapes) + 1), -1, dtype=np.int64)
+    lookup[pair_unit + 1, pair_polygon + 1] = np.arange(pair_unit.size)
+    return lookup, pair_unit, pair_polygon
 
 
 def layer_key(specs: list[LayerSpec], name: str) -> str | None:

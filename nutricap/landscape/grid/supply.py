@@ -50,6 +50,7 @@ from nutricap.landscape.grid.setup import (
     strata_map,
     strata_polygons,
     strata_supply,
+    treatment_pairs,
     unit_areas,
 )
 from nutricap.landscape.grid.window_pass import (
@@ -66,6 +67,33 @@ from nutricap.landscape.vectors import StratumAreas
 from nutricap.model.problem import CapacityProblem, build_forage_items
 
 Progress = Callable[[str], None]
+
+
+@dataclass(frozen=True)
+class TreatedSums:
+    """What the cells of a scenario's treatment polygons hold, by pair × stratum.
+
+    A pair is a unit and a treatment polygon that meet (``pair_unit``, ``pair_polygon``:
+    indexes into the units and the treatment polygons).
+
+    Attributes
+    ----------
+    pair_unit, pair_polygon : int arrays (pairs,)
+    cells : array (pairs, strata)
+        Treated cells of the pair in each stratum.
+    left_kg : array (pairs, strata, classes) [kg]
+        Forage the availability rules leave of the current biomass (included in the
+        baseline's sums of the unit and stratum).
+    kept_ha : array (pairs, strata, classes) [ha]
+        Σ over the cells of the share of each class the rules keep × cell area: forage of
+        ``m`` kg/ha in each cell leaves ``m × kept_ha`` kg (rules proportional to the biomass).
+    """
+
+    pair_unit: np.ndarray
+    pair_polygon: np.ndarray
+    cells: np.ndarray
+    left_kg: np.ndarray
+    kept_ha: np.ndarray
 
 
 @dataclass
@@ -111,6 +139,11 @@ class GridResult:
     calibrated_sums: list[CalibratedSums] = field(default_factory=list, repr=False)
     cluster: ClusterRun | None = field(default=None, repr=False)
     rules: rules_mod.CellRules | None = field(default=None, repr=False)  # the rules applied
+    key_available_kg: np.ndarray | None = field(default=None, repr=False)
+    """(units, strata, classes) forage left by the rules [kg]: the problem's supply."""
+    mapped_ha: np.ndarray | None = field(default=None, repr=False)  # (units, strata) [ha]
+    full_supply: StratumSupply | None = field(default=None, repr=False)  # means of all classes
+    treated: TreatedSums | None = field(default=None, repr=False)  # with a scenario only
 
     def describe(self) -> dict:
         """Grid, resampling and rules in plain values, for the run manifest."""
@@ -139,6 +172,7 @@ def grid_problem(
     forage_classes: pd.DataFrame,
     mode: str,
     progress: Progress | None = None,
+    treatments: gpd.GeoDataFrame | None = None,
 ) -> GridResult:
     """Build the capacity problem from the rasters and availability rules of ``project``.
 
@@ -157,6 +191,9 @@ def grid_problem(
     progress : callable, optional
         Called with a message per step; a progress bar over windows is shown when given
         (and not quiet).
+    treatments : GeoDataFrame, optional
+        A scenario's treatment polygons: burnt as one more part of the key, so that the
+        same pass also gives the treated cells' sums (:class:`TreatedSums`).
     """
     say = progress or (lambda message: None)
     specs = layer_specs(project)
@@ -177,6 +214,7 @@ def grid_problem(
     polygon_stratum, polygon_biomass, access = strata_polygons(strata_source, supply, classes)
     rules = cell_rules(project, forage_classes, classes, access is not None)
     units_table, area_crs, reason = unit_areas(units, strata_source, project)
+    pairs = None if treatments is None else treatment_pairs(units, treatments, grid)
     n_keys = (len(units) + 1) * (len(supply.strata) + 1)  # the last "unit": outside every unit
     unit_base = np.arange(-1, len(units)) * (len(supply.strata) + 1)
     unit_base[0] = len(units) * (len(supply.strata) + 1)
@@ -196,17 +234,20 @@ def grid_problem(
         slope_key=layer_key(specs, "availability.slope"),
         water_key=layer_key(specs, "availability.distance_to_water"),
         dump_key=n_keys,
+        treatment_pair=None if pairs is None else pairs[0],
     )
     config = project.config
     resample = config.rasters.resample if config.rasters is not None else "none"
     window_size = config.rasters.window_size if config.rasters is not None else None
     windows = grid_windows(grid, window_size)
     n_rows = layout_of(setup).rows
+    n_treated = setup.n_treated_keys
     totals = Totals(
-        np.zeros(n_keys), np.zeros((n_keys, n_rows)), np.zeros((len(groups), 3), np.int64)
-    )
+        np.zeros(n_keys), np.zeros((n_keys, n_rows)), np.zeros((len(groups), 3), np.int64),
+        np.zeros(n_treated), np.zeros((n_treated, 2 * len(classes))),
+    )  # fmt: skip
     show = progress is not None and not getattr(progress, "quiet", False)
-    burners = shape_burners(units, strata_source, project, grid)
+    burners = shape_burners(units, strata_source, project, grid, treatments)
     lookup = None if strata_source.codes is None else strata_source.codes.polygon_lookup()
     job = new_job(setup, specs, grid, resample, windows, burners, lookup)
     cache, cluster, resampled = _first_pass(project, job, totals, say, show)
@@ -214,7 +255,21 @@ def grid_problem(
         project, setup, totals, grid, supply, units_table, (area_crs, reason), mode,
         forage_classes, calibration_report, specs, resampled, windows, cache, show,
     )  # fmt: skip
+    if pairs is not None:
+        result = dataclasses.replace(result, treated=_treated(totals, pairs, setup, grid))
     return dataclasses.replace(result, cluster=cluster) if cluster is not None else result
+
+
+def _treated(totals: Totals, pairs, setup: GridSetup, grid: Grid) -> TreatedSums:
+    n_pairs, n_strata, n_classes = pairs[1].size, setup.n_strata, setup.n_classes
+    sums = totals.treated_sums.reshape(n_pairs, n_strata, 2 * n_classes) * grid.cell_area_ha
+    return TreatedSums(
+        pair_unit=pairs[1],
+        pair_polygon=pairs[2],
+        cells=totals.treated_cells.reshape(n_pairs, n_strata),
+        left_kg=sums[:, :, :n_classes],
+        kept_ha=sums[:, :, n_classes:],
+    )
 
 
 def _first_pass(project, job: WindowJob, totals: Totals, say: Progress, show: bool):
@@ -259,7 +314,7 @@ def _assemble(
     mapped_ha = cells[:, :n_strata] * cell_ha
     full_supply = _full_supply(supply, setup.classes, gross_kg, mapped_ha - without_data * cell_ha)
     items = build_forage_items(full_supply, forage_classes)
-    problem, row_of_key = _problem(units_table, available_kg, mapped_ha, items, mode)
+    problem, row_of_key = key_problem(units_table, available_kg, mapped_ha, items, mode)
     areas = _areas(units_table, full_supply.strata, mapped_ha, accessible_ha, crs_reason)
     report = _rules_report(units_table, setup.rules, sums[:, :n_strata], layout, cell_ha)
     calibration = _calibration_report(
@@ -275,7 +330,7 @@ def _assemble(
     return GridResult(
         problem, areas, supply, report, calibration, notes, grid, resampled, windows, cache,
         row_of_key, stratum_of_key, setup.classes, compression, show, calibrated, None,
-        setup.rules,
+        setup.rules, available_kg, mapped_ha, full_supply,
     )  # fmt: skip
 
 
@@ -358,8 +413,12 @@ def _full_supply(supply: StratumSupply, classes, gross_kg, with_data_ha) -> Stra
     return StratumSupply(supply.strata, list(classes), mean, se, supply.n_plots)
 
 
-def _problem(units_table, available_kg, mapped_ha, items, mode):
-    """Rows (units, or unit × stratum patches with cells) × items, and each key's row."""
+def key_problem(units_table, available_kg, mapped_ha, items, mode):
+    """Rows (units, or unit × stratum patches with cells) × items, and each key's row.
+
+    ``available_kg`` (units, strata, classes) [kg] and ``mapped_ha`` (units, strata) [ha] are
+    sums by key; ``items`` are the strata × classes in that order.
+    """
     n_units, n_strata, n_classes = available_kg.shape
     unit_ids = units_table["unit_id"].to_numpy()
     row_of_key = np.full((n_units, n_strata + 1), -1)

@@ -72,10 +72,20 @@ class GridSetup:
     slope_key: str | None
     water_key: str | None
     dump_key: int
+    treatment_pair: np.ndarray | None = None
+    """(units + 1, treatment polygons + 1) pair number of a burnt unit code × treatment
+    polygon code, -1 where the two do not meet (or none); None without a scenario."""
 
     @property
     def n_classes(self) -> int:
         return len(self.classes)
+
+    @property
+    def n_treated_keys(self) -> int:
+        """Keys of treated cells: (unit × treatment polygon pair) × stratum."""
+        if self.treatment_pair is None:
+            return 0
+        return (int(self.treatment_pair.max(initial=-1)) + 1) * self.n_strata
 
 
 @dataclass
@@ -88,6 +98,7 @@ class WindowData:
     polygons: np.ndarray  # strata polygon code, 0 = none
     excluded: np.ndarray | None
     scratch: Scratch | None = None  # the reading thread's reusable memory
+    treatments: np.ndarray | None = None  # treatment polygon code, 0 = none (scenarios only)
 
     def rows(self, first: int, last: int) -> WindowData:
         """Rows ``first:last`` of the window (views, no copy)."""
@@ -99,6 +110,7 @@ class WindowData:
             self.polygons[part],
             None if self.excluded is None else self.excluded[part],
             self.scratch,
+            None if self.treatments is None else self.treatments[part],
         )
 
 
@@ -110,14 +122,39 @@ class WindowSums:
     run_cells: np.ndarray
     run_sums: np.ndarray  # (rows of the layout, runs) float32
     calibration_cells: np.ndarray  # (groups, 3): beyond range, beyond margin, negative
+    treated: TreatedRuns | None = None  # treated cells' sums (scenarios only)
 
     @staticmethod
     def concatenate(parts: list[WindowSums]) -> WindowSums:
+        treated = [part.treated for part in parts if part.treated is not None]
         return WindowSums(
             np.concatenate([part.run_keys for part in parts]),
             np.concatenate([part.run_cells for part in parts]),
             np.concatenate([part.run_sums for part in parts], axis=1),
             sum(part.calibration_cells for part in parts),
+            TreatedRuns.concatenate(treated) if treated else None,
+        )
+
+
+@dataclass
+class TreatedRuns:
+    """Sums over runs of treated cells of equal treated key (in the order of the cells).
+
+    ``run_sums`` rows: forage left of each class [kg/ha summed over cells], then each class's
+    share kept by the rules (Σ over cells of snow share × area share), for the forage of
+    another stratum's plot means when a treatment changes the stratum.
+    """
+
+    run_keys: np.ndarray
+    run_cells: np.ndarray
+    run_sums: np.ndarray  # (2 × classes, runs) float32
+
+    @staticmethod
+    def concatenate(parts: list[TreatedRuns]) -> TreatedRuns:
+        return TreatedRuns(
+            np.concatenate([part.run_keys for part in parts]),
+            np.concatenate([part.run_cells for part in parts]),
+            np.concatenate([part.run_sums for part in parts], axis=1),
         )
 
 
@@ -128,14 +165,24 @@ class Totals:
     cells: np.ndarray
     sums: np.ndarray
     calibration_cells: np.ndarray
+    treated_cells: np.ndarray | None = None  # (treated keys,), scenarios only
+    treated_sums: np.ndarray | None = None  # (treated keys, 2 × classes)
 
     def add(self, part: WindowSums) -> None:
-        self.cells += np.bincount(part.run_keys, weights=part.run_cells, minlength=self.cells.size)
-        for row, values in enumerate(part.run_sums):
-            self.sums[:, row] += np.bincount(
-                part.run_keys, weights=values, minlength=self.cells.size
-            )
+        _add_runs(self.cells, self.sums, part.run_keys, part.run_cells, part.run_sums)
         self.calibration_cells += part.calibration_cells
+        if part.treated is not None:
+            runs = part.treated
+            _add_runs(
+                self.treated_cells, self.treated_sums, runs.run_keys, runs.run_cells, runs.run_sums
+            )
+
+
+def _add_runs(cells, sums, run_keys, run_cells, run_sums) -> None:
+    """Add run sums into the totals by key (float64)."""
+    cells += np.bincount(run_keys, weights=run_cells, minlength=cells.size)
+    for row, values in enumerate(run_sums):
+        sums[:, row] += np.bincount(run_keys, weights=values, minlength=cells.size)
 
 
 @dataclass(frozen=True)
@@ -247,7 +294,34 @@ def chunk_sums(setup: GridSetup, data: WindowData) -> tuple[WindowSums, np.ndarr
     run_keys, run_cells, run_sums = _run_sums(key, stacked, data.units.shape)
     cell_keys = np.where(valid, key, setup.dump_key).astype(np.int32)
     sums = WindowSums(run_keys, run_cells, run_sums, calibration_cells)
+    if setup.treatment_pair is not None:
+        sums.treated = _treated_runs(setup, data, units, polygons, outcome)
     return sums, cell_keys, outcome.available_kg_per_ha
+
+
+def _treated_runs(setup: GridSetup, data: WindowData, units, polygons, outcome) -> TreatedRuns:
+    """Sums of the treated cells (in a unit, a stratum and a treatment polygon) by treated
+    key = pair × strata + stratum: forage left per class, and per class the share the rules
+    keep (snow share × area share; 0 without data)."""
+    pair = setup.treatment_pair[units, data.treatments.ravel().astype(np.intp)]
+    stratum = setup.polygon_stratum[polygons]
+    cells = np.flatnonzero((pair >= 0) & (stratum < setup.n_strata))
+    keys = pair[cells] * setup.n_strata + stratum[cells]
+    n = setup.n_classes
+    values = np.empty((2 * n, cells.size), dtype=np.float32)
+    np.take(outcome.available_kg_per_ha, cells, axis=1, out=values[:n])
+    keep = values[n:]
+    keep[:] = outcome.access[cells][None, :]
+    rules = setup.rules
+    if rules.height_cm is not None and setup.snow_key is not None:
+        depth = _layer(data, setup.snow_key)[cells]
+        heights = np.asarray(rules.height_cm, dtype=np.float32)[:, None]
+        keep *= rules_mod.snow_available_fraction(depth[None, :], heights, rules.snow_method)
+    if cells.size == 0:
+        return TreatedRuns(keys, np.zeros(0), values)
+    starts = np.flatnonzero(np.diff(keys, prepend=-1) != 0)
+    run_cells = np.diff(np.append(starts, keys.size))
+    return TreatedRuns(keys[starts], run_cells, np.add.reduceat(values, starts, axis=1))
 
 
 def _valid_cells(setup: GridSetup, data: WindowData, mapped: np.ndarray) -> np.ndarray:
@@ -353,6 +427,7 @@ class WindowReader:
             polygons=polygons,
             excluded=None if excluded is None else excluded > 0,
             scratch=scratch,
+            treatments=burnt.get("treatments"),
         )
 
 
