@@ -1190,4 +1190,17 @@ CASES = [
         r"\(not written by nutricap\)",
         prepare_out=other_files,
     ),
+    # issue 13: bare plots, init, edges
+    Case(
+        "plots: a row without forage class that records forage",
+        set_cell(P, 5, "forage_class", ""),
+        r"plots\.csv: row 5, column 'forage_class': forage without a forage class \(expected a "
+        r"forage class, or mass 0 on the one row of a bare plot",
+    ),
+    Case(
+        "plots: a plot recorded both bare and with forage",
+        copy_row(P, 2, forage_class="", dry_mass_g="0"),
+        r"plots\.csv: row 2, column 'forage_class': plot recorded both as bare and with a "
+        r"forage class .*plot 'P001'",
+    ),
 ]
