@@ -288,8 +288,7 @@ def _require_bare_rows_bare(table: pd.DataFrame, path: Path) -> None:
             source=path,
             location=f"row {spreadsheet_row(index)}, column 'forage_class'",
             expected="one row with an empty forage_class for a bare plot, or rows with classes",
-            found=f"plot {table['plot_id'].iloc[index]!r} also on a row with an empty "
-            "forage_class",
+            found=f"plot {table['plot_id'].iloc[index]!r} also on a row with an empty forage_class",
         )
 
 
