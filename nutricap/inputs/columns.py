@@ -14,7 +14,10 @@ semicolons (or tabs, or vertical bars) is refused with a message saying so
 the header is refused; an undeclared column named almost like an absent declared
 one (``tanin`` for ``tannin``) is refused as a misspelling; empty rows at the end
 are ignored, an empty row between data rows is refused (every later row number
-would be off by one); a table with no data rows is refused.
+would be off by one); a table with no data rows is refused. A line beginning with
+``#`` is a comment (the example rows of a template written by ``nutricap init``):
+comment lines after the last data row are skipped like empty rows; one above a
+data row is refused, for the same reason as an empty row.
 """
 
 from __future__ import annotations
@@ -35,6 +38,8 @@ TRUE_WORDS = frozenset({"true", "yes", "y", "1", "t"})
 FALSE_WORDS = frozenset({"false", "no", "n", "0", "f", ""})
 OTHER_SEPARATORS = {";": "semicolons", "\t": "tabs", "|": "vertical bars"}
 NEWLINE = b"\n"
+COMMENT = "#"
+"""A line beginning with this (after spaces) is a comment, allowed after the last data row."""
 NEAR_MISS_CUTOFF = 0.8
 """An undeclared column this close (difflib ratio, ignoring case) to an absent declared one
 is taken for a misspelling and refused."""
@@ -96,7 +101,7 @@ def read_csv_table(path: Path, columns: list[Column], *, what: str) -> pd.DataFr
 
 
 def _read_raw(path: Path, what: str) -> pd.DataFrame:
-    text = _read_text(path, what)
+    text = _without_trailing_comments(_read_text(path, what), path)
     lines = text.splitlines()
     header = lines[0].strip() if lines else ""
     if not header:
@@ -118,6 +123,42 @@ def _read_raw(path: Path, what: str) -> pd.DataFrame:
     frame = frame.apply(lambda col: col.str.strip())
     _refuse_nul(frame, path, what)
     return frame
+
+
+def _is_comment(line: str) -> bool:
+    return line.lstrip().startswith(COMMENT)
+
+
+def has_data_rows(path: Path) -> bool:
+    """Whether a readable CSV file has a line after the header that is neither empty nor a
+    comment (True when it cannot be read as text: its reader then says why)."""
+    try:
+        lines = path.read_bytes().decode("utf-8-sig").splitlines()[1:]
+    except (OSError, UnicodeDecodeError):
+        return True
+    return any(line.strip() and not _is_comment(line) for line in lines)
+
+
+def _without_trailing_comments(text: str, path: Path) -> str:
+    """``text`` without the comment and empty lines after its last data row; a comment line
+    above a data row is refused (every later row number would be off by one)."""
+    lines = text.splitlines(keepends=True)
+    if not any(_is_comment(line) for line in lines[1:]):
+        return text
+    end = len(lines)
+    while end > 1 and (not lines[end - 1].strip() or _is_comment(lines[end - 1])):
+        end -= 1
+    for number, line in enumerate(lines[1:end], start=2):
+        if _is_comment(line):
+            raise TableError(
+                f"a comment line (beginning with {COMMENT!r}) above a data row",
+                source=path,
+                location=f"row {number}",
+                expected="comment lines only after the last data row: delete it or move it "
+                "to the end (the rows below would be numbered one off)",
+                found=repr(line.strip()[:60]),
+            )
+    return "".join(lines[:end])
 
 
 def _refuse_nul(frame: pd.DataFrame, path: Path, what: str) -> None:

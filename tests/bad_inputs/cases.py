@@ -1203,4 +1203,24 @@ CASES = [
         r"plots\.csv: row 2, column 'forage_class': plot recorded both as bare and with a "
         r"forage class .*plot 'P001'",
     ),
+    Case(
+        "plots: a comment line above a data row",
+        insert_line(P, 3, "#P000,sagebrush_steppe,big_sagebrush,1,1"),
+        r"plots\.csv: row 3: a comment line \(beginning with '#'\) above a data row \(expected "
+        r"comment lines only after the last data row",
+    ),
+    Case(
+        "plots: comment lines after the last data row (valid, skipped)",
+        steps(append_text(P, "#P000,sagebrush_steppe,big_sagebrush,1,1"), append_text(P, "")),
+        r"Total NCC",
+        exit_code=0,
+        verify=same_as_reference,
+    ),
+    Case(
+        "project: two tables without data rows (a template not filled in)",
+        steps(edit_csv(F, lambda t: t.iloc[:0]), edit_csv(P, lambda t: t.iloc[:0])),
+        r"project\.toml: the project is not filled in yet: 2 inputs to provide: "
+        r"'inputs\.forage_classes' forage_classes\.csv has no data rows yet; 'inputs\.plots' "
+        r"plots\.csv has no data rows yet",
+    ),
 ]
