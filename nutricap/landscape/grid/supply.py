@@ -176,7 +176,7 @@ def grid_problem(
     supply = strata_supply(plots, strata_source, strata_classes, classes, project)
     polygon_stratum, polygon_biomass, access = strata_polygons(strata_source, supply, classes)
     rules = cell_rules(project, forage_classes, classes, access is not None)
-    units_table, area_crs, reason = unit_areas(units, strata_source, project)
+    units_table, area_crs, reason, overlap_notes = unit_areas(units, strata_source, project)
     n_keys = (len(units) + 1) * (len(supply.strata) + 1)  # the last "unit": outside every unit
     unit_base = np.arange(-1, len(units)) * (len(supply.strata) + 1)
     unit_base[0] = len(units) * (len(supply.strata) + 1)
@@ -214,6 +214,7 @@ def grid_problem(
         project, setup, totals, grid, supply, units_table, (area_crs, reason), mode,
         forage_classes, calibration_report, specs, resampled, windows, cache, show,
     )  # fmt: skip
+    result = dataclasses.replace(result, notes=overlap_notes + result.notes)
     return dataclasses.replace(result, cluster=cluster) if cluster is not None else result
 
 
