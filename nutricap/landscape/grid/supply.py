@@ -24,6 +24,7 @@ from dataclasses import dataclass, field
 import geopandas as gpd
 import numpy as np
 import pandas as pd
+from pyproj import CRS
 from rasterio.windows import Window
 
 from nutricap.errors import ProjectFileError, SpatialError
@@ -62,7 +63,7 @@ from nutricap.landscape.grid.window_pass import (
     stream_windows,
 )
 from nutricap.landscape.plots import StratumSupply
-from nutricap.landscape.vectors import StratumAreas
+from nutricap.landscape.vectors import StratumAreas, choose_area_crs
 from nutricap.model.problem import CapacityProblem, build_forage_items
 
 Progress = Callable[[str], None]
@@ -168,7 +169,11 @@ def grid_problem(
             expected="a biomass, index, snow_depth, slope or distance_to_water raster",
             found="none",
         )
-    grid = read_grid(specs[0].path, specs[0].key)
+    config = project.config
+    resample = config.rasters.resample if config.rasters is not None else "none"
+    grid = read_grid(
+        specs[0].path, specs[0].key, resample=resample, area_crs=choose_area_crs(units)[0]
+    )
     classes, direct, calibrated, strata_classes = class_sources(project, forage_classes)
     say("fitting index → biomass models" if calibrated else "summarising clip plots by stratum")
     groups, calibration_report = calibrated_groups(project, calibrated, classes)
@@ -197,8 +202,6 @@ def grid_problem(
         water_key=layer_key(specs, "availability.distance_to_water"),
         dump_key=n_keys,
     )
-    config = project.config
-    resample = config.rasters.resample if config.rasters is not None else "none"
     window_size = config.rasters.window_size if config.rasters is not None else None
     windows = grid_windows(grid, window_size)
     n_rows = layout_of(setup).rows
@@ -214,7 +217,7 @@ def grid_problem(
         project, setup, totals, grid, supply, units_table, (area_crs, reason), mode,
         forage_classes, calibration_report, specs, resampled, windows, cache, show,
     )  # fmt: skip
-    result = dataclasses.replace(result, notes=overlap_notes + result.notes)
+    result = dataclasses.replace(result, notes=overlap_notes + _grid_notes(grid) + result.notes)
     return dataclasses.replace(result, cluster=cluster) if cluster is not None else result
 
 
@@ -426,6 +429,18 @@ def _calibration_report(report, counts, cell_ha, project):
         else "model extrapolated"
     )
     return report
+
+
+def _grid_notes(grid: Grid) -> list[str]:
+    """The analysis grid nutricap defined, when the first raster is in a geographic CRS."""
+    if grid.warped_from is None:
+        return []
+    return [
+        f"raster {grid.source.name} is in a geographic CRS ({grid.warped_from}): the analysis "
+        f"grid is {grid.width} × {grid.height} cells of {grid.transform.a:.4g} × "
+        f"{-grid.transform.e:.4g} m in {CRS.from_wkt(grid.crs.to_wkt()).name}, and every "
+        "raster is warped onto it (GDAL's warper, rasterio WarpedVRT)"
+    ]
 
 
 def _notes(units_table, cells, without_data, cell_ha, resampled, calibration) -> list[str]:
