@@ -1223,4 +1223,29 @@ CASES = [
         r"'inputs\.forage_classes' forage_classes\.csv has no data rows yet; 'inputs\.plots' "
         r"plots\.csv has no data rows yet",
     ),
+    Case(
+        "supply: strata_without_forage names a sampled stratum and one not on the map (valid)",
+        replace_text(
+            "project.toml",
+            "[forage_use]\n",
+            '[supply]\nstrata_without_forage = ["sagebrush_steppe", "glacer"]\n\n[forage_use]\n',
+        ),
+        r"note: strata listed in \[supply\] strata_without_forage have clip plots, and their "
+        r"plots are used .*sagebrush_steppe \(\d+ plots\).*\nnote: strata listed in \[supply\] "
+        r"strata_without_forage are not on the strata map .*glacer",
+        exit_code=0,
+        verify=same_as_reference,
+    ),
+    Case(
+        "counts: a unit id that matches no unit (valid, noted)",
+        steps(
+            append_text("counts.csv", "Nowhere Flat,2022,30"),
+            append_text("counts.csv", "Nowhere Flat,2023,35"),
+            append_text("counts.csv", "Nowhere Flat,2024,40"),
+        ),
+        r"note: counts for 1 unit id\(s\) that match no unit of the units layer \(3 rows\): "
+        r"'Nowhere Flat'",
+        exit_code=0,
+        verify=same_as_reference,
+    ),
 ]
