@@ -123,9 +123,8 @@ def run_init(args: argparse.Namespace) -> int:
 
     written = write_template(args.folder)
     say(f"Template project written to {args.folder}: " + ", ".join(p.name for p in written))
-    say(f"Next: fill in the tables and project file ({args.folder / README} says how), add")
-    say("your units and strata layers, then run:")
-    say(f"  nutricap check {args.folder / PROJECT_FILE}")
+    say(f"Next: fill in the tables and {PROJECT_FILE}, add your units and strata layers")
+    say(f"({args.folder / README} says how), then run: nutricap check {args.folder / PROJECT_FILE}")
     return EXIT_OK
 
 

@@ -286,10 +286,15 @@ def same_as_reference(folder: Path, table: pd.DataFrame, reference: pd.DataFrame
 def true_areas(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> None:
     """Unit areas are geodesic areas; capacity per km² is unchanged by the layer's CRS.
 
-    Independent check: pyproj.Geod (Karney 2013 algorithm) on the WGS 84 ellipsoid. The
-    density does not depend on the area CRS because forage scales with area.
+    Independent check: pyproj.Geod (Karney 2013 algorithm) on the WGS 84 ellipsoid. An edge is
+    a straight line in the layer's own CRS (OGC simple features), so the layer is split every
+    10 units of its CRS (1e-4° in lon/lat) with shapely first: a geodesic and the straight line
+    then coincide to well under 1e-6. The density does not depend on the area CRS because
+    forage scales with area.
     """
-    units = gpd.read_file(folder / "units.gpkg").to_crs("EPSG:4326")
+    units = gpd.read_file(folder / "units.gpkg")
+    step = 1e-4 if units.crs.is_geographic else 10.0
+    units = units.set_geometry(units.segmentize(step)).to_crs("EPSG:4326")
     geod = Geod(ellps="WGS84")
     geodesic_ha = [abs(geod.geometry_area_perimeter(g)[0]) / 10_000 for g in units.geometry]
     expected = pd.Series(geodesic_ha, index=units["unit_id"])
