@@ -397,8 +397,9 @@ def _check_inputs_exist(project: Project) -> None:
     """Every input can be opened: it exists, is a file (or a folder, as some vector formats
     are) and not the project's own folder; links are followed, paths named as written.
 
-    Several inputs missing or tables with a header and no data rows (a template from
-    ``nutricap init`` not filled in yet) are listed together in one message."""
+    When an input is missing, every missing input and every table with a header and no data
+    rows (a template from ``nutricap init`` not filled in yet) are listed in one message; the
+    tables' contents are otherwise left to their readers."""
     missing = []
     for name, path in project.written_input_paths().items():
         key = _key(name)
@@ -407,7 +408,7 @@ def _check_inputs_exist(project: Project) -> None:
             problem = "is a folder that holds the project file"
         if problem is not None:
             missing.append((key, path, problem))
-    empty = _tables_without_rows(project)
+    empty = _tables_without_rows(project) if missing else []
     if len(missing) + len(empty) > 1:
         _raise_unfilled(project, missing, empty)
     if missing:

@@ -1222,11 +1222,15 @@ CASES = [
         verify=same_as_reference,
     ),
     Case(
-        "project: two tables without data rows (a template not filled in)",
-        steps(edit_csv(F, lambda t: t.iloc[:0]), edit_csv(P, lambda t: t.iloc[:0])),
-        r"project\.toml: the project is not filled in yet: 2 inputs to provide: "
-        r"'inputs\.forage_classes' forage_classes\.csv has no data rows yet; 'inputs\.plots' "
-        r"plots\.csv has no data rows yet",
+        "project: a layer missing and two tables without data rows (a template not filled in)",
+        steps(
+            lambda folder: (folder / "strata.gpkg").unlink(),
+            edit_csv(F, lambda t: t.iloc[:0]),
+            edit_csv(P, lambda t: t.iloc[:0]),
+        ),
+        r"project\.toml: the project is not filled in yet: 3 inputs to provide: 'inputs\.strata' "
+        r"strata\.gpkg does not exist; 'inputs\.forage_classes' forage_classes\.csv has no data "
+        r"rows yet; 'inputs\.plots' plots\.csv has no data rows yet",
     ),
     Case(
         "supply: strata_without_forage names a sampled stratum and one not on the map (valid)",
