@@ -1,4 +1,4 @@
-"""Command line: ``nutricap demo | estimate | check | trend``.
+"""Command line: ``nutricap demo | init | estimate | compare | check | trend``.
 
 A thin layer over :mod:`nutricap.workflow`. A user's mistake
 (:class:`~nutricap.errors.InputError`) is printed as one message and exits
@@ -69,6 +69,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"nutricap {__version__}")
     commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     _add_demo(commands)
+    _add_init(commands)
     _add_estimate(commands)
     _add_compare(commands)
     _add_check(commands)
@@ -105,6 +106,28 @@ def _add_demo(commands) -> None:
     )
     parser.add_argument("--quiet", action="store_true", help=QUIET_HELP)
     parser.set_defaults(handler=run_demo)
+
+
+def _add_init(commands) -> None:
+    parser = _subparser(
+        commands,
+        "init",
+        "Write a template project to fill in: a commented project file, the tables with their "
+        "headers and an example row, and a README.",
+    )
+    parser.add_argument("folder", type=Path, help="a new or empty folder")
+    parser.set_defaults(handler=run_init)
+
+
+def run_init(args: argparse.Namespace) -> int:
+    """Write the template project into ``args.folder``; return 0."""
+    from nutricap.inputs.template import PROJECT_FILE, README, write_template
+
+    written = write_template(args.folder)
+    say(f"Template project written to {args.folder}: " + ", ".join(p.name for p in written))
+    say(f"Next: fill in the tables and {PROJECT_FILE}, add your units and strata layers")
+    say(f"({args.folder / README} says how), then run: nutricap check {args.folder / PROJECT_FILE}")
+    return EXIT_OK
 
 
 def _add_estimate(commands) -> None:

@@ -45,10 +45,12 @@ from nutricap.model.requirements import (
     requirement_table,
 )
 from nutricap.model.results import (
+    declared_bare_notes,
     ordering_notes,
     supply_notes,
     unit_class_table,
     unit_table,
+    unmapped_notes,
     unreachable_notes,
 )
 from nutricap.model.scenarios import (
@@ -64,7 +66,7 @@ from nutricap.model.uncertainty import (
     bootstrap_capacity,
     one_at_a_time,
 )
-from nutricap.model.use import assess_use, current_animals_from_counts
+from nutricap.model.use import assess_use, current_animals_from_counts, unmatched_counts_notes
 from nutricap.report.bundle import write_estimate
 from nutricap.report.manifest import BackgroundChecksums
 from nutricap.report.output_folder import check_output_folder, staged_folder
@@ -156,7 +158,11 @@ def estimate(
         animals=inputs.animals,
         requirement_table=inputs.requirement_table,
         notes=inputs.requirement_notes
+        + areas.notes
+        + (unmapped_notes(by_unit) if grid is None else [])
         + supply_notes(supply, inputs.plots)
+        + declared_bare_notes(supply, project.config.supply.strata_without_forage)
+        + unmatched_counts_notes(inputs.counts, areas.units["unit_id"].to_numpy())
         + unreachable_notes(by_unit)
         + ordering_notes(by_unit)
         + (grid.notes if grid is not None else []),

@@ -753,3 +753,78 @@ def test_a_vrt_mosaic_gives_the_table_of_the_single_geotiff(tmp_path):
         rasterio.open(tmp_path / "single" / "capacity_density.tif") as b,
     ):
         np.testing.assert_array_equal(a.read(1), b.read(1))
+
+
+LON0, LAT1, STEP_DEG, GEO_ROWS, GEO_COLS = -110.56, 44.08, 0.001, 100, 140
+
+
+def _lon_lat_landscape(folder: Path) -> tuple[np.ndarray, list[Polygon]]:
+    """A sage raster in lon/lat (0.001° cells, a smooth invented field) under two irregular
+    lon/lat units sharing an edge (invented for the example); strata and plots as needed."""
+    folder.mkdir(parents=True)
+    row, col = np.mgrid[0:GEO_ROWS, 0:GEO_COLS]
+    values = (150 + 2.0 * col + 1.0 * row).astype(np.float32)
+    transform = from_origin(LON0, LAT1, STEP_DEG, STEP_DEG)
+    _write_raster(folder / "sage.tif", values, transform=transform, crs="EPSG:4326")
+    shared = [(-110.497, 44.004), (-110.489, 44.047)]
+    units = [
+        Polygon([(-110.548, 44.012), *shared, (-110.517, 44.071), (-110.551, 44.049)]),
+        Polygon([shared[0], (-110.437, 44.009), (-110.431, 44.063), (-110.474, 44.068), shared[1]]),
+    ]
+    gpd.GeoDataFrame({"unit_id": ["Gorse", "Heron"]}, geometry=units, crs="EPSG:4326").to_file(
+        folder / "units.gpkg"
+    )
+    gpd.GeoDataFrame(
+        {"stratum": ["upland"]}, geometry=[box(-110.6, 43.95, -110.3, 44.1)], crs="EPSG:4326"
+    ).to_file(folder / "strata.gpkg")
+    (folder / "forage_classes.csv").write_text(
+        "forage_class,de_kcal_per_g,cp_pct,allowable_use\ngrass,2.0,5,0.5\nsage,2.7,10,0.5\n"
+    )
+    (folder / "animals.csv").write_text(ANIMALS)
+    (folder / "plots.csv").write_text(
+        "plot_id,stratum,forage_class,biomass_kg_per_ha\nA1,upland,grass,100\nA2,upland,grass,50\n"
+    )
+    return values, units
+
+
+def _geodesic_zonal_kg(values: np.ndarray, unit: Polygon) -> float:
+    """Σ value × geodesic area of (cell ∩ unit) over the lon/lat cells [kg]: shapely for the
+    pieces, pyproj.Geod for their areas on the WGS 84 ellipsoid."""
+    from pyproj import Geod
+
+    row, col = np.mgrid[0:GEO_ROWS, 0:GEO_COLS]
+    west, north = LON0 + col.ravel() * STEP_DEG, LAT1 - row.ravel() * STEP_DEG
+    cells = shapely.box(west, north - STEP_DEG, west + STEP_DEG, north)
+    pieces = shapely.intersection(cells, unit)
+    geod = Geod(ellps="WGS84")
+    kept = np.flatnonzero(~shapely.is_empty(pieces))
+    area_ha = [abs(geod.geometry_area_perimeter(pieces[i])[0]) / 1e4 for i in kept]
+    return float(np.dot(values.ravel()[kept].astype(float), area_ha))
+
+
+@pytest.mark.parametrize("method", ["bilinear", "average"])
+def test_lon_lat_raster_is_warped_onto_an_equal_area_grid(tmp_path, method):
+    folder = tmp_path / "inputs"
+    values, units = _lon_lat_landscape(folder)
+    rasters = f'[rasters]\nbiomass = {{ sage = "sage.tif" }}\nresample = "{method}"\n'
+    result = _grid_run(folder, rasters)
+    sage = np.asarray(result.problem.items.forage_class) == "sage"
+    ours_kg = result.problem.available_kg[:, sage].sum(axis=1)
+    reference_kg = [_geodesic_zonal_kg(values, unit) for unit in units]
+    # Tolerance 0.5 %: cells of about 92 m count wholly by their centre on units of about
+    # 2,700 ha with irregular edges (about 150 boundary cells each, whose errors mostly
+    # cancel), and the warp interpolates a field that is linear in row and column.
+    np.testing.assert_allclose(ours_kg, reference_kg, rtol=5e-3)
+    assert any("is in a geographic CRS (WGS 84): the analysis grid" in n for n in result.notes)
+    assert any(f"resampled onto the grid by {method} resampling" in n for n in result.notes)
+    assert result.grid.grid.crs.to_wkt().startswith(
+        'PROJCS["Lambert azimuthal equal-area centred on the units'
+    )
+
+
+def test_lon_lat_raster_without_resample_is_refused(tmp_path):
+    folder = tmp_path / "inputs"
+    _lon_lat_landscape(folder)
+    with pytest.raises(SpatialError, match=r"sage\.tif: key 'rasters\.biomass\.sage': the raster "
+                       r"that defines the grid has a geographic CRS.*set resample"):  # fmt: skip
+        _grid_run(folder, '[rasters]\nbiomass = { sage = "sage.tif" }\n')

@@ -10,7 +10,9 @@ import sqlite3
 import geopandas as gpd
 import numpy as np
 import pytest
-from pyproj import Geod
+import shapely
+import shapely.affinity
+from pyproj import CRS, Geod
 from shapely.geometry import Polygon, box
 from shapely.ops import unary_union
 
@@ -63,9 +65,12 @@ def layers(tmp_path):
         ],
         crs=UTM,
     )
-    # The strata layer is stored in geographic coordinates to exercise reprojection.
+    # The strata layer is stored in geographic coordinates to exercise reprojection. An edge
+    # is a straight line in its layer's CRS (OGC simple features), so the UTM edges are split
+    # every 10 m first: straight in UTM and in lon/lat alike, within a millimetre.
     units_path = _write(units, tmp_path / "units.gpkg", "units")
-    strata_path = _write(strata_utm.to_crs("EPSG:4326"), tmp_path / "strata.gpkg", "strata")
+    strata_lon_lat = strata_utm.set_geometry(strata_utm.segmentize(10.0)).to_crs("EPSG:4326")
+    strata_path = _write(strata_lon_lat, tmp_path / "strata.gpkg", "strata")
     return units, strata_utm, units_path, strata_path
 
 
@@ -175,3 +180,73 @@ def test_nul_in_a_geopackage_id_refused(layers, tmp_path):
     assert sorted(p.name for p in units.parent.iterdir() if p.name.startswith("units")) == [
         "units.gpkg"
     ], "read only: no journal or -shm file"
+
+
+def _t_junction_units() -> gpd.GeoDataFrame:
+    """Three units in lon/lat (invented for the example): a long southern unit whose northern
+    edge has only its two corner vertices, and two northern units meeting on that edge at a
+    vertex of their own (a T-junction). Edge 0.3° long at 44.1° N (about 24 km)."""
+    lon0, lat0 = -110.5, 44.0
+    south = box(lon0, lat0, lon0 + 0.3, lat0 + 0.1)
+    west = box(lon0, lat0 + 0.1, lon0 + 0.15, lat0 + 0.2)
+    east = box(lon0 + 0.15, lat0 + 0.1, lon0 + 0.3, lat0 + 0.2)
+    return gpd.GeoDataFrame(
+        {"unit_id": ["south", "west", "east"]}, geometry=[south, west, east], crs="EPSG:4326"
+    )
+
+
+def test_lon_lat_t_junction_accepted_with_geodesic_areas(tmp_path):
+    units = _t_junction_units()
+    # Reprojected vertex by vertex, the straight edge and the two edges through the junction
+    # take different paths: shapely measures hectares shared (the old refusal).
+    from nutricap.landscape.vectors import choose_area_crs
+
+    crs, _ = choose_area_crs(units)
+    plain = units.to_crs(crs).geometry
+    assert plain.iloc[0].intersection(plain.iloc[1]).area > 1e4  # m², shapely
+    strata = gpd.GeoDataFrame(
+        {"stratum": ["steppe"]}, geometry=[box(-110.6, 43.9, -110.1, 44.3)], crs="EPSG:4326"
+    )
+    units_path = _write(units, tmp_path / "units.gpkg", "units")
+    strata_path = _write(strata, tmp_path / "strata.gpkg", "strata")
+    result = _overlay(units_path, strata_path)
+    geod = Geod(ellps="WGS84")
+    for geometry, area_ha in zip(units.geometry, result.units["area_ha"]):
+        # Reference: pyproj.Geod geodesic area of the polygon split every 0.0001° (about 10 m),
+        # where a geodesic and the straight line in lon/lat coincide to well under 1e-6.
+        dense = shapely.segmentize(geometry, 1e-4)
+        geodesic_m2 = abs(geod.geometry_area_perimeter(dense)[0])
+        assert area_ha == pytest.approx(geodesic_m2 / 1e4, rel=1e-6)
+    # The strata cover every unit: the pieces add up to the units' areas.
+    assert result.by_unit_stratum["area_ha"].sum() == pytest.approx(
+        result.units["area_ha"].sum(), rel=1e-9
+    )
+    # The largest overlap left is noted (a fraction of a m², far below 1e-6 of 13,000 ha).
+    assert len(result.notes) == 1
+    assert "the largest overlap" in result.notes[0] and "within the tolerance" in result.notes[0]
+
+
+def test_overlap_above_the_relative_tolerance_still_refused(tmp_path):
+    units = _t_junction_units()
+    # Shift the western unit 0.0005° (about 55 m) south into the southern unit: 0.6 ha shared,
+    # far above 1e-6 of its 13,000 ha (hand computed: 0.15° × 80 km/° × 0.0005° × 111 km/°).
+    units.loc[1, "geometry"] = shapely.affinity.translate(units.geometry.iloc[1], 0, -0.0005)
+    units_path = _write(units, tmp_path / "units.gpkg", "units")
+    strata = gpd.GeoDataFrame(
+        {"stratum": ["steppe"]}, geometry=[box(-110.6, 43.9, -110.1, 44.3)], crs="EPSG:4326"
+    )
+    strata_path = _write(strata, tmp_path / "strata.gpkg", "strata")
+    with pytest.raises(SpatialError, match=r"units overlap: unit_id 'south' and 'west' share"):
+        _overlay(units_path, strata_path)
+
+
+def test_equal_area_crs_has_a_name_and_the_laea_projection():
+    from nutricap.landscape.vectors import equal_area_crs
+
+    crs = equal_area_crs(44.15, -110.35)
+    assert crs.name.startswith("Lambert azimuthal equal-area centred on the units")
+    assert "44.1500 N, 110.3500 W" in crs.name
+    # Reference: the same projection written as a PROJ string (PROJ's laea definition).
+    reference = CRS.from_proj4("+proj=laea +lat_0=44.15 +lon_0=-110.35 +datum=WGS84 +units=m")
+    assert crs.equals(reference, ignore_axis_order=True)
+    assert CRS.from_wkt(crs.to_wkt()).name == crs.name

@@ -148,3 +148,60 @@ def test_protein_limited_ncc_equals_an_lp_with_the_linear_dp_equation(project):
     lp_days = problem.sum_by_unit(np.array(limits)) / result.herd.intake_kg_per_day
     np.testing.assert_allclose(result.by_unit["ncc_animal_days"], lp_days, rtol=1e-8)
     assert (result.by_unit["limiting_factor"] == "protein").all()
+
+
+def test_outputs_of_lon_lat_units_carry_the_named_equal_area_crs(project, tmp_path):
+    import rasterio
+    from pyproj import CRS
+
+    units_path = project.parent / "units.gpkg"
+    gpd.read_file(units_path).to_crs("EPSG:4326").to_file(units_path, driver="GPKG")
+    text = project.read_text().replace("bootstrap_replicates = 1000", "bootstrap_replicates = 0")
+    project.write_text(text)
+    out = tmp_path / "results"
+    run_estimate(load_project(project), out, report=False)
+    layer_crs = CRS.from_user_input(gpd.read_file(out / "capacity_by_unit.gpkg").crs)
+    with rasterio.open(out / "capacity_density.tif") as raster:
+        raster_crs = CRS.from_wkt(raster.crs.to_wkt())
+    manifest = json.loads((out / "run.json").read_text())
+    for crs in (layer_crs, raster_crs):
+        # Read back with pyproj from the files' own WKT: named, and a Lambert azimuthal
+        # equal-area projection (PROJ method name).
+        assert crs.name.startswith("Lambert azimuthal equal-area centred on the units")
+        assert crs.coordinate_operation.method_name == "Lambert Azimuthal Equal Area"
+    assert manifest["derived"]["area_crs"] == layer_crs.name
+
+
+def test_unit_partly_off_the_strata_map_is_noted(example_estimate, example_project):
+    from shapely.ops import unary_union
+
+    folder = example_project.parent
+    units = gpd.read_file(folder / "units.gpkg")
+    strata = unary_union(gpd.read_file(folder / "strata.gpkg").geometry)
+    # Reference: shapely's intersection of each unit with the union of the strata.
+    share = units.geometry.intersection(strata).area / units.geometry.area
+    partial = units.loc[share < 1 - 1e-4, "unit_id"].tolist()
+    assert partial  # the example leaves ground unmapped (invented for the example)
+    note = next(n for n in example_estimate.notes if "only partly covered" in n)
+    for unit_id, fraction in zip(units["unit_id"], share):
+        if unit_id in partial:
+            assert f"{unit_id} ({fraction:.1%} of its" in note
+        else:
+            assert f"{unit_id} (" not in note
+
+
+def test_counts_of_unknown_units_and_sampled_bare_strata_are_noted(project):
+    with (project.parent / "counts.csv").open("a") as stream:
+        stream.write("Nowhere Flat,2022,30\nNowhere Flat,2023,35\nNowhere Flat,2024,40\n")
+    text = project.read_text().replace(
+        "[forage_use]",
+        '[supply]\nstrata_without_forage = ["sagebrush_steppe", "glacier"]\n\n[forage_use]',
+    )
+    project.write_text(text.replace("bootstrap_replicates = 1000", "bootstrap_replicates = 0"))
+    notes = estimate(load_project(project)).notes
+    counts_note = next(n for n in notes if n.startswith("counts for 1 unit id(s)"))
+    assert "'Nowhere Flat'" in counts_note and "(3 rows)" in counts_note  # invented rows
+    plots = pd.read_csv(project.parent / "plots.csv")
+    n_steppe = plots.loc[plots["stratum"] == "sagebrush_steppe", "plot_id"].nunique()  # pandas
+    assert any(f"sagebrush_steppe ({n_steppe} plots)" in n for n in notes)
+    assert any("not on the strata map" in n and "glacier" in n for n in notes)

@@ -22,6 +22,9 @@ a :class:`TableSource` holds the file with the project's ``[columns.KEY]`` mappi
 ``[sheets]`` entry; the mapping is applied here, once, as the table is read, and every later
 message about a mapped column names the file's own column (``column 'ELK_NOW' (mapped to
 current_animals)``).
+A line beginning with ``#`` is a comment (the example rows of a template written by
+``nutricap init``): comment lines after the last data row are skipped like empty rows; one
+above a data row is refused, for the same reason as an empty row.
 """
 
 from __future__ import annotations
@@ -52,6 +55,9 @@ NOT_AVAILABLE = frozenset({"na", "n/a"})
 """Cell texts read as blank (case-insensitive) where a column accepts blanks."""
 DATE_LIKE = re.compile(r"^\d{1,4}[/.-]\d{1,2}[/.-]\d{1,4}([ T]\d{1,2}:\d{2}(:\d{2})?)?$")
 ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}([ T]\d{2}:\d{2}(:\d{2})?)?$")
+COMMENT = "#"
+"""A line beginning with this and then a space (or nothing) is a comment, allowed after the last
+data row. ``#12,...`` is data (a plot id may begin with ``#``), never skipped as a comment."""
 NEAR_MISS_CUTOFF = 0.8
 """An undeclared column this close (difflib ratio, ignoring case) to an absent declared one
 is taken for a misspelling and refused."""
@@ -261,7 +267,7 @@ def read_csv_table(path: Path | TableSource, columns: list[Column], *, what: str
 
 def _read_raw(source: TableSource, what: str) -> pd.DataFrame:
     _refuse_sheet_of_csv(source)
-    text = _read_text(source, what)
+    text = _without_trailing_comments(_read_text(source, what), source)
     lines = text.splitlines()
     header = lines[0].strip() if lines else ""
     if not header:
@@ -401,6 +407,43 @@ def _cell_text(value: object) -> str:
     if isinstance(value, dt.date | dt.time):
         return value.isoformat()
     return str(value)
+
+
+def _is_comment(line: str) -> bool:
+    text = line.strip()
+    return text == COMMENT or text.startswith(COMMENT + " ")
+
+
+def has_data_rows(path: Path) -> bool:
+    """Whether a readable CSV file has a line after the header that is neither empty nor a
+    comment (True when it cannot be read as text: its reader then says why)."""
+    try:
+        lines = path.read_bytes().decode("utf-8-sig").splitlines()[1:]
+    except (OSError, UnicodeDecodeError):
+        return True
+    return any(line.strip() and not _is_comment(line) for line in lines)
+
+
+def _without_trailing_comments(text: str, path: Source) -> str:
+    """``text`` without the comment and empty lines after its last data row; a comment line
+    above a data row is refused (every later row number would be off by one)."""
+    lines = text.splitlines(keepends=True)
+    if not any(_is_comment(line) for line in lines[1:]):
+        return text
+    end = len(lines)
+    while end > 1 and (not lines[end - 1].strip() or _is_comment(lines[end - 1])):
+        end -= 1
+    for number, line in enumerate(lines[1:end], start=2):
+        if _is_comment(line):
+            raise TableError(
+                f"a comment line (beginning with {COMMENT + ' '!r}) above a data row",
+                source=path,
+                location=f"row {number}",
+                expected="comment lines only after the last data row: delete it or move it "
+                "to the end (the rows below would be numbered one off)",
+                found=repr(line.strip()[:60]),
+            )
+    return "".join(lines[:end])
 
 
 def _refuse_nul(frame: pd.DataFrame, path: Source, what: str) -> None:

@@ -18,7 +18,7 @@ from typing import Annotated, Literal
 from pydantic import BaseModel, Field, ValidationError, model_validator
 
 from nutricap.errors import FILE_MISSING, ProjectFileError, file_problem
-from nutricap.inputs.columns import FIRST_YEAR, LAST_YEAR, TableSource
+from nutricap.inputs.columns import FIRST_YEAR, LAST_YEAR, TableSource, has_data_rows
 from nutricap.inputs.raster_config import (
     AvailabilitySection,
     InputPath,
@@ -26,6 +26,7 @@ from nutricap.inputs.raster_config import (
     StrictSection,
     raster_input_paths,
 )
+from nutricap.inputs.template import README, is_template_readme
 
 #: Longest season [days]: a year, leap day included. The same bound holds for
 #: ``season_days`` and for the span of ``season_start`` .. ``season_end``.
@@ -506,17 +507,65 @@ def _lookup(raw: dict, location: list[str]) -> object:
 
 def _check_inputs_exist(project: Project) -> None:
     """Every input can be opened: it exists, is a file (or a folder, as some vector formats
-    are) and not the project's own folder; links are followed, paths named as written."""
+    are) and not the project's own folder; links are followed, paths named as written.
+
+    When an input is missing, every missing input and every table with a header and no data
+    rows (a template from ``nutricap init`` not filled in yet) are listed in one message; the
+    tables' contents are otherwise left to their readers."""
+    missing = []
     for name, path in project.written_input_paths().items():
-        key = name if "." in name else f"inputs.{name}"
+        key = _key(name)
         problem = file_problem(path)
         if problem is None and path.is_dir() and project.path.is_relative_to(path.resolve()):
             problem = "is a folder that holds the project file"
         if problem is not None:
-            raise ProjectFileError(
-                f"input file for key '{key}' {problem}",
-                source=project.path,
-                expected="a path relative to the project file"
-                + ("" if problem == FILE_MISSING else ", to a regular file"),
-                found=str(path),
-            )
+            missing.append((key, path, problem))
+    empty = _tables_without_rows(project) if missing else []
+    if len(missing) + len(empty) > 1:
+        _raise_unfilled(project, missing, empty)
+    if missing:
+        key, path, problem = missing[0]
+        raise ProjectFileError(
+            f"input file for key '{key}' {problem}",
+            source=project.path,
+            expected="a path relative to the project file"
+            + ("" if problem == FILE_MISSING else ", to a regular file"),
+            found=str(path),
+        )
+
+
+def _tables_without_rows(project: Project) -> list[tuple[str, Path]]:
+    """The CSV inputs that are regular files with a header and no data rows."""
+    return [
+        (_key(name), path)
+        for name, path in project.written_input_paths().items()
+        if path.suffix.lower() == ".csv" and path.is_file() and not has_data_rows(path)
+    ]
+
+
+def _raise_unfilled(
+    project: Project, missing: list[tuple[str, Path, str]], empty: list[tuple[str, Path]]
+) -> None:
+    parts = [f"'{key}' {_shown(path, project)} {problem}" for key, path, problem in missing]
+    parts += [f"'{key}' {_shown(path, project)} has no data rows yet" for key, path in empty]
+    readme = project.folder / README
+    guide = f" ({README} beside it says what to fill in)" if is_template_readme(readme) else ""
+    raise ProjectFileError(
+        f"the project is not filled in yet{guide}: {len(parts)} inputs to provide: "
+        + "; ".join(parts),
+        source=project.path,
+        expected="every file the project file names, each table with data rows",
+        found=f"{len(missing)} file(s) missing, {len(empty)} table(s) without data rows",
+    )
+
+
+def _key(name: str) -> str:
+    """The project key of input ``name`` (``plots`` → ``inputs.plots``)."""
+    return name if "." in name else f"inputs.{name}"
+
+
+def _shown(path: Path, project: Project) -> str:
+    """``path`` relative to the project file's folder when inside it."""
+    return (
+        str(path.relative_to(project.folder)) if path.is_relative_to(project.folder) else str(path)
+    )

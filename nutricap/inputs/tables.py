@@ -93,7 +93,12 @@ FORAGE_CLASS_COLUMNS = [
 PLOT_COLUMNS = [
     Column("plot_id", "text", meaning="plot identifier"),
     Column("stratum", "text", meaning="vegetation stratum of the plot"),
-    Column("forage_class", "text", meaning="forage class clipped"),
+    Column(
+        "forage_class",
+        "text",
+        allow_blank=True,
+        meaning="forage class clipped (empty on the one row of a bare plot)",
+    ),
     Column(
         "dry_mass_g",
         required=False,
@@ -252,7 +257,39 @@ def read_plots(path: Source) -> pd.DataFrame:
     table["biomass_kg_per_ha"] = direct
     check_unique(table, ["plot_id", "forage_class"], path)
     _require_one_stratum_per_plot(table, path)
+    _require_bare_rows_bare(table, path)
     return table
+
+
+def _require_bare_rows_bare(table: pd.DataFrame, path: Path) -> None:
+    """A row with an empty ``forage_class`` records a bare plot: mass 0, the plot's only row.
+
+    Such a plot counts as zero of every class in its stratum (docs/inputs.md).
+    """
+    bare = (table["forage_class"] == "").to_numpy()
+    if not bare.any():
+        return
+    loaded = bare & (table["biomass_kg_per_ha"].to_numpy() > 0)
+    if loaded.any():
+        index = int(np.flatnonzero(loaded)[0])
+        raise TableError(
+            "forage without a forage class",
+            source=path,
+            location=f"row {spreadsheet_row(index)}, column 'forage_class'",
+            expected="a forage class, or mass 0 on the one row of a bare plot",
+            found=f"an empty cell with {table['biomass_kg_per_ha'].iloc[index]:g} kg/ha",
+        )
+    bare_plots = set(table.loc[bare, "plot_id"])
+    mixed = (~bare & table["plot_id"].isin(bare_plots)).to_numpy()
+    if mixed.any():
+        index = int(np.flatnonzero(mixed)[0])
+        raise TableError(
+            "plot recorded both as bare and with a forage class",
+            source=path,
+            location=f"row {spreadsheet_row(index)}, column 'forage_class'",
+            expected="one row with an empty forage_class for a bare plot, or rows with classes",
+            found=f"plot {table['plot_id'].iloc[index]!r} also on a row with an empty forage_class",
+        )
 
 
 def _require_pairs(table: pd.DataFrame, path: Path) -> None:

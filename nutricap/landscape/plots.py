@@ -2,7 +2,9 @@
 
 A plot with no record of a class carries zero of that class, not a missing
 value: the plots table is long (one row per plot × class found) and is
-completed with zeros before means are taken.
+completed with zeros before means are taken. A bare plot (no forage at all) is
+one row with an empty ``forage_class`` and mass 0: it counts as zero of every
+class in its stratum (leaving it out would bias the stratum's means upward).
 """
 
 from __future__ import annotations
@@ -16,6 +18,9 @@ import pandas as pd
 from nutricap.errors import TableError
 from nutricap.inputs.columns import Source, check_known
 from nutricap.science.supply import stratum_mean_and_standard_error
+
+BARE_PLOT_CLASS = ""
+"""The ``forage_class`` of a bare plot's one row (no forage clipped)."""
 
 
 @dataclass(frozen=True)
@@ -86,7 +91,11 @@ def stratum_supply(
     not declared in ``strata_without_forage``.
     """
     check_known(
-        plots, "forage_class", set(classes), plots_path, known_from="the forage-class table"
+        plots,
+        "forage_class",
+        set(classes) | {BARE_PLOT_CLASS},
+        plots_path,
+        known_from="the forage-class table (or empty on a bare plot)",
     )
     check_known(
         plots, "stratum", set(map_strata), plots_path, known_from=f"the strata map {strata_path}"

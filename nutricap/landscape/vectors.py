@@ -12,14 +12,17 @@ from __future__ import annotations
 
 import warnings
 from contextlib import closing
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import geopandas as gpd
 import numpy as np
 import pandas as pd
 import pyogrio
+import shapely
 from pyproj import CRS, Proj
+from pyproj.crs import ProjectedCRS
+from pyproj.crs.coordinate_operation import LambertAzimuthalEqualAreaConversion
 from shapely.validation import explain_validity
 
 from nutricap.errors import SpatialError
@@ -37,7 +40,20 @@ DBF_NAME_CHARS = 10
 """A shapefile's attribute names (dBASE fields) hold at most this many characters; GDAL cuts
 longer names when it writes one and numbers the names a cut makes equal (``current_1``)."""
 OVERLAP_TOLERANCE_M2 = 1.0
-"""Two polygons sharing more than this area [m²] count as overlapping."""
+"""Two polygons sharing more than this area [m²] (or :data:`OVERLAP_RELATIVE_TOLERANCE` of the
+smaller one, when that is more) count as overlapping."""
+OVERLAP_RELATIVE_TOLERANCE = 1e-6
+"""Share of the smaller polygon's area two polygons may share without counting as overlapping:
+what is left of a T-junction (an edge meeting a neighbour's vertex) after reprojection, a few
+square metres on units of thousands of hectares."""
+NOTED_OVERLAP_M2 = 0.01
+"""The largest overlap within the tolerance is noted in the run when it is at least this [m²]."""
+DENSIFY_SEGMENT_M = 100.0
+"""Before a layer is reprojected, its edges are split into pieces at most about this long [m]
+(0.001° in a geographic CRS, ~111 m of latitude): a straight edge in one CRS is a curve in
+another, and an edge must follow the same path as the neighbour's edge that a T-junction
+vertex splits, or the two overlap (by hectares on edges of tens of kilometres)."""
+DENSIFY_SEGMENT_DEG = 0.001
 AREAL_SCALE_TOLERANCE = 0.005
 """A projected CRS whose areal scale departs more than this from 1 over the units is not used
 for areas. UTM inside its zone stays within about 0.2 % (point scale k0 = 0.9996 on the central
@@ -68,6 +84,9 @@ class StratumAreas:
     pieces : GeoDataFrame, optional
         The overlay's polygons (``unit_id, stratum, accessible_fraction, area_ha,
         accessible_ha``) in the area CRS, for later overlays (treatments).
+    notes : list of str
+        What the run should say about the layers (the largest overlap within the tolerance,
+        units not wholly mapped).
     """
 
     units: gpd.GeoDataFrame
@@ -75,6 +94,7 @@ class StratumAreas:
     area_crs: CRS
     area_crs_reason: str
     pieces: gpd.GeoDataFrame | None = None
+    notes: list[str] = field(default_factory=list)
 
 
 def read_layer(
@@ -489,12 +509,37 @@ def choose_area_crs(units: gpd.GeoDataFrame) -> tuple[CRS, str]:
         why = f"the units layer's CRS ({crs.to_string()}) {problem}"
     else:
         why = "the units layer is geographic"
-    laea = CRS.from_proj4(f"+proj=laea +lat_0={lat:.6f} +lon_0={lon:.6f} +datum=WGS84 +units=m")
+    laea = equal_area_crs(lat, lon)
     reason = (
         f"{why}, so areas use a Lambert azimuthal equal-area "
         f"projection centred on the units ({lat:.4f}, {lon:.4f})"
     )
     return laea, reason
+
+
+def equal_area_crs(lat: float, lon: float) -> CRS:
+    """Lambert azimuthal equal-area CRS on WGS 84 centred on (``lat``, ``lon``) [°], with a name
+    that says so (written into the outputs' GeoPackage and GeoTIFF with its WKT)."""
+    conversion = LambertAzimuthalEqualAreaConversion(round(lat, 6), round(lon, 6))
+    name = (
+        f"Lambert azimuthal equal-area centred on the units ({abs(lat):.4f} "
+        f"{'N' if lat >= 0 else 'S'}, {abs(lon):.4f} {'E' if lon >= 0 else 'W'}), WGS 84"
+    )
+    return CRS(ProjectedCRS(conversion, name=name, geodetic_crs=CRS.from_epsg(4326)).to_wkt())
+
+
+def to_area_crs(frame: gpd.GeoDataFrame, crs: CRS) -> gpd.GeoDataFrame:
+    """``frame`` in ``crs``, its edges first split into pieces of at most
+    :data:`DENSIFY_SEGMENT_M` (see there) when the CRS changes."""
+    source = CRS.from_user_input(frame.crs)
+    if source == crs:
+        return frame.to_crs(crs)
+    if source.is_geographic:
+        step = DENSIFY_SEGMENT_DEG
+    else:
+        step = DENSIFY_SEGMENT_M / source.axis_info[0].unit_conversion_factor
+    dense = frame.set_geometry(shapely.segmentize(frame.geometry.to_numpy(), step), crs=source)
+    return dense.to_crs(crs)
 
 
 def _area_problem(crs: CRS, units: gpd.GeoDataFrame) -> str | None:
@@ -518,31 +563,45 @@ def _centre_lon_lat(units: gpd.GeoDataFrame) -> tuple[float, float]:
     return (west + east) / 2.0, (south + north) / 2.0
 
 
-def check_no_overlaps(frame: gpd.GeoDataFrame, id_column: str, path: Source, what: str) -> None:
-    """Raise :class:`SpatialError` when two polygons share more than the tolerance."""
+def check_no_overlaps(
+    frame: gpd.GeoDataFrame, id_column: str, path: Source, what: str
+) -> str | None:
+    """Raise :class:`SpatialError` when two polygons share more than the tolerance: the larger
+    of :data:`OVERLAP_TOLERANCE_M2` and :data:`OVERLAP_RELATIVE_TOLERANCE` of the smaller
+    polygon's area. Return a note on the largest overlap within it (None below
+    :data:`NOTED_OVERLAP_M2`)."""
     left, right = frame.sindex.query(frame.geometry, predicate="intersects")
     pairs = left < right
     left, right = left[pairs], right[pairs]
     if left.size == 0:
-        return
-    shared = (
-        frame.geometry.iloc[left]
-        .reset_index(drop=True)
-        .intersection(frame.geometry.iloc[right].reset_index(drop=True))
-        .area.to_numpy()
-    )
-    overlapping = np.flatnonzero(shared > OVERLAP_TOLERANCE_M2)
+        return None
+    first_side = frame.geometry.iloc[left].reset_index(drop=True)
+    second_side = frame.geometry.iloc[right].reset_index(drop=True)
+    shared = first_side.intersection(second_side).area.to_numpy()
+    smaller = np.minimum(first_side.area.to_numpy(), second_side.area.to_numpy())
+    tolerance = np.maximum(OVERLAP_TOLERANCE_M2, OVERLAP_RELATIVE_TOLERANCE * smaller)
+    overlapping = np.flatnonzero(shared > tolerance)
+    ids = frame[id_column].to_numpy()
     if overlapping.size:
         first = overlapping[0]
-        a = frame[id_column].iloc[left[first]]
-        b = frame[id_column].iloc[right[first]]
+        a, b = ids[left[first]], ids[right[first]]
         raise SpatialError(
             f"{what} overlap: {id_column} {a!r} and {b!r} share {shared[first] / M2_PER_HA:.4g} ha",
             source=path,
             location=f"features {left[first] + 1} and {right[first] + 1} (of {len(frame)})",
-            expected="polygons that do not overlap (shared edges are fine)",
+            expected="polygons that do not overlap (shared edges are fine; at most "
+            f"{tolerance[first]:.3g} m², {OVERLAP_RELATIVE_TOLERANCE:g} of the smaller one)",
             found="overlapping polygons",
         )
+    worst = int(np.argmax(shared))
+    if shared[worst] < NOTED_OVERLAP_M2:
+        return None
+    return (
+        f"{what} of {path.name}: the largest overlap, {shared[worst]:.3g} m² between "
+        f"{id_column} {ids[left[worst]]!r} and {ids[right[worst]]!r}, is within the tolerance "
+        f"(1 m² or {OVERLAP_RELATIVE_TOLERANCE:g} of the smaller polygon, whichever is more; "
+        "what is left of edges meeting at T-junctions after reprojection) and is counted in both"
+    )
 
 
 def overlay_strata_on_units(
@@ -554,10 +613,12 @@ def overlay_strata_on_units(
     the polygon animals can reach; ``accessible_ha = area_ha × fraction``.
     """
     area_crs, reason = choose_area_crs(units)
-    units = units.to_crs(area_crs)
-    strata = strata.to_crs(area_crs)
-    check_no_overlaps(units, "unit_id", units_path, "units")
-    check_no_overlaps(strata, "stratum", strata_path, "strata polygons")
+    units = to_area_crs(units, area_crs)
+    strata = to_area_crs(strata, area_crs)
+    notes = [
+        check_no_overlaps(units, "unit_id", units_path, "units"),
+        check_no_overlaps(strata, "stratum", strata_path, "strata polygons"),
+    ]
     units = units[["unit_id", *_extra_unit_columns(units), "geometry"]].copy()
     units["area_ha"] = units.geometry.area / M2_PER_HA
     pieces = gpd.overlay(
@@ -571,7 +632,7 @@ def overlay_strata_on_units(
     table = pieces.groupby(["unit_id", "stratum"], as_index=False, sort=True)[
         ["area_ha", "accessible_ha"]
     ].sum()
-    return StratumAreas(units, table, area_crs, reason, pieces)
+    return StratumAreas(units, table, area_crs, reason, pieces, [n for n in notes if n])
 
 
 def _extra_unit_columns(units: gpd.GeoDataFrame) -> list[str]:

@@ -124,6 +124,60 @@ def _units_note(by_unit: pd.DataFrame, where: pd.Series, text: str) -> list[str]
     return [text.format(units=", ".join(map(str, units)))] if units else []
 
 
+UNMAPPED_SHARE_NOTED = 1e-4
+"""A unit whose strata cover less than 1 − this share of its area is named in a note."""
+SHOWN_IN_NOTE = 10
+"""Names listed at most in one note (the rest are counted)."""
+
+
+def _listed(names: list[str]) -> str:
+    shown = ", ".join(map(str, names[:SHOWN_IN_NOTE]))
+    more = len(names) - SHOWN_IN_NOTE
+    return shown + (f" and {more} more" if more > 0 else "")
+
+
+def unmapped_notes(by_unit: pd.DataFrame) -> list[str]:
+    """Units whose mapped (strata) area is smaller than their area: the unmapped ground is
+    counted as ground without forage."""
+    share = by_unit["mapped_ha"] / by_unit["area_ha"]
+    partial = by_unit[share < 1.0 - UNMAPPED_SHARE_NOTED]
+    if partial.empty:
+        return []
+    named = [
+        f"{unit} ({mapped:.1%} of its {area:,.1f} ha mapped)"
+        for unit, mapped, area in zip(
+            partial["unit_id"], partial["mapped_ha"] / partial["area_ha"], partial["area_ha"]
+        )
+    ]
+    unmapped_ha = float((partial["area_ha"] - partial["mapped_ha"]).sum())
+    return [
+        f"{len(partial)} unit(s) only partly covered by the strata map: {_listed(named)}; "
+        f"their {unmapped_ha:,.1f} ha outside the map are counted as ground without forage "
+        "(map them, or check the layers' extents)"
+    ]
+
+
+def declared_bare_notes(supply: StratumSupply, strata_without_forage: list[str]) -> list[str]:
+    """``[supply] strata_without_forage`` entries that have plots (their plots are used) or
+    that are not on the map (the entry does nothing)."""
+    n_plots = dict(zip(supply.strata, supply.n_plots))
+    sampled = [name for name in strata_without_forage if n_plots.get(name, 0) > 0]
+    absent = [name for name in strata_without_forage if name not in n_plots]
+    notes = []
+    if sampled:
+        notes.append(
+            "strata listed in [supply] strata_without_forage have clip plots, and their plots "
+            "are used (the stratum carries the plots' forage): "
+            + _listed([f"{name} ({n_plots[name]} plots)" for name in sampled])
+        )
+    if absent:
+        notes.append(
+            "strata listed in [supply] strata_without_forage are not on the strata map (a "
+            "spelling difference?): " + _listed(absent)
+        )
+    return notes
+
+
 def supply_notes(supply: StratumSupply, plots: pd.DataFrame) -> list[str]:
     """Things the user should know that are not errors."""
     notes = []

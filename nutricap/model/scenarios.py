@@ -30,7 +30,13 @@ from nutricap.inputs.columns import (
     spreadsheet_row,
 )
 from nutricap.inputs.project import Project, ScenarioSection
-from nutricap.landscape.vectors import M2_PER_HA, StratumAreas, check_no_overlaps, read_layer
+from nutricap.landscape.vectors import (
+    M2_PER_HA,
+    StratumAreas,
+    check_no_overlaps,
+    read_layer,
+    to_area_crs,
+)
 from nutricap.model.problem import ForageItems, problem_from_pieces
 from nutricap.science.forage_quality import digestible_protein_pct
 from nutricap.science.treatment import response_at
@@ -85,7 +91,7 @@ class Scenario:
 def load_scenario(project: Project, name: str, areas: StratumAreas, strata: list[str]) -> Scenario:
     """Read a scenario's layer and table, check them, and overlay the treatments."""
     section, treatments, responses = read_scenario(project, name, strata)
-    treated = overlay_treatments(areas, treatments.to_crs(areas.area_crs))
+    treated = overlay_treatments(areas, to_area_crs(treatments, areas.area_crs))
     return Scenario(name, section, treated, responses)
 
 

@@ -30,6 +30,23 @@ def current_animals_from_counts(counts: pd.DataFrame, unit_ids: np.ndarray) -> n
     return latest.reindex(unit_ids).to_numpy(dtype=float)
 
 
+def unmatched_counts_notes(counts: pd.DataFrame | None, unit_ids: np.ndarray) -> list[str]:
+    """Count series whose unit id matches no unit: in the trend of the total, in no unit."""
+    if counts is None or "unit_id" not in counts.columns:
+        return []
+    named = counts.loc[counts["unit_id"] != "", "unit_id"]
+    unmatched = sorted(set(named) - set(unit_ids.tolist()))
+    if not unmatched:
+        return []
+    rows = int(named.isin(unmatched).sum())
+    shown = ", ".join(map(repr, unmatched[:10])) + (" …" if len(unmatched) > 10 else "")
+    return [
+        f"counts for {len(unmatched)} unit id(s) that match no unit of the units layer "
+        f"({rows} rows): {shown}; they are in the trend of the counts' total, but in no "
+        "unit's current use (a spelling difference, or a unit missing from the layer?)"
+    ]
+
+
 def class_matrix(problem: CapacityProblem, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Sum per-row, per-item ``values`` into (units, classes); return (classes, matrix)."""
     classes, item_class = np.unique(problem.items.forage_class, return_inverse=True)

@@ -17,6 +17,7 @@ from nutricap.landscape.density import piece_density, write_piece_density
 from nutricap.landscape.grid.outputs import grid_outputs_alongside
 from nutricap.model.requirements import DietTarget
 from nutricap.model.results import totals_table
+from nutricap.report.formatting import crs_label
 from nutricap.report.manifest import BackgroundChecksums, build_manifest
 from nutricap.report.tables import markdown_table, write_csv, write_geopackage, write_json
 
@@ -137,7 +138,7 @@ def _derived_values(result: Estimate) -> dict:
         "target_derivation": result.target.derivation,
         "herd": asdict(result.herd),
         "season_days": result.season_days,
-        "area_crs": result.areas.area_crs.to_string(),
+        "area_crs": crs_label(result.areas.area_crs),
         "area_crs_reason": result.areas.area_crs_reason,
         "notes": result.notes,
         **({"raster_path": result.grid.describe()} if result.grid is not None else {}),

@@ -20,6 +20,12 @@ if TYPE_CHECKING:
     from matplotlib.figure import Figure
 
 
+def crs_label(crs: Any) -> str:
+    """A CRS as its authority code (``EPSG:32612``) when it has one, else its name (a CRS
+    nutricap defined, e.g. an equal-area projection centred on the units)."""
+    return crs.to_string() if crs.to_authority() is not None else crs.name
+
+
 def is_missing(value: Any) -> bool:
     """Whether ``value`` is None or NaN (shown as '–')."""
     if value is None:

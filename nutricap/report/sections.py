@@ -21,6 +21,7 @@ from nutricap.report.formatting import (
     THREE_DECIMALS,
     TWO_DECIMALS,
     Column,
+    crs_label,
     embedded_figure,
     is_missing,
     numeric_column,
@@ -96,7 +97,7 @@ def inputs(estimate: Estimate, project: Project, manifest: dict, *, n_animal_cla
     }
     settings = {
         "Season": f"{estimate.season_days:g} days ({config.project.season})",
-        "Area CRS": str(derived.get("area_crs", estimate.areas.area_crs.to_string())),
+        "Area CRS": str(derived.get("area_crs", crs_label(estimate.areas.area_crs))),
         "Why this CRS": str(derived.get("area_crs_reason", estimate.areas.area_crs_reason)),
         "Pooling": _POOLING[config.pooling.mode],
         "NCC capped at allowable use": "yes" if config.forage_use.cap_at_allowable_use else "no",

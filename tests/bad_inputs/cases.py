@@ -298,10 +298,15 @@ def same_as_reference(folder: Path, table: pd.DataFrame, reference: pd.DataFrame
 def true_areas(folder: Path, table: pd.DataFrame, reference: pd.DataFrame) -> None:
     """Unit areas are geodesic areas; capacity per km² is unchanged by the layer's CRS.
 
-    Independent check: pyproj.Geod (Karney 2013 algorithm) on the WGS 84 ellipsoid. The
-    density does not depend on the area CRS because forage scales with area.
+    Independent check: pyproj.Geod (Karney 2013 algorithm) on the WGS 84 ellipsoid. An edge is
+    a straight line in the layer's own CRS (OGC simple features), so the layer is split every
+    10 units of its CRS (1e-4° in lon/lat) with shapely first: a geodesic and the straight line
+    then coincide to well under 1e-6. The density does not depend on the area CRS because
+    forage scales with area.
     """
-    units = gpd.read_file(folder / "units.gpkg").to_crs("EPSG:4326")
+    units = gpd.read_file(folder / "units.gpkg")
+    step = 1e-4 if units.crs.is_geographic else 10.0
+    units = units.set_geometry(units.segmentize(step)).to_crs("EPSG:4326")
     geod = Geod(ellps="WGS84")
     geodesic_ha = [abs(geod.geometry_area_perimeter(g)[0]) / 10_000 for g in units.geometry]
     expected = pd.Series(geodesic_ha, index=units["unit_id"])
@@ -1525,5 +1530,72 @@ CASES = [
         r"treatment_responses\.csv: row 15, column 'biomass_multiplier': value out of range",
         project="project_rasters.toml",
         scenario="prescribed_burn",
+    ),
+    # issue 13: bare plots, init, edges
+    Case(
+        "plots: a row without forage class that records forage",
+        set_cell(P, 5, "forage_class", ""),
+        r"plots\.csv: row 5, column 'forage_class': forage without a forage class \(expected a "
+        r"forage class, or mass 0 on the one row of a bare plot",
+    ),
+    Case(
+        "plots: a plot recorded both bare and with forage",
+        copy_row(P, 2, forage_class="", dry_mass_g="0"),
+        r"plots\.csv: row 2, column 'forage_class': plot recorded both as bare and with a "
+        r"forage class .*plot 'P001'",
+    ),
+    Case(
+        "plots: a comment line above a data row",
+        insert_line(P, 3, "# P000,sagebrush_steppe,big_sagebrush,1,1"),
+        r"plots\.csv: row 3: a comment line \(beginning with '# '\) above a data row \(expected "
+        r"comment lines only after the last data row",
+    ),
+    Case(
+        "plots: comment lines after the last data row (valid, skipped)",
+        steps(append_text(P, "# P000,sagebrush_steppe,big_sagebrush,1,1"), append_text(P, "")),
+        r"Total NCC",
+        exit_code=0,
+        verify=same_as_reference,
+    ),
+    Case(
+        "plots: a last row whose plot id begins with # is data, not a comment",
+        append_text(P, "#P999,sagebrush_steppe,big_sagebrush,-1,0.25"),
+        r"plots\.csv: row \d+, column 'dry_mass_g': value out of range",
+    ),
+    Case(
+        "project: a layer missing and two tables without data rows (a template not filled in)",
+        steps(
+            lambda folder: (folder / "strata.gpkg").unlink(),
+            edit_csv(F, lambda t: t.iloc[:0]),
+            edit_csv(P, lambda t: t.iloc[:0]),
+        ),
+        r"project\.toml: the project is not filled in yet: 3 inputs to provide: 'inputs\.strata' "
+        r"strata\.gpkg does not exist; 'inputs\.forage_classes' forage_classes\.csv has no data "
+        r"rows yet; 'inputs\.plots' plots\.csv has no data rows yet",
+    ),
+    Case(
+        "supply: strata_without_forage names a sampled stratum and one not on the map (valid)",
+        replace_text(
+            "project.toml",
+            "[forage_use]\n",
+            '[supply]\nstrata_without_forage = ["sagebrush_steppe", "glacer"]\n\n[forage_use]\n',
+        ),
+        r"note: strata listed in \[supply\] strata_without_forage have clip plots, and their "
+        r"plots are used .*sagebrush_steppe \(\d+ plots\).*\nnote: strata listed in \[supply\] "
+        r"strata_without_forage are not on the strata map .*glacer",
+        exit_code=0,
+        verify=same_as_reference,
+    ),
+    Case(
+        "counts: a unit id that matches no unit (valid, noted)",
+        steps(
+            append_text("counts.csv", "Nowhere Flat,2022,30"),
+            append_text("counts.csv", "Nowhere Flat,2023,35"),
+            append_text("counts.csv", "Nowhere Flat,2024,40"),
+        ),
+        r"note: counts for 1 unit id\(s\) that match no unit of the units layer \(3 rows\): "
+        r"'Nowhere Flat'",
+        exit_code=0,
+        verify=same_as_reference,
     ),
 ]

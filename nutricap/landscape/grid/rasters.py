@@ -30,6 +30,7 @@ from pyproj import CRS
 from rasterio.enums import MaskFlags, Resampling
 from rasterio.errors import NotGeoreferencedWarning, RasterioIOError
 from rasterio.vrt import WarpedVRT
+from rasterio.warp import calculate_default_transform
 from rasterio.windows import Window
 
 from nutricap.errors import SpatialError
@@ -98,6 +99,9 @@ class Grid:
         Length of one CRS unit [m].
     source : Path
         The raster that defines the grid.
+    warped_from : str, optional
+        The CRS of that raster when the grid is one nutricap defined for it (a raster in a
+        geographic CRS warped onto an equal-area grid).
     """
 
     crs: rasterio.crs.CRS
@@ -107,6 +111,7 @@ class Grid:
     block_shape: tuple[int, int]
     metres_per_unit: float
     source: Path
+    warped_from: str | None = None  # the source's CRS when nutricap defined the grid
 
     @property
     def cell_area_ha(self) -> float:
@@ -139,8 +144,17 @@ class Grid:
         }
 
 
-def read_grid(path: Path, key: str) -> Grid:
-    """The grid of raster ``path`` (project key ``key``); refuse grids areas cannot be taken on."""
+WARPED_BLOCK_SHAPE = (256, 256)
+"""Blocks [rows, columns] of a grid that nutricap defines (a raster warped onto it has none)."""
+
+
+def read_grid(path: Path, key: str, *, resample: str = "none", area_crs=None) -> Grid:
+    """The grid of raster ``path`` (project key ``key``); refuse grids areas cannot be taken on.
+
+    A raster in a geographic CRS defines no grid of its own (cells are not of equal area); with
+    ``resample`` set it is warped onto a grid in ``area_crs`` (a pyproj CRS in metres) covering
+    it at about its resolution (GDAL's default for the warp), refused otherwise.
+    """
     with open_raster(path, key) as src:
         crs = _raster_crs(src, path, key)
         t = src.transform
@@ -154,16 +168,31 @@ def read_grid(path: Path, key: str) -> Grid:
             )
         projected = CRS.from_wkt(crs.to_wkt())
         if not projected.is_projected:
+            if resample != "none" and area_crs is not None:
+                return _equal_area_grid(src, area_crs, path)
             raise SpatialError(
                 "the raster that defines the grid has a geographic CRS",
                 source=path,
                 location=f"key {key!r}",
                 expected="a projected CRS in metres or feet (cell areas are planar); "
-                "reproject it, e.g. to the local UTM zone",
+                "reproject it, e.g. to the local UTM zone, or set resample in [rasters] to "
+                "warp it onto an equal-area grid",
                 found=crs.to_string(),
             )
         factor = projected.axis_info[0].unit_conversion_factor
         return Grid(crs, t, src.width, src.height, src.block_shapes[0], factor, path)
+
+
+def _equal_area_grid(src, area_crs, path: Path) -> Grid:
+    """A north-up grid in ``area_crs`` covering ``src`` with square cells of about its
+    resolution (rasterio's ``calculate_default_transform``, GDAL's suggested warp output)."""
+    crs = rasterio.crs.CRS.from_wkt(area_crs.to_wkt())
+    transform, width, height = calculate_default_transform(
+        src.crs, crs, src.width, src.height, *src.bounds
+    )
+    factor = CRS.from_wkt(area_crs.to_wkt()).axis_info[0].unit_conversion_factor
+    source_crs = CRS.from_wkt(src.crs.to_wkt()).name
+    return Grid(crs, transform, width, height, WARPED_BLOCK_SHAPE, factor, path, source_crs)
 
 
 def open_raster(path: Path, key: str):

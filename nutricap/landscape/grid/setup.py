@@ -27,6 +27,7 @@ from nutricap.landscape.vectors import (
     check_no_overlaps,
     choose_area_crs,
     read_layer,
+    to_area_crs,
 )
 
 
@@ -213,18 +214,21 @@ def strata_polygons(strata: StrataMap, supply: StratumSupply, classes: list[str]
     return stratum.astype(np.int64), polygon_biomass, access
 
 
-def unit_areas(units, strata: StrataMap, project) -> tuple[gpd.GeoDataFrame, object, str]:
-    """Units with their polygon area [ha] in the area CRS (as in the vector path)."""
+def unit_areas(units, strata: StrataMap, project) -> tuple[gpd.GeoDataFrame, object, str, list]:
+    """Units with their polygon area [ha] in the area CRS (as in the vector path), the CRS, why
+    it was chosen, and the notes on overlaps within the tolerance."""
     area_crs, reason = choose_area_crs(units)
-    in_area_crs = units.to_crs(area_crs)
-    check_no_overlaps(in_area_crs, "unit_id", project.source("units"), "units")
+    in_area_crs = to_area_crs(units, area_crs)
+    notes = [check_no_overlaps(in_area_crs, "unit_id", project.source("units"), "units")]
     if strata.polygons is not None:
-        check_no_overlaps(
-            strata.polygons.to_crs(area_crs), "stratum", strata.path, "strata polygons"
+        notes.append(
+            check_no_overlaps(
+                to_area_crs(strata.polygons, area_crs), "stratum", strata.path, "strata polygons"
+            )
         )
     table = in_area_crs[["unit_id", *_extra_unit_columns(in_area_crs), "geometry"]].copy()
     table["area_ha"] = table.geometry.area / M2_PER_HA
-    return table, area_crs, reason
+    return table, area_crs, reason, [note for note in notes if note]
 
 
 def shape_burners(

@@ -24,6 +24,7 @@ from dataclasses import dataclass, field
 import geopandas as gpd
 import numpy as np
 import pandas as pd
+from pyproj import CRS
 from rasterio.windows import Window
 
 from nutricap.errors import ProjectFileError, SpatialError
@@ -63,7 +64,7 @@ from nutricap.landscape.grid.window_pass import (
     stream_windows,
 )
 from nutricap.landscape.plots import StratumSupply
-from nutricap.landscape.vectors import StratumAreas
+from nutricap.landscape.vectors import StratumAreas, choose_area_crs
 from nutricap.model.problem import CapacityProblem, build_forage_items
 
 Progress = Callable[[str], None]
@@ -205,7 +206,11 @@ def grid_problem(
             expected="a biomass, index, snow_depth, slope or distance_to_water raster",
             found="none",
         )
-    grid = read_grid(specs[0].path, specs[0].key)
+    config = project.config
+    resample = config.rasters.resample if config.rasters is not None else "none"
+    grid = read_grid(
+        specs[0].path, specs[0].key, resample=resample, area_crs=choose_area_crs(units)[0]
+    )
     classes, direct, calibrated, strata_classes = class_sources(project, forage_classes)
     say("fitting index → biomass models" if calibrated else "summarising clip plots by stratum")
     groups, calibration_report = calibrated_groups(project, calibrated, classes)
@@ -213,7 +218,7 @@ def grid_problem(
     supply = strata_supply(plots, strata_source, strata_classes, classes, project)
     polygon_stratum, polygon_biomass, access = strata_polygons(strata_source, supply, classes)
     rules = cell_rules(project, forage_classes, classes, access is not None)
-    units_table, area_crs, reason = unit_areas(units, strata_source, project)
+    units_table, area_crs, reason, overlap_notes = unit_areas(units, strata_source, project)
     pairs = None if treatments is None else treatment_pairs(units, treatments, grid)
     n_keys = (len(units) + 1) * (len(supply.strata) + 1)  # the last "unit": outside every unit
     unit_base = np.arange(-1, len(units)) * (len(supply.strata) + 1)
@@ -236,8 +241,6 @@ def grid_problem(
         dump_key=n_keys,
         treatment_pair=None if pairs is None else pairs[0],
     )
-    config = project.config
-    resample = config.rasters.resample if config.rasters is not None else "none"
     window_size = config.rasters.window_size if config.rasters is not None else None
     windows = grid_windows(grid, window_size)
     n_rows = layout_of(setup).rows
@@ -257,6 +260,7 @@ def grid_problem(
     )  # fmt: skip
     if pairs is not None:
         result = dataclasses.replace(result, treated=_treated(totals, pairs, setup, grid))
+    result = dataclasses.replace(result, notes=overlap_notes + _grid_notes(grid) + result.notes)
     return dataclasses.replace(result, cluster=cluster) if cluster is not None else result
 
 
@@ -484,6 +488,18 @@ def _calibration_report(report, counts, cell_ha, project):
         else "model extrapolated"
     )
     return report
+
+
+def _grid_notes(grid: Grid) -> list[str]:
+    """The analysis grid nutricap defined, when the first raster is in a geographic CRS."""
+    if grid.warped_from is None:
+        return []
+    return [
+        f"raster {grid.source.name} is in a geographic CRS ({grid.warped_from}): the analysis "
+        f"grid is {grid.width} × {grid.height} cells of {grid.transform.a:.4g} × "
+        f"{-grid.transform.e:.4g} m in {CRS.from_wkt(grid.crs.to_wkt()).name}, and every "
+        "raster is warped onto it (GDAL's warper, rasterio WarpedVRT)"
+    ]
 
 
 def _notes(units_table, cells, without_data, cell_ha, resampled, calibration) -> list[str]:
