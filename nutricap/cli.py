@@ -31,6 +31,10 @@ OVERWRITE_HELP = (
 )
 
 QUIET_HELP = "print nothing but errors (no progress, no summary, no warnings)"
+PDF_HELP = (
+    "also write report.pdf, the report printed by headless Chromium or Chrome (found on the "
+    "PATH, or named by $NUTRICAP_BROWSER)"
+)
 DESCRIPTION = (
     "Nutritional carrying capacity (NCC) of ungulate range per management unit, beside the "
     "forage-quantity ceiling (ECC) and the capacity at allowable use."
@@ -102,6 +106,7 @@ def _add_demo(commands) -> None:
         help=f"{OVERWRITE_HELP}; the demo's folder may hold only " + ", ".join(DEMO_PARTS),
     )
     parser.add_argument("--quiet", action="store_true", help=QUIET_HELP)
+    parser.add_argument("--pdf", action="store_true", help=PDF_HELP)
     parser.set_defaults(handler=run_demo)
 
 
@@ -128,6 +133,7 @@ def _add_output_options(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument("--overwrite", action="store_true", help=OVERWRITE_HELP)
     parser.add_argument("--no-report", action="store_true", help="skip report.html")
+    parser.add_argument("--pdf", action="store_true", help=PDF_HELP)
     parser.add_argument("--quiet", action="store_true", help=QUIET_HELP)
 
 
@@ -249,6 +255,7 @@ def run_estimate_command(args: argparse.Namespace) -> int:
     from nutricap.inputs.project import load_project
     from nutricap.report.manifest import BackgroundChecksums
 
+    browser = _pdf_browser(args)
     progress = StepPrinter(args.quiet)
     project = load_project(args.project)
     checksums = BackgroundChecksums(project.files())  # while the libraries are imported
@@ -261,6 +268,7 @@ def run_estimate_command(args: argparse.Namespace) -> int:
         report=not args.no_report,
         progress=progress,
         checksums=checksums,
+        pdf_browser=browser,
     )
     _print_summary(result, args.out, quiet=args.quiet)
     return EXIT_OK
@@ -270,6 +278,7 @@ def run_compare_command(args: argparse.Namespace) -> int:
     from nutricap.inputs.project import load_project
     from nutricap.report.manifest import BackgroundChecksums
 
+    browser = _pdf_browser(args)
     progress = StepPrinter(args.quiet)
     project = load_project(args.project)
     checksums = BackgroundChecksums(project.files())  # while the libraries are imported
@@ -283,6 +292,7 @@ def run_compare_command(args: argparse.Namespace) -> int:
         report=not args.no_report,
         progress=progress,
         checksums=checksums,
+        pdf_browser=browser,
     )
     if args.quiet:
         return EXIT_OK
@@ -293,6 +303,21 @@ def run_compare_command(args: argparse.Namespace) -> int:
     say(f"Table: {Path(args.out) / 'scenario_by_unit.csv'}")
     say(f"CAUTION: {CAUTION}")
     return EXIT_OK
+
+
+def _pdf_browser(args: argparse.Namespace):
+    """The browser that prints ``--pdf`` (looked for before any work), or None without it."""
+    if not getattr(args, "pdf", False):
+        return None
+    if getattr(args, "no_report", False):
+        raise InputError(
+            "--pdf prints the HTML report, which --no-report leaves out",
+            source="--pdf",
+            expected="--pdf or --no-report, not both",
+        )
+    from nutricap.report.pdf import find_browser
+
+    return find_browser()
 
 
 def run_check(args: argparse.Namespace) -> int:
@@ -318,6 +343,7 @@ def run_demo(args: argparse.Namespace) -> int:
     from nutricap.report.output_folder import check_output_folder, staged_folder
     from nutricap.workflow import run_estimate
 
+    browser = _pdf_browser(args)
     progress = StepPrinter(args.quiet)
     overwrite = args.overwrite
     out = check_output_folder(args.out, [], overwrite=overwrite, parts=DEMO_PARTS)
@@ -327,11 +353,15 @@ def run_demo(args: argparse.Namespace) -> int:
         write_example_landscape(staging)
     project_file = inputs / "project.toml"
     project = load_project(project_file)
-    result = run_estimate(project, results, overwrite=overwrite, progress=progress)
+    result = run_estimate(
+        project, results, overwrite=overwrite, progress=progress, pdf_browser=browser
+    )
     _print_summary(result, results, caution=False, quiet=args.quiet)
     progress("the same landscape on a 50 m grid with snow, slope and minimum-density rules")
     raster_project = load_project(project_file.with_name("project_rasters.toml"))
-    on_grid = run_estimate(raster_project, raster_results, overwrite=overwrite, progress=progress)
+    on_grid = run_estimate(
+        raster_project, raster_results, overwrite=overwrite, progress=progress, pdf_browser=browser
+    )
     if args.quiet:
         return EXIT_OK
     ncc, ecc = on_grid.by_unit["ncc_animals"].sum(), on_grid.by_unit["ecc_animals"].sum()

@@ -397,11 +397,13 @@ def run_estimate(
     report: bool = True,
     progress: Progress | None = None,
     checksums: BackgroundChecksums | None = None,
+    pdf_browser: Path | None = None,
 ) -> Estimate:
     """Estimate ``project`` and write every output into ``out`` atomically.
 
     ``checksums`` of :meth:`Project.files` for the manifest may be started by the caller
     (as early as possible); otherwise they start here, beside the estimate.
+    ``pdf_browser``: also print the report to ``report.pdf`` with this browser.
     """
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
@@ -409,7 +411,14 @@ def run_estimate(
     result = estimate(project, progress)
     say(f"writing outputs to {out}")
     with staged_folder(out, overwrite=overwrite) as staging:
-        write_estimate(result, project, staging, report=report, checksums=checksums)
+        write_estimate(
+            result,
+            project,
+            staging,
+            report=report,
+            checksums=checksums,
+            pdf_browser=pdf_browser,
+        )
     return result
 
 
@@ -483,10 +492,11 @@ def run_compare(
     report: bool = True,
     progress: Progress | None = None,
     checksums: BackgroundChecksums | None = None,
+    pdf_browser: Path | None = None,
 ) -> tuple[Estimate, pd.DataFrame]:
     """Estimate, run the scenario, and write everything (plus the scenario table and chart).
 
-    ``checksums`` as in :func:`run_estimate`.
+    ``checksums`` and ``pdf_browser`` as in :func:`run_estimate`.
     """
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
@@ -495,7 +505,13 @@ def run_compare(
     say(f"writing outputs to {out}")
     with staged_folder(out, overwrite=overwrite) as staging:
         write_estimate(
-            result, project, staging, report=report, scenario_table=table, checksums=checksums
+            result,
+            project,
+            staging,
+            report=report,
+            scenario_table=table,
+            checksums=checksums,
+            pdf_browser=pdf_browser,
         )
         write_csv(table, staging / "scenario_by_unit.csv")
         from nutricap.report.figures import figure_png, scenario_figure

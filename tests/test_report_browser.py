@@ -7,15 +7,20 @@ see tests/test_report.py); the checks are about display, not about any number.
 
 from __future__ import annotations
 
+import csv
+import math
 import re
 import shutil
 import subprocess
+import unicodedata
+from html.parser import HTMLParser
 
 import numpy as np
 import pytest
 from PIL import Image
 from test_report import full_html, manifest, project  # noqa: F401  (fixtures reused)
 
+from nutricap.cli import main
 from nutricap.report.figures import OKABE_ITO
 
 BROWSERS = ("chromium", "chromium-browser", "google-chrome", "google-chrome-stable")
@@ -87,3 +92,78 @@ def test_dumped_dom_has_every_image(tmp_path, report_file, full_html):  # noqa: 
     assert len(sources) == full_html.count("<img ") == 5
     assert all(source.startswith("data:image/png;base64,") for source in sources)
     assert 'id="caution-top"' in dom and 'id="caution-end"' in dom
+
+
+# --- the demo report printed to PDF (nutricap demo --pdf) -------------------------------------
+
+#: Bound on the page count: on average at least this many characters of text per page, once
+#: every figure has been granted a page of its own. A full Letter or A4 page of the report's
+#: 8-9.5 pt print text holds about 3,500-5,000 characters, so the bound allows pages left up to half
+#: empty where a table row, a figure or a heading moved to the next page, but not blank or
+#: near-blank pages.
+CHARACTERS_PER_PAGE = 2500
+MIN_CHARACTERS_ON_A_PAGE = 80
+
+
+class UnitTableHeaders(HTMLParser):
+    """The column headers (th) of the per-unit table section (id="units") of a report."""
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.inside = 0
+        self.in_header = False
+        self.headers: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        if tag == "section":
+            self.inside += 1 if dict(attrs).get("id") == "units" or self.inside else 0
+        if self.inside and tag == "th":
+            self.in_header = True
+            self.headers.append("")
+
+    def handle_endtag(self, tag):
+        if tag == "section" and self.inside:
+            self.inside -= 1
+        if tag == "th":
+            self.in_header = False
+
+    def handle_data(self, data):
+        if self.in_header:
+            self.headers[-1] += data
+
+
+def pdf_text(path) -> list[str]:
+    """Each page's text (pypdf), NFKC-normalised (ligature 'ﬁ' → 'fi'), spaces collapsed."""
+    pypdf = pytest.importorskip("pypdf")
+    pages = pypdf.PdfReader(path).pages
+    return [" ".join(unicodedata.normalize("NFKC", page.extract_text()).split()) for page in pages]
+
+
+@pytest.fixture(scope="module")
+def printed_demo(tmp_path_factory):
+    pytest.importorskip("pypdf")
+    out = tmp_path_factory.mktemp("printed") / "demo"
+    assert main(["demo", "--out", str(out), "--pdf", "--quiet"]) == 0
+    return out
+
+
+@pytest.mark.parametrize("part", ["results", "results_rasters"])
+def test_printed_report_holds_the_whole_unit_table(printed_demo, part):
+    folder = printed_demo / part
+    pages = pdf_text(folder / "report.pdf")
+    text = " ".join(pages)
+    parser = UnitTableHeaders()
+    parser.feed((folder / "report.html").read_text(encoding="utf-8"))
+    # NFKC as for the PDF text ('km²' → 'km2').
+    headers = {" ".join(unicodedata.normalize("NFKC", h).split()) for h in parser.headers}
+    assert len(headers) >= 14, headers  # the per-unit table's columns (sections.UNIT_COLUMNS)
+    missing = [header for header in sorted(headers) if header not in text]
+    assert not missing, missing
+    with open(folder / "capacity_by_unit.csv", newline="", encoding="utf-8") as handle:
+        units = [row["unit_id"] for row in csv.DictReader(handle)]
+    assert units and all(unit in text for unit in units)
+    # Every page carries text, and there are no more pages than the text and figures need.
+    figures = (folder / "report.html").read_text(encoding="utf-8").count("<img ")
+    bound = math.ceil(len(text) / CHARACTERS_PER_PAGE) + figures
+    assert len(pages) <= bound, (len(pages), bound)
+    assert min(len(page) for page in pages) >= MIN_CHARACTERS_ON_A_PAGE

@@ -36,10 +36,13 @@ def write_estimate(
     report: bool = True,
     scenario_table: pd.DataFrame | None = None,
     checksums: BackgroundChecksums | None = None,
+    pdf_browser: Path | None = None,
 ) -> None:
     """Write the tables, the manifest and (unless ``report=False``) the HTML report.
 
     ``checksums`` of the inputs, when started ahead; otherwise computed here.
+    ``pdf_browser``: also print the report to ``report.pdf`` with this browser
+    (:func:`nutricap.report.pdf.find_browser`).
     """
     config = project.config
     totals = totals_table(result)
@@ -94,6 +97,10 @@ def write_estimate(
                 manifest=manifest,
                 extras=report_extras(result, project, scenario_table),
             )
+            if pdf_browser is not None:
+                from nutricap.report.pdf import write_pdf
+
+                write_pdf(folder / "report.html", pdf_browser)
 
 
 def report_extras(

@@ -255,7 +255,70 @@ def unit_table(by_unit: pd.DataFrame, level: float | None = None) -> dict:
     present = [column for column in columns if column.name in frame.columns]
     footer = [_total_cell(frame, column) for column in present]
     footer[0] = "Total"
-    return table(frame, present, footer=footer)
+    whole = table(frame, present, footer=footer)
+    return {**whole, "groups": column_groups(whole, [c.name for c in present], UNIT_GROUPS)}
+
+
+#: The per-unit table is shown as these column groups (each repeats the unit column), so that
+#: it fits a 1280 px screen and a portrait page without sideways scrolling or cut columns.
+UNIT_GROUPS = (
+    (
+        "capacity and its intervals",
+        (
+            "area_ha",
+            "available_forage_kg",
+            "ncc_animals",
+            "ncc_animals_interval",
+            "ecc_animals",
+            "ecc_animals_interval",
+            "allowable_use_animals",
+            "allowable_use_animals_interval",
+        ),
+    ),
+    (
+        "density, forage in AUM, diet and current numbers",
+        (
+            "ncc_per_km2",
+            "ncc_aum",
+            "allowable_use_aum",
+            "limiting_factor",
+            "marginal_forage_class",
+            "diet_de_kcal_per_g",
+            "diet_dp_pct",
+            "current_animals",
+        ),
+    ),
+)
+
+
+def column_groups(whole: dict, names: list[str], groups) -> list[dict]:
+    """``whole`` (a :func:`table`) split into column groups, each led by the first column.
+
+    ``groups`` is a sequence of (title, column names); names not present are skipped, and a
+    column in no group joins the last group.
+    """
+    grouped = {name for _title, members in groups for name in members}
+    parts = []
+    for number, (title, members) in enumerate(groups):
+        wanted = [i for i, name in enumerate(names) if name in members]
+        if number == len(groups) - 1:
+            wanted += [i for i, name in enumerate(names[1:], 1) if name not in grouped]
+        if not wanted:
+            continue
+        keep = [0, *sorted(wanted)]
+        parts.append(
+            {
+                "title": title,
+                "headers": [whole["headers"][i] for i in keep],
+                "numeric": [whole["numeric"][i] for i in keep],
+                "rows": [
+                    {"cells": [row["cells"][i] for i in keep], "flag": row["flag"]}
+                    for row in whole["rows"]
+                ],
+                "footer": None if whole["footer"] is None else [whole["footer"][i] for i in keep],
+            }
+        )
+    return parts
 
 
 def _total_cell(frame: pd.DataFrame, column: Column) -> str:
