@@ -56,7 +56,7 @@ from nutricap.model.scenarios import (
     years_since_latest_treatment,
 )
 from nutricap.model.sensitivity import input_groups
-from nutricap.model.trend import analyse_series
+from nutricap.model.trend import analyse_series, capacity_comparison, capacity_table
 from nutricap.model.uncertainty import (
     add_intervals,
     bootstrap_capacity,
@@ -126,7 +126,7 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     by_unit, use_by_class = assess_current_use(
         project, inputs.counts, areas, problem, by_unit, herd, say
     )
-    trend = counts_trend(project, inputs.counts, say)
+    trend = counts_trend(project, inputs.counts, say, by_unit)
     return Estimate(
         by_unit=by_unit,
         use_by_class=use_by_class,
@@ -304,12 +304,19 @@ def assess_current_use(
     )
 
 
-TREND_LEVEL = 0.95
-"""Confidence level of the trend figures shown beside the capacity (as `nutricap trend`)."""
+def counts_trend(
+    project: Project,
+    counts: pd.DataFrame | None,
+    say: Progress,
+    by_unit: pd.DataFrame | None = None,
+) -> dict | None:
+    """Trend figures of the project's counts (the total over units), with the fitted curve.
 
-
-def counts_trend(project: Project, counts: pd.DataFrame | None, say: Progress) -> dict | None:
-    """Trend figures of the project's counts (the total over units), with the fitted curve."""
+    The intervals are at the project's ``[uncertainty] interval_level`` (the level of every
+    interval of the report; the ``trend`` command's own default is 0.95). With ``by_unit``,
+    ``capacity`` holds the NCC and ECC of the units the counts cover, and ``unmatched_units``
+    the counts' unit ids that are no unit of the estimate.
+    """
     if counts is None:
         return None
     path = project.input_path("counts")
@@ -317,8 +324,12 @@ def counts_trend(project: Project, counts: pd.DataFrame | None, say: Progress) -
     series = select_series(counts, path, None)
     name = TOTAL_LABEL if TOTAL_LABEL in series else next(iter(series))
     frame = series[name]
-    figures = analyse_series(frame, TREND_LEVEL)
+    level = project.config.uncertainty.interval_level
+    figures = analyse_series(frame, level)
     figures["series"] = name
+    figures["level"] = level
+    if by_unit is not None:
+        figures.update(_counted_capacity(figures, counts, by_unit))
     if figures.get("K") is not None:
         years = np.arange(int(frame["year"].min()), int(frame["year"].max()) + 1)
         removals = frame.set_index("year")["removals"].reindex(years).fillna(0.0).to_numpy()
@@ -331,6 +342,20 @@ def counts_trend(project: Project, counts: pd.DataFrame | None, say: Progress) -
             removals[:-1],
         ).tolist()
     return figures
+
+
+def _counted_capacity(figures: dict, counts: pd.DataFrame, by_unit: pd.DataFrame) -> dict:
+    """NCC and ECC of the units the counts cover (every unit when the counts name none)."""
+    capacity = capacity_table(by_unit)
+    named = "unit_id" in counts.columns and counts["unit_id"].notna().any()
+    counted = list(dict.fromkeys(counts["unit_id"].dropna().astype(str))) if named else []
+    matched = [unit for unit in counted if unit in capacity.index] if named else []
+    units = matched if named else list(capacity.index)
+    return {
+        "capacity": capacity_comparison(figures, capacity.loc[units], units),
+        "unmatched_units": [unit for unit in counted if unit not in capacity.index],
+        "counted_all_units": set(units) == set(capacity.index),
+    }
 
 
 def current_animals(

@@ -28,7 +28,7 @@ from shapely.geometry import box
 from nutricap.cautions import CAUTION
 from nutricap.errors import printable
 from nutricap.inputs.project import load_project
-from nutricap.report import figures
+from nutricap.report import figures, references
 from nutricap.report.html import ReportExtras, is_flag, render_report, write_report
 from nutricap.report.manifest import build_manifest
 from nutricap.science.energetics import NUTRITIONAL_STATES
@@ -368,9 +368,13 @@ def test_methods_cite_every_source(base_page):
 
 
 def test_parameter_table_shows_state_sources_and_inputs(base_page):
+    # Each row's research note is shown as its short citations, the full citations once in
+    # the reference list (the notes themselves stay in nutritional_states.csv).
     text = base_page.plain_text
     for source in NUTRITIONAL_STATES["source"]:
-        assert " ".join(source.split()) in text
+        assert references.short_citation(source) in text
+        for entry in references.cited([source]):
+            assert text.count(entry.full) == 1, entry.short
     assert "project input: forage_classes.csv" in text
     assert "project input: animal_classes.csv" in text
 
@@ -392,13 +396,15 @@ def test_use_section_flags(plain_estimate, project, manifest):
     # Current numbers and flags invented for the test: the first unit is flagged.
     table["current_animals"] = 500.0
     table["key_use_fraction"] = 0.3
+    table["key_allowable_use"] = 0.5
     table["overuse"] = [True] + [False] * (len(table) - 1)
-    estimate = dataclasses.replace(plain_estimate, by_unit=table)
+    estimate = dataclasses.replace(plain_estimate, by_unit=table, use_by_class=None)
     html = render_report(estimate, project=project, manifest=manifest)
     use = re.search(r'<section id="use">(.*?)</section>', html, re.DOTALL).group(1)
     assert use.count('class="flagged"') == 1
     assert "1 unit(s) flagged" in use
-    assert "30 %" in use
+    # Demand as a multiple of the allowable use: 0.3 / 0.5 (arithmetic).
+    assert "0.60 ×" in use and "Most-used" not in use
 
 
 def test_use_section_with_current_numbers_only(plain_estimate, project, manifest):

@@ -8,6 +8,8 @@ see tests/test_report.py); the checks are about display, not about any number.
 from __future__ import annotations
 
 import csv
+import html as html_module
+import json
 import math
 import re
 import shutil
@@ -167,3 +169,40 @@ def test_printed_report_holds_the_whole_unit_table(printed_demo, part):
     bound = math.ceil(len(text) / CHARACTERS_PER_PAGE) + figures
     assert len(pages) <= bound, (len(pages), bound)
     assert min(len(page) for page in pages) >= MIN_CHARACTERS_ON_A_PAGE
+
+
+SCREEN_WIDTH = 1280
+#: Appended to a copy of the report (the report itself has no script): after layout, writes
+#: the page's width and every table box that scrolls sideways into the DOM for --dump-dom.
+MEASURE = """<script>
+addEventListener("load", () => {
+  const wide = [...document.querySelectorAll(".table-wrap, pre")]
+    .filter((box) => box.scrollWidth > box.clientWidth + 1)
+    .map((box) => (box.querySelector("caption") || box).textContent.slice(0, 60));
+  const out = document.createElement("output");
+  out.id = "measured";
+  out.textContent = JSON.stringify({page: document.documentElement.scrollWidth, wide: wide});
+  document.body.append(out);
+});
+</script>"""
+
+
+def measured_layout(tmp_path, html: str) -> dict:
+    page = tmp_path / "measure.html"
+    page.write_text(html.replace("</body>", MEASURE + "</body>"), encoding="utf-8")
+    result = run_browser(tmp_path, f"--window-size={SCREEN_WIDTH},900", "--dump-dom", page.as_uri())
+    found = re.search(r'<output id="measured">(.*?)</output>', result.stdout)
+    assert found, result.stderr[-2000:]
+    return json.loads(html_module.unescape(found.group(1)))
+
+
+@pytest.mark.parametrize("part", ["results", "results_rasters"])
+def test_screen_needs_no_sideways_scrolling(tmp_path, printed_demo, part):
+    html = (printed_demo / part / "report.html").read_text(encoding="utf-8")
+    layout = measured_layout(tmp_path, html)
+    assert layout["page"] <= SCREEN_WIDTH and layout["wide"] == [], layout
+
+
+def test_screen_with_every_section_needs_no_sideways_scrolling(tmp_path, full_html):  # noqa: F811
+    layout = measured_layout(tmp_path, full_html)
+    assert layout["page"] <= SCREEN_WIDTH and layout["wide"] == [], layout

@@ -127,6 +127,20 @@ def trend(result: Any, by_unit: pd.DataFrame) -> dict | None:
         ncc,
         ecc,
     )
+    level = data.get("level")
+    unmatched = [str(unit) for unit in data.get("unmatched_units") or []]
+    notes = []
+    if unmatched:
+        notes.append(
+            f"Counts of {len(unmatched)} unit id(s) that match no management unit "
+            f"({', '.join(unmatched)}) are in the counted total but have no NCC or ECC here."
+        )
+    if level:
+        notes.append(
+            f"Intervals are at the report's {100 * level:g} % level ([uncertainty] "
+            "interval_level), like the capacity intervals; the trend command's own default is "
+            "95 % (--level)."
+        )
     return {
         "figure": embedded_figure(
             chart,
@@ -134,6 +148,8 @@ def trend(result: Any, by_unit: pd.DataFrame) -> dict | None:
         ),
         "series": format_text(data.get("series")),
         "area": area,
+        "notes": notes,
+        "statement": (data.get("capacity") or {}).get("statement"),
         "fitted": data.get("fitted_counts") is not None,
         "ceiling": K is not None,
         "figures": _trend_figures(data),
@@ -155,6 +171,10 @@ def _trend_capacity(data: dict, by_unit: pd.DataFrame) -> tuple[float | None, fl
         if source.get("ncc_animals") is not None or source.get("ecc_animals") is not None:
             units = capacity.get("units")
             area = ("units " + ", ".join(map(str, units))) if units else "the counted area"
+            if data.get("counted_all_units"):
+                area = f"all {len(units)} units (the counts cover every unit)"
+            elif units:
+                area = f"the {len(units)} counted units ({', '.join(map(str, units))})"
             return (
                 _finite_or_none(source.get("ncc_animals")),
                 _finite_or_none(source.get("ecc_animals")),

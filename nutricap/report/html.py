@@ -30,7 +30,14 @@ import jinja2
 import pandas as pd
 
 from nutricap.cautions import CAUTION
-from nutricap.report import extra_sections, figures, provenance, raster_section, sections
+from nutricap.report import (
+    extra_sections,
+    figures,
+    provenance,
+    raster_section,
+    references,
+    sections,
+)
 from nutricap.report.formatting import embedded_figure
 from nutricap.report.methods_text import methods
 from nutricap.report.sections import INTERVAL_COLUMNS, has_interval, is_flag, unit_table
@@ -103,6 +110,13 @@ def render_report(
     extras = extras or ReportExtras()
     animals, forage = estimate.animals, estimate.forage_classes
     intervals = any(has_interval(estimate.by_unit, name) for name in INTERVAL_COLUMNS)
+    method_list = methods(
+        intervals=intervals,
+        sensitivity=extras.sensitivity_table is not None,
+        trend=extras.trend is not None,
+        grid=estimate.grid is not None,
+    ) + raster_section.raster_methods(estimate, intervals=intervals)
+    raster = raster_section.raster_landscape(estimate, project.config.project.species)
     context = {
         "caution": CAUTION,
         "header": sections.header(estimate, project, manifest),
@@ -116,23 +130,36 @@ def render_report(
         "sensitivity": extra_sections.sensitivity(
             extras.sensitivity_table, extras.sensitivity_change
         ),
-        "use": sections.use(estimate.by_unit),
+        "use": sections.use(estimate.by_unit, estimate.use_by_class),
         "scenario": extra_sections.scenario(extras.scenario_table),
         "trend": extra_sections.trend(extras.trend, estimate.by_unit),
         "unit_table": unit_table(estimate.by_unit, extras.interval_level),
         "supply": sections.supply(estimate),
-        "raster": raster_section.raster_landscape(estimate),
-        "methods": methods(
-            intervals=intervals,
-            sensitivity=extras.sensitivity_table is not None,
-            trend=extras.trend is not None,
-            grid=estimate.grid is not None,
-        )
-        + raster_section.raster_methods(estimate, intervals=intervals),
+        "raster": raster,
+        "methods": [
+            {**vars(method), "source": references.short_citation(method.source)}
+            for method in method_list
+        ],
         "parameters": provenance.parameter_tables(estimate, project, animals, forage),
+        "references": _reference_list(estimate, project, method_list),
+        "to_verify": references.values_to_verify(reductions=_reductions_used(estimate)),
         "manifest": provenance.manifest_summary(manifest),
     }
     return _template().render(**context)
+
+
+def _reference_list(estimate: Estimate, project: Project, method_list) -> dict:
+    texts = [method.source for method in method_list]
+    texts += provenance.source_texts(estimate, project)
+    if estimate.grid is not None and estimate.grid.rules is not None:
+        for reduction in (estimate.grid.rules.slope_table, estimate.grid.rules.water_table):
+            texts += list(reduction.row_sources) if reduction is not None else []
+    return {"entries": references.cited(texts), "note": references.REFERENCE_NOTE}
+
+
+def _reductions_used(estimate: Estimate) -> bool:
+    rules = estimate.grid.rules if estimate.grid is not None else None
+    return rules is not None and (rules.slope_table is not None or rules.water_table is not None)
 
 
 def write_report(
