@@ -683,3 +683,42 @@ def test_figure_labels_are_plain_text(plain_estimate):
         figures.figure_png(figure)
     labels = [label.get_text() for label in figure.axes[0].get_yticklabels()]
     assert "\\x1b[2J \\$\\frac{1}\\$" in labels
+
+
+# --- numbers in the CSV and rounding shared by the Markdown table and the report ---------------
+
+
+@pytest.mark.parametrize(
+    "value", [1191397.2, 1.1914e6, 1e-8, 2.5e-5, 123456789012345678.0, -3.75e-7, 0.0, 46.05]
+)
+def test_csv_numbers_are_plain_decimals_in_full(value):
+    from nutricap.report.tables import csv_number
+
+    text = csv_number(value)
+    assert "e" not in text.lower()
+    assert float(text) == value  # Python's own float parser reads the same value back
+
+
+def test_csv_file_has_no_exponent_and_reads_back_exactly(tmp_path):
+    from nutricap.report.tables import write_csv
+
+    # Values invented for the test, chosen so that "%g" would write exponents.
+    frame = pd.DataFrame({"unit_id": ["a", "b"], "available_forage_kg": [1191400.0, 1e-8]})
+    path = tmp_path / "t.csv"
+    write_csv(frame, path)
+    text = path.read_text()
+    assert "1191400.0" in text and "0.00000001" in text and "e+" not in text and "e-" not in text
+    assert pd.read_csv(path)["available_forage_kg"].tolist() == [1191400.0, 1e-8]
+
+
+def test_markdown_and_report_round_each_column_alike(plain_estimate, project, manifest):
+    from nutricap.report.tables import DISPLAY_DECIMALS, markdown_table
+
+    table = plain_estimate.by_unit
+    markdown = markdown_table(table, title="T", context_lines=[])
+    html = render_report(plain_estimate, project=project, manifest=manifest)
+    units = re.search(r'<section id="units">(.*?)</section>', html, re.DOTALL).group(1)
+    for name in ("area_ha", "available_forage_kg", "ncc_animals", "ncc_per_km2"):
+        for value in table[name]:
+            shown = f"{value:,.{DISPLAY_DECIMALS[name]}f}"
+            assert shown in markdown and shown in units, (name, shown)

@@ -61,6 +61,11 @@ def format_auto(value: Any) -> str:
     return str(value)
 
 
+def decimals(digits: int) -> Callable[[Any], str]:
+    """Formatter with thousands separators and ``digits`` decimals ('–' when missing)."""
+    return _number(digits)
+
+
 ANIMALS = _number(0)
 ONE_DECIMAL = _number(1)
 TWO_DECIMALS = _number(2)

@@ -21,11 +21,13 @@ from nutricap.report.formatting import (
     THREE_DECIMALS,
     TWO_DECIMALS,
     Column,
+    decimals,
     embedded_figure,
     is_missing,
     numeric_column,
     table,
 )
+from nutricap.report.tables import DISPLAY_DECIMALS
 
 if TYPE_CHECKING:
     from nutricap.inputs.project import Project
@@ -264,21 +266,26 @@ def capacity(estimate: Estimate, level: float | None) -> dict:
     }
 
 
+def _rounded(name: str, header: str) -> Column:
+    """A per-unit column rounded as in the Markdown table (:data:`DISPLAY_DECIMALS`)."""
+    return numeric_column(name, header, decimals(DISPLAY_DECIMALS[name]))
+
+
 UNIT_COLUMNS = [
     Column("unit_id", "Unit"),
-    numeric_column("area_ha", "Area [ha]", ONE_DECIMAL),
-    numeric_column("available_forage_kg", "Available forage [kg DM]"),
-    numeric_column("ncc_animals", "NCC [animals]"),
-    numeric_column("ecc_animals", "ECC [animals]"),
-    numeric_column("allowable_use_animals", "Allowable-use capacity [animals]"),
-    numeric_column("ncc_per_km2", "NCC [animals/km²]", ONE_DECIMAL),
-    numeric_column("ncc_aum", "NCC forage eaten [AUM]"),
-    numeric_column("allowable_use_aum", "Forage at allowable use [AUM]"),
+    _rounded("area_ha", "Area [ha]"),
+    _rounded("available_forage_kg", "Available forage [kg DM]"),
+    _rounded("ncc_animals", "NCC [animals]"),
+    _rounded("ecc_animals", "ECC [animals]"),
+    _rounded("allowable_use_animals", "Allowable-use capacity [animals]"),
+    _rounded("ncc_per_km2", "NCC [animals/km²]"),
+    _rounded("ncc_aum", "NCC forage eaten [AUM]"),
+    _rounded("allowable_use_aum", "Forage at allowable use [AUM]"),
     Column("limiting_factor", "Limiting factor", lambda value: limiting_label(value)),
     Column("marginal_forage_class", "Marginal forage class"),
-    numeric_column("diet_de_kcal_per_g", "Diet DE at NCC [kcal/g DM]", THREE_DECIMALS),
-    numeric_column("diet_dp_pct", "Diet DP at NCC [% DM]", TWO_DECIMALS),
-    numeric_column("current_animals", "Current animals [animals]"),
+    _rounded("diet_de_kcal_per_g", "Diet DE at NCC [kcal/g DM]"),
+    _rounded("diet_dp_pct", "Diet DP at NCC [% DM]"),
+    _rounded("current_animals", "Current animals [animals]"),
 ]
 
 LIMITING_LABELS = {
