@@ -347,8 +347,9 @@ def counts_trend(
 def _counted_capacity(figures: dict, counts: pd.DataFrame, by_unit: pd.DataFrame) -> dict:
     """NCC and ECC of the units the counts cover (every unit when the counts name none)."""
     capacity = capacity_table(by_unit)
-    named = "unit_id" in counts.columns and counts["unit_id"].notna().any()
-    counted = list(dict.fromkeys(counts["unit_id"].dropna().astype(str))) if named else []
+    ids = counts["unit_id"].fillna("").astype(str) if "unit_id" in counts.columns else None
+    named = ids is not None and bool((ids != "").any())
+    counted = list(dict.fromkeys(ids[ids != ""])) if named else []
     matched = [unit for unit in counted if unit in capacity.index] if named else []
     units = matched if named else list(capacity.index)
     return {

@@ -722,3 +722,99 @@ def test_markdown_and_report_round_each_column_alike(plain_estimate, project, ma
         for value in table[name]:
             shown = f"{value:,.{DISPLAY_DECIMALS[name]}f}"
             assert shown in markdown and shown in units, (name, shown)
+
+
+# --- what the numbers are: intervals, references, values to verify, labels -----------------
+
+
+@pytest.fixture(scope="module")
+def example_html(example_estimate, project, manifest):
+    return render_report(example_estimate, project=project, manifest=manifest)
+
+
+def test_headline_totals_carry_their_intervals(example_html, example_estimate):
+    # The total's 5th and 95th percentiles over the replicates, recomputed with numpy.
+    bootstrap = example_estimate.uncertainty.bootstrap
+    days = example_estimate.season_days
+    header = re.search(r'<header id="top">(.*?)</header>', example_html, re.DOTALL).group(1)
+    for figure in ("ncc", "ecc", "allowable_use"):
+        totals = bootstrap.replicate_animal_days[figure].sum(axis=1) / days
+        low, high = np.percentile(totals, [5.0, 95.0])
+        assert f"90 % interval {low:,.0f}–{high:,.0f}" in header, figure
+
+
+def test_interval_statement_says_what_is_covered_and_held_fixed(example_html):
+    statement = parse(example_html).plain_text
+    # example_landscape/project.toml: 1000 replicates at 0.9, clip plots without calibration.
+    assert "90 % percentile interval of 1,000 bootstrap replicates" in statement
+    assert "sampling error of the clip plots only" in statement
+    assert "requirements and intake" in statement and "held fixed" in statement
+    assert "95 %" not in statement.replace("trend command's own default is 95 %", "")
+
+
+def test_one_reference_list_covers_every_short_citation(example_html):
+    page = parse(example_html)
+    text = page.plain_text
+    listed = re.search(r'<ol class="references">(.*?)</ol>', example_html, re.DOTALL).group(1)
+    assert example_html.count('<ol class="references">') == 1
+    entries = re.findall(r"<li>(.*?)</li>", listed, re.DOTALL)
+    assert len(entries) == len(set(entries)) >= 8
+    before_list = parse(example_html.split('<section id="references">')[0]).plain_text
+    for entry in references.REFERENCES:
+        if entry.short in before_list:
+            assert str(escape(entry.full)) in listed, entry.short
+    for working_note in ("abstract read", "not legible", "slideplayer", "attribution from memory"):
+        assert working_note not in text, working_note
+
+
+def test_values_to_verify_box_and_replaceable_tables(example_html):
+    box = re.search(r'<aside class="verify" id="verify">(.*?)</aside>', example_html, re.DOTALL)
+    text = parse(box.group(1)).plain_text
+    assert "tannin (BSA) slope" in text and "4.4 kcal/g" in text
+    assert "Slope reductions" not in text  # no slope rule in the polygon run
+    assert '[inputs] nutritional_states = "my_states.csv"' in text
+    assert "[availability] slope_table" in text and "water_table" in text
+
+
+def test_intake_limit_is_labelled_as_an_unreachable_diet(plain_estimate, project, manifest):
+    table = plain_estimate.by_unit.copy()
+    table.loc[table.index[0], "limiting_factor"] = "intake"  # invented for the test
+    estimate = dataclasses.replace(plain_estimate, by_unit=table)
+    html = render_report(estimate, project=project, manifest=manifest)
+    units = re.search(r'<section id="units">(.*?)</section>', html, re.DOTALL).group(1)
+    assert "target diet unreachable" in units
+
+
+def test_current_numbers_say_where_they_come_from(example_html, example_estimate):
+    text = parse(example_html).plain_text
+    total = example_estimate.units["current_animals"].sum()  # the units layer's column
+    assert f"Current numbers ({total:,.0f} animals over all units) come from the units layer" in (
+        text
+    )
+    assert f"latest counted total {example_estimate.trend['latest_count']:,.0f}" in text
+
+
+@pytest.fixture(scope="module")
+def raster_project(example_project):
+    return load_project(example_project.with_name("project_rasters.toml"))
+
+
+@pytest.fixture(scope="module")
+def raster_estimate(raster_project):
+    from nutricap.workflow import estimate
+
+    return estimate(raster_project)
+
+
+def test_raster_report_says_the_livestock_rules_and_what_they_removed(
+    raster_estimate, raster_project, manifest
+):
+    html = render_report(raster_estimate, project=raster_project, manifest=manifest)
+    rules = raster_estimate.grid.rules_report
+    slope = rules[(rules["unit_id"] == "all units") & (rules["rule"] == "slope")].iloc[0]
+    text = parse(html).plain_text
+    assert "made for cattle on rangeland, applied to mule deer by default" in text
+    assert f"removed {slope['forage_removed_kg']:,.0f} kg DM" in text
+    assert f"({slope['forage_removed_pct']:.1f} % of the standing forage)" in text
+    box = re.search(r'<aside class="verify" id="verify">(.*?)</aside>', html, re.DOTALL)
+    assert "Slope reductions" in parse(box.group(1)).plain_text

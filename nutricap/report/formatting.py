@@ -110,7 +110,16 @@ def table(
     }
 
 
+TALL_FIGURE_IN = 7.0
+"""Figures taller than this [inches] may fill a printed page; others print at most 85 mm high,
+so that two share a page."""
+
+
 def embedded_figure(figure: Figure, alt: str) -> dict:
-    """``figure`` as a base64 PNG data URI with its alt text."""
+    """``figure`` as a base64 PNG data URI with its alt text (and whether it is tall)."""
     png = figures.figure_png(figure)
-    return {"src": "data:image/png;base64," + base64.b64encode(png).decode("ascii"), "alt": alt}
+    return {
+        "src": "data:image/png;base64," + base64.b64encode(png).decode("ascii"),
+        "alt": alt,
+        "tall": bool(figure.get_figheight() > TALL_FIGURE_IN),
+    }

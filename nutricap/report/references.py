@@ -124,8 +124,8 @@ REFERENCES = (
     ),
     Reference(
         "NRCS 2003",
-        "USDA Natural Resources Conservation Service 2003. National Range and Pasture Handbook, "
-        "revision 1. USDA NRCS, Washington, DC.",
+        "Natural Resources Conservation Service (USDA) 2003. National Range and Pasture "
+        "Handbook, revision 1. USDA NRCS, Washington, DC.",
         r"National Range and Pasture Handbook|NRCS",
     ),
     Reference(
@@ -139,7 +139,7 @@ REFERENCES = (
         "Pekins et al. 1998",
         "Pekins, P.J., Smith, K.S. & Mautz, W.W. 1998. The energy cost of gestation in "
         "white-tailed deer. Canadian Journal of Zoology 76(6): 1091–1097.",
-        r"Smith & Mautz 1998|Pekins,? Smith",
+        r"Smith & Mautz 1998|Pekins,? (P\.J\.,? )?Smith|Pekins et al\.? \(?1998",
     ),
     Reference(
         "Robbins 1993",
