@@ -31,6 +31,10 @@ OVERWRITE_HELP = (
 )
 
 QUIET_HELP = "print nothing but errors (no progress, no summary, no warnings)"
+FIGURES_HELP = (
+    "also write each figure of the report as PNG (300 dpi) and SVG files into OUT/figures/, "
+    "for placing in a document"
+)
 PDF_HELP = (
     "also write report.pdf, the report printed by headless Chromium or Chrome (found on the "
     "PATH, or named by $NUTRICAP_BROWSER)"
@@ -107,6 +111,7 @@ def _add_demo(commands) -> None:
     )
     parser.add_argument("--quiet", action="store_true", help=QUIET_HELP)
     parser.add_argument("--pdf", action="store_true", help=PDF_HELP)
+    parser.add_argument("--figures", action="store_true", help=FIGURES_HELP)
     parser.set_defaults(handler=run_demo)
 
 
@@ -134,6 +139,7 @@ def _add_output_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--overwrite", action="store_true", help=OVERWRITE_HELP)
     parser.add_argument("--no-report", action="store_true", help="skip report.html")
     parser.add_argument("--pdf", action="store_true", help=PDF_HELP)
+    parser.add_argument("--figures", action="store_true", help=FIGURES_HELP)
     parser.add_argument("--quiet", action="store_true", help=QUIET_HELP)
 
 
@@ -269,6 +275,7 @@ def run_estimate_command(args: argparse.Namespace) -> int:
         progress=progress,
         checksums=checksums,
         pdf_browser=browser,
+        figure_files=args.figures,
     )
     _print_summary(result, args.out, quiet=args.quiet)
     return EXIT_OK
@@ -293,6 +300,7 @@ def run_compare_command(args: argparse.Namespace) -> int:
         progress=progress,
         checksums=checksums,
         pdf_browser=browser,
+        figure_files=args.figures,
     )
     if args.quiet:
         return EXIT_OK
@@ -306,15 +314,19 @@ def run_compare_command(args: argparse.Namespace) -> int:
 
 
 def _pdf_browser(args: argparse.Namespace):
-    """The browser that prints ``--pdf`` (looked for before any work), or None without it."""
+    """The browser that prints ``--pdf`` (looked for before any work), or None without it.
+
+    ``--pdf`` and ``--figures`` come with the report: either beside ``--no-report`` is refused.
+    """
+    for flag in ("pdf", "figures"):
+        if getattr(args, flag, False) and getattr(args, "no_report", False):
+            raise InputError(
+                "needs the HTML report, which --no-report leaves out",
+                source=f"--{flag}",
+                expected=f"--{flag} or --no-report, not both",
+            )
     if not getattr(args, "pdf", False):
         return None
-    if getattr(args, "no_report", False):
-        raise InputError(
-            "--pdf prints the HTML report, which --no-report leaves out",
-            source="--pdf",
-            expected="--pdf or --no-report, not both",
-        )
     from nutricap.report.pdf import find_browser
 
     return find_browser()
@@ -353,14 +365,13 @@ def run_demo(args: argparse.Namespace) -> int:
         write_example_landscape(staging)
     project_file = inputs / "project.toml"
     project = load_project(project_file)
-    result = run_estimate(
-        project, results, overwrite=overwrite, progress=progress, pdf_browser=browser
-    )
+    options = {"pdf_browser": browser, "figure_files": args.figures}
+    result = run_estimate(project, results, overwrite=overwrite, progress=progress, **options)
     _print_summary(result, results, caution=False, quiet=args.quiet)
     progress("the same landscape on a 50 m grid with snow, slope and minimum-density rules")
     raster_project = load_project(project_file.with_name("project_rasters.toml"))
     on_grid = run_estimate(
-        raster_project, raster_results, overwrite=overwrite, progress=progress, pdf_browser=browser
+        raster_project, raster_results, overwrite=overwrite, progress=progress, **options
     )
     if args.quiet:
         return EXIT_OK

@@ -424,12 +424,14 @@ def run_estimate(
     progress: Progress | None = None,
     checksums: BackgroundChecksums | None = None,
     pdf_browser: Path | None = None,
+    figure_files: bool = False,
 ) -> Estimate:
     """Estimate ``project`` and write every output into ``out`` atomically.
 
     ``checksums`` of :meth:`Project.files` for the manifest may be started by the caller
     (as early as possible); otherwise they start here, beside the estimate.
-    ``pdf_browser``: also print the report to ``report.pdf`` with this browser.
+    ``pdf_browser``: also print the report to ``report.pdf`` with this browser;
+    ``figure_files``: also write its figures as PNG and SVG files into ``figures/``.
     """
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
@@ -444,6 +446,7 @@ def run_estimate(
             report=report,
             checksums=checksums,
             pdf_browser=pdf_browser,
+            figure_files=figure_files,
         )
     return result
 
@@ -519,10 +522,11 @@ def run_compare(
     progress: Progress | None = None,
     checksums: BackgroundChecksums | None = None,
     pdf_browser: Path | None = None,
+    figure_files: bool = False,
 ) -> tuple[Estimate, pd.DataFrame]:
     """Estimate, run the scenario, and write everything (plus the scenario table and chart).
 
-    ``checksums`` and ``pdf_browser`` as in :func:`run_estimate`.
+    ``checksums``, ``pdf_browser`` and ``figure_files`` as in :func:`run_estimate`.
     """
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
@@ -538,6 +542,7 @@ def run_compare(
             scenario_table=table,
             checksums=checksums,
             pdf_browser=pdf_browser,
+            figure_files=figure_files,
         )
         write_csv(table, staging / "scenario_by_unit.csv")
         from nutricap.report.figures import figure_png, scenario_figure

@@ -491,7 +491,21 @@ def test_ncc_density_map():
     assert any("animals/km²" in label for label in labels)
     assert any("[km]" in label for label in labels)
     names = [text.get_text() for text in figure.axes[0].texts]
-    assert sorted(names) == ["North", "South"]
+    # The unit names, the north arrow and the scale bar (extent 1 km + margins: a quarter of it
+    # rounded down to 1, 2 or 5 × 10^k m is 200 m).
+    assert sorted(names) == ["200 m", "N", "North", "South"]
+    # The CRS's name as pyproj gives it, not a PROJ string or a bare code.
+    from pyproj import CRS
+
+    assert any(CRS("EPSG:32612").name in label for label in labels)
+
+
+@pytest.mark.parametrize(
+    "extent, length", [(15000.0, 2000.0), (1000.0, 200.0), (4.0, 1.0), (80000.0, 20000.0)]
+)
+def test_scale_bar_is_a_round_quarter_of_the_extent(extent, length):
+    # Arithmetic: the largest 1, 2 or 5 × 10^k not above extent / 4.
+    assert figures.scale_bar_length(extent) == length
 
 
 def capacity_frame(intervals: bool) -> pd.DataFrame:
@@ -818,3 +832,21 @@ def test_raster_report_says_the_livestock_rules_and_what_they_removed(
     assert f"({slope['forage_removed_pct']:.1f} % of the standing forage)" in text
     box = re.search(r'<aside class="verify" id="verify">(.*?)</aside>', html, re.DOTALL)
     assert "Slope reductions" in parse(box.group(1)).plain_text
+
+
+def test_figure_files_for_a_report_author(example_estimate, project, manifest, tmp_path):
+    import xml.etree.ElementTree as ElementTree
+
+    from nutricap.report.html import report_parts, write_figures
+
+    html, shown = report_parts(example_estimate, project=project, manifest=manifest)
+    assert len(shown) == html.count("<img ")
+    write_figures(shown, tmp_path / "figures")
+    for name in shown:
+        png = (tmp_path / "figures" / f"{name}.png").read_bytes()
+        # PNG specification, pHYs chunk: pixels per metre, unit 1 (metre); 300 dpi = 11811 /m.
+        at = png.index(b"pHYs")
+        x, y, unit = struct.unpack(">IIB", png[at + 4 : at + 13])
+        assert (x, y, unit) == (11811, 11811, 1), name
+        root = ElementTree.parse(tmp_path / "figures" / f"{name}.svg").getroot()
+        assert root.tag == "{http://www.w3.org/2000/svg}svg"

@@ -37,12 +37,14 @@ def write_estimate(
     scenario_table: pd.DataFrame | None = None,
     checksums: BackgroundChecksums | None = None,
     pdf_browser: Path | None = None,
+    figure_files: bool = False,
 ) -> None:
     """Write the tables, the manifest and (unless ``report=False``) the HTML report.
 
     ``checksums`` of the inputs, when started ahead; otherwise computed here.
     ``pdf_browser``: also print the report to ``report.pdf`` with this browser
-    (:func:`nutricap.report.pdf.find_browser`).
+    (:func:`nutricap.report.pdf.find_browser`). ``figure_files``: also write the report's
+    figures as PNG (300 dpi) and SVG files into ``figures/``.
     """
     config = project.config
     totals = totals_table(result)
@@ -96,6 +98,7 @@ def write_estimate(
                 project=project,
                 manifest=manifest,
                 extras=report_extras(result, project, scenario_table),
+                figure_files=figure_files,
             )
             if pdf_browser is not None:
                 from nutricap.report.pdf import write_pdf

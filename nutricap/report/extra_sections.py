@@ -54,6 +54,7 @@ def sensitivity(sensitivity_table: pd.DataFrame | None, change: float | None) ->
         "figure": embedded_figure(
             figures.tornado_figure(sensitivity_table, change=change),
             "Tornado chart of the change in total NCC for each input.",
+            "sensitivity_tornado",
         ),
         "table": table(ordered, columns),
         "change": f"±{100 * change:g} %" if change else "its low and its high value",
@@ -94,7 +95,9 @@ def scenario(scenario_table: pd.DataFrame | None) -> dict | None:
     totals["change_animals"] = totals["ncc_animals_scenario"] - totals["ncc_animals_baseline"]
     return {
         "figure": embedded_figure(
-            chart, "Line chart of NCC over the years, baseline against each treatment scenario."
+            chart,
+            "Line chart of NCC over the years, baseline against each treatment scenario.",
+            "scenario_ncc_by_year",
         ),
         "per_unit_panels": units <= MAX_SCENARIO_PANELS,
         "totals": table(totals, SCENARIO_TOTAL_COLUMNS),
@@ -145,6 +148,7 @@ def trend(result: Any, by_unit: pd.DataFrame) -> dict | None:
         "figure": embedded_figure(
             chart,
             "Counts over time with the fitted curve and the reference lines K, K/2, NCC and ECC.",
+            "population_trend",
         ),
         "series": format_text(data.get("series")),
         "area": area,

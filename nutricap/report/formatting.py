@@ -115,11 +115,17 @@ TALL_FIGURE_IN = 7.0
 so that two share a page."""
 
 
-def embedded_figure(figure: Figure, alt: str) -> dict:
-    """``figure`` as a base64 PNG data URI with its alt text (and whether it is tall)."""
+def embedded_figure(figure: Figure, alt: str, name: str) -> dict:
+    """``figure`` as a base64 PNG data URI with its alt text (and whether it is tall).
+
+    ``name`` is the figure's file name (no extension) in the output's ``figures/`` folder;
+    the figure itself is kept under ``"figure"`` for :func:`nutricap.report.html.write_report`.
+    """
     png = figures.figure_png(figure)
     return {
         "src": "data:image/png;base64," + base64.b64encode(png).decode("ascii"),
         "alt": alt,
         "tall": bool(figure.get_figheight() > TALL_FIGURE_IN),
+        "name": name,
+        "figure": figure,
     }

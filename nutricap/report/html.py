@@ -43,12 +43,16 @@ from nutricap.report.methods_text import methods
 from nutricap.report.sections import INTERVAL_COLUMNS, has_interval, is_flag, unit_table
 
 if TYPE_CHECKING:
+    from matplotlib.figure import Figure
+
     from nutricap.inputs.project import Project
     from nutricap.model.estimate import Estimate
 
 __all__ = ["ReportExtras", "is_flag", "methods", "render_report", "unit_table", "write_report"]
 
 TEMPLATE = "report.html.j2"
+FIGURES_FOLDER = "figures"
+"""Folder of the output holding each figure of the report as PNG and SVG."""
 
 
 @dataclass(frozen=True)
@@ -88,7 +92,18 @@ def render_report(
     manifest: dict,
     extras: ReportExtras | None = None,
 ) -> str:
-    """The HTML report of ``estimate`` as one self-contained document.
+    """The HTML report of ``estimate`` as one self-contained document (see :func:`report_parts`)."""
+    return report_parts(estimate, project=project, manifest=manifest, extras=extras)[0]
+
+
+def report_parts(
+    estimate: Estimate,
+    *,
+    project: Project,
+    manifest: dict,
+    extras: ReportExtras | None = None,
+) -> tuple[str, dict[str, Figure]]:
+    """The HTML report of ``estimate`` and its figures by file name.
 
     Parameters
     ----------
@@ -104,8 +119,10 @@ def render_report(
 
     Returns
     -------
-    str
+    html : str
         The HTML text.
+    figures : dict of str → matplotlib.figure.Figure
+        Every figure of the report by its file name (no extension).
     """
     extras = extras or ReportExtras()
     animals, forage = estimate.animals, estimate.forage_classes
@@ -125,6 +142,7 @@ def render_report(
         "map": embedded_figure(
             figures.ncc_density_map(estimate.units, estimate.by_unit),
             "Map of the management units shaded by NCC per square kilometre.",
+            "ncc_density_map",
         ),
         "capacity": sections.capacity(estimate, extras.interval_level),
         "sensitivity": extra_sections.sensitivity(
@@ -145,7 +163,17 @@ def render_report(
         "to_verify": references.values_to_verify(reductions=_reductions_used(estimate)),
         "manifest": provenance.manifest_summary(manifest),
     }
-    return _template().render(**context)
+    shown = {part["name"]: part["figure"] for part in _figure_parts(context)}
+    return _template().render(**context), shown
+
+
+def _figure_parts(value: Any) -> list[dict]:
+    """The embedded figures (dicts with a ``figure``) anywhere in the template context."""
+    if isinstance(value, dict):
+        if "figure" in value and "src" in value:
+            return [value]
+        return [part for item in value.values() for part in _figure_parts(item)]
+    return []
 
 
 def _reference_list(estimate: Estimate, project: Project, method_list) -> dict:
@@ -169,10 +197,26 @@ def write_report(
     project: Project,
     manifest: dict,
     extras: ReportExtras | None = None,
+    figure_files: bool = False,
 ) -> None:
-    """Write :func:`render_report` to ``path`` as UTF-8 (into a staging folder, normally)."""
-    html = render_report(estimate, project=project, manifest=manifest, extras=extras)
+    """Write :func:`render_report` to ``path`` as UTF-8 (into a staging folder, normally).
+
+    ``figure_files``: also write each figure beside it as ``figures/NAME.png``
+    (:data:`figures.PRINT_DPI` dpi) and ``figures/NAME.svg``, for a report author to place
+    (about half a second per figure, hence asked for).
+    """
+    html, shown = report_parts(estimate, project=project, manifest=manifest, extras=extras)
     Path(path).write_text(html, encoding="utf-8")
+    if figure_files:
+        write_figures(shown, Path(path).parent / FIGURES_FOLDER)
+
+
+def write_figures(shown: dict[str, Figure], folder: Path) -> None:
+    """Each figure as ``NAME.png`` (:data:`figures.PRINT_DPI` dpi) and ``NAME.svg``."""
+    folder.mkdir(exist_ok=True)
+    for name, figure in shown.items():
+        (folder / f"{name}.png").write_bytes(figures.figure_png(figure, dpi=figures.PRINT_DPI))
+        (folder / f"{name}.svg").write_bytes(figures.figure_svg(figure))
 
 
 def _template() -> jinja2.Template:

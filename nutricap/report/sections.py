@@ -256,7 +256,9 @@ def capacity(estimate: Estimate, level: float | None) -> dict:
     chart = figures.capacity_figure(by_unit, season_days=estimate.season_days, interval_level=level)
     return {
         "figure": embedded_figure(
-            chart, "Per-unit dot chart of NCC, allowable-use capacity and ECC in animals."
+            chart,
+            "Per-unit dot chart of NCC, allowable-use capacity and ECC in animals.",
+            "capacity_by_unit",
         ),
         "intervals": [INTERVAL_NAMES[name] for name in intervals],
         "level": _level_text(level),
