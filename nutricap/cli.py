@@ -127,7 +127,12 @@ def _add_compare(commands) -> None:
         commands, "compare", "Compare a treatment scenario with the baseline over its years."
     )
     parser.add_argument("project", type=Path, help="project file (TOML)")
-    parser.add_argument("--scenario", required=True, help="name of a [scenarios.NAME] section")
+    parser.add_argument(
+        "--scenario",
+        required=True,
+        action="append",
+        help="name of a [scenarios.NAME] section; repeat to compare several in one report",
+    )
     _add_output_options(parser)
     parser.set_defaults(handler=run_compare_command)
 
@@ -304,10 +309,12 @@ def run_compare_command(args: argparse.Namespace) -> int:
     )
     if args.quiet:
         return EXIT_OK
-    totals = table.groupby("year")[["ncc_animals_baseline", "ncc_animals_scenario"]].sum()
-    say(f"Scenario {args.scenario!r}: total NCC by year (baseline → scenario)")
-    for year, row in totals.iterrows():
-        say(f"  {year}: {row['ncc_animals_baseline']:,.0f} → {row['ncc_animals_scenario']:,.0f}")
+    for name, rows in table.groupby("scenario", sort=False):
+        totals = rows.groupby("year")[["ncc_animals_baseline", "ncc_animals_scenario"]].sum()
+        say(f"Scenario {name!r}: total NCC by year (baseline → scenario)")
+        for year, row in totals.iterrows():
+            before, after = row["ncc_animals_baseline"], row["ncc_animals_scenario"]
+            say(f"  {year}: {before:,.0f} → {after:,.0f}")
     say(f"Table: {Path(args.out) / 'scenario_by_unit.csv'}")
     say(f"CAUTION: {CAUTION}")
     return EXIT_OK

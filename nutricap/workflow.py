@@ -7,7 +7,7 @@ Writing files is left to :mod:`nutricap.report.tables`.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
@@ -53,6 +53,7 @@ from nutricap.model.scenarios import (
     Scenario,
     load_scenario,
     scenario_problem,
+    treatment_years,
     years_since_latest_treatment,
 )
 from nutricap.model.sensitivity import input_groups
@@ -451,30 +452,41 @@ def run_estimate(
     return result
 
 
-def compare(project: Project, scenario_name: str, progress: Progress | None = None):
-    """Baseline estimate and a treatment scenario over its years.
+def compare(project: Project, scenario_name: str | Sequence[str], progress: Progress | None = None):
+    """Baseline estimate and one or more treatment scenarios over their years.
 
     Returns ``(estimate, scenario_table)``; the table has ``unit_id, scenario, year,
     years_since_treatment, ncc_animals_baseline, ncc_animals_scenario, change_animals``
-    and the same pair for ECC and allowable-use capacity.
+    and the same pair for ECC and allowable-use capacity (see :func:`compare_scenarios`).
     """
+    result, table, _scenarios = compare_scenarios(project, scenario_name, progress)
+    return result, table
+
+
+def compare_scenarios(
+    project: Project, names: str | Sequence[str], progress: Progress | None = None
+) -> tuple[Estimate, pd.DataFrame, list[Scenario]]:
+    """:func:`compare` for each named scenario, with the scenarios read (for the report)."""
     say = progress or (lambda message: None)
     config = project.config
+    names = [names] if isinstance(names, str) else list(dict.fromkeys(names))
     if config.rasters is not None or config.availability is not None:
         raise InputError(
             "treatment scenarios are computed on the polygon path only",
             source=project.path,
-            location=f"key 'scenarios.{scenario_name}'",
+            location=f"key 'scenarios.{names[0]}'",
             expected="a project without [rasters] and [availability] (strata polygons, plots)",
             found="a raster project",
         )
     result = estimate(project, progress)
-    scenario = load_scenario(project, scenario_name, result.areas, result.supply.strata)
-    section = scenario.section
-    say(f"scenario {scenario_name!r}: {section.first_year}–{section.last_year}")
-    years = range(section.first_year, section.last_year + 1)
-    frames = [_scenario_year(project, result, scenario, year) for year in years]
-    return result, pd.concat(frames, ignore_index=True)
+    scenarios = [load_scenario(project, name, result.areas, result.supply.strata) for name in names]
+    frames = []
+    for scenario in scenarios:
+        section = scenario.section
+        say(f"scenario {scenario.name!r}: {section.first_year}–{section.last_year}")
+        years = range(section.first_year, section.last_year + 1)
+        frames += [_scenario_year(project, result, scenario, year) for year in years]
+    return result, pd.concat(frames, ignore_index=True), scenarios
 
 
 def _scenario_year(
@@ -514,7 +526,7 @@ def _scenario_year(
 
 def run_compare(
     project: Project,
-    scenario_name: str,
+    scenario_name: str | Sequence[str],
     out: Path,
     *,
     overwrite: bool = False,
@@ -531,7 +543,7 @@ def run_compare(
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
     checksums = checksums or BackgroundChecksums(project.files())
-    result, table = compare(project, scenario_name, progress)
+    result, table, scenarios = compare_scenarios(project, scenario_name, progress)
     say(f"writing outputs to {out}")
     with staged_folder(out, overwrite=overwrite) as staging:
         write_estimate(
@@ -540,6 +552,7 @@ def run_compare(
             staging,
             report=report,
             scenario_table=table,
+            scenarios=scenarios,
             checksums=checksums,
             pdf_browser=pdf_browser,
             figure_files=figure_files,
@@ -547,6 +560,8 @@ def run_compare(
         write_csv(table, staging / "scenario_by_unit.csv")
         from nutricap.report.figures import figure_png, scenario_figure
 
-        chart = figure_png(scenario_figure(table, per_unit=True))
+        chart = figure_png(
+            scenario_figure(table, per_unit=True, treatment_years=treatment_years(scenarios))
+        )
         (staging / "scenario_by_unit.png").write_bytes(chart)
     return result, table

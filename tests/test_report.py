@@ -599,7 +599,40 @@ def test_scenario_figure_total_is_sum_over_units():
 def test_scenario_figure_small_multiples():
     figure = figures.scenario_figure(invented_scenario(["A", "B", "C", "D"]), per_unit=True)
     assert len(figure.axes) == 5
-    assert [ax.get_title() for ax in figure.axes[1:]] == ["A", "B", "C", "D"]
+    assert [ax.get_title() for ax in figure.axes[1:]] == ["NCC, A", "NCC, B", "NCC, C", "NCC, D"]
+
+
+def test_scenario_figure_charts_three_capacities_from_zero_with_treatment_years():
+    table = invented_scenario(["A", "B"])
+    for stem, factor in (("allowable_use", 2.0), ("ecc", 4.0)):  # invented for the test
+        table[f"{stem}_animals_baseline"] = factor * table["ncc_animals_baseline"]
+        table[f"{stem}_animals_scenario"] = factor * table["ncc_animals_scenario"]
+    figure = figures.scenario_figure(table, treatment_years={"spring burn": [2027]})
+    titles = [ax.get_title() for ax in figure.axes]
+    assert titles == [
+        "NCC, total over units",
+        "Allowable-use capacity, total over units",
+        "ECC, total over units",
+    ]
+    for ax in figure.axes:
+        assert ax.get_ylim()[0] == 0.0
+        marks = [line for line in ax.lines if list(line.get_xdata()) == [2027, 2027]]
+        assert len(marks) == 1 and marks[0].get_linestyle() == ":"
+        figure.canvas.draw()
+        labels = [label.get_text() for label in ax.get_yticklabels() if label.get_text()]
+        assert len(labels) == len(set(labels)), labels
+
+
+def test_tick_labels_get_the_decimals_that_keep_them_apart():
+    # The case: totals between 127.6 and 128.4 printed as "128, 128, 127".
+    figure = figures._new_figure(4.0, 3.0)
+    ax = figure.add_subplot()
+    ax.plot([0, 1], [127.6, 128.4])
+    ax.set_ylim(127.6, 128.4)
+    digits = figures.distinct_tick_labels(ax.yaxis)
+    figure.canvas.draw()
+    labels = [label.get_text() for label in ax.get_yticklabels() if label.get_text()]
+    assert digits >= 1 and len(labels) == len(set(labels)) > 2
 
 
 def test_scenario_figure_needs_its_columns():

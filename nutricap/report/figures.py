@@ -461,47 +461,70 @@ SCENARIO_COLUMNS = ("unit_id", "scenario", "year", "ncc_animals_baseline", "ncc_
 _SCENARIO_COLOURS = ("vermillion", "blue", "orange", "reddish_purple", "bluish_green", "sky_blue")
 
 
-def scenario_figure(scenario_table: pd.DataFrame, *, per_unit: bool = False) -> Figure:
-    """NCC over the years after treatment, baseline against each scenario.
+SCENARIO_FIGURES = (
+    ("ncc", "NCC"),
+    ("allowable_use", "Allowable-use capacity"),
+    ("ecc", "ECC"),
+)
+"""The capacity figures charted for a scenario: column stem and panel title."""
+
+
+def scenario_figure(
+    scenario_table: pd.DataFrame,
+    *,
+    per_unit: bool = False,
+    treatment_years: dict[str, Sequence[int]] | None = None,
+) -> Figure:
+    """NCC, allowable-use capacity and ECC over the years, baseline against each scenario.
 
     Parameters
     ----------
     scenario_table : pandas.DataFrame
         Columns ``unit_id, scenario, year, ncc_animals_baseline, ncc_animals_scenario``
-        [animals] (``years_since_treatment`` and ``change_animals`` may also be present).
+        [animals], and the same pair for ``allowable_use`` and ``ecc`` when present.
     per_unit : bool, default False
-        Add one small panel per unit under the panel of the total over units.
+        Add one small NCC panel per unit under the panels of the totals over units.
+    treatment_years : dict of str → sequence of int, optional
+        Calendar years in which each scenario treats land, marked by vertical dotted lines.
 
     Returns
     -------
     matplotlib.figure.Figure
+        Every y axis starts at zero; tick labels carry as many decimals as keep them apart.
     """
     _require_columns(scenario_table, SCENARIO_COLUMNS, "scenario table")
+    shown = [
+        (stem, title)
+        for stem, title in SCENARIO_FIGURES
+        if {f"{stem}_animals_baseline", f"{stem}_animals_scenario"} <= set(scenario_table.columns)
+    ]
     units = list(dict.fromkeys(scenario_table["unit_id"]))
     columns = 3
     unit_rows = math.ceil(len(units) / columns) if per_unit else 0
-    figure = _new_figure(9.0, 4.2 + 2.3 * unit_rows)
-    grid = figure.add_gridspec(1 + unit_rows, columns, height_ratios=[1.8] + [1.0] * unit_rows)
-    total = figure.add_subplot(grid[0, :])
-    _scenario_panel(total, scenario_table, legend=True)
-    total.set_title("NCC, total over units: baseline and scenario")
+    figure = _new_figure(10.0, 4.0 + 2.3 * unit_rows)
+    grid = figure.add_gridspec(1 + unit_rows, columns, height_ratios=[1.6] + [1.0] * unit_rows)
+    years = treatment_years or {}
+    for index, (stem, title) in enumerate(shown):
+        ax = figure.add_subplot(grid[0, index % columns])
+        _scenario_panel(ax, scenario_table, stem, years, legend=index == 0)
+        ax.set_title(f"{title}, total over units", fontsize=10)
     for index, unit in enumerate(units if per_unit else []):
         ax = figure.add_subplot(grid[1 + index // columns, index % columns])
-        _scenario_panel(ax, scenario_table[scenario_table["unit_id"] == unit], legend=False)
-        ax.set_title(_label(unit), fontsize=9)
+        rows = scenario_table[scenario_table["unit_id"] == unit]
+        _scenario_panel(ax, rows, "ncc", years, legend=False)
+        ax.set_title(f"NCC, {_label(unit)}", fontsize=9)
         ax.tick_params(labelsize=7)
         ax.xaxis.label.set_size(7)
         ax.yaxis.label.set_size(7)
     return figure
 
 
-def _scenario_panel(ax, table: pd.DataFrame, *, legend: bool) -> None:
+def _scenario_panel(ax, table: pd.DataFrame, stem: str, treatment_years, *, legend: bool) -> None:
     """Baseline (black dashed) and one line per scenario, summed over the table's units."""
-    totals = table.groupby(["scenario", "year"], sort=True)[
-        ["ncc_animals_baseline", "ncc_animals_scenario"]
-    ].sum()
-    baseline = totals["ncc_animals_baseline"].unstack("scenario")
-    scenario = totals["ncc_animals_scenario"].unstack("scenario")
+    base_column, scenario_column = f"{stem}_animals_baseline", f"{stem}_animals_scenario"
+    totals = table.groupby(["scenario", "year"], sort=True)[[base_column, scenario_column]].sum()
+    baseline = totals[base_column].unstack("scenario")
+    scenario = totals[scenario_column].unstack("scenario")
     same = baseline.apply(
         lambda column: np.allclose(column, baseline.iloc[:, 0], equal_nan=True)
     ).all()
@@ -524,16 +547,33 @@ def _scenario_panel(ax, table: pd.DataFrame, *, legend: bool) -> None:
             color=colour,
             linewidth=2,
             marker="o",
-            markersize=4,
-            label=f"scenario: {name}",
+            markersize=3,
+            label=f"scenario: {_label(name)}",
         )
+        for year in treatment_years.get(name, ()):
+            ax.axvline(year, color=colour, linestyle=":", linewidth=1.2)
+    if any(treatment_years.get(name) for name in scenario.columns):
+        ax.plot([], [], color="#555555", linestyle=":", label="treatment year")
     ax.set_xlabel("Year")
-    ax.set_ylabel("NCC [animals]")
-    ax.yaxis.set_major_formatter(_THOUSANDS)
+    ax.set_ylabel("Capacity [animals]")
+    ax.set_ylim(bottom=0.0)
     ax.xaxis.get_major_locator().set_params(integer=True)
     ax.grid(color="#eeeeee")
+    distinct_tick_labels(ax.yaxis)
     if legend:
-        ax.legend(fontsize=8, framealpha=0.9)
+        ax.legend(fontsize=7, framealpha=0.9, loc="lower left")
+
+
+def distinct_tick_labels(axis, max_decimals: int = 4) -> int:
+    """Give ``axis`` a thousands-separated formatter with the fewest decimals (0 to
+    ``max_decimals``) that keeps its major tick labels apart; return the decimals used."""
+    ticks = axis.get_majorticklocs()
+    for digits in range(max_decimals + 1):
+        labels = [f"{tick:,.{digits}f}" for tick in ticks]
+        if len(set(labels)) == len(labels):
+            break
+    axis.set_major_formatter(FuncFormatter(lambda value, _p, d=digits: f"{value:,.{d}f}"))
+    return digits
 
 
 def _require_columns(table: pd.DataFrame, columns: Sequence[str], what: str) -> None:

@@ -76,6 +76,8 @@ class ReportExtras:
         Level of the ``*_lo``/``*_hi`` intervals in the per-unit table, e.g. 0.9.
     sensitivity_change : float, optional
         The fractional change behind ``sensitivity_table`` (0.1 for ±10 %).
+    scenarios : list of nutricap.model.scenarios.Scenario, optional
+        The scenarios behind ``scenario_table``: description, treated land, responses.
     """
 
     scenario_table: pd.DataFrame | None = None
@@ -83,6 +85,7 @@ class ReportExtras:
     trend: Any = None
     interval_level: float | None = None
     sensitivity_change: float | None = None
+    scenarios: list | None = None
 
 
 def render_report(
@@ -149,7 +152,7 @@ def report_parts(
             extras.sensitivity_table, extras.sensitivity_change
         ),
         "use": sections.use(estimate.by_unit, estimate.use_by_class),
-        "scenario": extra_sections.scenario(extras.scenario_table),
+        "scenario": extra_sections.scenario(extras.scenario_table, extras.scenarios),
         "trend": extra_sections.trend(extras.trend, estimate.by_unit),
         "unit_table": unit_table(estimate.by_unit, extras.interval_level),
         "supply": sections.supply(estimate),
