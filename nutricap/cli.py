@@ -33,6 +33,14 @@ OVERWRITE_HELP = (
 )
 
 QUIET_HELP = "print nothing but errors (no progress, no summary, no warnings)"
+FIGURES_HELP = (
+    "also write each figure of the report as PNG (300 dpi) and SVG files into OUT/figures/, "
+    "for placing in a document"
+)
+PDF_HELP = (
+    "also write report.pdf, the report printed by headless Chromium or Chrome (found on the "
+    "PATH, or named by $NUTRICAP_BROWSER)"
+)
 DESCRIPTION = (
     "Nutritional carrying capacity (NCC) of ungulate range per management unit, beside the "
     "forage-quantity ceiling (ECC) and the capacity at allowable use."
@@ -105,6 +113,8 @@ def _add_demo(commands) -> None:
         help=f"{OVERWRITE_HELP}; the demo's folder may hold only " + ", ".join(DEMO_PARTS),
     )
     parser.add_argument("--quiet", action="store_true", help=QUIET_HELP)
+    parser.add_argument("--pdf", action="store_true", help=PDF_HELP)
+    parser.add_argument("--figures", action="store_true", help=FIGURES_HELP)
     parser.set_defaults(handler=run_demo)
 
 
@@ -142,7 +152,12 @@ def _add_compare(commands) -> None:
         commands, "compare", "Compare a treatment scenario with the baseline over its years."
     )
     parser.add_argument("project", type=Path, help="project file (TOML)")
-    parser.add_argument("--scenario", required=True, help="name of a [scenarios.NAME] section")
+    parser.add_argument(
+        "--scenario",
+        required=True,
+        action="append",
+        help="name of a [scenarios.NAME] section; repeat to compare several in one report",
+    )
     _add_output_options(parser)
     parser.set_defaults(handler=run_compare_command)
 
@@ -153,6 +168,8 @@ def _add_output_options(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument("--overwrite", action="store_true", help=OVERWRITE_HELP)
     parser.add_argument("--no-report", action="store_true", help="skip report.html")
+    parser.add_argument("--pdf", action="store_true", help=PDF_HELP)
+    parser.add_argument("--figures", action="store_true", help=FIGURES_HELP)
     parser.add_argument("--quiet", action="store_true", help=QUIET_HELP)
 
 
@@ -274,6 +291,7 @@ def run_estimate_command(args: argparse.Namespace) -> int:
     from nutricap.inputs.project import load_project
     from nutricap.report.manifest import BackgroundChecksums
 
+    browser = _pdf_browser(args)
     progress = StepPrinter(args.quiet)
     project = load_project(args.project)
     checksums = BackgroundChecksums(project.files())  # while the libraries are imported
@@ -286,6 +304,8 @@ def run_estimate_command(args: argparse.Namespace) -> int:
         report=not args.no_report,
         progress=progress,
         checksums=checksums,
+        pdf_browser=browser,
+        figure_files=args.figures,
     )
     _print_summary(result, args.out, quiet=args.quiet)
     return EXIT_OK
@@ -295,6 +315,7 @@ def run_compare_command(args: argparse.Namespace) -> int:
     from nutricap.inputs.project import load_project
     from nutricap.report.manifest import BackgroundChecksums
 
+    browser = _pdf_browser(args)
     progress = StepPrinter(args.quiet)
     project = load_project(args.project)
     checksums = BackgroundChecksums(project.files())  # while the libraries are imported
@@ -308,16 +329,39 @@ def run_compare_command(args: argparse.Namespace) -> int:
         report=not args.no_report,
         progress=progress,
         checksums=checksums,
+        pdf_browser=browser,
+        figure_files=args.figures,
     )
     if args.quiet:
         return EXIT_OK
-    totals = table.groupby("year")[["ncc_animals_baseline", "ncc_animals_scenario"]].sum()
-    say(f"Scenario {args.scenario!r}: total NCC by year (baseline → scenario)")
-    for year, row in totals.iterrows():
-        say(f"  {year}: {row['ncc_animals_baseline']:,.0f} → {row['ncc_animals_scenario']:,.0f}")
+    for name, rows in table.groupby("scenario", sort=False):
+        totals = rows.groupby("year")[["ncc_animals_baseline", "ncc_animals_scenario"]].sum()
+        say(f"Scenario {name!r}: total NCC by year (baseline → scenario)")
+        for year, row in totals.iterrows():
+            before, after = row["ncc_animals_baseline"], row["ncc_animals_scenario"]
+            say(f"  {year}: {before:,.0f} → {after:,.0f}")
     say(f"Table: {Path(args.out) / 'scenario_by_unit.csv'}")
     say(f"CAUTION: {CAUTION}")
     return EXIT_OK
+
+
+def _pdf_browser(args: argparse.Namespace):
+    """The browser that prints ``--pdf`` (looked for before any work), or None without it.
+
+    ``--pdf`` and ``--figures`` come with the report: either beside ``--no-report`` is refused.
+    """
+    for flag in ("pdf", "figures"):
+        if getattr(args, flag, False) and getattr(args, "no_report", False):
+            raise InputError(
+                "needs the HTML report, which --no-report leaves out",
+                source=f"--{flag}",
+                expected=f"--{flag} or --no-report, not both",
+            )
+    if not getattr(args, "pdf", False):
+        return None
+    from nutricap.report.pdf import find_browser
+
+    return find_browser()
 
 
 def run_check(args: argparse.Namespace) -> int:
@@ -343,6 +387,7 @@ def run_demo(args: argparse.Namespace) -> int:
     from nutricap.report.output_folder import check_output_folder, staged_folder
     from nutricap.workflow import run_compare, run_estimate
 
+    browser = _pdf_browser(args)
     progress = StepPrinter(args.quiet)
     overwrite = args.overwrite
     out = check_output_folder(args.out, [], overwrite=overwrite, parts=DEMO_PARTS)
@@ -352,7 +397,8 @@ def run_demo(args: argparse.Namespace) -> int:
         write_example_landscape(staging)
     project_file = inputs / "project.toml"
     project = load_project(project_file)
-    result = run_estimate(project, results, overwrite=overwrite, progress=progress)
+    options = {"pdf_browser": browser, "figure_files": args.figures}
+    result = run_estimate(project, results, overwrite=overwrite, progress=progress, **options)
     _print_summary(result, results, caution=False, quiet=args.quiet)
     progress(
         "the same landscape on a 50 m grid with snow, slope and minimum-density rules, "
@@ -360,7 +406,12 @@ def run_demo(args: argparse.Namespace) -> int:
     )
     raster_project = load_project(project_file.with_name("project_rasters.toml"))
     on_grid, table = run_compare(
-        raster_project, DEMO_GRID_SCENARIO, raster_results, overwrite=overwrite, progress=progress
+        raster_project,
+        DEMO_GRID_SCENARIO,
+        raster_results,
+        overwrite=overwrite,
+        progress=progress,
+        **options,
     )
     if args.quiet:
         return EXIT_OK

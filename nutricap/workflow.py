@@ -7,7 +7,7 @@ Writing files is left to :mod:`nutricap.report.tables`.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
@@ -29,7 +29,7 @@ from nutricap.landscape.vectors import (
     read_units,
 )
 from nutricap.model.estimate import Estimate, Uncertainty
-from nutricap.model.grid_scenarios import GridScenario, grid_scenario_year
+from nutricap.model.grid_scenarios import GridScenario, grid_scenario_year, treated_pieces
 from nutricap.model.problem import (
     CapacityProblem,
     Solution,
@@ -54,13 +54,15 @@ from nutricap.model.results import (
     unreachable_notes,
 )
 from nutricap.model.scenarios import (
+    Scenario,
     load_scenario,
     read_scenario,
     scenario_problem,
+    treatment_years,
     years_since_latest_treatment,
 )
 from nutricap.model.sensitivity import input_groups
-from nutricap.model.trend import analyse_series
+from nutricap.model.trend import analyse_series, capacity_comparison, capacity_table
 from nutricap.model.uncertainty import (
     add_intervals,
     bootstrap_capacity,
@@ -139,7 +141,7 @@ def estimate(
     by_unit, use_by_class = assess_current_use(
         project, inputs.counts, areas, problem, by_unit, herd, say
     )
-    trend = counts_trend(project, inputs.counts, say)
+    trend = counts_trend(project, inputs.counts, say, by_unit)
     return Estimate(
         by_unit=by_unit,
         use_by_class=use_by_class,
@@ -326,12 +328,19 @@ def assess_current_use(
     )
 
 
-TREND_LEVEL = 0.95
-"""Confidence level of the trend figures shown beside the capacity (as `nutricap trend`)."""
+def counts_trend(
+    project: Project,
+    counts: pd.DataFrame | None,
+    say: Progress,
+    by_unit: pd.DataFrame | None = None,
+) -> dict | None:
+    """Trend figures of the project's counts (the total over units), with the fitted curve.
 
-
-def counts_trend(project: Project, counts: pd.DataFrame | None, say: Progress) -> dict | None:
-    """Trend figures of the project's counts (the total over units), with the fitted curve."""
+    The intervals are at the project's ``[uncertainty] interval_level`` (the level of every
+    interval of the report; the ``trend`` command's own default is 0.95). With ``by_unit``,
+    ``capacity`` holds the NCC and ECC of the units the counts cover, and ``unmatched_units``
+    the counts' unit ids that are no unit of the estimate.
+    """
     if counts is None:
         return None
     path = project.source("counts")
@@ -339,8 +348,12 @@ def counts_trend(project: Project, counts: pd.DataFrame | None, say: Progress) -
     series = select_series(counts, path, None)
     name = TOTAL_LABEL if TOTAL_LABEL in series else next(iter(series))
     frame = series[name]
-    figures = analyse_series(frame, TREND_LEVEL)
+    level = project.config.uncertainty.interval_level
+    figures = analyse_series(frame, level)
     figures["series"] = name
+    figures["level"] = level
+    if by_unit is not None:
+        figures.update(_counted_capacity(figures, counts, by_unit))
     if figures.get("K") is not None:
         years = np.arange(int(frame["year"].min()), int(frame["year"].max()) + 1)
         removals = frame.set_index("year")["removals"].reindex(years).fillna(0.0).to_numpy()
@@ -353,6 +366,21 @@ def counts_trend(project: Project, counts: pd.DataFrame | None, say: Progress) -
             removals[:-1],
         ).tolist()
     return figures
+
+
+def _counted_capacity(figures: dict, counts: pd.DataFrame, by_unit: pd.DataFrame) -> dict:
+    """NCC and ECC of the units the counts cover (every unit when the counts name none)."""
+    capacity = capacity_table(by_unit)
+    ids = counts["unit_id"].fillna("").astype(str) if "unit_id" in counts.columns else None
+    named = ids is not None and bool((ids != "").any())
+    counted = list(dict.fromkeys(ids[ids != ""])) if named else []
+    matched = [unit for unit in counted if unit in capacity.index] if named else []
+    units = matched if named else list(capacity.index)
+    return {
+        "capacity": capacity_comparison(figures, capacity.loc[units], units),
+        "unmatched_units": [unit for unit in counted if unit not in capacity.index],
+        "counted_all_units": set(units) == set(capacity.index),
+    }
 
 
 def current_animals(
@@ -419,11 +447,15 @@ def run_estimate(
     report: bool = True,
     progress: Progress | None = None,
     checksums: BackgroundChecksums | None = None,
+    pdf_browser: Path | None = None,
+    figure_files: bool = False,
 ) -> Estimate:
     """Estimate ``project`` and write every output into ``out`` atomically.
 
     ``checksums`` of :meth:`Project.files` for the manifest may be started by the caller
     (as early as possible); otherwise they start here, beside the estimate.
+    ``pdf_browser``: also print the report to ``report.pdf`` with this browser;
+    ``figure_files``: also write its figures as PNG and SVG files into ``figures/``.
     """
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
@@ -431,51 +463,74 @@ def run_estimate(
     result = estimate(project, progress)
     say(f"writing outputs to {out}")
     with staged_folder(out, overwrite=overwrite) as staging:
-        write_estimate(result, project, staging, report=report, checksums=checksums)
+        write_estimate(
+            result,
+            project,
+            staging,
+            report=report,
+            checksums=checksums,
+            pdf_browser=pdf_browser,
+            figure_files=figure_files,
+        )
     return result
 
 
-def compare(project: Project, scenario_name: str, progress: Progress | None = None):
-    """Baseline estimate and a treatment scenario over its years.
+def compare(project: Project, scenario_name: str | Sequence[str], progress: Progress | None = None):
+    """Baseline estimate and one or more treatment scenarios over their years.
 
     Returns ``(estimate, scenario_table)``; the table has ``unit_id, scenario, year,
     years_since_treatment, ncc_animals_baseline, ncc_animals_scenario, change_animals``
-    and the same pair for ECC and allowable-use capacity.
+    and the same pair for ECC and allowable-use capacity (see :func:`compare_scenarios`).
     """
+    result, table, _scenarios = compare_scenarios(project, scenario_name, progress)
+    return result, table
+
+
+def compare_scenarios(
+    project: Project, names: str | Sequence[str], progress: Progress | None = None
+) -> tuple[Estimate, pd.DataFrame, list[Scenario]]:
+    """:func:`compare` for each named scenario, with the scenarios read (for the report)."""
     say = progress or (lambda message: None)
+    names = [names] if isinstance(names, str) else list(dict.fromkeys(names))
     if on_grid(project):
-        return _compare_on_grid(project, scenario_name, say, progress)
+        return _compare_on_grid(project, names, say, progress)
     result = estimate(project, progress)
-    scenario = load_scenario(project, scenario_name, result.areas, result.supply.strata)
-    section = scenario.section
-    say(f"scenario {scenario_name!r}: {section.first_year}–{section.last_year}")
+    scenarios = [load_scenario(project, name, result.areas, result.supply.strata) for name in names]
     mode = project.config.pooling.mode
     base_items = result.problem.items.subset(result.problem.items.variant == "")
     frames = []
-    for year in range(section.first_year, section.last_year + 1):
-        problem, pieces = scenario_problem(scenario, result.areas, base_items, year, mode)
-        since = years_since_latest_treatment(pieces, problem.unit_ids)
-        frames.append(_scenario_year(project, result, scenario.name, year, problem, since))
-    return result, pd.concat(frames, ignore_index=True)
+    for scenario in scenarios:
+        section = scenario.section
+        say(f"scenario {scenario.name!r}: {section.first_year}–{section.last_year}")
+        for year in range(section.first_year, section.last_year + 1):
+            problem, pieces = scenario_problem(scenario, result.areas, base_items, year, mode)
+            since = years_since_latest_treatment(pieces, problem.unit_ids)
+            frames.append(_scenario_year(project, result, scenario.name, year, problem, since))
+    return result, pd.concat(frames, ignore_index=True), scenarios
 
 
-def _compare_on_grid(project: Project, scenario_name: str, say: Progress, progress):
-    """:func:`compare` on a raster project: the treatment polygons burnt in the one pass."""
+def _compare_on_grid(project: Project, names: list[str], say: Progress, progress):
+    """:func:`compare_scenarios` on a raster project: each scenario's treatment polygons burnt
+    in one streamed pass (the baseline of every pass is the same estimate)."""
     inputs = read_inputs(project, say)
     if inputs.strata is not None:
         strata = sorted(inputs.strata["stratum"].unique())
     else:
         strata = read_strata_codes(project.input_paths()["rasters.strata.codes"]).strata
-    section, treatments, responses = read_scenario(project, scenario_name, strata)
-    result = estimate(project, progress, inputs=inputs, treatments=treatments)
-    scenario = GridScenario(scenario_name, section, treatments, responses)
-    say(f"scenario {scenario_name!r} on the grid: {section.first_year}–{section.last_year}")
     mode = project.config.pooling.mode
-    frames = []
-    for year in range(section.first_year, section.last_year + 1):
-        problem, since = grid_scenario_year(result.grid, scenario, year, mode)
-        frames.append(_scenario_year(project, result, scenario.name, year, problem, since))
-    return result, pd.concat(frames, ignore_index=True)
+    frames, scenarios, result = [], [], None
+    for name in names:
+        section, treatments, responses = read_scenario(project, name, strata)
+        run = estimate(project, progress, inputs=inputs, treatments=treatments)
+        result = result or run
+        scenario = GridScenario(name, section, treatments, responses)
+        say(f"scenario {name!r} on the grid: {section.first_year}–{section.last_year}")
+        for year in range(section.first_year, section.last_year + 1):
+            problem, since = grid_scenario_year(run.grid, scenario, year, mode)
+            frames.append(_scenario_year(project, result, name, year, problem, since))
+        treated = treated_pieces(run.grid, scenario)
+        scenarios.append(Scenario(name, section, treated, responses))
+    return result, pd.concat(frames, ignore_index=True), scenarios
 
 
 def _scenario_year(
@@ -514,30 +569,42 @@ def _scenario_year(
 
 def run_compare(
     project: Project,
-    scenario_name: str,
+    scenario_name: str | Sequence[str],
     out: Path,
     *,
     overwrite: bool = False,
     report: bool = True,
     progress: Progress | None = None,
     checksums: BackgroundChecksums | None = None,
+    pdf_browser: Path | None = None,
+    figure_files: bool = False,
 ) -> tuple[Estimate, pd.DataFrame]:
     """Estimate, run the scenario, and write everything (plus the scenario table and chart).
 
-    ``checksums`` as in :func:`run_estimate`.
+    ``checksums``, ``pdf_browser`` and ``figure_files`` as in :func:`run_estimate`.
     """
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
     checksums = checksums or BackgroundChecksums(project.files())
-    result, table = compare(project, scenario_name, progress)
+    result, table, scenarios = compare_scenarios(project, scenario_name, progress)
     say(f"writing outputs to {out}")
     with staged_folder(out, overwrite=overwrite) as staging:
         write_estimate(
-            result, project, staging, report=report, scenario_table=table, checksums=checksums
+            result,
+            project,
+            staging,
+            report=report,
+            scenario_table=table,
+            scenarios=scenarios,
+            checksums=checksums,
+            pdf_browser=pdf_browser,
+            figure_files=figure_files,
         )
         write_csv(table, staging / "scenario_by_unit.csv")
         from nutricap.report.figures import figure_png, scenario_figure
 
-        chart = figure_png(scenario_figure(table, per_unit=True))
+        chart = figure_png(
+            scenario_figure(table, per_unit=True, treatment_years=treatment_years(scenarios))
+        )
         (staging / "scenario_by_unit.png").write_bytes(chart)
     return result, table

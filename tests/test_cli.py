@@ -278,3 +278,15 @@ def test_error_messages_escape_ids(project, tmp_path, capsys):
     assert code == 2 and out == ""
     assert err.count("\n") == 1 and "\x1b" not in err
     assert "\\x1b[31mred\\nfake line" in err
+
+
+def test_figures_flag_writes_each_report_figure_as_png_and_svg(project, tmp_path, capsys):
+    out = tmp_path / "results"
+    assert _run(capsys, "estimate", project, "--out", out, "--figures", "--quiet")[0] == 0
+    images = (out / "report.html").read_text(encoding="utf-8").count("<img ")
+    assert len(list((out / "figures").glob("*.png"))) == images
+    assert len(list((out / "figures").glob("*.svg"))) == images
+    code, _, err = _run(
+        capsys, "estimate", project, "--out", tmp_path / "b", "--figures", "--no-report"
+    )
+    assert code == 2 and "--no-report" in err and not (tmp_path / "b").exists()

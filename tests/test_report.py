@@ -28,7 +28,7 @@ from shapely.geometry import box
 from nutricap.cautions import CAUTION
 from nutricap.errors import printable
 from nutricap.inputs.project import load_project
-from nutricap.report import figures
+from nutricap.report import figures, references
 from nutricap.report.html import ReportExtras, is_flag, render_report, write_report
 from nutricap.report.manifest import build_manifest
 from nutricap.science.energetics import NUTRITIONAL_STATES
@@ -368,9 +368,13 @@ def test_methods_cite_every_source(base_page):
 
 
 def test_parameter_table_shows_state_sources_and_inputs(base_page):
+    # Each row's research note is shown as its short citations, the full citations once in
+    # the reference list (the notes themselves stay in nutritional_states.csv).
     text = base_page.plain_text
     for source in NUTRITIONAL_STATES["source"]:
-        assert " ".join(source.split()) in text
+        assert references.short_citation(source) in text
+        for entry in references.cited([source]):
+            assert text.count(entry.full) == 1, entry.short
     assert "project input: forage_classes.csv" in text
     assert "project input: animal_classes.csv" in text
 
@@ -392,13 +396,15 @@ def test_use_section_flags(plain_estimate, project, manifest):
     # Current numbers and flags invented for the test: the first unit is flagged.
     table["current_animals"] = 500.0
     table["key_use_fraction"] = 0.3
+    table["key_allowable_use"] = 0.5
     table["overuse"] = [True] + [False] * (len(table) - 1)
-    estimate = dataclasses.replace(plain_estimate, by_unit=table)
+    estimate = dataclasses.replace(plain_estimate, by_unit=table, use_by_class=None)
     html = render_report(estimate, project=project, manifest=manifest)
     use = re.search(r'<section id="use">(.*?)</section>', html, re.DOTALL).group(1)
     assert use.count('class="flagged"') == 1
     assert "1 unit(s) flagged" in use
-    assert "30 %" in use
+    # Demand as a multiple of the allowable use: 0.3 / 0.5 (arithmetic).
+    assert "0.60 ×" in use and "Most-used" not in use
 
 
 def test_use_section_with_current_numbers_only(plain_estimate, project, manifest):
@@ -485,7 +491,21 @@ def test_ncc_density_map():
     assert any("animals/km²" in label for label in labels)
     assert any("[km]" in label for label in labels)
     names = [text.get_text() for text in figure.axes[0].texts]
-    assert sorted(names) == ["North", "South"]
+    # The unit names, the north arrow and the scale bar (extent 1 km + margins: a quarter of it
+    # rounded down to 1, 2 or 5 × 10^k m is 200 m).
+    assert sorted(names) == ["200 m", "N", "North", "South"]
+    # The CRS's name as pyproj gives it, not a PROJ string or a bare code.
+    from pyproj import CRS
+
+    assert any(CRS("EPSG:32612").name in label for label in labels)
+
+
+@pytest.mark.parametrize(
+    "extent, length", [(15000.0, 2000.0), (1000.0, 200.0), (4.0, 1.0), (80000.0, 20000.0)]
+)
+def test_scale_bar_is_a_round_quarter_of_the_extent(extent, length):
+    # Arithmetic: the largest 1, 2 or 5 × 10^k not above extent / 4.
+    assert figures.scale_bar_length(extent) == length
 
 
 def capacity_frame(intervals: bool) -> pd.DataFrame:
@@ -579,7 +599,40 @@ def test_scenario_figure_total_is_sum_over_units():
 def test_scenario_figure_small_multiples():
     figure = figures.scenario_figure(invented_scenario(["A", "B", "C", "D"]), per_unit=True)
     assert len(figure.axes) == 5
-    assert [ax.get_title() for ax in figure.axes[1:]] == ["A", "B", "C", "D"]
+    assert [ax.get_title() for ax in figure.axes[1:]] == ["NCC, A", "NCC, B", "NCC, C", "NCC, D"]
+
+
+def test_scenario_figure_charts_three_capacities_from_zero_with_treatment_years():
+    table = invented_scenario(["A", "B"])
+    for stem, factor in (("allowable_use", 2.0), ("ecc", 4.0)):  # invented for the test
+        table[f"{stem}_animals_baseline"] = factor * table["ncc_animals_baseline"]
+        table[f"{stem}_animals_scenario"] = factor * table["ncc_animals_scenario"]
+    figure = figures.scenario_figure(table, treatment_years={"spring burn": [2027]})
+    titles = [ax.get_title() for ax in figure.axes]
+    assert titles == [
+        "NCC, total over units",
+        "Allowable-use capacity, total over units",
+        "ECC, total over units",
+    ]
+    for ax in figure.axes:
+        assert ax.get_ylim()[0] == 0.0
+        marks = [line for line in ax.lines if list(line.get_xdata()) == [2027, 2027]]
+        assert len(marks) == 1 and marks[0].get_linestyle() == ":"
+        figure.canvas.draw()
+        labels = [label.get_text() for label in ax.get_yticklabels() if label.get_text()]
+        assert len(labels) == len(set(labels)), labels
+
+
+def test_tick_labels_get_the_decimals_that_keep_them_apart():
+    # The case: totals between 127.6 and 128.4 printed as "128, 128, 127".
+    figure = figures._new_figure(4.0, 3.0)
+    ax = figure.add_subplot()
+    ax.plot([0, 1], [127.6, 128.4])
+    ax.set_ylim(127.6, 128.4)
+    digits = figures.distinct_tick_labels(ax.yaxis)
+    figure.canvas.draw()
+    labels = [label.get_text() for label in ax.get_yticklabels() if label.get_text()]
+    assert digits >= 1 and len(labels) == len(set(labels)) > 2
 
 
 def test_scenario_figure_needs_its_columns():
@@ -677,3 +730,156 @@ def test_figure_labels_are_plain_text(plain_estimate):
         figures.figure_png(figure)
     labels = [label.get_text() for label in figure.axes[0].get_yticklabels()]
     assert "\\x1b[2J \\$\\frac{1}\\$" in labels
+
+
+# --- numbers in the CSV and rounding shared by the Markdown table and the report ---------------
+
+
+@pytest.mark.parametrize(
+    "value", [1191397.2, 1.1914e6, 1e-8, 2.5e-5, 123456789012345678.0, -3.75e-7, 0.0, 46.05]
+)
+def test_csv_numbers_are_plain_decimals_in_full(value):
+    from nutricap.report.tables import csv_number
+
+    text = csv_number(value)
+    assert "e" not in text.lower()
+    assert float(text) == value  # Python's own float parser reads the same value back
+
+
+def test_csv_file_has_no_exponent_and_reads_back_exactly(tmp_path):
+    from nutricap.report.tables import write_csv
+
+    # Values invented for the test, chosen so that "%g" would write exponents.
+    frame = pd.DataFrame({"unit_id": ["a", "b"], "available_forage_kg": [1191400.0, 1e-8]})
+    path = tmp_path / "t.csv"
+    write_csv(frame, path)
+    text = path.read_text()
+    assert "1191400.0" in text and "0.00000001" in text and "e+" not in text and "e-" not in text
+    assert pd.read_csv(path)["available_forage_kg"].tolist() == [1191400.0, 1e-8]
+
+
+def test_markdown_and_report_round_each_column_alike(plain_estimate, project, manifest):
+    from nutricap.report.tables import DISPLAY_DECIMALS, markdown_table
+
+    table = plain_estimate.by_unit
+    markdown = markdown_table(table, title="T", context_lines=[])
+    html = render_report(plain_estimate, project=project, manifest=manifest)
+    units = re.search(r'<section id="units">(.*?)</section>', html, re.DOTALL).group(1)
+    for name in ("area_ha", "available_forage_kg", "ncc_animals", "ncc_per_km2"):
+        for value in table[name]:
+            shown = f"{value:,.{DISPLAY_DECIMALS[name]}f}"
+            assert shown in markdown and shown in units, (name, shown)
+
+
+# --- what the numbers are: intervals, references, values to verify, labels -----------------
+
+
+@pytest.fixture(scope="module")
+def example_html(example_estimate, project, manifest):
+    return render_report(example_estimate, project=project, manifest=manifest)
+
+
+def test_headline_totals_carry_their_intervals(example_html, example_estimate):
+    # The total's 5th and 95th percentiles over the replicates, recomputed with numpy.
+    bootstrap = example_estimate.uncertainty.bootstrap
+    days = example_estimate.season_days
+    header = re.search(r'<header id="top">(.*?)</header>', example_html, re.DOTALL).group(1)
+    for figure in ("ncc", "ecc", "allowable_use"):
+        totals = bootstrap.replicate_animal_days[figure].sum(axis=1) / days
+        low, high = np.percentile(totals, [5.0, 95.0])
+        assert f"90 % interval {low:,.0f}–{high:,.0f}" in header, figure
+
+
+def test_interval_statement_says_what_is_covered_and_held_fixed(example_html):
+    statement = parse(example_html).plain_text
+    # example_landscape/project.toml: 1000 replicates at 0.9, clip plots without calibration.
+    assert "90 % percentile interval of 1,000 bootstrap replicates" in statement
+    assert "sampling error of the clip plots only" in statement
+    assert "requirements and intake" in statement and "held fixed" in statement
+    assert "95 %" not in statement.replace("trend command's own default is 95 %", "")
+
+
+def test_one_reference_list_covers_every_short_citation(example_html):
+    page = parse(example_html)
+    text = page.plain_text
+    listed = re.search(r'<ol class="references">(.*?)</ol>', example_html, re.DOTALL).group(1)
+    assert example_html.count('<ol class="references">') == 1
+    entries = re.findall(r"<li>(.*?)</li>", listed, re.DOTALL)
+    assert len(entries) == len(set(entries)) >= 8
+    before_list = parse(example_html.split('<section id="references">')[0]).plain_text
+    for entry in references.REFERENCES:
+        if entry.short in before_list:
+            assert str(escape(entry.full)) in listed, entry.short
+    for working_note in ("abstract read", "not legible", "slideplayer", "attribution from memory"):
+        assert working_note not in text, working_note
+
+
+def test_values_to_verify_box_and_replaceable_tables(example_html):
+    box = re.search(r'<aside class="verify" id="verify">(.*?)</aside>', example_html, re.DOTALL)
+    text = parse(box.group(1)).plain_text
+    assert "tannin (BSA) slope" in text and "4.4 kcal/g" in text
+    assert "Slope reductions" not in text  # no slope rule in the polygon run
+    assert '[inputs] nutritional_states = "my_states.csv"' in text
+    assert "[availability] slope_table" in text and "water_table" in text
+
+
+def test_intake_limit_is_labelled_as_an_unreachable_diet(plain_estimate, project, manifest):
+    table = plain_estimate.by_unit.copy()
+    table.loc[table.index[0], "limiting_factor"] = "intake"  # invented for the test
+    estimate = dataclasses.replace(plain_estimate, by_unit=table)
+    html = render_report(estimate, project=project, manifest=manifest)
+    units = re.search(r'<section id="units">(.*?)</section>', html, re.DOTALL).group(1)
+    assert "target diet unreachable" in units
+
+
+def test_current_numbers_say_where_they_come_from(example_html, example_estimate):
+    text = parse(example_html).plain_text
+    total = example_estimate.units["current_animals"].sum()  # the units layer's column
+    assert f"Current numbers ({total:,.0f} animals over all units) come from the units layer" in (
+        text
+    )
+    assert f"latest counted total {example_estimate.trend['latest_count']:,.0f}" in text
+
+
+@pytest.fixture(scope="module")
+def raster_project(example_project):
+    return load_project(example_project.with_name("project_rasters.toml"))
+
+
+@pytest.fixture(scope="module")
+def raster_estimate(raster_project):
+    from nutricap.workflow import estimate
+
+    return estimate(raster_project)
+
+
+def test_raster_report_says_the_livestock_rules_and_what_they_removed(
+    raster_estimate, raster_project, manifest
+):
+    html = render_report(raster_estimate, project=raster_project, manifest=manifest)
+    rules = raster_estimate.grid.rules_report
+    slope = rules[(rules["unit_id"] == "all units") & (rules["rule"] == "slope")].iloc[0]
+    text = parse(html).plain_text
+    assert "made for cattle on rangeland, applied to mule deer by default" in text
+    assert f"removed {slope['forage_removed_kg']:,.0f} kg DM" in text
+    assert f"({slope['forage_removed_pct']:.1f} % of the standing forage)" in text
+    box = re.search(r'<aside class="verify" id="verify">(.*?)</aside>', html, re.DOTALL)
+    assert "Slope reductions" in parse(box.group(1)).plain_text
+
+
+def test_figure_files_for_a_report_author(example_estimate, project, manifest, tmp_path):
+    import xml.etree.ElementTree as ElementTree
+
+    from nutricap.report.html import report_parts, write_figures
+
+    html, shown = report_parts(example_estimate, project=project, manifest=manifest)
+    assert len(shown) == html.count("<img ")
+    write_figures(shown, tmp_path / "figures")
+    for name in shown:
+        png = (tmp_path / "figures" / f"{name}.png").read_bytes()
+        # PNG specification, pHYs chunk: pixels per metre, unit 1 (metre); 300 dpi = 11811 /m.
+        at = png.index(b"pHYs")
+        x, y, unit = struct.unpack(">IIB", png[at + 4 : at + 13])
+        assert (x, y, unit) == (11811, 11811, 1), name
+        root = ElementTree.parse(tmp_path / "figures" / f"{name}.svg").getroot()
+        assert root.tag == "{http://www.w3.org/2000/svg}svg"

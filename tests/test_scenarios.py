@@ -144,3 +144,33 @@ def test_treatment_year_outside_the_calendar_is_refused(project, year):
     layer.to_file(path, layer="treatments_thinning", driver="GPKG")
     with pytest.raises(SpatialError, match=r"feature 1 .*attribute 'year'.*from 1800 to 2200"):
         read_treatments(path, None, [])
+
+
+def test_compare_report_of_several_scenarios(project, tmp_path, capsys):
+    import json
+    import re
+
+    out = tmp_path / "both"
+    argv = ["compare", str(project), "--scenario", "juniper_thinning"]
+    argv += ["--scenario", "prescribed_burn", "--out", str(out), "--quiet"]
+    assert main(argv) == 0
+    manifest = json.loads((out / "run.json").read_text())
+    assert manifest["command"] == "compare"
+    assert manifest["derived"]["scenarios"] == ["juniper_thinning", "prescribed_burn"]
+    table = pd.read_csv(out / "scenario_by_unit.csv")
+    assert set(table["scenario"]) == {"juniper_thinning", "prescribed_burn"}
+    html = (out / "report.html").read_text(encoding="utf-8")
+    section = re.search(r'<section id="scenario">(.*?)</section>', html, re.DOTALL).group(1)
+    config = load_project(project).config
+    for name in ("juniper_thinning", "prescribed_burn"):
+        assert f"Scenario {name}" in section
+        assert config.scenarios[name].description.replace("'", "&#39;") in section
+    for words in ("Treated land by scenario", "Responses applied", "How the scenarios are"):
+        assert words in section
+    # The interpolation at the treatment year and after the last listed year, as
+    # response_at does (tests above): first value from year 0, untreated after the last.
+    assert "(0 years since)" in section and "returns to its untreated forage" in section
+    # Treatment years of the layers, in the treated-land table.
+    for path in ("treatments_thinning.gpkg", "treatments_burn.gpkg"):
+        for year in gpd.read_file(project.parent / path)["year"]:
+            assert f"<td>{int(year)}</td>" in section

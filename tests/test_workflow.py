@@ -205,3 +205,28 @@ def test_counts_of_unknown_units_and_sampled_bare_strata_are_noted(project):
     n_steppe = plots.loc[plots["stratum"] == "sagebrush_steppe", "plot_id"].nunique()  # pandas
     assert any(f"sagebrush_steppe ({n_steppe} plots)" in n for n in notes)
     assert any("not on the strata map" in n and "glacier" in n for n in notes)
+
+
+def test_trend_compares_the_counts_with_the_units_they_cover(example_project, tmp_path):
+    # Counts of two units and of one id that is no unit (values invented for the test).
+    from nutricap.inputs.counts import read_counts
+    from nutricap.workflow import counts_trend
+
+    project = load_project(example_project)
+    result = estimate(project)
+    by_unit = result.by_unit
+    two = by_unit["unit_id"].tolist()[:2]
+    rows = [
+        {"unit_id": unit, "year": year, "count": 100 + 10 * index + year - 2015}
+        for index, unit in enumerate([*two, "Nowhere"])
+        for year in range(2015, 2021)
+    ]
+    path = tmp_path / "counts.csv"
+    pd.DataFrame(rows).to_csv(path, index=False)
+    figures = counts_trend(project, read_counts(path), lambda message: None, by_unit)
+    chosen = by_unit[by_unit["unit_id"].isin(two)]
+    assert figures["capacity"]["units"] == two
+    assert figures["capacity"]["ncc_animals"] == pytest.approx(chosen["ncc_animals"].sum())
+    assert figures["capacity"]["ecc_animals"] == pytest.approx(chosen["ecc_animals"].sum())
+    assert figures["unmatched_units"] == ["Nowhere"] and not figures["counted_all_units"]
+    assert figures["level"] == project.config.uncertainty.interval_level

@@ -142,3 +142,23 @@ def _problem(grid: GridResult, available, variants: dict, responses, mode: str):
         row_unit.append(owners)
         start += block.shape[1]
     return CapacityProblem(base.unit_ids, np.concatenate(row_unit), items, np.vstack(rows))
+
+
+def treated_pieces(grid: GridResult, scenario: GridScenario) -> pd.DataFrame:
+    """The treated land of ``scenario`` on the grid, as the polygon path's overlay gives it:
+    ``unit_id, stratum, new_stratum, treatment, year, accessible_ha`` (treated cells × cell
+    area [ha]) per unit × stratum × treatment polygon, for the report."""
+    treated = grid.treated
+    pair, stratum = np.nonzero(treated.cells > 0)
+    polygon = treated.pair_polygon[pair]
+    attributes = scenario.treatments.iloc[polygon]
+    return pd.DataFrame(
+        {
+            "unit_id": grid.problem.unit_ids[treated.pair_unit[pair]],
+            "stratum": np.asarray(grid.full_supply.strata, dtype=object)[stratum],
+            "new_stratum": attributes["new_stratum"].to_numpy(),
+            "treatment": attributes["treatment"].to_numpy(),
+            "year": attributes["year"].to_numpy(),
+            "accessible_ha": treated.cells[pair, stratum] * grid.grid.cell_area_ha,
+        }
+    )

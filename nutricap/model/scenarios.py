@@ -317,3 +317,11 @@ def years_since_latest_treatment(pieces: pd.DataFrame, unit_ids: np.ndarray) -> 
     treated = pieces[pieces["variant"] != ""]
     latest = treated.groupby("unit_id")["years_since"].min()
     return latest.reindex(unit_ids).to_numpy(dtype=float)
+
+
+def treatment_years(scenarios: list[Scenario]) -> dict[str, list[int]]:
+    """The calendar years in which each scenario treats land (of its treated pieces)."""
+    return {
+        scenario.name: sorted({int(year) for year in scenario.treated["year"]})
+        for scenario in scenarios
+    }

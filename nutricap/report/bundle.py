@@ -36,11 +36,19 @@ def write_estimate(
     *,
     report: bool = True,
     scenario_table: pd.DataFrame | None = None,
+    scenarios: list | None = None,
     checksums: BackgroundChecksums | None = None,
+    pdf_browser: Path | None = None,
+    figure_files: bool = False,
 ) -> None:
     """Write the tables, the manifest and (unless ``report=False``) the HTML report.
 
-    ``checksums`` of the inputs, when started ahead; otherwise computed here.
+    ``checksums`` of the inputs, when started ahead; otherwise computed here. With a
+    ``scenario_table`` (a ``compare`` run) the manifest's command is ``compare`` and
+    ``scenarios`` (:class:`nutricap.model.scenarios.Scenario`) are described in the report.
+    ``pdf_browser``: also print the report to ``report.pdf`` with this browser
+    (:func:`nutricap.report.pdf.find_browser`). ``figure_files``: also write the report's
+    figures as PNG (300 dpi) and SVG files into ``figures/``.
     """
     config = project.config
     totals = totals_table(result)
@@ -77,11 +85,11 @@ def write_estimate(
         markdown = markdown_table(result.by_unit, title="Capacity by unit", context_lines=context)
         (folder / "capacity_by_unit.md").write_text(markdown, encoding="utf-8")
         manifest = build_manifest(
-            command="estimate",
+            command="estimate" if scenario_table is None else "compare",
             project_path=project.path,
             input_paths=project.input_paths(),
             settings=config.model_dump(mode="json"),
-            derived=_derived_values(result),
+            derived=_derived_values(result, scenarios),
             checksums=None if checksums is None else checksums.result(),
             column_names=project.column_names(),
         )
@@ -94,12 +102,20 @@ def write_estimate(
                 result,
                 project=project,
                 manifest=manifest,
-                extras=report_extras(result, project, scenario_table),
+                extras=report_extras(result, project, scenario_table, scenarios),
+                figure_files=figure_files,
             )
+            if pdf_browser is not None:
+                from nutricap.report.pdf import write_pdf
+
+                write_pdf(folder / "report.html", pdf_browser)
 
 
 def report_extras(
-    result: Estimate, project: Project, scenario_table: pd.DataFrame | None
+    result: Estimate,
+    project: Project,
+    scenario_table: pd.DataFrame | None,
+    scenarios: list | None = None,
 ) -> ReportExtras:
     """What the report shows beside the estimate: sensitivity, intervals, scenario."""
     uncertainty = result.uncertainty
@@ -107,6 +123,7 @@ def report_extras(
 
     return ReportExtras(
         scenario_table=scenario_table,
+        scenarios=scenarios,
         sensitivity_table=uncertainty.sensitivity,
         interval_level=uncertainty.bootstrap.level if uncertainty.bootstrap else None,
         trend=result.trend,
@@ -131,8 +148,10 @@ def _total_words(row) -> str:
     return words + "."
 
 
-def _derived_values(result: Estimate) -> dict:
+def _derived_values(result: Estimate, scenarios: list | None = None) -> dict:
+    compared = {"scenarios": [scenario.name for scenario in scenarios]} if scenarios else {}
     return {
+        **compared,
         "diet_de_min_kcal_per_g": result.target.de_min_kcal_per_g,
         "diet_dp_min_pct": result.target.dp_min_pct,
         "target_derivation": result.target.derivation,

@@ -13,8 +13,12 @@ from typing import Any
 import pandas as pd
 
 from nutricap.cautions import CAUTION
+from nutricap.model.scenarios import treatment_years
 from nutricap.report import figures
 from nutricap.report.formatting import (
+    ONE_DECIMAL,
+    THREE_DECIMALS,
+    TWO_DECIMALS,
     Column,
     embedded_figure,
     format_auto,
@@ -54,6 +58,7 @@ def sensitivity(sensitivity_table: pd.DataFrame | None, change: float | None) ->
         "figure": embedded_figure(
             figures.tornado_figure(sensitivity_table, change=change),
             "Tornado chart of the change in total NCC for each input.",
+            "sensitivity_tornado",
         ),
         "table": table(ordered, columns),
         "change": f"±{100 * change:g} %" if change else "its low and its high value",
@@ -71,35 +76,125 @@ SCENARIO_TOTAL_COLUMNS = [
     Column("year", "Year"),
     numeric_column("ncc_animals_baseline", "Baseline NCC [animals]"),
     numeric_column("ncc_animals_scenario", "Scenario NCC [animals]"),
-    numeric_column("change_animals", "Change [animals]", _signed),
+    numeric_column("change_animals", "Change in NCC [animals]", _signed),
+    numeric_column("allowable_use_animals_scenario", "Scenario allowable-use capacity [animals]"),
+    numeric_column("ecc_animals_scenario", "Scenario ECC [animals]"),
 ]
 
 SCENARIO_UNIT_COLUMNS = [
     Column("unit_id", "Unit"),
     *SCENARIO_TOTAL_COLUMNS[:2],
     Column("years_since_treatment", "Years since treatment", format_auto, numeric=True),
-    *SCENARIO_TOTAL_COLUMNS[2:],
+    *SCENARIO_TOTAL_COLUMNS[2:5],
 ]
 
+TREATED_COLUMNS = [
+    Column("scenario", "Scenario"),
+    Column("treatment", "Treatment"),
+    Column("year", "Year"),
+    Column("unit_id", "Unit"),
+    Column("stratum", "Stratum treated"),
+    Column("new_stratum", "Becomes stratum"),
+    numeric_column("accessible_ha", "Treated area [ha, accessible]", ONE_DECIMAL),
+]
 
-def scenario(scenario_table: pd.DataFrame | None) -> dict | None:
-    """The treatment-scenario section: chart, totals and per-unit table, or None."""
+RESPONSE_COLUMNS = [
+    Column("treatment", "Treatment"),
+    Column("forage_class", "Forage class"),
+    Column("growth_form", "Growth form"),
+    numeric_column("years_since", "Years since treatment", format_auto),
+    numeric_column("biomass_multiplier", "Biomass × [–]", TWO_DECIMALS),
+    numeric_column("de_shift_kcal_per_g", "DE shift [kcal/g]", THREE_DECIMALS),
+    numeric_column("cp_shift_pct", "CP shift [% points]", ONE_DECIMAL),
+]
+
+SCENARIO_METHOD = (
+    "Each treatment polygon is overlaid on the units' stratum pieces; from its treatment year "
+    "on, the treated hectares become patches of their own (of the new stratum when one is "
+    "given), whose forage is the stratum's clip-plot mean changed by the response table: "
+    "biomass multiplied, DE and CP shifted, by forage class or by growth form. NCC, ECC and "
+    "allowable-use capacity are then solved again for every year, with the same diet target, "
+    "herd and settings as the baseline; the baseline is the estimate above, the same every "
+    "year. A response is interpolated linearly between the years listed. In the treatment year "
+    "(0 years since) and before the first listed year the first listed value applies (a table "
+    "starting at year 1 therefore acts in the treatment year already); after the last listed "
+    "year the treated land returns to its untreated forage at once. List a year 0 row for the "
+    "treatment year and a last row at the untreated value (multiplier 1, shifts 0) for a "
+    "gradual return."
+)
+
+
+def scenario(scenario_table: pd.DataFrame | None, scenarios: list | None = None) -> dict | None:
+    """The treatment-scenario section: description, treatments, responses, chart, tables."""
     if scenario_table is None:
         return None
     units = scenario_table["unit_id"].nunique()
-    chart = figures.scenario_figure(scenario_table, per_unit=units <= MAX_SCENARIO_PANELS)
-    totals = scenario_table.groupby(["scenario", "year"], as_index=False, sort=True)[
-        ["ncc_animals_baseline", "ncc_animals_scenario"]
-    ].sum()
+    scenarios = scenarios or []
+    years = treatment_years(scenarios)
+    chart = figures.scenario_figure(
+        scenario_table, per_unit=units <= MAX_SCENARIO_PANELS, treatment_years=years
+    )
+    summed = [name for name in SCENARIO_SUMMED if name in scenario_table.columns]
+    totals = scenario_table.groupby(["scenario", "year"], as_index=False, sort=True)[summed].sum()
     totals["change_animals"] = totals["ncc_animals_scenario"] - totals["ncc_animals_baseline"]
     return {
         "figure": embedded_figure(
-            chart, "Line chart of NCC over the years, baseline against each treatment scenario."
+            chart,
+            "Line charts of NCC, allowable-use capacity and ECC over the years, baseline "
+            "against each treatment scenario, treatment years marked.",
+            "scenario_by_year",
         ),
         "per_unit_panels": units <= MAX_SCENARIO_PANELS,
+        "described": [_described(s) for s in scenarios],
+        "treated": _treated_table(scenarios),
+        "responses": _responses_table(scenarios),
+        "method": SCENARIO_METHOD,
         "totals": table(totals, SCENARIO_TOTAL_COLUMNS),
         "by_unit": table(scenario_table, SCENARIO_UNIT_COLUMNS),
     }
+
+
+SCENARIO_SUMMED = (
+    "ncc_animals_baseline",
+    "ncc_animals_scenario",
+    "allowable_use_animals_scenario",
+    "ecc_animals_scenario",
+)
+
+
+def _described(scenario) -> dict:
+    section = scenario.section
+    treated = scenario.treated
+    return {
+        "name": scenario.name,
+        "description": section.description or "(no description in the project file)",
+        "years": f"{section.first_year}–{section.last_year}",
+        "treatments": ", ".join(sorted(set(map(str, treated["treatment"])))) or "none",
+        "hectares": ONE_DECIMAL(treated["accessible_ha"].sum()),
+        "responses": str(section.responses),
+    }
+
+
+def _treated_table(scenarios: list) -> dict | None:
+    if not scenarios:
+        return None
+    frames = [s.treated.assign(scenario=s.name) for s in scenarios]
+    frame = pd.concat(frames, ignore_index=True)
+    frame["new_stratum"] = frame["new_stratum"].replace("", "(same)")
+    frame = frame.sort_values(["scenario", "year", "unit_id", "stratum"], kind="stable")
+    return table(frame, TREATED_COLUMNS)
+
+
+def _responses_table(scenarios: list) -> dict | None:
+    """The response rows of the treatments the scenarios apply (each table once)."""
+    if not scenarios:
+        return None
+    rows = []
+    for s in scenarios:
+        used = set(map(str, s.treated["treatment"]))
+        rows.append(s.responses[s.responses["treatment"].isin(used)])
+    frame = pd.concat(rows, ignore_index=True).drop_duplicates()
+    return table(frame, RESPONSE_COLUMNS)
 
 
 # --- 8. population trend ----------------------------------------------------------------------
@@ -127,13 +222,30 @@ def trend(result: Any, by_unit: pd.DataFrame) -> dict | None:
         ncc,
         ecc,
     )
+    level = data.get("level")
+    unmatched = [str(unit) for unit in data.get("unmatched_units") or []]
+    notes = []
+    if unmatched:
+        notes.append(
+            f"Counts of {len(unmatched)} unit id(s) that match no management unit "
+            f"({', '.join(unmatched)}) are in the counted total but have no NCC or ECC here."
+        )
+    if level:
+        notes.append(
+            f"Intervals are at the report's {100 * level:g} % level ([uncertainty] "
+            "interval_level), like the capacity intervals; the trend command's own default is "
+            "95 % (--level)."
+        )
     return {
         "figure": embedded_figure(
             chart,
             "Counts over time with the fitted curve and the reference lines K, K/2, NCC and ECC.",
+            "population_trend",
         ),
         "series": format_text(data.get("series")),
         "area": area,
+        "notes": notes,
+        "statement": (data.get("capacity") or {}).get("statement"),
         "fitted": data.get("fitted_counts") is not None,
         "ceiling": K is not None,
         "figures": _trend_figures(data),
@@ -155,6 +267,10 @@ def _trend_capacity(data: dict, by_unit: pd.DataFrame) -> tuple[float | None, fl
         if source.get("ncc_animals") is not None or source.get("ecc_animals") is not None:
             units = capacity.get("units")
             area = ("units " + ", ".join(map(str, units))) if units else "the counted area"
+            if data.get("counted_all_units"):
+                area = f"all {len(units)} units (the counts cover every unit)"
+            elif units:
+                area = f"the {len(units)} counted units ({', '.join(map(str, units))})"
             return (
                 _finite_or_none(source.get("ncc_animals")),
                 _finite_or_none(source.get("ecc_animals")),

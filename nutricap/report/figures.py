@@ -34,6 +34,7 @@ from matplotlib.cm import ScalarMappable
 from matplotlib.colors import Normalize
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
+from matplotlib.patches import Rectangle
 from matplotlib.ticker import FuncFormatter
 
 from nutricap.errors import printable
@@ -62,6 +63,8 @@ CAPACITY_SERIES = {
 
 #: Resolution of the embedded PNGs [dots per inch].
 PNG_DPI = 110
+#: Resolution of the PNG files in the output's figures/ folder [dots per inch] (print).
+PRINT_DPI = 300
 
 #: Largest number of units drawn in the per-unit chart, and labelled on the map.
 MAX_UNITS_CHART = 40
@@ -86,6 +89,13 @@ def figure_png(figure: Figure, *, dpi: int = PNG_DPI) -> bytes:
     """
     buffer = io.BytesIO()
     figure.savefig(buffer, format="png", dpi=dpi, metadata={"Software": None})
+    return buffer.getvalue()
+
+
+def figure_svg(figure: Figure) -> bytes:
+    """Render ``figure`` to SVG bytes (no date, so that a rerun writes the same file)."""
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="svg", metadata={"Date": None})
     return buffer.getvalue()
 
 
@@ -119,7 +129,7 @@ def ncc_density_map(units: gpd.GeoDataFrame, by_unit: pd.DataFrame) -> Figure:
         by_unit[["unit_id", "ncc_per_km2"]], on="unit_id", how="left"
     )
     frame = gpd.GeoDataFrame(shapes, geometry="geometry", crs=units.crs)
-    figure = _new_figure(7.5, 6.0)
+    figure = _new_figure(*_map_size_in(frame.total_bounds))
     ax = figure.add_subplot()
     values = frame["ncc_per_km2"].to_numpy(dtype=float)
     norm = _density_norm(values)
@@ -137,8 +147,90 @@ def ncc_density_map(units: gpd.GeoDataFrame, by_unit: pd.DataFrame) -> Figure:
     if len(frame) <= MAX_UNITS_LABELLED:
         _label_units(ax, frame)
     _map_axes(ax, frame.crs)
+    ax.margins(0.02)
+    _map_furniture(ax, frame.crs)
     ax.set_title("Nutritional carrying capacity per km² by unit")
     return figure
+
+
+MAP_WIDTH_IN = 7.0
+
+
+def _map_size_in(bounds: np.ndarray) -> tuple[float, float]:
+    """Figure size [inches] that fits the layers' extent (map, colour bar and labels)."""
+    width, height = float(bounds[2] - bounds[0]), float(bounds[3] - bounds[1])
+    aspect = height / width if width > 0 and math.isfinite(height / width) else 0.8
+    return MAP_WIDTH_IN, float(np.clip(1.3 + 0.78 * MAP_WIDTH_IN * aspect, 3.0, 9.0))
+
+
+def scale_bar_length(extent: float) -> float:
+    """A round length (1, 2 or 5 × 10^k) close to a quarter of ``extent`` [same unit]."""
+    if not (extent > 0 and math.isfinite(extent)):
+        return 0.0
+    target = extent / 4.0
+    power = 10.0 ** math.floor(math.log10(target))
+    return max(step * power for step in (1.0, 2.0, 5.0) if step * power <= target)
+
+
+def _map_furniture(ax, crs) -> None:
+    """A scale bar (projected CRS in metres) and a grid-north arrow, drawn in the axes."""
+    x0, x1 = ax.get_xlim()
+    y0, y1 = ax.get_ylim()
+    halo = [patheffects.withStroke(linewidth=3, foreground="white")]
+    metres = (
+        crs is not None
+        and crs.is_projected
+        and crs.axis_info[0].unit_name
+        in (
+            "metre",
+            "meter",
+        )
+    )
+    if metres:
+        length = scale_bar_length(x1 - x0)
+        left, base = x0 + 0.04 * (x1 - x0), y0 + 0.05 * (y1 - y0)
+        for index in range(2):  # two halves, black and white, as on a printed map
+            start = left + index * length / 2.0
+            ax.add_patch(
+                Rectangle(
+                    (start, base),
+                    length / 2.0,
+                    0.012 * (y1 - y0),
+                    facecolor=("black", "white")[index],
+                    edgecolor="black",
+                    linewidth=0.8,
+                    zorder=5,
+                )
+            )
+        words = f"{length / 1000:g} km" if length >= 1000 else f"{length:g} m"
+        ax.annotate(
+            words,
+            (left + length / 2.0, base + 0.02 * (y1 - y0)),
+            ha="center",
+            va="bottom",
+            fontsize=8,
+            path_effects=halo,
+            zorder=6,
+        )
+    tip = (x1 - 0.05 * (x1 - x0), y1 - 0.04 * (y1 - y0))
+    tail = (tip[0], tip[1] - 0.12 * (y1 - y0))
+    ax.annotate(
+        "N",
+        xy=tip,
+        xytext=tail,
+        ha="center",
+        va="top",
+        fontsize=10,
+        fontweight="bold",
+        arrowprops={
+            "arrowstyle": "-|>",
+            "color": "black",
+            "linewidth": 1.5,
+            "path_effects": halo,
+        },
+        path_effects=halo,
+        zorder=6,
+    )
 
 
 def _density_norm(values: np.ndarray) -> Normalize:
@@ -175,7 +267,7 @@ def _map_axes(ax, crs) -> None:
         ax.set_xlabel("x [map units; layer has no CRS]")
         ax.set_ylabel("y [map units; layer has no CRS]")
         return
-    code = crs.to_string()
+    code = crs.name if crs.name and crs.name != "unknown" else crs.to_string()
     by_direction = {info.direction.lower(): info for info in crs.axis_info}
     pairs = (
         (ax.xaxis, by_direction.get("east"), "Easting"),
@@ -369,47 +461,70 @@ SCENARIO_COLUMNS = ("unit_id", "scenario", "year", "ncc_animals_baseline", "ncc_
 _SCENARIO_COLOURS = ("vermillion", "blue", "orange", "reddish_purple", "bluish_green", "sky_blue")
 
 
-def scenario_figure(scenario_table: pd.DataFrame, *, per_unit: bool = False) -> Figure:
-    """NCC over the years after treatment, baseline against each scenario.
+SCENARIO_FIGURES = (
+    ("ncc", "NCC"),
+    ("allowable_use", "Allowable-use capacity"),
+    ("ecc", "ECC"),
+)
+"""The capacity figures charted for a scenario: column stem and panel title."""
+
+
+def scenario_figure(
+    scenario_table: pd.DataFrame,
+    *,
+    per_unit: bool = False,
+    treatment_years: dict[str, Sequence[int]] | None = None,
+) -> Figure:
+    """NCC, allowable-use capacity and ECC over the years, baseline against each scenario.
 
     Parameters
     ----------
     scenario_table : pandas.DataFrame
         Columns ``unit_id, scenario, year, ncc_animals_baseline, ncc_animals_scenario``
-        [animals] (``years_since_treatment`` and ``change_animals`` may also be present).
+        [animals], and the same pair for ``allowable_use`` and ``ecc`` when present.
     per_unit : bool, default False
-        Add one small panel per unit under the panel of the total over units.
+        Add one small NCC panel per unit under the panels of the totals over units.
+    treatment_years : dict of str → sequence of int, optional
+        Calendar years in which each scenario treats land, marked by vertical dotted lines.
 
     Returns
     -------
     matplotlib.figure.Figure
+        Every y axis starts at zero; tick labels carry as many decimals as keep them apart.
     """
     _require_columns(scenario_table, SCENARIO_COLUMNS, "scenario table")
+    shown = [
+        (stem, title)
+        for stem, title in SCENARIO_FIGURES
+        if {f"{stem}_animals_baseline", f"{stem}_animals_scenario"} <= set(scenario_table.columns)
+    ]
     units = list(dict.fromkeys(scenario_table["unit_id"]))
     columns = 3
     unit_rows = math.ceil(len(units) / columns) if per_unit else 0
-    figure = _new_figure(9.0, 4.2 + 2.3 * unit_rows)
-    grid = figure.add_gridspec(1 + unit_rows, columns, height_ratios=[1.8] + [1.0] * unit_rows)
-    total = figure.add_subplot(grid[0, :])
-    _scenario_panel(total, scenario_table, legend=True)
-    total.set_title("NCC, total over units: baseline and scenario")
+    figure = _new_figure(10.0, 4.0 + 2.3 * unit_rows)
+    grid = figure.add_gridspec(1 + unit_rows, columns, height_ratios=[1.6] + [1.0] * unit_rows)
+    years = treatment_years or {}
+    for index, (stem, title) in enumerate(shown):
+        ax = figure.add_subplot(grid[0, index % columns])
+        _scenario_panel(ax, scenario_table, stem, years, legend=index == 0)
+        ax.set_title(f"{title}, total over units", fontsize=10)
     for index, unit in enumerate(units if per_unit else []):
         ax = figure.add_subplot(grid[1 + index // columns, index % columns])
-        _scenario_panel(ax, scenario_table[scenario_table["unit_id"] == unit], legend=False)
-        ax.set_title(_label(unit), fontsize=9)
+        rows = scenario_table[scenario_table["unit_id"] == unit]
+        _scenario_panel(ax, rows, "ncc", years, legend=False)
+        ax.set_title(f"NCC, {_label(unit)}", fontsize=9)
         ax.tick_params(labelsize=7)
         ax.xaxis.label.set_size(7)
         ax.yaxis.label.set_size(7)
     return figure
 
 
-def _scenario_panel(ax, table: pd.DataFrame, *, legend: bool) -> None:
+def _scenario_panel(ax, table: pd.DataFrame, stem: str, treatment_years, *, legend: bool) -> None:
     """Baseline (black dashed) and one line per scenario, summed over the table's units."""
-    totals = table.groupby(["scenario", "year"], sort=True)[
-        ["ncc_animals_baseline", "ncc_animals_scenario"]
-    ].sum()
-    baseline = totals["ncc_animals_baseline"].unstack("scenario")
-    scenario = totals["ncc_animals_scenario"].unstack("scenario")
+    base_column, scenario_column = f"{stem}_animals_baseline", f"{stem}_animals_scenario"
+    totals = table.groupby(["scenario", "year"], sort=True)[[base_column, scenario_column]].sum()
+    baseline = totals[base_column].unstack("scenario")
+    scenario = totals[scenario_column].unstack("scenario")
     same = baseline.apply(
         lambda column: np.allclose(column, baseline.iloc[:, 0], equal_nan=True)
     ).all()
@@ -432,16 +547,33 @@ def _scenario_panel(ax, table: pd.DataFrame, *, legend: bool) -> None:
             color=colour,
             linewidth=2,
             marker="o",
-            markersize=4,
-            label=f"scenario: {name}",
+            markersize=3,
+            label=f"scenario: {_label(name)}",
         )
+        for year in treatment_years.get(name, ()):
+            ax.axvline(year, color=colour, linestyle=":", linewidth=1.2)
+    if any(treatment_years.get(name) for name in scenario.columns):
+        ax.plot([], [], color="#555555", linestyle=":", label="treatment year")
     ax.set_xlabel("Year")
-    ax.set_ylabel("NCC [animals]")
-    ax.yaxis.set_major_formatter(_THOUSANDS)
+    ax.set_ylabel("Capacity [animals]")
+    ax.set_ylim(bottom=0.0)
     ax.xaxis.get_major_locator().set_params(integer=True)
     ax.grid(color="#eeeeee")
+    distinct_tick_labels(ax.yaxis)
     if legend:
-        ax.legend(fontsize=8, framealpha=0.9)
+        ax.legend(fontsize=7, framealpha=0.9, loc="lower left")
+
+
+def distinct_tick_labels(axis, max_decimals: int = 4) -> int:
+    """Give ``axis`` a thousands-separated formatter with the fewest decimals (0 to
+    ``max_decimals``) that keeps its major tick labels apart; return the decimals used."""
+    ticks = axis.get_majorticklocs()
+    for digits in range(max_decimals + 1):
+        labels = [f"{tick:,.{digits}f}" for tick in ticks]
+        if len(set(labels)) == len(labels):
+            break
+    axis.set_major_formatter(FuncFormatter(lambda value, _p, d=digits: f"{value:,.{d}f}"))
+    return digits
 
 
 def _require_columns(table: pd.DataFrame, columns: Sequence[str], what: str) -> None:

@@ -67,6 +67,11 @@ def format_auto(value: Any) -> str:
     return str(value)
 
 
+def decimals(digits: int) -> Callable[[Any], str]:
+    """Formatter with thousands separators and ``digits`` decimals ('–' when missing)."""
+    return _number(digits)
+
+
 ANIMALS = _number(0)
 ONE_DECIMAL = _number(1)
 TWO_DECIMALS = _number(2)
@@ -111,7 +116,22 @@ def table(
     }
 
 
-def embedded_figure(figure: Figure, alt: str) -> dict:
-    """``figure`` as a base64 PNG data URI with its alt text."""
+TALL_FIGURE_IN = 7.0
+"""Figures taller than this [inches] may fill a printed page; others print at most 85 mm high,
+so that two share a page."""
+
+
+def embedded_figure(figure: Figure, alt: str, name: str) -> dict:
+    """``figure`` as a base64 PNG data URI with its alt text (and whether it is tall).
+
+    ``name`` is the figure's file name (no extension) in the output's ``figures/`` folder;
+    the figure itself is kept under ``"figure"`` for :func:`nutricap.report.html.write_report`.
+    """
     png = figures.figure_png(figure)
-    return {"src": "data:image/png;base64," + base64.b64encode(png).decode("ascii"), "alt": alt}
+    return {
+        "src": "data:image/png;base64," + base64.b64encode(png).decode("ascii"),
+        "alt": alt,
+        "tall": bool(figure.get_figheight() > TALL_FIGURE_IN),
+        "name": name,
+        "figure": figure,
+    }

@@ -30,18 +30,29 @@ import jinja2
 import pandas as pd
 
 from nutricap.cautions import CAUTION
-from nutricap.report import extra_sections, figures, provenance, raster_section, sections
+from nutricap.report import (
+    extra_sections,
+    figures,
+    provenance,
+    raster_section,
+    references,
+    sections,
+)
 from nutricap.report.formatting import embedded_figure
 from nutricap.report.methods_text import methods
 from nutricap.report.sections import INTERVAL_COLUMNS, has_interval, is_flag, unit_table
 
 if TYPE_CHECKING:
+    from matplotlib.figure import Figure
+
     from nutricap.inputs.project import Project
     from nutricap.model.estimate import Estimate
 
 __all__ = ["ReportExtras", "is_flag", "methods", "render_report", "unit_table", "write_report"]
 
 TEMPLATE = "report.html.j2"
+FIGURES_FOLDER = "figures"
+"""Folder of the output holding each figure of the report as PNG and SVG."""
 
 
 @dataclass(frozen=True)
@@ -65,6 +76,8 @@ class ReportExtras:
         Level of the ``*_lo``/``*_hi`` intervals in the per-unit table, e.g. 0.9.
     sensitivity_change : float, optional
         The fractional change behind ``sensitivity_table`` (0.1 for ±10 %).
+    scenarios : list of nutricap.model.scenarios.Scenario, optional
+        The scenarios behind ``scenario_table``: description, treated land, responses.
     """
 
     scenario_table: pd.DataFrame | None = None
@@ -72,6 +85,7 @@ class ReportExtras:
     trend: Any = None
     interval_level: float | None = None
     sensitivity_change: float | None = None
+    scenarios: list | None = None
 
 
 def render_report(
@@ -81,7 +95,18 @@ def render_report(
     manifest: dict,
     extras: ReportExtras | None = None,
 ) -> str:
-    """The HTML report of ``estimate`` as one self-contained document.
+    """The HTML report of ``estimate`` as one self-contained document (see :func:`report_parts`)."""
+    return report_parts(estimate, project=project, manifest=manifest, extras=extras)[0]
+
+
+def report_parts(
+    estimate: Estimate,
+    *,
+    project: Project,
+    manifest: dict,
+    extras: ReportExtras | None = None,
+) -> tuple[str, dict[str, Figure]]:
+    """The HTML report of ``estimate`` and its figures by file name.
 
     Parameters
     ----------
@@ -97,12 +122,21 @@ def render_report(
 
     Returns
     -------
-    str
+    html : str
         The HTML text.
+    figures : dict of str → matplotlib.figure.Figure
+        Every figure of the report by its file name (no extension).
     """
     extras = extras or ReportExtras()
     animals, forage = estimate.animals, estimate.forage_classes
     intervals = any(has_interval(estimate.by_unit, name) for name in INTERVAL_COLUMNS)
+    method_list = methods(
+        intervals=intervals,
+        sensitivity=extras.sensitivity_table is not None,
+        trend=extras.trend is not None,
+        grid=estimate.grid is not None,
+    ) + raster_section.raster_methods(estimate, intervals=intervals)
+    raster = raster_section.raster_landscape(estimate, project.config.project.species)
     context = {
         "caution": CAUTION,
         "header": sections.header(estimate, project, manifest),
@@ -111,28 +145,52 @@ def render_report(
         "map": embedded_figure(
             figures.ncc_density_map(estimate.units, estimate.by_unit),
             "Map of the management units shaded by NCC per square kilometre.",
+            "ncc_density_map",
         ),
         "capacity": sections.capacity(estimate, extras.interval_level),
         "sensitivity": extra_sections.sensitivity(
             extras.sensitivity_table, extras.sensitivity_change
         ),
-        "use": sections.use(estimate.by_unit),
-        "scenario": extra_sections.scenario(extras.scenario_table),
+        "use": sections.use(estimate.by_unit, estimate.use_by_class),
+        "scenario": extra_sections.scenario(extras.scenario_table, extras.scenarios),
         "trend": extra_sections.trend(extras.trend, estimate.by_unit),
         "unit_table": unit_table(estimate.by_unit, extras.interval_level),
         "supply": sections.supply(estimate),
-        "raster": raster_section.raster_landscape(estimate),
-        "methods": methods(
-            intervals=intervals,
-            sensitivity=extras.sensitivity_table is not None,
-            trend=extras.trend is not None,
-            grid=estimate.grid is not None,
-        )
-        + raster_section.raster_methods(estimate, intervals=intervals),
+        "raster": raster,
+        "methods": [
+            {**vars(method), "source": references.short_citation(method.source)}
+            for method in method_list
+        ],
         "parameters": provenance.parameter_tables(estimate, project, animals, forage),
+        "references": _reference_list(estimate, project, method_list),
+        "to_verify": references.values_to_verify(reductions=_reductions_used(estimate)),
         "manifest": provenance.manifest_summary(manifest),
     }
-    return _template().render(**context)
+    shown = {part["name"]: part["figure"] for part in _figure_parts(context)}
+    return _template().render(**context), shown
+
+
+def _figure_parts(value: Any) -> list[dict]:
+    """The embedded figures (dicts with a ``figure``) anywhere in the template context."""
+    if isinstance(value, dict):
+        if "figure" in value and "src" in value:
+            return [value]
+        return [part for item in value.values() for part in _figure_parts(item)]
+    return []
+
+
+def _reference_list(estimate: Estimate, project: Project, method_list) -> dict:
+    texts = [method.source for method in method_list]
+    texts += provenance.source_texts(estimate, project)
+    if estimate.grid is not None and estimate.grid.rules is not None:
+        for reduction in (estimate.grid.rules.slope_table, estimate.grid.rules.water_table):
+            texts += list(reduction.row_sources) if reduction is not None else []
+    return {"entries": references.cited(texts), "note": references.REFERENCE_NOTE}
+
+
+def _reductions_used(estimate: Estimate) -> bool:
+    rules = estimate.grid.rules if estimate.grid is not None else None
+    return rules is not None and (rules.slope_table is not None or rules.water_table is not None)
 
 
 def write_report(
@@ -142,10 +200,26 @@ def write_report(
     project: Project,
     manifest: dict,
     extras: ReportExtras | None = None,
+    figure_files: bool = False,
 ) -> None:
-    """Write :func:`render_report` to ``path`` as UTF-8 (into a staging folder, normally)."""
-    html = render_report(estimate, project=project, manifest=manifest, extras=extras)
+    """Write :func:`render_report` to ``path`` as UTF-8 (into a staging folder, normally).
+
+    ``figure_files``: also write each figure beside it as ``figures/NAME.png``
+    (:data:`figures.PRINT_DPI` dpi) and ``figures/NAME.svg``, for a report author to place
+    (about half a second per figure, hence asked for).
+    """
+    html, shown = report_parts(estimate, project=project, manifest=manifest, extras=extras)
     Path(path).write_text(html, encoding="utf-8")
+    if figure_files:
+        write_figures(shown, Path(path).parent / FIGURES_FOLDER)
+
+
+def write_figures(shown: dict[str, Figure], folder: Path) -> None:
+    """Each figure as ``NAME.png`` (:data:`figures.PRINT_DPI` dpi) and ``NAME.svg``."""
+    folder.mkdir(exist_ok=True)
+    for name, figure in shown.items():
+        (folder / f"{name}.png").write_bytes(figures.figure_png(figure, dpi=figures.PRINT_DPI))
+        (folder / f"{name}.svg").write_bytes(figures.figure_svg(figure))
 
 
 def _template() -> jinja2.Template:

@@ -23,6 +23,7 @@ from nutricap.report.formatting import (
     numeric_column,
     table,
 )
+from nutricap.report.references import short_citation
 from nutricap.science import energetics, forage_quality, supply
 
 if TYPE_CHECKING:
@@ -38,12 +39,25 @@ def parameter_tables(
 ) -> dict:
     """The parameters section: every parameter of the run with its provenance."""
     season = project.config.project.season
+    inputs = project.config.inputs
+    own_states = getattr(inputs, "nutritional_states", None)
     return {
         "states": _state_rows(estimate.requirement_table, animals, season, project),
+        "states_file": (
+            f"the project's own table {own_states.name}"
+            if own_states is not None
+            else "the packaged table nutritional_states.csv"
+        ),
         "animals": _animal_rows(animals, project),
         "forage": _forage_rows(forage, project),
         "settings": _threshold_rows(estimate, project),
     }
+
+
+def source_texts(estimate: Estimate, project: Project) -> list[str]:
+    """Every source text the parameter tables of the run cite (for the reference list)."""
+    texts = [str(text) for text in estimate.requirement_table["source"]]
+    return texts + [row[2] for row in _threshold_values(estimate, project)]
 
 
 STATE_COLUMNS = [
@@ -73,7 +87,13 @@ def _state_rows(states: pd.DataFrame, animals: pd.DataFrame, season: str, projec
     states["used_by"] = [
         ", ".join(users.get((s, z), [])) for s, z in zip(states["state"], states["season"])
     ]
-    return table(states, STATE_COLUMNS, flag=states["used_by"] != "")
+    states["source"] = states["source"].map(short_citation)
+    scopes = states["scope"].dropna().unique() if "scope" in states.columns else []
+    columns = STATE_COLUMNS
+    if len(scopes) == 1:  # one scope for every row: said once, in the caption
+        columns = [column for column in STATE_COLUMNS if column.name != "scope"]
+    rows = table(states, columns, flag=states["used_by"] != "")
+    return {**rows, "scope": str(scopes[0]) if len(scopes) == 1 else None}
 
 
 def _animal_rows(animals: pd.DataFrame, project: Project) -> dict:
@@ -125,6 +145,19 @@ def _de_from_dmd(frame: pd.DataFrame) -> pd.Series:
 
 
 def _threshold_rows(estimate: Estimate, project: Project) -> dict:
+    rows = _threshold_values(estimate, project)
+    frame = pd.DataFrame(rows, columns=["name", "value", "provenance"])
+    frame["provenance"] = frame["provenance"].map(short_citation)
+    columns = [
+        Column("name", "Parameter"),
+        Column("value", "Value", numeric=True),
+        Column("provenance", "Provenance"),
+    ]
+    return table(frame, columns)
+
+
+def _threshold_values(estimate: Estimate, project: Project) -> list[tuple[str, str, str]]:
+    """(parameter, value, provenance) of the thresholds, settings and constants."""
     target = estimate.target
     config = project.config
     project_file = f"project file: {project.path.name}"
@@ -179,13 +212,7 @@ def _threshold_rows(estimate: Estimate, project: Project) -> dict:
             "SI unit definitions",
         ),
     ]
-    frame = pd.DataFrame(rows, columns=["name", "value", "provenance"])
-    columns = [
-        Column("name", "Parameter"),
-        Column("value", "Value", numeric=True),
-        Column("provenance", "Provenance"),
-    ]
-    return table(frame, columns)
+    return rows
 
 
 # --- 13. manifest -----------------------------------------------------------------------------

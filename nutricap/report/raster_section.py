@@ -21,6 +21,7 @@ from nutricap.report.formatting import (
     numeric_column,
     table,
 )
+from nutricap.report.references import short_citation
 
 if TYPE_CHECKING:
     from nutricap.model.estimate import Estimate
@@ -59,7 +60,7 @@ REDUCTION_COLUMNS = [
 ]
 
 
-def raster_landscape(estimate: Estimate) -> dict | None:
+def raster_landscape(estimate: Estimate, species: str = "the species") -> dict | None:
     """The raster section's context: grid facts, rules table, models, reduction tables."""
     grid = estimate.grid
     if grid is None:
@@ -69,10 +70,42 @@ def raster_landscape(estimate: Estimate) -> dict | None:
     reductions = _reduction_tables(grid.rules)
     return {
         "facts": _grid_facts(grid),
+        "livestock": livestock_rules(rules, grid.rules, species),
         "rules": table(rules, RULE_COLUMNS),
         "calibration": None if calibration is None else table(calibration, CALIBRATION_COLUMNS),
         "reductions": None if reductions is None else table(reductions, REDUCTION_COLUMNS),
     }
+
+
+LIVESTOCK_RULES = {"slope": "slope_table", "distance_to_water": "water_table"}
+"""Rules whose packaged reduction tables were made for cattle, and the key that replaces each."""
+
+
+def livestock_rules(rules: pd.DataFrame, rule_set, species: str) -> list[str]:
+    """Sentences for each slope or water rule that used the packaged livestock table.
+
+    ``rules``: the all-units rows of the rules report (``rule``, ``forage_removed_kg``,
+    ``forage_removed_pct``); ``rule_set``: the run's rules (their tables' ``row_sources``).
+    """
+    sentences = []
+    for rule, key in LIVESTOCK_RULES.items():
+        reduction = getattr(rule_set, key, None) if rule_set is not None else None
+        row = rules[rules["rule"] == rule]
+        if reduction is None or row.empty or not _packaged(reduction):
+            continue
+        removed, share = row["forage_removed_kg"].iloc[0], row["forage_removed_pct"].iloc[0]
+        sentences.append(
+            f"The {rule.replace('_', '-')} reduction is the packaged table of Holechek (1988), "
+            f"made for cattle on rangeland, applied to {species} by default: here it removed "
+            f"{removed:,.0f} kg DM ({share:.1f} % of the standing forage). Wild ungulates use "
+            f"steep ground and distance from water differently; [availability] {key} replaces it "
+            "with a table of the species' own."
+        )
+    return sentences
+
+
+def _packaged(reduction) -> bool:
+    return any("Holechek" in str(text) for text in reduction.row_sources)
 
 
 def _grid_facts(grid) -> dict[str, str]:
@@ -109,7 +142,7 @@ def _reduction_tables(rules) -> pd.DataFrame | None:
                     "factor": reduction.factor.replace("_", " "),
                     "range": [_class_words(lo, hi, unit) for lo, hi in zip(lower, reduction.upper)],
                     "reduction_pct": 100.0 * reduction.reduction,
-                    "source": list(reduction.row_sources),
+                    "source": [short_citation(text) for text in reduction.row_sources],
                 }
             )
         )

@@ -13,20 +13,22 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from nutricap.model.results import totals_table
 from nutricap.report import figures
 from nutricap.report.formatting import (
     ANIMALS,
     ONE_DECIMAL,
-    PERCENT,
     THREE_DECIMALS,
     TWO_DECIMALS,
     Column,
     crs_label,
+    decimals,
     embedded_figure,
     is_missing,
     numeric_column,
     table,
 )
+from nutricap.report.tables import DISPLAY_DECIMALS
 
 if TYPE_CHECKING:
     from nutricap.inputs.project import Project
@@ -53,18 +55,79 @@ def header(estimate: Estimate, project: Project, manifest: dict) -> dict:
         f"of at least {target.de_min_kcal_per_g:.3f} kcal digestible energy per g dry "
         f"matter{protein}?"
     )
-    totals = {
-        name: ANIMALS(by_unit[name].sum())
-        for name in ("ncc_animals", "ecc_animals", "allowable_use_animals")
-    }
     return {
         "project": config.project.name,
         "species": config.project.species,
         "question": question,
         "run_date": _run_date(manifest),
-        "totals": totals,
+        "totals": _headline_totals(estimate),
+        "interval": interval_statement(estimate),
+        "current": current_source(estimate),
         "units": len(by_unit),
     }
+
+
+def _headline_totals(estimate: Estimate) -> dict[str, dict[str, str]]:
+    """Each total over units [animals] with its interval when one was computed."""
+    names = {"ncc": "ncc_animals", "ecc": "ecc_animals", "allowable_use": "allowable_use_animals"}
+    shown = {}
+    for row in totals_table(estimate).to_dict("records"):
+        interval = ""
+        if not is_missing(row.get("total_animals_lo")):
+            interval = (
+                f"{100 * row['interval_level']:g} % interval "
+                f"{ANIMALS(row['total_animals_lo'])}–{ANIMALS(row['total_animals_hi'])}"
+            )
+        shown[names[row["figure"]]] = {"value": ANIMALS(row["total_animals"]), "interval": interval}
+    return shown
+
+
+def interval_statement(estimate: Estimate) -> str | None:
+    """What the bootstrap intervals cover and what they hold fixed, or None without them."""
+    bootstrap = estimate.uncertainty.bootstrap
+    if bootstrap is None:
+        return None
+    replicates = next(iter(bootstrap.replicate_animal_days.values())).shape[0]
+    calibrated = estimate.grid is not None and estimate.grid.calibration_report is not None
+    models = (
+        ", refitting the index-to-biomass models to the resampled calibration plots"
+        if calibrated
+        else ""
+    )
+    errors = (
+        "the sampling error of the clip plots and the calibration models' error"
+        if calibrated
+        else "the sampling error of the clip plots only"
+    )
+    return (
+        f"Every interval in this report is a {100 * bootstrap.level:g} % percentile interval of "
+        f"{replicates:,} bootstrap replicates that resample the clip plots within each "
+        f"stratum{models}. It covers {errors}. Forage quality (DE, DP), the animals' "
+        "requirements and intake, the allowable-use fractions, the availability rules and the "
+        "maps are held fixed at their values, so the whole uncertainty is wider; the "
+        "sensitivity section shows how far NCC moves with those inputs."
+    )
+
+
+def current_source(estimate: Estimate) -> str | None:
+    """Where the current numbers used in the use assessment come from, or None."""
+    if "current_animals" not in estimate.by_unit.columns:
+        return None
+    total = ANIMALS(estimate.by_unit["current_animals"].sum())
+    if "current_animals" in estimate.units.columns:
+        origin = "the units layer's current_animals column"
+    else:
+        origin = "the latest count of each unit in the counts table"
+    text = f"Current numbers ({total} animals over all units) come from {origin}"
+    if estimate.trend is not None and "current_animals" in estimate.units.columns:
+        latest = estimate.trend.get("latest_count")
+        year = estimate.trend.get("latest_year")
+        if latest is not None:
+            text += (
+                f"; the population-trend section uses the counts instead (latest counted total "
+                f"{ANIMALS(latest)} animals in {year})"
+            )
+    return text + "."
 
 
 def _season_name(season: str) -> str:
@@ -212,7 +275,9 @@ def capacity(estimate: Estimate, level: float | None) -> dict:
     chart = figures.capacity_figure(by_unit, season_days=estimate.season_days, interval_level=level)
     return {
         "figure": embedded_figure(
-            chart, "Per-unit dot chart of NCC, allowable-use capacity and ECC in animals."
+            chart,
+            "Per-unit dot chart of NCC, allowable-use capacity and ECC in animals.",
+            "capacity_by_unit",
         ),
         "intervals": [INTERVAL_NAMES[name] for name in intervals],
         "level": _level_text(level),
@@ -222,22 +287,40 @@ def capacity(estimate: Estimate, level: float | None) -> dict:
     }
 
 
+def _rounded(name: str, header: str) -> Column:
+    """A per-unit column rounded as in the Markdown table (:data:`DISPLAY_DECIMALS`)."""
+    return numeric_column(name, header, decimals(DISPLAY_DECIMALS[name]))
+
+
 UNIT_COLUMNS = [
     Column("unit_id", "Unit"),
-    numeric_column("area_ha", "Area [ha]", ONE_DECIMAL),
-    numeric_column("available_forage_kg", "Available forage [kg DM]"),
-    numeric_column("ncc_animals", "NCC [animals]"),
-    numeric_column("ecc_animals", "ECC [animals]"),
-    numeric_column("allowable_use_animals", "Allowable-use capacity [animals]"),
-    numeric_column("ncc_per_km2", "NCC [animals/km²]", ONE_DECIMAL),
-    numeric_column("ncc_aum", "NCC forage eaten [AUM]"),
-    numeric_column("allowable_use_aum", "Forage at allowable use [AUM]"),
-    Column("limiting_factor", "Limiting factor"),
+    _rounded("area_ha", "Area [ha]"),
+    _rounded("available_forage_kg", "Available forage [kg DM]"),
+    _rounded("ncc_animals", "NCC [animals]"),
+    _rounded("ecc_animals", "ECC [animals]"),
+    _rounded("allowable_use_animals", "Allowable-use capacity [animals]"),
+    _rounded("ncc_per_km2", "NCC [animals/km²]"),
+    _rounded("ncc_aum", "NCC forage eaten [AUM]"),
+    _rounded("allowable_use_aum", "Forage at allowable use [AUM]"),
+    Column("limiting_factor", "Limiting factor", lambda value: limiting_label(value)),
     Column("marginal_forage_class", "Marginal forage class"),
-    numeric_column("diet_de_kcal_per_g", "Diet DE at NCC [kcal/g DM]", THREE_DECIMALS),
-    numeric_column("diet_dp_pct", "Diet DP at NCC [% DM]", TWO_DECIMALS),
-    numeric_column("current_animals", "Current animals [animals]"),
+    _rounded("diet_de_kcal_per_g", "Diet DE at NCC [kcal/g DM]"),
+    _rounded("diet_dp_pct", "Diet DP at NCC [% DM]"),
+    _rounded("current_animals", "Current animals [animals]"),
 ]
+
+LIMITING_LABELS = {
+    "intake": "target diet unreachable (no forage mix meets it within intake)",
+}
+"""Report labels of ``limiting_factor`` values whose CSV word alone would mislead."""
+
+
+def limiting_label(value: Any) -> str:
+    """The report's label of a ``limiting_factor`` value (the CSV keeps the value itself)."""
+    if is_missing(value):
+        return "–"
+    return LIMITING_LABELS.get(str(value), str(value))
+
 
 #: Columns summed in the total row (additive over units; intervals and rates are not).
 ADDITIVE_COLUMNS = (
@@ -274,7 +357,70 @@ def unit_table(by_unit: pd.DataFrame, level: float | None = None) -> dict:
     present = [column for column in columns if column.name in frame.columns]
     footer = [_total_cell(frame, column) for column in present]
     footer[0] = "Total"
-    return table(frame, present, footer=footer)
+    whole = table(frame, present, footer=footer)
+    return {**whole, "groups": column_groups(whole, [c.name for c in present], UNIT_GROUPS)}
+
+
+#: The per-unit table is shown as these column groups (each repeats the unit column), so that
+#: it fits a 1280 px screen and a portrait page without sideways scrolling or cut columns.
+UNIT_GROUPS = (
+    (
+        "capacity and its intervals",
+        (
+            "area_ha",
+            "available_forage_kg",
+            "ncc_animals",
+            "ncc_animals_interval",
+            "ecc_animals",
+            "ecc_animals_interval",
+            "allowable_use_animals",
+            "allowable_use_animals_interval",
+        ),
+    ),
+    (
+        "density, forage in AUM, diet and current numbers",
+        (
+            "ncc_per_km2",
+            "ncc_aum",
+            "allowable_use_aum",
+            "limiting_factor",
+            "marginal_forage_class",
+            "diet_de_kcal_per_g",
+            "diet_dp_pct",
+            "current_animals",
+        ),
+    ),
+)
+
+
+def column_groups(whole: dict, names: list[str], groups) -> list[dict]:
+    """``whole`` (a :func:`table`) split into column groups, each led by the first column.
+
+    ``groups`` is a sequence of (title, column names); names not present are skipped, and a
+    column in no group joins the last group.
+    """
+    grouped = {name for _title, members in groups for name in members}
+    parts = []
+    for number, (title, members) in enumerate(groups):
+        wanted = [i for i, name in enumerate(names) if name in members]
+        if number == len(groups) - 1:
+            wanted += [i for i, name in enumerate(names[1:], 1) if name not in grouped]
+        if not wanted:
+            continue
+        keep = [0, *sorted(wanted)]
+        parts.append(
+            {
+                "title": title,
+                "headers": [whole["headers"][i] for i in keep],
+                "numeric": [whole["numeric"][i] for i in keep],
+                "rows": [
+                    {"cells": [row["cells"][i] for i in keep], "flag": row["flag"]}
+                    for row in whole["rows"]
+                ],
+                "footer": None if whole["footer"] is None else [whole["footer"][i] for i in keep],
+            }
+        )
+    return parts
 
 
 def _total_cell(frame: pd.DataFrame, column: Column) -> str:
@@ -294,9 +440,7 @@ USE_TABLE_COLUMNS = [
     numeric_column("ncc_animals", "NCC [animals]"),
     numeric_column("allowable_use_animals", "Allowable-use capacity [animals]"),
     numeric_column("demand_kg", "Season demand of current animals [kg DM]"),
-    Column("key_class", "Most-used key forage class"),
-    numeric_column("key_use_fraction", "Expected use of that class [% of available]", PERCENT),
-    numeric_column("key_allowable_use", "Its allowable use [%]", PERCENT),
+    Column("key_pressure", "Demand on the key forage classes [× their allowable use]"),
     Column("overuse", "Use above allowable"),
     numeric_column(
         "reduction_for_key_use_animals",
@@ -306,20 +450,61 @@ USE_TABLE_COLUMNS = [
     numeric_column("reduction_for_ncc_animals", "Fewer animals to reach NCC [animals, advisory]"),
 ]
 
+SAME_PRESSURE = 1e-6
+"""Relative difference below which key classes' use ÷ allowable use are reported as one."""
 
-def use(by_unit: pd.DataFrame) -> dict:
-    """The use section: expected use against allowable use, when assessed."""
+
+def use(by_unit: pd.DataFrame, use_by_class: pd.DataFrame | None = None) -> dict:
+    """The use section: demand against the key classes' allowable use, when assessed."""
     if not set(USE_COLUMNS) <= set(by_unit.columns):
         state = "current_only" if "current_animals" in by_unit.columns else "none"
-        return {"state": state, "table": None, "flagged": 0}
+        return {"state": state, "table": None, "flagged": 0, "key_classes": ""}
     flags = by_unit["overuse"].map(is_flag)
     if "above_ncc" in by_unit.columns:
         flags = flags | by_unit["above_ncc"].map(is_flag)
+    frame = by_unit.copy()
+    pressure, key_classes = key_pressure(frame, use_by_class)
+    frame["key_pressure"] = pressure
     return {
         "state": "assessed",
-        "table": table(by_unit, USE_TABLE_COLUMNS, flag=flags),
+        "table": table(frame, USE_TABLE_COLUMNS, flag=flags),
         "flagged": int(flags.sum()),
+        "key_classes": key_classes,
     }
+
+
+def key_pressure(by_unit: pd.DataFrame, use_by_class: pd.DataFrame | None) -> tuple[list, str]:
+    """Per unit, the key classes' use ÷ allowable use as text ("2.30 ×"); the classes named.
+
+    With equal preference every class is used to the same fraction of its allowable use, so
+    the classes are reported together; a unit whose classes differ lists each one.
+    """
+    if use_by_class is None or "key" not in use_by_class.columns:
+        ratio = by_unit["key_use_fraction"] / by_unit["key_allowable_use"]
+        named = by_unit["key_class"] if "key_class" in by_unit.columns else pd.Series([], dtype=str)
+        names = ", ".join(map(str, named.unique())) or "not named"
+        return [_times(value) for value in ratio], names
+    key = use_by_class[use_by_class["key"].map(is_flag) & (use_by_class["allowable_use"] > 0)]
+    if key.empty:  # no key class: every class is watched (nutricap.model.use)
+        key = use_by_class[use_by_class["allowable_use"] > 0]
+    key = key.assign(ratio=key["use_fraction"] / key["allowable_use"])
+    cells = []
+    for unit in by_unit["unit_id"]:
+        rows = key[key["unit_id"] == unit]
+        ratios = rows["ratio"].to_numpy(dtype=float)
+        if ratios.size == 0:
+            cells.append("–")
+        elif np.ptp(ratios) <= SAME_PRESSURE * max(float(ratios.max()), 1e-12):
+            cells.append(_times(ratios.max()))
+        else:
+            cells.append(
+                "; ".join(f"{name} {_times(r)}" for name, r in zip(rows["forage_class"], ratios))
+            )
+    return cells, ", ".join(map(str, dict.fromkeys(key["forage_class"])))
+
+
+def _times(ratio: float) -> str:
+    return "–" if is_missing(ratio) else f"{float(ratio):.2f} ×"
 
 
 def is_flag(value: Any) -> bool:

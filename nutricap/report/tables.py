@@ -14,12 +14,27 @@ import re
 from pathlib import Path
 
 import geopandas as gpd
+import numpy as np
 import pandas as pd
 
 from nutricap.cautions import CAUTION
 from nutricap.errors import printable
 
-CSV_FLOAT_FORMAT = "%.6g"
+DISPLAY_DECIMALS = {
+    "area_ha": 1,
+    "available_forage_kg": 0,
+    "ncc_animals": 0,
+    "ecc_animals": 0,
+    "allowable_use_animals": 0,
+    "ncc_per_km2": 1,
+    "ncc_aum": 0,
+    "allowable_use_aum": 0,
+    "diet_de_kcal_per_g": 3,
+    "diet_dp_pct": 2,
+    "current_animals": 0,
+}
+"""Decimals of each per-unit column where it is shown rounded: the HTML report and the Markdown
+table (the CSV files keep every digit). Interval bounds round as their figure."""
 
 MARKDOWN_COLUMNS = {
     "unit_id": "Unit",
@@ -45,8 +60,25 @@ each). Line-start syntax (``#``, ``-``, ``1.``) cannot occur: cells and lines be
 own text."""
 
 
+def csv_number(value: float) -> str:
+    """A float as a plain decimal with every digit (no exponent): ``1191397.25``, ``1e-08`` →
+    ``0.00000001``.
+
+    The shortest text that reads back as the same float (Python's ``repr``), written out in
+    positional notation where ``repr`` would use an exponent.
+    """
+    text = repr(float(value))
+    if "e" in text:
+        text = np.format_float_positional(float(value), unique=True, trim="0")
+    return text
+
+
 def write_csv(table: pd.DataFrame, path: Path) -> None:
-    """Write ``table`` as UTF-8 CSV with six significant digits, formula-like text defused."""
+    """Write ``table`` as UTF-8 CSV, numbers as plain decimals in full, formula-like text defused.
+
+    Floats are written by :func:`csv_number` (no exponent, no rounding): a spreadsheet or a
+    script reads back exactly the value computed.
+    """
     safe = table.rename(columns=spreadsheet_text)
     carriage_return = any("\r" in str(name) for name in safe.columns)
     for index, is_text in enumerate(_text_columns(safe)):
@@ -56,9 +88,7 @@ def write_csv(table: pd.DataFrame, path: Path) -> None:
     # Python's csv writer quotes a cell holding a line break only if the break is in its line
     # terminator: a lone CR in a text would start a new row. Such a file ends lines in CRLF.
     ending = "\r\n" if carriage_return else "\n"
-    safe.to_csv(
-        path, index=False, float_format=CSV_FLOAT_FORMAT, encoding="utf-8", lineterminator=ending
-    )
+    safe.to_csv(path, index=False, float_format=csv_number, encoding="utf-8", lineterminator=ending)
 
 
 def _has_carriage_return(value: object) -> bool:
@@ -106,8 +136,10 @@ def markdown_table(table: pd.DataFrame, *, title: str, context_lines: list[str])
     text = [index for index, is_text in enumerate(_text_columns(shown)) if is_text]
     for index in text:
         shown.isetitem(index, shown.iloc[:, index].map(markdown_text))
-    # Text columns are not read as numbers (an id "007" stays "007").
-    body = shown.to_markdown(index=False, floatfmt=",.1f", disable_numparse=text)
+    # Text columns are not read as numbers (an id "007" stays "007"); numbers round as in the
+    # HTML report (DISPLAY_DECIMALS).
+    decimals = [f",.{DISPLAY_DECIMALS.get(name, 1)}f" for name in columns]
+    body = shown.to_markdown(index=False, floatfmt=decimals, disable_numparse=text)
     context = [markdown_text(line) for line in context_lines]
     caution = f"> **Caution.** {CAUTION}"
     lines = [f"# {markdown_text(title)}", "", *context, "", body, "", caution, ""]
