@@ -56,6 +56,12 @@ from nutricap.model.scenarios import (
     years_since_latest_treatment,
 )
 from nutricap.model.sensitivity import input_groups
+from nutricap.model.shared_range import (
+    OtherHerd,
+    load_other_herds,
+    share_range,
+    shared_range_outputs,
+)
 from nutricap.model.trend import analyse_series
 from nutricap.model.uncertainty import (
     add_intervals,
@@ -88,6 +94,7 @@ class Inputs:
     counts: pd.DataFrame | None = None
     requirement_table: pd.DataFrame = field(default_factory=lambda: energetics.NUTRITIONAL_STATES)
     requirement_notes: list[str] = field(default_factory=list)
+    other_herds: tuple[OtherHerd, ...] = ()
 
 
 def estimate(project: Project, progress: Progress | None = None) -> Estimate:
@@ -118,19 +125,28 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     if target.dp_min_pct is not None:
         require_protein_values(inputs.forage_classes, project)
     say("solving capacity per unit")
-    solution = solve(problem, herd, target, project)
-    by_unit = unit_table(problem, solution, areas, days)
+    others = inputs.other_herds
+    solution = solve(problem, herd, target, project, others)
+    left = share_range(problem, others).problem if others else problem
+    by_unit = unit_table(left, solution, areas, days)
+    shared = None
+    if others:
+        say("other herbivores: NCC with and without them")
+        shared = shared_range_outputs(
+            problem, others, lambda rows: solve(rows, herd, target, project), days
+        )
+        by_unit = by_unit.merge(shared.by_unit, on="unit_id", how="left", sort=False)
     uncertainty = assess_uncertainty(project, inputs, supply, problem, herd, target, say, grid)
     if uncertainty.bootstrap is not None:
         by_unit = add_intervals(by_unit, uncertainty.bootstrap, days)
     by_unit, use_by_class = assess_current_use(
-        project, inputs.counts, areas, problem, by_unit, herd, say
+        project, inputs.counts, areas, left, by_unit, herd, say
     )
     trend = counts_trend(project, inputs.counts, say)
     return Estimate(
         by_unit=by_unit,
         use_by_class=use_by_class,
-        by_unit_class=unit_class_table(problem, solution),
+        by_unit_class=unit_class_table(left, solution),
         units=areas.units,
         supply=supply,
         areas=areas,
@@ -150,6 +166,8 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
         + ordering_notes(by_unit)
         + (grid.notes if grid is not None else []),
         grid=grid,
+        other_herds=others,
+        shared_range=shared,
     )
 
 
@@ -161,14 +179,23 @@ def read_inputs(project: Project, say: Progress) -> Inputs:
     plots = read_plots(project.input_path("plots"))
     animals = read_animal_classes(project.input_path("animal_classes"))
     say("reading layers")
-    units = read_units(project.input_path("units"), config.inputs.units_layer)
+    herd_columns = [
+        column
+        for herd in config.other_herbivores
+        for column in (herd.animals_column, herd.aums_column)
+        if column is not None
+    ]
+    units = read_units(project.input_path("units"), config.inputs.units_layer, herd_columns)
     strata = None  # a strata raster is read window by window on the grid path
     if not config.strata_as_raster:
         strata = read_strata(project.input_path("strata"), config.inputs.strata_layer)
     counts_path = project.input_path("counts")
     counts = read_counts(counts_path) if counts_path is not None else None
     states, state_notes = requirement_table(project)
-    return Inputs(forage_classes, plots, animals, units, strata, counts, states, state_notes)
+    others = load_other_herds(project, units, forage_classes)
+    return Inputs(
+        forage_classes, plots, animals, units, strata, counts, states, state_notes, others
+    )
 
 
 def build_supply(
@@ -228,7 +255,7 @@ def assess_uncertainty(
             wide.loc[on_map, classes].to_numpy(),
             plot_stratum[on_map],
             (supply.strata, classes),
-            lambda rows: solve(rows, herd, target, project),
+            lambda rows: solve(rows, herd, target, project, inputs.other_herds),
             replicates=settings.bootstrap_replicates,
             level=settings.interval_level,
             seed=settings.seed,
@@ -262,20 +289,29 @@ def sensitivity_table(
     """Tornado table of total NCC [animals] for ± the configured change of each input group."""
     days = project.config.project.days
 
-    def total_for(problem=problem, herd=herd, de_factor=1.0, dp_factor=1.0) -> float:
+    def total_for(
+        problem=problem, herd=herd, de_factor=1.0, dp_factor=1.0, others_factor=1.0
+    ) -> float:
         moved = replace(
             target,
             de_min_kcal_per_g=target.de_min_kcal_per_g * de_factor,
             dp_min_pct=None if target.dp_min_pct is None else target.dp_min_pct * dp_factor,
         )
-        return float(solve(problem, herd, moved, project).ncc.animal_days.sum() / days)
+        others = tuple(other.scaled(others_factor) for other in inputs.other_herds)
+        return float(solve(problem, herd, moved, project, others).ncc.animal_days.sum() / days)
 
     def herd_for_mass(factor: float) -> energetics.HerdRequirement:
         animals = inputs.animals
         heavier = animals.assign(body_mass_kg=animals["body_mass_kg"] * factor)
         return herd_requirement(heavier, project, inputs.requirement_table)
 
-    groups = input_groups(problem, total_for, herd_for_mass, protein=target.dp_min_pct is not None)
+    groups = input_groups(
+        problem,
+        total_for,
+        herd_for_mass,
+        protein=target.dp_min_pct is not None,
+        other_herds=bool(inputs.other_herds),
+    )
     change = project.config.uncertainty.sensitivity_change
     return one_at_a_time(total_for(), groups, change)
 
@@ -363,8 +399,12 @@ def solve(
     herd: energetics.HerdRequirement,
     target: DietTarget,
     project: Project,
+    others: tuple[OtherHerd, ...] = (),
 ) -> Solution:
-    """Solve ``problem`` for this herd, target and project settings."""
+    """Solve ``problem`` for this herd, target and project settings, after ``others`` (the
+    other herbivores) have taken their forage."""
+    if others:
+        problem = share_range(problem, others).problem
     return solve_problem(
         problem,
         intake_kg_per_day=herd.intake_kg_per_day,
@@ -450,7 +490,7 @@ def _scenario_year(
         year,
         project.config.pooling.mode,
     )
-    solution = solve(problem, result.herd, result.target, project)
+    solution = solve(problem, result.herd, result.target, project, result.other_herds)
     table = pd.DataFrame(
         {
             "unit_id": problem.unit_ids,

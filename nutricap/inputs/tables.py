@@ -325,3 +325,40 @@ def read_animal_classes(path: Path) -> pd.DataFrame:
             found=f"sum {total:g}",
         )
     return table
+
+
+HERD_NUMBER_COLUMNS = [
+    Column("unit_id", "text", meaning="management unit the herd uses"),
+    Column(
+        "animals",
+        required=False,
+        minimum=0,
+        maximum=1e7,
+        meaning="animals of the other herd in the unit",
+    ),
+    Column("aums", required=False, minimum=0, maximum=1e8, meaning="animal-unit months"),
+]
+
+
+def read_herd_numbers(path: Path) -> tuple[pd.DataFrame, str]:
+    """Read a table of another herd's numbers per unit: ``unit_id`` and ``animals`` or ``aums``.
+
+    Returns
+    -------
+    table : DataFrame
+        ``unit_id`` and the numbers column (each unit at most once).
+    kind : {"animals", "aums"}
+        Which numbers the table holds.
+    """
+    table = read_csv_table(path, HERD_NUMBER_COLUMNS, what="herd numbers table")
+    kinds = [name for name in ("animals", "aums") if name in table.columns]
+    if len(kinds) != 1:
+        raise TableError(
+            "a herd numbers table needs one numbers column",
+            source=path,
+            location="row 1 (header)",
+            expected="a column 'animals' (head per unit) or 'aums' (animal-unit months), not both",
+            found="columns " + ", ".join(repr(name) for name in table.columns),
+        )
+    check_unique(table, ["unit_id"], path)
+    return table[["unit_id", kinds[0]]], kinds[0]

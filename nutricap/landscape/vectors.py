@@ -10,6 +10,7 @@ longitudes and latitudes is refused (its CRS is wrong).
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from contextlib import closing
 from dataclasses import dataclass
 from pathlib import Path
@@ -255,12 +256,16 @@ def _check_geographic_range(frame: gpd.GeoDataFrame, path: Path, what: str) -> N
         )
 
 
-def read_units(path: Path, layer: str | None) -> gpd.GeoDataFrame:
+def read_units(
+    path: Path, layer: str | None, number_columns: Sequence[str] = ()
+) -> gpd.GeoDataFrame:
     """Read the management units.
 
-    ``unit_id`` must be filled and unique; ``current_animals``, when present, >= 0.
+    ``unit_id`` must be filled and unique; ``current_animals``, when present, >= 0, and so
+    must be the ``number_columns`` (e.g. another herd's numbers), which must be present.
     """
-    units = read_layer(path, layer=layer, columns=["unit_id"], what="units layer")
+    columns = ["unit_id", *number_columns]
+    units = read_layer(path, layer=layer, columns=columns, what="units layer")
     _require_filled_text(units, "unit_id", path, "units layer")
     duplicated = units["unit_id"].duplicated().to_numpy()
     if duplicated.any():
@@ -271,8 +276,9 @@ def read_units(path: Path, layer: str | None) -> gpd.GeoDataFrame:
             expected="each unit_id once",
             found=repr(units["unit_id"][duplicated].iloc[0]),
         )
-    if "current_animals" in units.columns:
-        _require_numbers(units, "current_animals", path, "units layer", low=0.0, high=None)
+    present = ["current_animals"] if "current_animals" in units.columns else []
+    for column in dict.fromkeys([*present, *number_columns]):
+        _require_numbers(units, column, path, "units layer", low=0.0, high=None)
     return units
 
 

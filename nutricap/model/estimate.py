@@ -16,6 +16,7 @@ from nutricap.landscape.plots import StratumSupply
 from nutricap.landscape.vectors import StratumAreas
 from nutricap.model.problem import CapacityProblem, Solution
 from nutricap.model.requirements import DietTarget
+from nutricap.model.shared_range import OtherHerd, SharedRangeResult
 from nutricap.model.uncertainty import BootstrapResult
 from nutricap.science import energetics
 
@@ -51,3 +52,5 @@ class Estimate:
     notes: list[str] = field(default_factory=list)
     grid: GridResult | None = None
     requirement_table: pd.DataFrame = field(default_factory=lambda: energetics.NUTRITIONAL_STATES)
+    other_herds: tuple[OtherHerd, ...] = ()
+    shared_range: SharedRangeResult | None = None

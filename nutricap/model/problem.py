@@ -124,6 +124,10 @@ class CapacityProblem:
         hectares (lets the supply be re-drawn, e.g. by the bootstrap).
     strata : list of str, optional
         Column labels of ``row_stratum_ha`` (see :func:`patch_type_labels`).
+    use_cap : array, shape (rows, items), optional
+        Fraction of ``available_kg`` that may be used, where it differs from the items'
+        allowable use: after other herbivores have eaten (:mod:`nutricap.model.shared_range`)
+        [-].
     """
 
     unit_ids: np.ndarray
@@ -132,6 +136,20 @@ class CapacityProblem:
     available_kg: np.ndarray
     row_stratum_ha: np.ndarray | None = None
     strata: list[str] | None = None
+    use_cap: np.ndarray | None = None
+
+    @property
+    def allowable_fraction(self) -> np.ndarray:
+        """Fraction of each row's available forage that may be used [-], (items,) or
+        (rows, items)."""
+        return self.items.allowable_use if self.use_cap is None else self.use_cap
+
+    def usable_kg(self) -> np.ndarray:
+        """Forage of each row that may be used, available × allowable fraction [kg],
+        (rows,)."""
+        if self.use_cap is None:
+            return self.available_kg @ self.items.allowable_use
+        return (self.available_kg * self.use_cap).sum(axis=1)
 
     def sum_by_unit(self, values: np.ndarray) -> np.ndarray:
         """Sum per-row ``values`` (rows, ...) into units (units, ...)."""
@@ -212,12 +230,14 @@ def solve_problem(
         de_min_kcal_per_g,
         dp_pct=items.dp_pct if dp_min_pct is not None else None,
         dp_min_pct=dp_min_pct,
-        use_cap=items.allowable_use if cap_at_allowable_use else None,
+        use_cap=problem.allowable_fraction if cap_at_allowable_use else None,
     )
     ecc = ecological_capacity(
         problem.available_kg, items.de_kcal_per_g, maintenance_de_kcal_per_day
     )
-    allowable = allowable_use_capacity(problem.available_kg, items.allowable_use, intake_kg_per_day)
+    allowable = allowable_use_capacity(
+        problem.available_kg, problem.allowable_fraction, intake_kg_per_day
+    )
     return Solution(ncc, ecc, allowable)
 
 

@@ -67,10 +67,10 @@ def assess_use(
     items = problem.items
     row_current = current_animals[problem.row_unit] * _row_share(problem)
     demand = seasonal_demand_kg(row_current, intake_kg_per_day, season_days)
-    eaten = allocate_demand_kg(demand, problem.available_kg, items.allowable_use, preference)
+    eaten = allocate_demand_kg(demand, problem.available_kg, problem.allowable_fraction, preference)
     classes, available = class_matrix(problem, problem.available_kg)
     _, eaten_by_class = class_matrix(problem, eaten)
-    _, usable = class_matrix(problem, problem.available_kg * items.allowable_use)
+    _, usable = class_matrix(problem, problem.available_kg * problem.allowable_fraction)
     use = utilization_fraction(eaten_by_class, available)
     allowable = utilization_fraction(usable, available)
     key = _class_flags(items.forage_class, items.key, classes)
@@ -86,7 +86,7 @@ def assess_use(
 
 def _row_share(problem: CapacityProblem) -> np.ndarray:
     """Share of its unit's animals each row holds: its share of the unit's usable forage."""
-    usable = (problem.available_kg * problem.items.allowable_use).sum(axis=1)
+    usable = (problem.available_kg * problem.allowable_fraction).sum(axis=1)
     unit_total = problem.sum_by_unit(usable)[problem.row_unit]
     return np.divide(usable, unit_total, out=np.zeros_like(usable), where=unit_total > 0)
 
