@@ -175,7 +175,9 @@ class OtherHerbivoreSection(StrictSection):
             raise ValueError("give exactly one of animals_column, aums_column, numbers_table")
         for name, weight in self.preference.items():
             if not (0 <= weight <= 1000) or weight != weight:
-                raise ValueError(f"preference {name!r} must lie between 0 and 1000")
+                raise ValueError(
+                    f"preference {name!r} must lie between 0 and 1000 (found {weight:g})"
+                )
         if self.preference and not any(w > 0 for w in self.preference.values()):
             raise ValueError("at least one preference weight must be above 0")
         return self

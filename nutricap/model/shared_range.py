@@ -195,7 +195,7 @@ def seasonal_demand(
                 extra[0],
                 "numbers in AUMs are forage already (780 lb each)",
                 "no body_mass_kg, intake_kg_per_day or days with AUMs",
-                "them given",
+                ", ".join(extra),
             )
         return numbers * energetics.AUM_FORAGE_KG
     if section.days is None:

@@ -1248,4 +1248,102 @@ CASES = [
         ),
         r"animal_classes\.csv: row 2, column 'state': unknown nutritional state 'gestation'",
     ),
+    # issue 16: other herbivores and diet limits
+    Case(
+        "other herbivores: a unit the units layer lacks",
+        set_cell("cattle_permit.csv", 3, "unit_id", "Nowhere"),
+        r"cattle_permit\.csv: row 3, column 'unit_id': unit 'Nowhere' is not in the units layer",
+    ),
+    Case(
+        "other herbivores: negative AUMs",
+        set_cell("cattle_permit.csv", 2, "aums", "-40"),
+        r"cattle_permit\.csv: row 2, column 'aums': value out of range",
+    ),
+    Case(
+        "other herbivores: a unit twice in the numbers table",
+        copy_row("cattle_permit.csv", 2),
+        r"cattle_permit\.csv: row 4.*'unit_id'",
+    ),
+    Case(
+        "other herbivores: both animals and AUMs in the numbers table",
+        edit_csv("cattle_permit.csv", lambda table: table.assign(animals=10)),
+        r"cattle_permit\.csv: row 1 \(header\): a herd numbers table needs one numbers column",
+    ),
+    Case(
+        "other herbivores: unknown class in the preference",
+        replace_text("project.toml", "{ grass = 1.0,", "{ grasss = 1.0,"),
+        r"project\.toml: key 'other_herbivores\.0\.preference\.grasss': unknown forage class "
+        r"or growth form 'grasss'",
+    ),
+    Case(
+        "other herbivores: a negative preference",
+        replace_text("project.toml", "browse = 0.05 }", "browse = -0.05 }"),
+        r"project\.toml: 1 problem: key 'other_herbivores\.0': preference 'browse' must lie "
+        r"between 0 and 1000 \(found -0\.05\)",
+    ),
+    Case(
+        "other herbivores: AUMs with a body mass",
+        replace_text(
+            "project.toml", 'timing = "before"\n', 'timing = "before"\nbody_mass_kg = 500\n'
+        ),
+        r"project\.toml: key 'other_herbivores\.0\.body_mass_kg': numbers in AUMs are forage "
+        r"already",
+    ),
+    Case(
+        "other herbivores: head counts without days on the range",
+        steps(
+            edit_csv("cattle_permit.csv", lambda table: table.rename(columns={"aums": "animals"})),
+            replace_text(
+                "project.toml", 'timing = "before"\n', 'timing = "before"\nbody_mass_kg = 500\n'
+            ),
+        ),
+        r"project\.toml: key 'other_herbivores\.0\.days': missing days",
+    ),
+    Case(
+        "other herbivores: a units-layer column that is not there",
+        replace_text(
+            "project.toml",
+            'numbers_table = "cattle_permit.csv"',
+            'animals_column = "cattle_head"\nbody_mass_kg = 500\ndays = 90',
+        ),
+        r"units\.gpkg.*cattle_head",
+    ),
+    Case(
+        "other herbivores: negative head counts in the units layer",
+        steps(
+            edit_layer("units.gpkg", lambda units: units.assign(cattle_head=-3.0)),
+            replace_text(
+                "project.toml",
+                'numbers_table = "cattle_permit.csv"',
+                'animals_column = "cattle_head"\nbody_mass_kg = 500\ndays = 90',
+            ),
+        ),
+        r"units\.gpkg: feature .*units layer has a bad cattle_head",
+    ),
+    Case(
+        "other herbivores: numbers given twice",
+        replace_text(
+            "project.toml",
+            'numbers_table = "cattle_permit.csv"',
+            'numbers_table = "cattle_permit.csv"\naums_column = "current_animals"',
+        ),
+        r"project\.toml: 1 problem: key 'other_herbivores\.0': give exactly one of "
+        r"animals_column, aums_column, numbers_table",
+    ),
+    Case(
+        "other herbivores: unknown timing",
+        replace_text("project.toml", 'timing = "before"', 'timing = "after"'),
+        r"project\.toml: 1 problem: key 'other_herbivores\.0\.timing'",
+    ),
+    Case(
+        "other herbivores: a misspelt key",
+        replace_text("project.toml", "preference = {", "preferences = {"),
+        r"project\.toml: 1 problem: unknown key 'other_herbivores\.0\.preferences'; did you "
+        r"mean 'preference'\?",
+    ),
+    Case(
+        "other herbivores: the numbers table is missing",
+        lambda folder: (folder / "cattle_permit.csv").unlink(),
+        r"project\.toml: input file for key 'other_herbivores\.0\.numbers_table' does not exist",
+    ),
 ]
