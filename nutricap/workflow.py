@@ -37,6 +37,7 @@ from nutricap.model.problem import (
 )
 from nutricap.model.requirements import (
     DietTarget,
+    diet_limits,
     diet_target,
     herd_requirement,
     require_protein_values,
@@ -122,6 +123,7 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     say("computing the herd's requirements")
     herd = herd_requirement(inputs.animals, project, inputs.requirement_table)
     target = diet_target(inputs.animals, project, inputs.requirement_table)
+    target = replace(target, composition=diet_limits(project, inputs.forage_classes))
     if target.dp_min_pct is not None:
         require_protein_values(inputs.forage_classes, project)
     say("solving capacity per unit")
@@ -412,6 +414,7 @@ def solve(
         de_min_kcal_per_g=target.de_min_kcal_per_g,
         dp_min_pct=target.dp_min_pct,
         cap_at_allowable_use=project.config.forage_use.cap_at_allowable_use,
+        diet=target.composition,
     )
 
 

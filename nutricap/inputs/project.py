@@ -183,6 +183,30 @@ class OtherHerbivoreSection(StrictSection):
         return self
 
 
+class DietGroupSection(StrictSection):
+    """``[diet.groups.NAME]``: a group of forage classes (listed, or one growth form) and the
+    share of the diet it must make up."""
+
+    classes: list[str] | None = Field(default=None, min_length=1)
+    growth_form: str | None = Field(default=None, min_length=1)
+    min_share: float = Field(default=0.0, ge=0, le=1)
+    max_share: float = Field(default=1.0, ge=0, le=1)
+
+    @model_validator(mode="after")
+    def _one_membership(self) -> DietGroupSection:
+        if (self.classes is None) == (self.growth_form is None):
+            raise ValueError("give classes or growth_form (one of them)")
+        if self.min_share > self.max_share:
+            raise ValueError(f"min_share {self.min_share:g} is above max_share {self.max_share:g}")
+        return self
+
+
+class DietSection(StrictSection):
+    """``[diet]``: diet-composition limits of the target species."""
+
+    groups: dict[str, DietGroupSection] = Field(default_factory=dict)
+
+
 class ProjectConfig(StrictSection):
     """The whole project file."""
 
@@ -197,6 +221,7 @@ class ProjectConfig(StrictSection):
     rasters: RasterSection | None = None
     availability: AvailabilitySection | None = None
     other_herbivores: list[OtherHerbivoreSection] = Field(default_factory=list)
+    diet: DietSection = DietSection()
 
     @model_validator(mode="before")
     @classmethod

@@ -88,6 +88,14 @@ FORAGE_CLASS_COLUMNS = [
         meaning="relative preference weight for allocating current use, > 0 (default 1)",
     ),
     Column("stratum", "text", required=False, allow_blank=True),
+    Column(
+        "max_diet_share",
+        required=False,
+        allow_blank=True,
+        minimum=0,
+        maximum=1,
+        meaning="largest share of the diet the class may make up, 0 to 1 (default 1)",
+    ),
 ]
 
 PLOT_COLUMNS = [
@@ -144,7 +152,8 @@ def read_forage_classes(path: Path) -> pd.DataFrame:
     computed from ``dmd_pct`` × gross energy when only ``dmd_pct`` is given.
     """
     table = read_csv_table(path, FORAGE_CLASS_COLUMNS, what="forage-class table")
-    for name in ("de_kcal_per_g", "dmd_pct", "tannin", "height_cm", "gross_energy_kcal_per_g"):
+    optional = ("de_kcal_per_g", "dmd_pct", "tannin", "height_cm", "gross_energy_kcal_per_g")
+    for name in (*optional, "max_diet_share"):
         if name not in table.columns:
             table[name] = np.nan
     table["preference"] = table.get("preference", pd.Series(np.nan, index=table.index)).fillna(1.0)
