@@ -336,6 +336,7 @@ def _herd_frame(
             "taken_kg": taken_kg,
             "taken_aum": taken_aum,
             "unmet_kg": shared.unmet_kg[herd.name],
+            "unmet_aum": energetics.animal_unit_months(shared.unmet_kg[herd.name]),
             "ncc_lost_animals": lost,
             "ncc_lost_per_aum": _per(lost, taken_aum),
             "ncc_lost_per_animal": _per(lost, herd.animals),
