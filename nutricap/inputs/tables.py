@@ -227,18 +227,25 @@ def _require_class_rows(table: pd.DataFrame, path: Path) -> None:
         )
 
 
+def header_problem(message: str, path: Path, table: pd.DataFrame, expected: str) -> TableError:
+    """The error of a header that lacks the columns ``expected`` (found: the columns it has)."""
+    return TableError(
+        message,
+        source=path,
+        location="row 1 (header)",
+        expected=expected,
+        found="columns " + ", ".join(repr(name) for name in table.columns),
+    )
+
+
 def read_plots(path: Path) -> pd.DataFrame:
     """Read the clip-plot table; return it with a ``biomass_kg_per_ha`` column."""
     table = read_csv_table(path, PLOT_COLUMNS, what="plots table")
     has_frame = {"dry_mass_g", "frame_area_m2"} <= set(table.columns)
     has_direct = "biomass_kg_per_ha" in table.columns
     if not has_frame and not has_direct:
-        raise TableError(
-            "no biomass columns",
-            source=path,
-            location="row 1 (header)",
-            expected="dry_mass_g and frame_area_m2, or biomass_kg_per_ha",
-            found="columns " + ", ".join(repr(name) for name in table.columns),
+        raise header_problem(
+            "no biomass columns", path, table, "dry_mass_g and frame_area_m2, or biomass_kg_per_ha"
         )
     direct = table["biomass_kg_per_ha"] if has_direct else pd.Series(np.nan, index=table.index)
     if has_frame:
@@ -362,12 +369,11 @@ def read_herd_numbers(path: Path) -> tuple[pd.DataFrame, str]:
     table = read_csv_table(path, HERD_NUMBER_COLUMNS, what="herd numbers table")
     kinds = [name for name in ("animals", "aums") if name in table.columns]
     if len(kinds) != 1:
-        raise TableError(
+        raise header_problem(
             "a herd numbers table needs one numbers column",
-            source=path,
-            location="row 1 (header)",
-            expected="a column 'animals' (head per unit) or 'aums' (animal-unit months), not both",
-            found="columns " + ", ".join(repr(name) for name in table.columns),
+            path,
+            table,
+            "a column 'animals' (head per unit) or 'aums' (animal-unit months), not both",
         )
     check_unique(table, ["unit_id"], path)
     return table[["unit_id", kinds[0]]], kinds[0]
