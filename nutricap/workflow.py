@@ -129,14 +129,16 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     say("solving capacity per unit")
     others = inputs.other_herds
     solution = solve(problem, herd, target, project, others)
-    left = share_range(problem, others).problem if others else problem
-    by_unit = unit_table(left, solution, areas, days)
     shared = None
     if others:
         say("other herbivores: NCC with and without them")
         shared = shared_range_outputs(
             problem, others, lambda rows: solve(rows, herd, target, project), days
         )
+    left = problem if shared is None else shared.left
+    by_unit = unit_table(left, solution, areas, days)
+    if shared is not None:
+        by_unit["available_forage_kg"] = problem.sum_by_unit(problem.available_kg.sum(axis=1))
         by_unit = by_unit.merge(shared.by_unit, on="unit_id", how="left", sort=False)
     uncertainty = assess_uncertainty(project, inputs, supply, problem, herd, target, say, grid)
     if uncertainty.bootstrap is not None:
@@ -148,7 +150,7 @@ def estimate(project: Project, progress: Progress | None = None) -> Estimate:
     return Estimate(
         by_unit=by_unit,
         use_by_class=use_by_class,
-        by_unit_class=unit_class_table(left, solution),
+        by_unit_class=unit_class_table(problem, solution),
         units=areas.units,
         supply=supply,
         areas=areas,

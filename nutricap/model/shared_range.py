@@ -258,8 +258,10 @@ def _herd_key_error(
 
 @dataclass(frozen=True)
 class SharedRangeResult:
-    """What the other herds did: per unit, per herd × unit, per herd × unit × class."""
+    """What the other herds did: per unit, per herd × unit, per herd × unit × class, and the
+    forage they left (the problem the target's capacity was solved on)."""
 
+    left: CapacityProblem
     by_unit: pd.DataFrame
     by_herd: pd.DataFrame
     by_unit_class: pd.DataFrame
@@ -304,7 +306,10 @@ def shared_range_outputs(
         frames.append(_herd_frame(problem, shared, herd, lost))
         class_frames.append(_herd_class_frame(problem, shared.taken_kg[herd.name], herd))
     return SharedRangeResult(
-        by_unit, pd.concat(frames, ignore_index=True), pd.concat(class_frames, ignore_index=True)
+        shared.problem,
+        by_unit,
+        pd.concat(frames, ignore_index=True),
+        pd.concat(class_frames, ignore_index=True),
     )
 
 

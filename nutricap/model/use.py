@@ -20,6 +20,8 @@ from nutricap.science.use import (
 
 USE_TOLERANCE = 1e-9
 """Use may exceed allowable use by this much (rounding) before a flag is raised [-]."""
+TIE_TOLERANCE = 1e-12
+"""Relative difference of use ÷ allowable use below which two key classes are tied [-]."""
 
 
 def current_animals_from_counts(counts: pd.DataFrame, unit_ids: np.ndarray) -> np.ndarray:
@@ -106,7 +108,10 @@ def _add_key_columns(
 ) -> None:
     pressure = np.divide(use, allowable, out=np.zeros_like(use), where=allowable > 0)
     pressure[:, ~watched] = -1.0
-    worst = pressure.argmax(axis=1)
+    # Ties (equal preference uses every class to the same fraction of its allowable use) go
+    # to the first class by name, not to the last bit of rounding.
+    top = pressure.max(axis=1, keepdims=True)
+    worst = np.argmax(pressure >= top - TIE_TOLERANCE * np.abs(top), axis=1)
     rows = np.arange(use.shape[0])
     table["key_class"] = classes[worst]
     table["key_use_fraction"] = use[rows, worst]

@@ -102,6 +102,10 @@ def animals_at_use_limit(current_animals, use_fraction, allowable_use):
     return np.multiply(current, ratio, out=np.full_like(ratio, np.inf), where=np.isfinite(ratio))
 
 
+UNMET_TOLERANCE = 1e-12
+"""Unmet demand up to this fraction of the demand is rounding, and counts as met [-]."""
+
+
 def allocate_within_caps_kg(demand_kg, headroom_kg, preference=None):
     """Split each unit's demand over forage items, no item beyond its headroom.
 
@@ -124,7 +128,8 @@ def allocate_within_caps_kg(demand_kg, headroom_kg, preference=None):
     taken : array, shape (units, items)
         Forage taken from each item [kg DM], ``0 <= taken <= headroom``.
     unmet : array, shape (units,)
-        Demand the headroom of the preferred items cannot meet [kg DM], >= 0.
+        Demand the headroom of the preferred items cannot meet [kg DM], >= 0 (0 where it
+        is within :data:`UNMET_TOLERANCE` of the demand: rounding).
 
     Notes
     -----
@@ -144,7 +149,8 @@ def allocate_within_caps_kg(demand_kg, headroom_kg, preference=None):
     level = _fill_level(demand, headroom, weight)
     fill = np.where(weight > 0, np.minimum(1.0, level[..., None] * weight), 0.0)
     taken = headroom * fill
-    return taken, np.maximum(demand - taken.sum(axis=-1), 0.0)
+    unmet = demand - taken.sum(axis=-1)
+    return taken, np.where(unmet > UNMET_TOLERANCE * demand, unmet, 0.0)
 
 
 def _fill_level(demand_kg, headroom_kg, weight):

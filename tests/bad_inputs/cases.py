@@ -348,8 +348,15 @@ def sql_update(name: str, table: str, column: str, old: str, new: str) -> Recipe
 
 
 def set_unit_ids(*ids: str) -> Recipe:
-    """Give the six example units these ids (in feature order)."""
-    return edit_layer(U, lambda g: g.assign(unit_id=list(ids)))
+    """Give the six example units these ids (in feature order), in the units layer and in the
+    cattle permit's table alike."""
+
+    def recipe(folder: Path) -> None:
+        renamed = dict(zip(gpd.read_file(folder / U)["unit_id"], ids, strict=True))
+        edit_layer(U, lambda g: g.assign(unit_id=list(ids)))(folder)
+        edit_csv(PERMIT, lambda t: t.assign(unit_id=t["unit_id"].map(renamed)))(folder)
+
+    return recipe
 
 
 def set_current_animals(*numbers: float) -> Recipe:
@@ -453,6 +460,7 @@ NO_ESCAPE_AND = r"^(?![\s\S]*\x1b)[\s\S]*"
 
 P, F, A = "plots.csv", "forage_classes.csv", "animal_classes.csv"
 U, S = "units.gpkg", "strata.gpkg"
+PERMIT = "cattle_permit.csv"
 ROW1 = r": row 1 \(header\): "
 RASTER_KEY = r"big_sagebrush\.tif: key 'rasters\.biomass\.big_sagebrush': "
 SITE_GRID = 'LOCAL_CS["site grid",UNIT["metre",1]]'
@@ -623,7 +631,18 @@ CASES = [
     ),
     Case(
         "forage classes: without the optional growth_form (valid)",
-        drop_column(F, "growth_form"),
+        steps(
+            drop_column(F, "growth_form"),
+            # the cattle permit's preference by growth form, written out by class instead
+            replace_text(
+                "project.toml",
+                "{ grass = 1.0, forb = 0.3, browse = 0.05 }",
+                "{ cheatgrass = 1.0, bluebunch_wheatgrass = 1.0, sandberg_bluegrass = 1.0, "
+                "winter_forbs = 0.3, big_sagebrush = 0.05, bitterbrush = 0.05, "
+                "mountain_mahogany = 0.05, rabbitbrush = 0.05, serviceberry = 0.05, "
+                "juniper = 0.05, aspen_twigs = 0.05 }",
+            ),
+        ),
         r"Total NCC",
         exit_code=0,
         verify=same_as_reference,
@@ -946,12 +965,12 @@ CASES = [
     Case(
         "project: arrays nested 5,000 deep",
         append_text("project.toml", "x = " + "[" * 5000 + "]" * 5000),
-        r"project\.toml: line 46: arrays or inline tables nested too deeply to read",
+        r"project\.toml: line 52: arrays or inline tables nested too deeply to read",
     ),
     Case(
         "project: inline tables nested 3,000 deep",
         append_text("project.toml", "x = " + "{a=" * 3000 + "1" + "}" * 3000),
-        r"project\.toml: line 46: arrays or inline tables nested too deeply to read",
+        r"project\.toml: line 52: arrays or inline tables nested too deeply to read",
     ),
     Case(
         "project: input is a symbolic link to itself",
