@@ -155,6 +155,17 @@ ANIMAL_CLASSES = pd.DataFrame(
 # [kg/day] (common practice: about 2.5 % of a 65-kg doe's body mass).
 HERD_SIZING_INTAKE_KG_PER_DAY = 1.6
 
+# A cattle grazing permit on two units, in AUMs, grazed before the deer arrive ("graze
+# first, then winter"); numbers and preferences invented for the example.
+CATTLE_PERMIT_AUMS = {"Coldmarrow": 400.0, "Rimgrass": 500.0}
+OTHER_HERBIVORES_TOML = """
+[[other_herbivores]]
+name = "cattle permit"
+numbers_table = "cattle_permit.csv"
+timing = "before"
+preference = { grass = 1.0, forb = 0.3, browse = 0.05 }
+"""
+
 PROJECT_TOML = f"""\
 # Example project, invented for the example: no real place, herd or data set.
 [project]
@@ -187,7 +198,7 @@ bootstrap_replicates = 1000
 interval_level = 0.9
 seed = 20261201
 sensitivity_change = 0.1
-"""
+{OTHER_HERBIVORES_TOML}"""
 
 
 RASTER_CELL_M = 50.0
@@ -494,6 +505,10 @@ def write_example_landscape(folder: Path, seed: int = SEED) -> Path:
     pd.DataFrame(RESPONSES, columns=list(RESPONSE_COLUMNS)).to_csv(
         folder / "treatment_responses.csv", index=False
     )
+    permit = pd.DataFrame(
+        {"unit_id": list(CATTLE_PERMIT_AUMS), "aums": CATTLE_PERMIT_AUMS.values()}
+    )
+    permit.to_csv(folder / "cattle_permit.csv", index=False)
     thinning = make_treatments(strata, "juniper_woodland", 3, 100.0, "thinning", 2027)
     burn = make_treatments(strata, "sagebrush_steppe", 2, 150.0, "prescribed_burn", 2028)
     layers = (

@@ -39,6 +39,7 @@ from nutricap.model.problem import (
 )
 from nutricap.model.requirements import (
     DietTarget,
+    diet_limits,
     diet_target,
     herd_requirement,
     require_protein_values,
@@ -62,6 +63,12 @@ from nutricap.model.scenarios import (
     years_since_latest_treatment,
 )
 from nutricap.model.sensitivity import input_groups
+from nutricap.model.shared_range import (
+    OtherHerd,
+    load_other_herds,
+    share_range,
+    shared_range_outputs,
+)
 from nutricap.model.trend import analyse_series, capacity_comparison, capacity_table
 from nutricap.model.uncertainty import (
     add_intervals,
@@ -94,6 +101,7 @@ class Inputs:
     counts: pd.DataFrame | None = None
     requirement_table: pd.DataFrame = field(default_factory=lambda: energetics.NUTRITIONAL_STATES)
     requirement_notes: list[str] = field(default_factory=list)
+    other_herds: tuple[OtherHerd, ...] = ()
 
 
 def estimate(
@@ -130,16 +138,28 @@ def estimate(
     say("computing the herd's requirements")
     herd = herd_requirement(inputs.animals, project, inputs.requirement_table)
     target = diet_target(inputs.animals, project, inputs.requirement_table)
+    target = replace(target, composition=diet_limits(project, inputs.forage_classes))
     if target.dp_min_pct is not None:
         require_protein_values(inputs.forage_classes, project)
     say("solving capacity per unit")
-    solution = solve(problem, herd, target, project)
-    by_unit = unit_table(problem, solution, areas, days)
+    others = inputs.other_herds
+    solution = solve(problem, herd, target, project, others)
+    shared = None
+    if others:
+        say("other herbivores: NCC with and without them")
+        shared = shared_range_outputs(
+            problem, others, lambda rows: solve(rows, herd, target, project), days
+        )
+    left = problem if shared is None else shared.left
+    by_unit = unit_table(left, solution, areas, days)
+    if shared is not None:
+        by_unit["available_forage_kg"] = problem.sum_by_unit(problem.available_kg.sum(axis=1))
+        by_unit = by_unit.merge(shared.by_unit, on="unit_id", how="left", sort=False)
     uncertainty = assess_uncertainty(project, inputs, supply, problem, herd, target, say, grid)
     if uncertainty.bootstrap is not None:
         by_unit = add_intervals(by_unit, uncertainty.bootstrap, days)
     by_unit, use_by_class = assess_current_use(
-        project, inputs.counts, areas, problem, by_unit, herd, say
+        project, inputs.counts, areas, left, by_unit, herd, say
     )
     trend = counts_trend(project, inputs.counts, say, by_unit)
     return Estimate(
@@ -169,6 +189,8 @@ def estimate(
         + ordering_notes(by_unit)
         + (grid.notes if grid is not None else []),
         grid=grid,
+        other_herds=others,
+        shared_range=shared,
     )
 
 
@@ -185,14 +207,23 @@ def read_inputs(project: Project, say: Progress) -> Inputs:
     plots = read_plots(project.source("plots"))
     animals = read_animal_classes(project.source("animal_classes"))
     say("reading layers")
-    units = read_units(project.source("units"), config.inputs.units_layer)
+    herd_columns = [
+        column
+        for herd in config.other_herbivores
+        for column in (herd.animals_column, herd.aums_column)
+        if column is not None
+    ]
+    units = read_units(project.source("units"), config.inputs.units_layer, herd_columns)
     strata = None  # a strata raster is read window by window on the grid path
     if not config.strata_as_raster:
         strata = read_strata(project.source("strata"), config.inputs.strata_layer)
     given = config.inputs.counts is not None
     counts = read_counts(project.source("counts")) if given else None
     states, state_notes = requirement_table(project)
-    return Inputs(forage_classes, plots, animals, units, strata, counts, states, state_notes)
+    others = load_other_herds(project, units, forage_classes)
+    return Inputs(
+        forage_classes, plots, animals, units, strata, counts, states, state_notes, others
+    )
 
 
 def build_supply(
@@ -252,7 +283,7 @@ def assess_uncertainty(
             wide.loc[on_map, classes].to_numpy(),
             plot_stratum[on_map],
             (supply.strata, classes),
-            lambda rows: solve(rows, herd, target, project),
+            lambda rows: solve(rows, herd, target, project, inputs.other_herds),
             replicates=settings.bootstrap_replicates,
             level=settings.interval_level,
             seed=settings.seed,
@@ -286,20 +317,29 @@ def sensitivity_table(
     """Tornado table of total NCC [animals] for ± the configured change of each input group."""
     days = project.config.project.days
 
-    def total_for(problem=problem, herd=herd, de_factor=1.0, dp_factor=1.0) -> float:
+    def total_for(
+        problem=problem, herd=herd, de_factor=1.0, dp_factor=1.0, others_factor=1.0
+    ) -> float:
         moved = replace(
             target,
             de_min_kcal_per_g=target.de_min_kcal_per_g * de_factor,
             dp_min_pct=None if target.dp_min_pct is None else target.dp_min_pct * dp_factor,
         )
-        return float(solve(problem, herd, moved, project).ncc.animal_days.sum() / days)
+        others = tuple(other.scaled(others_factor) for other in inputs.other_herds)
+        return float(solve(problem, herd, moved, project, others).ncc.animal_days.sum() / days)
 
     def herd_for_mass(factor: float) -> energetics.HerdRequirement:
         animals = inputs.animals
         heavier = animals.assign(body_mass_kg=animals["body_mass_kg"] * factor)
         return herd_requirement(heavier, project, inputs.requirement_table)
 
-    groups = input_groups(problem, total_for, herd_for_mass, protein=target.dp_min_pct is not None)
+    groups = input_groups(
+        problem,
+        total_for,
+        herd_for_mass,
+        protein=target.dp_min_pct is not None,
+        other_herds=bool(inputs.other_herds),
+    )
     change = project.config.uncertainty.sensitivity_change
     return one_at_a_time(total_for(), groups, change)
 
@@ -413,8 +453,12 @@ def solve(
     herd: energetics.HerdRequirement,
     target: DietTarget,
     project: Project,
+    others: tuple[OtherHerd, ...] = (),
 ) -> Solution:
-    """Solve ``problem`` for this herd, target and project settings."""
+    """Solve ``problem`` for this herd, target and project settings, after ``others`` (the
+    other herbivores) have taken their forage."""
+    if others:
+        problem = share_range(problem, others).problem
     return solve_problem(
         problem,
         intake_kg_per_day=herd.intake_kg_per_day,
@@ -422,6 +466,7 @@ def solve(
         de_min_kcal_per_g=target.de_min_kcal_per_g,
         dp_min_pct=target.dp_min_pct,
         cap_at_allowable_use=project.config.forage_use.cap_at_allowable_use,
+        diet=target.composition,
     )
 
 
@@ -543,7 +588,7 @@ def _scenario_year(
 ) -> pd.DataFrame:
     """One year's rows of the scenario table: the problem solved, beside the baseline."""
     days = project.config.project.days
-    solution = solve(problem, result.herd, result.target, project)
+    solution = solve(problem, result.herd, result.target, project, result.other_herds)
     table = pd.DataFrame(
         {
             "unit_id": problem.unit_ids,

@@ -28,6 +28,7 @@ CSV_FILES = (
     "animal_classes.csv",
     "counts.csv",
     "treatment_responses.csv",
+    "cattle_permit.csv",
 )
 LAYERS = {
     "units.gpkg": "units",
@@ -151,6 +152,7 @@ def test_project_file_follows_the_schema(first: Path) -> None:
         "pooling",
         "uncertainty",
         "scenarios",
+        "other_herbivores",
     }
     assert raw["project"]["season"] == "winter"
     assert raw["project"]["season_days"] == example.SEASON_DAYS
@@ -158,7 +160,7 @@ def test_project_file_follows_the_schema(first: Path) -> None:
         name
         for section in raw["scenarios"].values()
         for name in (section["treatments"], section["responses"])
-    }
+    } | {herd["numbers_table"] for herd in raw["other_herbivores"]}
     raster_variant = {"project_rasters.toml", *RASTERS}
     assert (
         set(raw["inputs"].values()) | scenario_files

@@ -151,3 +151,26 @@ def test_zero_body_mass_refused(tmp_path):
     )
     with pytest.raises(TableError, match="body_mass_kg"):
         read_animal_classes(path)
+
+
+FORAGE_HEADER = "forage_class,growth_form,de_kcal_per_g,cp_pct,allowable_use,max_diet_share\n"
+
+
+def test_max_diet_share_above_one_names_row_and_column(tmp_path):
+    path = _csv(
+        tmp_path, "forage.csv", FORAGE_HEADER + "a,grass,2.0,5,0.5,0.4\nb,browse,2.5,8,0.5,40\n"
+    )
+    with pytest.raises(TableError, match=r"row 3, column 'max_diet_share'.*found 40"):
+        read_forage_classes(path)
+
+
+def test_max_diet_share_blank_or_absent_means_no_limit(tmp_path):
+    path = _csv(
+        tmp_path, "forage.csv", FORAGE_HEADER + "a,grass,2.0,5,0.5,\nb,browse,2.5,8,0.5,0.3\n"
+    )
+    table = read_forage_classes(path)
+    assert table["max_diet_share"].isna().tolist() == [True, False]
+    without = _csv(
+        tmp_path, "plain.csv", "forage_class,de_kcal_per_g,cp_pct,allowable_use\na,2,5,0.5\n"
+    )
+    assert read_forage_classes(without)["max_diet_share"].isna().all()

@@ -43,9 +43,10 @@ def _template_keys(text: str) -> set[str]:
     found, section = set(), ""
     for line in text.splitlines():
         line = line.lstrip("# ").strip()
-        header = re.fullmatch(r"\[([A-Za-z_.0-9]+)\].*", line)
+        header = re.fullmatch(r"\[\[?([A-Za-z_.0-9]+)\]\]?.*", line)  # [table] or [[array]]
         if header:
             section = re.sub(r"^scenarios\.[^.]+", "scenarios.NAME", header.group(1))
+            section = re.sub(r"^diet\.groups\.[^.]+", "diet.groups.NAME", section)
             found.add(section)
         elif match := re.match(r"([A-Za-z_0-9]+) = ", line):
             found.add(f"{section}.{match.group(1)}")

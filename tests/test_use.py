@@ -114,7 +114,7 @@ def test_assess_on_example_at_allowable_use_capacity(example_estimate):
     )
     at_capacity = by_unit["allowable_use_animals"].to_numpy()
     table, by_class = assess_use(
-        estimate.problem,
+        estimate.solved_problem,
         by_unit,
         at_capacity,
         intake_kg_per_day=estimate.herd.intake_kg_per_day,
@@ -126,7 +126,7 @@ def test_assess_on_example_at_allowable_use_capacity(example_estimate):
     np.testing.assert_allclose(used["use_fraction"], used["allowable_use"], rtol=1e-9)
     assert not table["overuse"].any()
     over, _ = assess_use(
-        estimate.problem,
+        estimate.solved_problem,
         by_unit,
         at_capacity * 1.2,
         intake_kg_per_day=estimate.herd.intake_kg_per_day,

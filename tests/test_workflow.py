@@ -130,13 +130,15 @@ def test_protein_limited_ncc_equals_an_lp_with_the_linear_dp_equation(project):
         text.replace("[target]\n", "[target]\ndiet_de_min_kcal_per_g = 2.0\n"), encoding="utf-8"
     )
     result = estimate(load_project(project))
-    items, problem = result.problem.items, result.problem
+    # The forage and use caps the deer get after the example's cattle permit.
+    items, problem = result.problem.items, result.solved_problem
+    caps = np.broadcast_to(problem.allowable_fraction, problem.available_kg.shape)
     dp = -3.87 + 0.9283 * items.cp_pct - 11.82 * items.tannin
     assert (dp < 0).any(), "the example should hold forage below 4.2 % CP"
     de_min, dp_min = result.target.de_min_kcal_per_g, result.target.dp_min_pct
     limits = []
     for row in range(problem.available_kg.shape[0]):
-        allowed = problem.available_kg[row] * items.allowable_use
+        allowed = problem.available_kg[row] * caps[row]
         lp = linprog(
             c=-np.ones(items.size),
             A_ub=np.vstack([-(items.de_kcal_per_g - de_min), -(dp - dp_min)]),

@@ -198,6 +198,63 @@ SOURCE_PATH_KEYS = {
 }
 
 
+class OtherHerbivoreSection(StrictSection):
+    """``[[other_herbivores]]``: one herd of another species sharing the range (e.g. a grazing
+    permit), whose forage use is removed before the target species' capacity is solved."""
+
+    name: str = Field(min_length=1)
+    #: Numbers per unit: a units-layer column of animals or of AUMs, or a CSV table
+    #: (``unit_id`` and ``animals`` or ``aums``); exactly one.
+    animals_column: str | None = Field(default=None, min_length=1)
+    aums_column: str | None = Field(default=None, min_length=1)
+    numbers_table: InputPath | None = None
+    body_mass_kg: float | None = Field(default=None, gt=0, le=2000)
+    intake_kg_per_day: float | None = Field(default=None, gt=0, le=60)
+    days: float | None = Field(default=None, gt=0, le=MAX_SEASON_DAYS)
+    timing: Literal["same_season", "before"]
+    #: Weights by forage class or growth form (a class's own weight wins); classes not
+    #: named are not eaten. Empty: every class weighs 1.
+    preference: dict[str, float] = Field(default_factory=dict)
+
+    @model_validator(mode="after")
+    def _numbers_and_intake(self) -> OtherHerbivoreSection:
+        given = [self.animals_column, self.aums_column, self.numbers_table]
+        if sum(value is not None for value in given) != 1:
+            raise ValueError("give exactly one of animals_column, aums_column, numbers_table")
+        for name, weight in self.preference.items():
+            if not (0 <= weight <= 1000) or weight != weight:
+                raise ValueError(
+                    f"preference {name!r} must lie between 0 and 1000 (found {weight:g})"
+                )
+        if self.preference and not any(w > 0 for w in self.preference.values()):
+            raise ValueError("at least one preference weight must be above 0")
+        return self
+
+
+class DietGroupSection(StrictSection):
+    """``[diet.groups.NAME]``: a group of forage classes (listed, or one growth form) and the
+    share of the diet it must make up."""
+
+    classes: list[str] | None = Field(default=None, min_length=1)
+    growth_form: str | None = Field(default=None, min_length=1)
+    min_share: float = Field(default=0.0, ge=0, le=1)
+    max_share: float = Field(default=1.0, ge=0, le=1)
+
+    @model_validator(mode="after")
+    def _one_membership(self) -> DietGroupSection:
+        if (self.classes is None) == (self.growth_form is None):
+            raise ValueError("give classes or growth_form (one of them)")
+        if self.min_share > self.max_share:
+            raise ValueError(f"min_share {self.min_share:g} is above max_share {self.max_share:g}")
+        return self
+
+
+class DietSection(StrictSection):
+    """``[diet]``: diet-composition limits of the target species."""
+
+    groups: dict[str, DietGroupSection] = Field(default_factory=dict)
+
+
 class ProjectConfig(StrictSection):
     """The whole project file."""
 
@@ -213,6 +270,8 @@ class ProjectConfig(StrictSection):
     availability: AvailabilitySection | None = None
     columns: ColumnsSection = ColumnsSection()
     sheets: SheetsSection = SheetsSection()
+    other_herbivores: list[OtherHerbivoreSection] = Field(default_factory=list)
+    diet: DietSection = DietSection()
 
     @model_validator(mode="before")
     @classmethod
@@ -247,6 +306,14 @@ class ProjectConfig(StrictSection):
         if self.rasters is not None and self.rasters.calibrated is not None:
             given.add("calibration_plots")
         return given
+
+    @model_validator(mode="after")
+    def _herd_names_unique(self) -> ProjectConfig:
+        names = [herd.name for herd in self.other_herbivores]
+        repeated = sorted({name for name in names if names.count(name) > 1})
+        if repeated:
+            raise ValueError(f"other_herbivores: the name {repeated[0]!r} is used twice")
+        return self
 
     @property
     def strata_as_raster(self) -> bool:
@@ -334,6 +401,9 @@ class Project:
         for name, scenario in self.config.scenarios.items():
             found[f"scenarios.{name}.treatments"] = scenario.treatments
             found[f"scenarios.{name}.responses"] = scenario.responses
+        for index, herd in enumerate(self.config.other_herbivores):
+            if herd.numbers_table is not None:
+                found[f"other_herbivores.{index}.numbers_table"] = herd.numbers_table
         found.update(raster_input_paths(self.config.rasters, self.config.availability))
         return {key: self.folder / path for key, path in found.items()}
 
@@ -479,9 +549,9 @@ def _section_model(location: list[str]) -> type[BaseModel] | None:
         if field is None:
             return None
         annotation = _without_none(field.annotation)
-        if typing.get_origin(annotation) is dict:
-            next(parts, None)  # the user's name of the entry, e.g. a scenario
-            annotation = typing.get_args(annotation)[1]
+        if typing.get_origin(annotation) in (dict, list):
+            next(parts, None)  # the user's name of the entry (a scenario) or its index
+            annotation = typing.get_args(annotation)[-1]
         if not (isinstance(annotation, type) and issubclass(annotation, BaseModel)):
             return None
         model = annotation

@@ -88,6 +88,14 @@ FORAGE_CLASS_COLUMNS = [
         meaning="relative preference weight for allocating current use, > 0 (default 1)",
     ),
     Column("stratum", "text", required=False, allow_blank=True),
+    Column(
+        "max_diet_share",
+        required=False,
+        allow_blank=True,
+        minimum=0,
+        maximum=1,
+        meaning="largest share of the diet the class may make up, 0 to 1 (default 1)",
+    ),
 ]
 
 PLOT_COLUMNS = [
@@ -149,7 +157,8 @@ def read_forage_classes(path: Source) -> pd.DataFrame:
     computed from ``dmd_pct`` × gross energy when only ``dmd_pct`` is given.
     """
     table = read_csv_table(path, FORAGE_CLASS_COLUMNS, what="forage-class table")
-    for name in ("de_kcal_per_g", "dmd_pct", "tannin", "height_cm", "gross_energy_kcal_per_g"):
+    optional = ("de_kcal_per_g", "dmd_pct", "tannin", "height_cm", "gross_energy_kcal_per_g")
+    for name in (*optional, "max_diet_share"):
         if name not in table.columns:
             table[name] = np.nan
     table["preference"] = table.get("preference", pd.Series(np.nan, index=table.index)).fillna(1.0)
@@ -223,18 +232,25 @@ def _require_class_rows(table: pd.DataFrame, path: Path) -> None:
         )
 
 
+def header_problem(message: str, path: Path, table: pd.DataFrame, expected: str) -> TableError:
+    """The error of a header that lacks the columns ``expected`` (found: the columns it has)."""
+    return TableError(
+        message,
+        source=path,
+        location="row 1 (header)",
+        expected=expected,
+        found="columns " + ", ".join(repr(name) for name in table.columns),
+    )
+
+
 def read_plots(path: Source) -> pd.DataFrame:
     """Read the clip-plot table; return it with a ``biomass_kg_per_ha`` column."""
     table = read_csv_table(path, PLOT_COLUMNS, what="plots table")
     has_frame = {"dry_mass_g", "frame_area_m2"} <= set(table.columns)
     has_direct = "biomass_kg_per_ha" in table.columns
     if not has_frame and not has_direct:
-        raise TableError(
-            "no biomass columns",
-            source=path,
-            location="row 1 (header)",
-            expected="dry_mass_g and frame_area_m2, or biomass_kg_per_ha",
-            found="columns " + ", ".join(repr(name) for name in table.columns),
+        raise header_problem(
+            "no biomass columns", path, table, "dry_mass_g and frame_area_m2, or biomass_kg_per_ha"
         )
     direct = table["biomass_kg_per_ha"] if has_direct else pd.Series(np.nan, index=table.index)
     if has_frame:
@@ -362,3 +378,39 @@ def read_animal_classes(path: Source) -> pd.DataFrame:
             found=f"sum {total:g}",
         )
     return table
+
+
+HERD_NUMBER_COLUMNS = [
+    Column("unit_id", "text", meaning="management unit the herd uses"),
+    Column(
+        "animals",
+        required=False,
+        minimum=0,
+        maximum=1e7,
+        meaning="animals of the other herd in the unit",
+    ),
+    Column("aums", required=False, minimum=0, maximum=1e8, meaning="animal-unit months"),
+]
+
+
+def read_herd_numbers(path: Path) -> tuple[pd.DataFrame, str]:
+    """Read a table of another herd's numbers per unit: ``unit_id`` and ``animals`` or ``aums``.
+
+    Returns
+    -------
+    table : DataFrame
+        ``unit_id`` and the numbers column (each unit at most once).
+    kind : {"animals", "aums"}
+        Which numbers the table holds.
+    """
+    table = read_csv_table(path, HERD_NUMBER_COLUMNS, what="herd numbers table")
+    kinds = [name for name in ("animals", "aums") if name in table.columns]
+    if len(kinds) != 1:
+        raise header_problem(
+            "a herd numbers table needs one numbers column",
+            path,
+            table,
+            "a column 'animals' (head per unit) or 'aums' (animal-unit months), not both",
+        )
+    check_unique(table, ["unit_id"], path)
+    return table[["unit_id", kinds[0]]], kinds[0]

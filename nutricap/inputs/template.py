@@ -125,6 +125,25 @@ sensitivity_change = 0.1              # one-at-a-time change of each input group
 # strata_codes = "Codes"
 # calibration_plots = "Plots with coordinates"
 
+# Another herd on the same range (docs/inputs.md), e.g. a grazing permit, one table per herd:
+# [[other_herbivores]]
+# name = "cattle permit"
+# aums_column = "PERMIT_AUM"          # AUMs per unit in a units-layer column; or instead:
+# animals_column = "CATTLE_HEAD"      # head per unit in a units-layer column, or
+# numbers_table = "permit.csv"        # a table unit_id, animals (or aums)
+# timing = "before"                   # "before" the season, or "same_season"
+# preference = { graminoid = 3.0, forb = 1.0 }  # weights by growth form or forage class
+# body_mass_kg = 500                  # with head counts: body mass (or intake_kg_per_day)
+# intake_kg_per_day = 11.8
+# days = 60                           # and the days on the range
+
+# Diet-composition limits of the target species (docs/methods.md):
+# [diet.groups.graminoids]
+# growth_form = "graminoid"           # the group: one growth form, or
+# classes = ["bluebunch", "needlegrass"]  # a list of forage classes
+# min_share = 0.2
+# max_share = 1.0
+
 # A treatment scenario for `nutricap compare --scenario burn_2028`:
 # [scenarios.burn_2028]
 # description = "Burn two sagebrush stands in 2028"

@@ -11,6 +11,7 @@ longitudes and latitudes is refused (its CRS is wrong).
 from __future__ import annotations
 
 import warnings
+from collections.abc import Sequence
 from contextlib import closing
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -380,13 +381,17 @@ def _check_geographic_range(frame: gpd.GeoDataFrame, path: Source, what: str) ->
         )
 
 
-def read_units(path: Source, layer: str | None) -> gpd.GeoDataFrame:
+def read_units(
+    path: Source, layer: str | None, number_columns: Sequence[str] = ()
+) -> gpd.GeoDataFrame:
     """Read the management units.
 
-    ``unit_id`` must be filled and unique; ``current_animals``, when present, >= 0.
+    ``unit_id`` must be filled and unique; ``current_animals``, when present, >= 0, and so
+    must be the ``number_columns`` (e.g. another herd's numbers), which must be present.
     """
+    columns = ["unit_id", *number_columns]
     units = read_layer(
-        path, layer=layer, columns=["unit_id"], optional=UNIT_OPTIONAL, what="units layer"
+        path, layer=layer, columns=columns, optional=UNIT_OPTIONAL, what="units layer"
     )
     _require_filled_text(units, "unit_id", path, "units layer")
     duplicated = units["unit_id"].duplicated().to_numpy()
@@ -398,8 +403,9 @@ def read_units(path: Source, layer: str | None) -> gpd.GeoDataFrame:
             expected="each unit_id once",
             found=repr(units["unit_id"][duplicated].iloc[0]),
         )
-    if "current_animals" in units.columns:
-        _require_numbers(units, "current_animals", path, "units layer", low=0.0, high=None)
+    present = ["current_animals"] if "current_animals" in units.columns else []
+    for column in dict.fromkeys([*present, *number_columns]):
+        _require_numbers(units, column, path, "units layer", low=0.0, high=None)
     return units
 
 

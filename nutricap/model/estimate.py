@@ -16,6 +16,7 @@ from nutricap.landscape.plots import StratumSupply
 from nutricap.landscape.vectors import StratumAreas
 from nutricap.model.problem import CapacityProblem, Solution
 from nutricap.model.requirements import DietTarget
+from nutricap.model.shared_range import OtherHerd, SharedRangeResult
 from nutricap.model.uncertainty import BootstrapResult
 from nutricap.science import energetics
 
@@ -31,7 +32,11 @@ class Uncertainty:
 
 @dataclass(frozen=True)
 class Estimate:
-    """Everything the estimate computed; reporting only formats it."""
+    """Everything the estimate computed; reporting only formats it.
+
+    ``problem`` is the forage as sampled (the supply; the density map shares it out);
+    ``solution``, ``by_unit`` and ``by_unit_class`` are of :attr:`solved_problem`.
+    """
 
     by_unit: pd.DataFrame
     use_by_class: pd.DataFrame | None
@@ -51,3 +56,11 @@ class Estimate:
     notes: list[str] = field(default_factory=list)
     grid: GridResult | None = None
     requirement_table: pd.DataFrame = field(default_factory=lambda: energetics.NUTRITIONAL_STATES)
+    other_herds: tuple[OtherHerd, ...] = ()
+    shared_range: SharedRangeResult | None = None
+
+    @property
+    def solved_problem(self) -> CapacityProblem:
+        """The problem the target's capacity was solved on: ``problem`` less the forage the
+        other herbivores take (``problem`` itself when there are none)."""
+        return self.problem if self.shared_range is None else self.shared_range.left

@@ -45,6 +45,8 @@ class ForageItems:
     cp_pct: np.ndarray
     tannin: np.ndarray
     variant: np.ndarray
+    #: Largest share of the diet each item may make up [0–1] (1: no limit).
+    max_diet_share: np.ndarray | None = None
 
     @property
     def size(self) -> int:
@@ -57,16 +59,33 @@ class ForageItems:
 
     def subset(self, mask: np.ndarray) -> ForageItems:
         """The items where ``mask`` is true."""
-        return ForageItems(**{name: value[mask] for name, value in vars(self).items()})
+        return ForageItems(
+            **{name: None if v is None else v[mask] for name, v in vars(self).items()}
+        )
 
     @staticmethod
     def concatenate(parts: list[ForageItems]) -> ForageItems:
         """The items of ``parts`` one after another."""
         names = vars(parts[0]).keys()
-        return ForageItems(**{n: np.concatenate([vars(p)[n] for p in parts]) for n in names})
+        values = {n: [vars(p)[n] for p in parts] for n in names}
+        return ForageItems(
+            **{
+                n: None if any(x is None for x in v) else np.concatenate(v)
+                for n, v in values.items()
+            }
+        )
 
 
-ITEM_COLUMNS = ["de_kcal_per_g", "dp_pct", "allowable_use", "key", "preference", "cp_pct", "tannin"]
+ITEM_COLUMNS = [
+    "de_kcal_per_g",
+    "dp_pct",
+    "allowable_use",
+    "key",
+    "preference",
+    "cp_pct",
+    "tannin",
+    "max_diet_share",
+]
 
 
 def patch_type_labels(stratum: np.ndarray, variant: np.ndarray) -> np.ndarray:
@@ -82,6 +101,8 @@ def build_forage_items(supply: StratumSupply, forage_classes: pd.DataFrame) -> F
     strata = np.repeat(supply.strata, len(supply.classes)).astype(object)
     classes = np.tile(supply.classes, len(supply.strata)).astype(object)
     general = forage_classes[forage_classes["stratum"] == ""].set_index("forage_class")
+    if "max_diet_share" not in general.columns:
+        general = general.assign(max_diet_share=np.nan)
     specific = forage_classes[forage_classes["stratum"] != ""].set_index(
         ["forage_class", "stratum"]
     )
@@ -104,6 +125,7 @@ def build_forage_items(supply: StratumSupply, forage_classes: pd.DataFrame) -> F
         cp_pct=attributes["cp_pct"].fillna(0.0).to_numpy(dtype=float),
         tannin=attributes["tannin"].fillna(0.0).to_numpy(dtype=float),
         variant=np.full(classes.size, "", dtype=object),
+        max_diet_share=attributes["max_diet_share"].fillna(1.0).to_numpy(dtype=float),
     )
 
 
@@ -124,6 +146,10 @@ class CapacityProblem:
         hectares (lets the supply be re-drawn, e.g. by the bootstrap).
     strata : list of str, optional
         Column labels of ``row_stratum_ha`` (see :func:`patch_type_labels`).
+    use_cap : array, shape (rows, items), optional
+        Fraction of ``available_kg`` that may be used, where it differs from the items'
+        allowable use: after other herbivores have eaten (:mod:`nutricap.model.shared_range`)
+        [-].
     """
 
     unit_ids: np.ndarray
@@ -132,12 +158,69 @@ class CapacityProblem:
     available_kg: np.ndarray
     row_stratum_ha: np.ndarray | None = None
     strata: list[str] | None = None
+    use_cap: np.ndarray | None = None
+
+    @property
+    def allowable_fraction(self) -> np.ndarray:
+        """Fraction of each row's available forage that may be used [-], (items,) or
+        (rows, items)."""
+        return self.items.allowable_use if self.use_cap is None else self.use_cap
+
+    def usable_kg(self) -> np.ndarray:
+        """Forage of each row that may be used, available × allowable fraction [kg],
+        (rows,)."""
+        if self.use_cap is None:
+            return self.available_kg @ self.items.allowable_use
+        return (self.available_kg * self.use_cap).sum(axis=1)
 
     def sum_by_unit(self, values: np.ndarray) -> np.ndarray:
         """Sum per-row ``values`` (rows, ...) into units (units, ...)."""
         totals = np.zeros((self.unit_ids.size, *values.shape[1:]))
         np.add.at(totals, self.row_unit, values)
         return totals
+
+
+@dataclass(frozen=True)
+class DietGroup:
+    """A named group of forage classes (listed, or all of one growth form) and the share of
+    the diet it must make up: ``min_share · Σx <= Σ_{i in group} x_i <= max_share · Σx``."""
+
+    name: str
+    classes: frozenset[str]
+    growth_form: str | None
+    min_share: float
+    max_share: float
+
+
+@dataclass(frozen=True)
+class DietLimits:
+    """The diet-composition limits of the project file's ``[diet]`` table."""
+
+    groups: tuple[DietGroup, ...] = ()
+
+    def membership(self, items: ForageItems) -> np.ndarray:
+        """Which items belong to each group, bool (groups, items)."""
+        return np.array(
+            [
+                np.isin(items.forage_class, list(group.classes))
+                | (items.growth_form == group.growth_form)
+                for group in self.groups
+            ],
+            dtype=bool,
+        ).reshape(len(self.groups), items.size)
+
+
+def composition_limits(items: ForageItems, diet: DietLimits | None) -> dict[str, np.ndarray]:
+    """The keyword arguments of :func:`nutritional_capacity` for the diet-composition limits:
+    none when no item has a share below 1 and no group is given (the plain solve)."""
+    limits = {}
+    if items.max_diet_share is not None and (items.max_diet_share < 1).any():
+        limits["max_diet_share"] = items.max_diet_share
+    if diet is not None and diet.groups:
+        limits["diet_groups"] = diet.membership(items)
+        limits["min_group_share"] = np.array([group.min_share for group in diet.groups])
+        limits["max_group_share"] = np.array([group.max_share for group in diet.groups])
+    return limits
 
 
 @dataclass(frozen=True)
@@ -202,8 +285,10 @@ def solve_problem(
     de_min_kcal_per_g: float,
     dp_min_pct: float | None,
     cap_at_allowable_use: bool,
+    diet: DietLimits | None = None,
 ) -> Solution:
-    """NCC, ECC and allowable-use capacity of every row of ``problem``."""
+    """NCC, ECC and allowable-use capacity of every row of ``problem``, NCC within the items'
+    ``max_diet_share`` and the ``diet`` groups' shares when given."""
     items = problem.items
     ncc = nutritional_capacity(
         problem.available_kg,
@@ -212,12 +297,15 @@ def solve_problem(
         de_min_kcal_per_g,
         dp_pct=items.dp_pct if dp_min_pct is not None else None,
         dp_min_pct=dp_min_pct,
-        use_cap=items.allowable_use if cap_at_allowable_use else None,
+        use_cap=problem.allowable_fraction if cap_at_allowable_use else None,
+        **composition_limits(items, diet),
     )
     ecc = ecological_capacity(
         problem.available_kg, items.de_kcal_per_g, maintenance_de_kcal_per_day
     )
-    allowable = allowable_use_capacity(problem.available_kg, items.allowable_use, intake_kg_per_day)
+    allowable = allowable_use_capacity(
+        problem.available_kg, problem.allowable_fraction, intake_kg_per_day
+    )
     return Solution(ncc, ecc, allowable)
 
 

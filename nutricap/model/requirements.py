@@ -15,6 +15,7 @@ import pandas as pd
 from nutricap.errors import InputError, ProjectFileError, TableError
 from nutricap.inputs.columns import Column, read_csv_table, spreadsheet_row
 from nutricap.inputs.project import Project
+from nutricap.model.problem import DietGroup, DietLimits
 from nutricap.science import energetics
 
 #: Columns of a user's own requirement table (``[inputs] nutritional_states``), as in
@@ -63,11 +64,14 @@ class DietTarget:
         Minimum digestible protein of the diet [% DM], None when protein is not required.
     derivation : str
         How the thresholds were obtained, in words (for the report and manifest).
+    composition : DietLimits or None
+        The diet-composition limits of ``[diet]`` (see :func:`diet_limits`).
     """
 
     de_min_kcal_per_g: float
     dp_min_pct: float | None
     derivation: str
+    composition: DietLimits | None = None
 
 
 DIET_DE_CEILING_KCAL_PER_G = 5.0
@@ -261,3 +265,40 @@ def require_protein_values(forage_classes: pd.DataFrame, project: Project) -> No
             expected="crude protein in percent of dry matter (or protein = false in [target])",
             found="an empty cell",
         )
+
+
+def diet_limits(project: Project, forage_classes: pd.DataFrame) -> DietLimits | None:
+    """The ``[diet]`` groups, their classes and growth forms checked against the forage-class
+    table; None when there are none."""
+    groups = project.config.diet.groups
+    if not groups:
+        return None
+    general = forage_classes[forage_classes["stratum"] == ""]
+    known = {
+        "classes": set(general["forage_class"]),
+        "growth_form": set(general["growth_form"].fillna("")) - {""},
+    }
+    built = []
+    for name, group in groups.items():
+        given = group.classes if group.classes is not None else [group.growth_form]
+        key = "classes" if group.classes is not None else "growth_form"
+        unknown = [value for value in given if value not in known[key]]
+        if unknown:
+            raise ProjectFileError(
+                f"diet group {name!r}: unknown {key.replace('_', ' ')} {unknown[0]!r}",
+                source=project.path,
+                location=f"key 'diet.groups.{name}.{key}'",
+                expected=f"a {'forage_class' if key == 'classes' else key} of "
+                f"{project.input_path('forage_classes')}: " + ", ".join(sorted(known[key])),
+                found=repr(unknown[0]),
+            )
+        built.append(
+            DietGroup(
+                name,
+                frozenset(group.classes or ()),
+                group.growth_form,
+                group.min_share,
+                group.max_share,
+            )
+        )
+    return DietLimits(tuple(built))

@@ -38,7 +38,7 @@ def unit_table(
     ncc_days = problem.sum_by_unit(ncc.animal_days)
     ecc_days = problem.sum_by_unit(solution.ecc_animal_days)
     eaten = problem.sum_by_unit(ncc.eaten_kg)
-    usable_kg = problem.sum_by_unit(problem.available_kg @ problem.items.allowable_use)
+    usable_kg = problem.sum_by_unit(problem.usable_kg())
     deciding = _deciding_rows(row_forage_kg, problem.row_unit, unit_ids.size)
     marginal = ncc.marginal_item[deciding]
     table = pd.DataFrame(

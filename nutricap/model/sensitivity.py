@@ -58,12 +58,14 @@ def input_groups(
     herd_for_mass: Callable[[float], HerdRequirement],
     *,
     protein: bool,
+    other_herds: bool = False,
 ) -> dict[str, Callable[[float], float]]:
     """The input groups: biomass, DE (and DP) by class, body mass, thresholds, allowable use.
 
     ``total_for(problem=..., herd=..., de_factor=..., dp_factor=...)`` returns total
     NCC [animals] with any of those replaced or scaled; ``herd_for_mass(f)`` is the
-    herd's requirement with every body mass × f.
+    herd's requirement with every body mass × f. With ``other_herds``, the other herbivores'
+    numbers (every herd × f) are a group too (``total_for(others_factor=f)``).
     """
     groups: dict[str, Callable[[float], float]] = {}
     for name in np.unique(problem.items.forage_class):
@@ -89,6 +91,8 @@ def input_groups(
     groups["diet DE threshold (energy requirement)"] = lambda f: total_for(de_factor=f)
     if protein:
         groups["diet DP threshold (protein requirement)"] = lambda f: total_for(dp_factor=f)
+    if other_herds:
+        groups["other herbivores' numbers"] = lambda f: total_for(others_factor=f)
     return groups
 
 

@@ -20,6 +20,8 @@ from nutricap.science.use import (
 
 USE_TOLERANCE = 1e-9
 """Use may exceed allowable use by this much (rounding) before a flag is raised [-]."""
+TIE_TOLERANCE = 1e-12
+"""Relative difference of use ÷ allowable use below which two key classes are tied [-]."""
 
 
 def current_animals_from_counts(counts: pd.DataFrame, unit_ids: np.ndarray) -> np.ndarray:
@@ -84,10 +86,10 @@ def assess_use(
     items = problem.items
     row_current = current_animals[problem.row_unit] * _row_share(problem)
     demand = seasonal_demand_kg(row_current, intake_kg_per_day, season_days)
-    eaten = allocate_demand_kg(demand, problem.available_kg, items.allowable_use, preference)
+    eaten = allocate_demand_kg(demand, problem.available_kg, problem.allowable_fraction, preference)
     classes, available = class_matrix(problem, problem.available_kg)
     _, eaten_by_class = class_matrix(problem, eaten)
-    _, usable = class_matrix(problem, problem.available_kg * items.allowable_use)
+    _, usable = class_matrix(problem, problem.available_kg * problem.allowable_fraction)
     use = utilization_fraction(eaten_by_class, available)
     allowable = utilization_fraction(usable, available)
     key = _class_flags(items.forage_class, items.key, classes)
@@ -103,7 +105,7 @@ def assess_use(
 
 def _row_share(problem: CapacityProblem) -> np.ndarray:
     """Share of its unit's animals each row holds: its share of the unit's usable forage."""
-    usable = (problem.available_kg * problem.items.allowable_use).sum(axis=1)
+    usable = (problem.available_kg * problem.allowable_fraction).sum(axis=1)
     unit_total = problem.sum_by_unit(usable)[problem.row_unit]
     return np.divide(usable, unit_total, out=np.zeros_like(usable), where=unit_total > 0)
 
@@ -123,7 +125,10 @@ def _add_key_columns(
 ) -> None:
     pressure = np.divide(use, allowable, out=np.zeros_like(use), where=allowable > 0)
     pressure[:, ~watched] = -1.0
-    worst = pressure.argmax(axis=1)
+    # Ties (equal preference uses every class to the same fraction of its allowable use) go
+    # to the first class by name, not to the last bit of rounding.
+    top = pressure.max(axis=1, keepdims=True)
+    worst = np.argmax(pressure >= top - TIE_TOLERANCE * np.abs(top), axis=1)
     rows = np.arange(use.shape[0])
     table["key_class"] = classes[worst]
     table["key_use_fraction"] = use[rows, worst]

@@ -58,6 +58,9 @@ def write_estimate(
     write_csv(result.supply.table(), folder / "supply_by_stratum.csv")
     if result.use_by_class is not None:
         write_csv(result.use_by_class, folder / "use_by_unit_class.csv")
+    if result.shared_range is not None:
+        write_csv(result.shared_range.by_herd, folder / "other_herbivores_by_unit.csv")
+        write_csv(result.shared_range.by_unit_class, folder / "other_herbivores_by_unit_class.csv")
     if result.trend is not None:
         write_json(result.trend, folder / "trend.json")
     if result.uncertainty.sensitivity is not None:

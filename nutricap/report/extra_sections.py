@@ -314,3 +314,29 @@ def _trend_figures(data: dict) -> dict:
         if data.get(name):
             shown[label] = str(data[name])
     return shown
+
+
+# --- other herbivores on the shared range -----------------------------------------------------
+
+SHARED_RANGE_COLUMNS = [
+    Column("herd", "Herd"),
+    Column("timing", "Timing"),
+    Column("unit_id", "Unit"),
+    numeric_column("taken_aum", "Forage taken [AUM]", ONE_DECIMAL),
+    numeric_column("unmet_aum", "Demand unmet [AUM]", ONE_DECIMAL),
+    numeric_column("ncc_animals_without_others", "NCC without other herbivores [animals]"),
+    numeric_column("ncc_animals", "NCC with them [animals]"),
+    numeric_column("ncc_lost_animals", "NCC lost to this herd [animals]"),
+    numeric_column("ncc_lost_per_aum", "NCC lost per AUM taken [animals/AUM]", THREE_DECIMALS),
+]
+
+
+def shared_range(shared: Any, by_unit: pd.DataFrame) -> dict | None:
+    """The shared-range section: per herd and unit where it grazes, the forage it takes and
+    NCC with and without the other herbivores, or None without other herbivores."""
+    if shared is None:
+        return None
+    rows = shared.by_herd[shared.by_herd["demand_aum"] > 0]
+    ncc = by_unit[["unit_id", "ncc_animals", "ncc_animals_without_others"]]
+    rows = rows.merge(ncc, on="unit_id", how="left", sort=False)
+    return {"table": table(rows, SHARED_RANGE_COLUMNS), "herds": rows["herd"].nunique()}

@@ -152,6 +152,7 @@ def report_parts(
             extras.sensitivity_table, extras.sensitivity_change
         ),
         "use": sections.use(estimate.by_unit, estimate.use_by_class),
+        "shared_range": extra_sections.shared_range(estimate.shared_range, estimate.by_unit),
         "scenario": extra_sections.scenario(extras.scenario_table, extras.scenarios),
         "trend": extra_sections.trend(extras.trend, estimate.by_unit),
         "unit_table": unit_table(estimate.by_unit, extras.interval_level),

@@ -275,7 +275,7 @@ def _ratio_test(t: _Tableaux, k: np.ndarray, col: np.ndarray, bland: bool):
     """Step length, leaving row (-1 for a bound flip), direction and basic-value change rate."""
     direction = np.where(t.at_upper[k, col], -1.0, 1.0)
     alpha = t.tab[k, :, col] * direction[:, np.newaxis]
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         ratio = np.where(
             alpha > _PIVOT_TOL,
             t.value_b / alpha,

@@ -360,8 +360,15 @@ def sql_update(name: str, table: str, column: str, old: str, new: str) -> Recipe
 
 
 def set_unit_ids(*ids: str) -> Recipe:
-    """Give the six example units these ids (in feature order)."""
-    return edit_layer(U, lambda g: g.assign(unit_id=list(ids)))
+    """Give the six example units these ids (in feature order), in the units layer and in the
+    cattle permit's table alike."""
+
+    def recipe(folder: Path) -> None:
+        renamed = dict(zip(gpd.read_file(folder / U)["unit_id"], ids, strict=True))
+        edit_layer(U, lambda g: g.assign(unit_id=list(ids)))(folder)
+        edit_csv(PERMIT, lambda t: t.assign(unit_id=t["unit_id"].map(renamed)))(folder)
+
+    return recipe
 
 
 def set_current_animals(*numbers: float) -> Recipe:
@@ -523,6 +530,7 @@ def map_columns(table: str, **names: str) -> Recipe:
 
 P, F, A = "plots.csv", "forage_classes.csv", "animal_classes.csv"
 U, S = "units.gpkg", "strata.gpkg"
+PERMIT = "cattle_permit.csv"
 ROW1 = r": row 1 \(header\): "
 RASTER_KEY = r"big_sagebrush\.tif: key 'rasters\.biomass\.big_sagebrush': "
 SITE_GRID = 'LOCAL_CS["site grid",UNIT["metre",1]]'
@@ -696,7 +704,18 @@ CASES = [
     ),
     Case(
         "forage classes: without the optional growth_form (valid)",
-        drop_column(F, "growth_form"),
+        steps(
+            drop_column(F, "growth_form"),
+            # the cattle permit's preference by growth form, written out by class instead
+            replace_text(
+                "project.toml",
+                "{ grass = 1.0, forb = 0.3, browse = 0.05 }",
+                "{ cheatgrass = 1.0, bluebunch_wheatgrass = 1.0, sandberg_bluegrass = 1.0, "
+                "winter_forbs = 0.3, big_sagebrush = 0.05, bitterbrush = 0.05, "
+                "mountain_mahogany = 0.05, rabbitbrush = 0.05, serviceberry = 0.05, "
+                "juniper = 0.05, aspen_twigs = 0.05 }",
+            ),
+        ),
         r"Total NCC",
         exit_code=0,
         verify=same_as_reference,
@@ -1019,12 +1038,12 @@ CASES = [
     Case(
         "project: arrays nested 5,000 deep",
         append_text("project.toml", "x = " + "[" * 5000 + "]" * 5000),
-        r"project\.toml: line 46: arrays or inline tables nested too deeply to read",
+        r"project\.toml: line 52: arrays or inline tables nested too deeply to read",
     ),
     Case(
         "project: inline tables nested 3,000 deep",
         append_text("project.toml", "x = " + "{a=" * 3000 + "1" + "}" * 3000),
-        r"project\.toml: line 46: arrays or inline tables nested too deeply to read",
+        r"project\.toml: line 52: arrays or inline tables nested too deeply to read",
     ),
     Case(
         "project: input is a symbolic link to itself",
@@ -1597,5 +1616,103 @@ CASES = [
         r"'Nowhere Flat'",
         exit_code=0,
         verify=same_as_reference,
+    ),
+    # issue 16: other herbivores and diet limits
+    Case(
+        "other herbivores: a unit the units layer lacks",
+        set_cell("cattle_permit.csv", 3, "unit_id", "Nowhere"),
+        r"cattle_permit\.csv: row 3, column 'unit_id': unit 'Nowhere' is not in the units layer",
+    ),
+    Case(
+        "other herbivores: negative AUMs",
+        set_cell("cattle_permit.csv", 2, "aums", "-40"),
+        r"cattle_permit\.csv: row 2, column 'aums': value out of range",
+    ),
+    Case(
+        "other herbivores: a unit twice in the numbers table",
+        copy_row("cattle_permit.csv", 2),
+        r"cattle_permit\.csv: row 4.*'unit_id'",
+    ),
+    Case(
+        "other herbivores: both animals and AUMs in the numbers table",
+        edit_csv("cattle_permit.csv", lambda table: table.assign(animals=10)),
+        r"cattle_permit\.csv: row 1 \(header\): a herd numbers table needs one numbers column",
+    ),
+    Case(
+        "other herbivores: unknown class in the preference",
+        replace_text("project.toml", "{ grass = 1.0,", "{ grasss = 1.0,"),
+        r"project\.toml: key 'other_herbivores\.0\.preference\.grasss': unknown forage class "
+        r"or growth form 'grasss'",
+    ),
+    Case(
+        "other herbivores: a negative preference",
+        replace_text("project.toml", "browse = 0.05 }", "browse = -0.05 }"),
+        r"project\.toml: 1 problem: key 'other_herbivores\.0': preference 'browse' must lie "
+        r"between 0 and 1000 \(found -0\.05\)",
+    ),
+    Case(
+        "other herbivores: AUMs with a body mass",
+        replace_text(
+            "project.toml", 'timing = "before"\n', 'timing = "before"\nbody_mass_kg = 500\n'
+        ),
+        r"project\.toml: key 'other_herbivores\.0\.body_mass_kg': numbers in AUMs are forage "
+        r"already",
+    ),
+    Case(
+        "other herbivores: head counts without days on the range",
+        steps(
+            edit_csv("cattle_permit.csv", lambda table: table.rename(columns={"aums": "animals"})),
+            replace_text(
+                "project.toml", 'timing = "before"\n', 'timing = "before"\nbody_mass_kg = 500\n'
+            ),
+        ),
+        r"project\.toml: key 'other_herbivores\.0\.days': missing days",
+    ),
+    Case(
+        "other herbivores: a units-layer column that is not there",
+        replace_text(
+            "project.toml",
+            'numbers_table = "cattle_permit.csv"',
+            'animals_column = "cattle_head"\nbody_mass_kg = 500\ndays = 90',
+        ),
+        r"units\.gpkg.*cattle_head",
+    ),
+    Case(
+        "other herbivores: negative head counts in the units layer",
+        steps(
+            edit_layer("units.gpkg", lambda units: units.assign(cattle_head=-3.0)),
+            replace_text(
+                "project.toml",
+                'numbers_table = "cattle_permit.csv"',
+                'animals_column = "cattle_head"\nbody_mass_kg = 500\ndays = 90',
+            ),
+        ),
+        r"units\.gpkg: feature .*units layer has a bad cattle_head",
+    ),
+    Case(
+        "other herbivores: numbers given twice",
+        replace_text(
+            "project.toml",
+            'numbers_table = "cattle_permit.csv"',
+            'numbers_table = "cattle_permit.csv"\naums_column = "current_animals"',
+        ),
+        r"project\.toml: 1 problem: key 'other_herbivores\.0': give exactly one of "
+        r"animals_column, aums_column, numbers_table",
+    ),
+    Case(
+        "other herbivores: unknown timing",
+        replace_text("project.toml", 'timing = "before"', 'timing = "after"'),
+        r"project\.toml: 1 problem: key 'other_herbivores\.0\.timing'",
+    ),
+    Case(
+        "other herbivores: a misspelt key",
+        replace_text("project.toml", "preference = {", "preferences = {"),
+        r"project\.toml: 1 problem: unknown key 'other_herbivores\.0\.preferences'; did you "
+        r"mean 'preference'\?",
+    ),
+    Case(
+        "other herbivores: the numbers table is missing",
+        lambda folder: (folder / "cattle_permit.csv").unlink(),
+        r"project\.toml: input file for key 'other_herbivores\.0\.numbers_table' does not exist",
     ),
 ]
