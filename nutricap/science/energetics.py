@@ -18,6 +18,9 @@ References
 ----------
 Kleiber, M. 1961. The Fire of Life: An Introduction to Animal Energetics. Wiley, New York.
 Robbins, C.T. 1993. Wildlife Feeding and Nutrition, 2nd ed. Academic Press, San Diego.
+National Research Council. 2007. Nutrient Requirements of Small Ruminants: Sheep, Goats,
+    Cervids, and New World Camelids. National Academies Press, Washington, DC (cervid
+    maintenance and growth coefficients; table notes read in a scanned copy).
 Hobbs, N.T. & Swift, D.M. 1985. Estimates of habitat carrying capacity incorporating
     explicit nutritional constraints. J. Wildl. Manage. 49:814-822.
 USDA NRCS. National Range and Pasture Handbook (animal unit, animal-unit month).
@@ -479,12 +482,13 @@ def daily_de_requirement_kcal_per_day(
 
     Notes
     -----
-    ``ME = m * 70 * W**0.75`` with ``m`` the state's ``bmr_multiplier`` (Robbins 1993);
-    ``DE = ME / 0.82`` (NRC).
+    ``ME = m * 70 * W**0.75`` with ``m`` the state's ``bmr_multiplier`` (each row's source
+    column says what was read: NRC 2007 cervid maintenance and the studies it names);
+    ``DE = ME / 0.82`` (NRC 1996).
 
     References
     ----------
-    Kleiber 1961; Robbins, C.T. 1993. Wildlife Feeding and Nutrition, 2nd ed.
+    Kleiber 1961; National Research Council 2007, Nutrient Requirements of Small Ruminants.
     """
     multiplier = state_parameters(state, season, table=table)["bmr_multiplier"]
     me = multiplier * basal_metabolic_rate_kcal_per_day(body_mass_kg)
@@ -525,7 +529,7 @@ def max_dry_matter_intake_kg_per_day(
     Notes
     -----
     ``I = i * W**0.75 / 1000`` with ``i`` the state's ``intake_g_per_kg075_per_day``
-    [g/(kg^0.75 day)] (values from memory / common practice, see the table's source column).
+    [g/(kg^0.75 day)] (mostly from memory: see the table's source column).
     """
     grams = _per_kg075(body_mass_kg, "intake_g_per_kg075_per_day", state, season, table)
     return grams / 1000.0
@@ -557,7 +561,7 @@ def daily_dp_requirement_g_per_day(
     Notes
     -----
     ``DP = p * W**0.75`` with ``p`` the state's ``dp_g_per_kg075_per_day``
-    [g/(kg^0.75 day)] (values from memory, see the table's source column).
+    [g/(kg^0.75 day)] (see the table's source column for what was read).
     """
     return _per_kg075(body_mass_kg, "dp_g_per_kg075_per_day", state, season, table)
 
