@@ -7,7 +7,8 @@ Writing files is left to :mod:`nutricap.report.tables`.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
@@ -65,7 +66,7 @@ from nutricap.model.uncertainty import (
     one_at_a_time,
 )
 from nutricap.model.use import assess_use, current_animals_from_counts
-from nutricap.report.bundle import write_estimate
+from nutricap.report.bundle import ReportPreload, write_estimate
 from nutricap.report.manifest import BackgroundChecksums
 from nutricap.report.output_folder import check_output_folder, staged_folder
 from nutricap.report.tables import write_csv
@@ -422,11 +423,24 @@ def run_estimate(
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
     checksums = checksums or BackgroundChecksums(project.files())
-    result = estimate(project, progress)
+    with _report_preload(project, report):
+        result = estimate(project, progress)
     say(f"writing outputs to {out}")
     with staged_folder(out, overwrite=overwrite) as staging:
         write_estimate(result, project, staging, report=report, checksums=checksums)
     return result
+
+
+@contextmanager
+def _report_preload(project: Project, report: bool) -> Iterator[None]:
+    """Import the report's modules beside the estimate of a raster project (its first pass
+    leaves the GIL free most of the time); nothing for a run without report or grid."""
+    preload = ReportPreload() if report and on_grid(project) else None
+    try:
+        yield
+    finally:
+        if preload is not None:
+            preload.wait()
 
 
 def compare(project: Project, scenario_name: str, progress: Progress | None = None):
@@ -523,7 +537,8 @@ def run_compare(
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
     checksums = checksums or BackgroundChecksums(project.files())
-    result, table = compare(project, scenario_name, progress)
+    with _report_preload(project, report):
+        result, table = compare(project, scenario_name, progress)
     say(f"writing outputs to {out}")
     with staged_folder(out, overwrite=overwrite) as staging:
         write_estimate(
