@@ -677,3 +677,19 @@ def test_figure_labels_are_plain_text(plain_estimate):
         figures.figure_png(figure)
     labels = [label.get_text() for label in figure.axes[0].get_yticklabels()]
     assert "\\x1b[2J \\$\\frac{1}\\$" in labels
+
+
+def test_report_preload_imports_the_report_and_restores_the_gil_turn():
+    import sys
+
+    from nutricap.report.bundle import REPORT_MODULES, ReportPreload
+
+    before = sys.getswitchinterval()
+    sys.setswitchinterval(0.004)
+    try:
+        preload = ReportPreload(switch_interval_s=0.0003)
+        preload.wait()
+        assert sys.getswitchinterval() == pytest.approx(0.004)  # set back by the thread
+        assert all(name in sys.modules for name in REPORT_MODULES)
+    finally:
+        sys.setswitchinterval(before)

@@ -52,18 +52,18 @@ class ReportPreload:
         )
         self._thread.start()
 
-    @staticmethod
-    def _run() -> None:
-        for name in REPORT_MODULES:
-            try:
+    def _run(self) -> None:
+        try:
+            for name in REPORT_MODULES:
                 importlib.import_module(name)
-            except Exception:  # raised again by the report's own import
-                return
+        except Exception:  # raised again by the report's own import
+            pass
+        finally:
+            sys.setswitchinterval(self._before)
 
     def wait(self) -> None:
-        """Wait for the import to end and restore the GIL turn."""
+        """Wait for the import to end (the GIL turn is back to what it was)."""
         self._thread.join()
-        sys.setswitchinterval(self._before)
 
 
 def write_estimate(
