@@ -99,12 +99,14 @@ def estimate(
     *,
     inputs: Inputs | None = None,
     treatments: gpd.GeoDataFrame | None = None,
+    streaming_started: Callable[[], None] | None = None,
 ) -> Estimate:
     """Run the whole estimate for ``project`` and return the results (nothing is written).
 
     supply → availability → pool by unit → solve → uncertainty → current use. ``inputs``
     may be read already; ``treatments`` (raster projects only) are a scenario's polygons,
-    whose cells' sums the grid pass then also gives (``result.grid.treated``).
+    whose cells' sums the grid pass then also gives (``result.grid.treated``);
+    ``streaming_started`` (raster projects only) is called as the grid's first pass starts.
     """
     say = progress or (lambda message: None)
     days = project.config.project.days
@@ -120,6 +122,7 @@ def estimate(
             project.config.pooling.mode,
             progress,
             treatments,
+            streaming_started,
         )
         areas, supply, problem = grid.areas, grid.supply, grid.problem
     else:
@@ -423,8 +426,8 @@ def run_estimate(
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
     checksums = checksums or BackgroundChecksums(project.files())
-    with _report_preload(project, report):
-        result = estimate(project, progress)
+    with _report_preload(project, report) as started:
+        result = estimate(project, progress, streaming_started=started)
     say(f"writing outputs to {out}")
     with staged_folder(out, overwrite=overwrite) as staging:
         write_estimate(result, project, staging, report=report, checksums=checksums)
@@ -432,19 +435,27 @@ def run_estimate(
 
 
 @contextmanager
-def _report_preload(project: Project, report: bool) -> Iterator[None]:
-    """Import the report's modules beside the estimate of a raster project (its first pass
-    leaves the GIL free most of the time); nothing for a run without report or grid."""
-    preload = ReportPreload() if report and on_grid(project) else None
+def _report_preload(project: Project, report: bool) -> Iterator[Callable[[], None] | None]:
+    """What starts the import of the report's modules once the grid's first pass runs (its
+    workers leave the GIL free most of the time); None for a run without report or grid."""
+    if not (report and on_grid(project)):
+        yield None
+        return
+    preload = ReportPreload()
     try:
-        yield
+        yield preload.start
     finally:
-        if preload is not None:
-            preload.wait()
+        preload.wait()
 
 
-def compare(project: Project, scenario_name: str, progress: Progress | None = None):
-    """Baseline estimate and a treatment scenario over its years.
+def compare(
+    project: Project,
+    scenario_name: str,
+    progress: Progress | None = None,
+    streaming_started: Callable[[], None] | None = None,
+):
+    """Baseline estimate and a treatment scenario over its years (``streaming_started`` as
+    in :func:`estimate`).
 
     Returns ``(estimate, scenario_table)``; the table has ``unit_id, scenario, year,
     years_since_treatment, ncc_animals_baseline, ncc_animals_scenario, change_animals``
@@ -452,7 +463,7 @@ def compare(project: Project, scenario_name: str, progress: Progress | None = No
     """
     say = progress or (lambda message: None)
     if on_grid(project):
-        return _compare_on_grid(project, scenario_name, say, progress)
+        return _compare_on_grid(project, scenario_name, say, progress, streaming_started)
     result = estimate(project, progress)
     scenario = load_scenario(project, scenario_name, result.areas, result.supply.strata)
     section = scenario.section
@@ -467,7 +478,7 @@ def compare(project: Project, scenario_name: str, progress: Progress | None = No
     return result, pd.concat(frames, ignore_index=True)
 
 
-def _compare_on_grid(project: Project, scenario_name: str, say: Progress, progress):
+def _compare_on_grid(project: Project, scenario_name: str, say: Progress, progress, started):
     """:func:`compare` on a raster project: the treatment polygons burnt in the one pass."""
     inputs = read_inputs(project, say)
     if inputs.strata is not None:
@@ -475,7 +486,9 @@ def _compare_on_grid(project: Project, scenario_name: str, say: Progress, progre
     else:
         strata = read_strata_codes(project.input_paths()["rasters.strata.codes"]).strata
     section, treatments, responses = read_scenario(project, scenario_name, strata)
-    result = estimate(project, progress, inputs=inputs, treatments=treatments)
+    result = estimate(
+        project, progress, inputs=inputs, treatments=treatments, streaming_started=started
+    )
     scenario = GridScenario(scenario_name, section, treatments, responses)
     say(f"scenario {scenario_name!r} on the grid: {section.first_year}–{section.last_year}")
     mode = project.config.pooling.mode
@@ -537,8 +550,8 @@ def run_compare(
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
     checksums = checksums or BackgroundChecksums(project.files())
-    with _report_preload(project, report):
-        result, table = compare(project, scenario_name, progress)
+    with _report_preload(project, report) as started:
+        result, table = compare(project, scenario_name, progress, streaming_started=started)
     say(f"writing outputs to {out}")
     with staged_folder(out, overwrite=overwrite) as staging:
         write_estimate(

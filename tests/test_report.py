@@ -688,6 +688,10 @@ def test_report_preload_imports_the_report_and_restores_the_gil_turn():
     sys.setswitchinterval(0.004)
     try:
         preload = ReportPreload(switch_interval_s=0.0003)
+        preload.wait()  # not started: returns at once
+        assert sys.getswitchinterval() == pytest.approx(0.004)
+        preload.start()
+        preload.start()  # a second call does nothing
         preload.wait()
         assert sys.getswitchinterval() == pytest.approx(0.004)  # set back by the thread
         assert all(name in sys.modules for name in REPORT_MODULES)

@@ -36,21 +36,27 @@ REPORT_MODULES = ("nutricap.report.html",)
 class ReportPreload:
     """Imports the report's modules (:data:`REPORT_MODULES`) in a background thread.
 
-    Started before the grid's first pass: its worker threads spend their time in GDAL and
-    numpy with the GIL released, so the import (Python code, about 0.7 s of one core) moves
-    off the critical path of the report. While it runs, a thread waiting for the GIL gets it
-    within ``switch_interval_s`` (Python's default turn of 5 ms would stall the workers at
-    each numpy call). An import that fails here fails again, with its message, where the
-    report imports the module.
+    Started (:meth:`start`) as the grid's first pass starts: its worker threads spend their
+    time in GDAL and numpy with the GIL released, so the import (Python code, about 0.7 s of
+    one core) moves off the critical path of the report. While it runs, a thread waiting for
+    the GIL gets it within ``switch_interval_s`` (Python's default turn of 5 ms would stall
+    the workers at each numpy call). An import that fails here fails again, with its message,
+    where the report imports the module.
     """
 
     def __init__(self, switch_interval_s: float = GIL_TURN_S) -> None:
+        self.switch_interval_s = switch_interval_s
         self._before = sys.getswitchinterval()
-        sys.setswitchinterval(switch_interval_s)
         self._thread = threading.Thread(
             target=self._run, name="nutricap-report-import", daemon=True
         )
-        self._thread.start()
+
+    def start(self) -> None:
+        """Start the import (once; later calls do nothing)."""
+        if self._thread.ident is None:
+            self._before = sys.getswitchinterval()
+            sys.setswitchinterval(self.switch_interval_s)
+            self._thread.start()
 
     def _run(self) -> None:
         try:
@@ -62,8 +68,9 @@ class ReportPreload:
             sys.setswitchinterval(self._before)
 
     def wait(self) -> None:
-        """Wait for the import to end (the GIL turn is back to what it was)."""
-        self._thread.join()
+        """Wait for the import to end, if started (the GIL turn is then back to what it was)."""
+        if self._thread.ident is not None:
+            self._thread.join()
 
 
 def write_estimate(
