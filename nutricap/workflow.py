@@ -7,7 +7,8 @@ Writing files is left to :mod:`nutricap.report.tables`.
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
@@ -76,7 +77,7 @@ from nutricap.model.uncertainty import (
     one_at_a_time,
 )
 from nutricap.model.use import assess_use, current_animals_from_counts, unmatched_counts_notes
-from nutricap.report.bundle import write_estimate
+from nutricap.report.bundle import ReportPreload, write_estimate
 from nutricap.report.manifest import BackgroundChecksums
 from nutricap.report.output_folder import check_output_folder, staged_folder
 from nutricap.report.tables import write_csv
@@ -110,12 +111,14 @@ def estimate(
     *,
     inputs: Inputs | None = None,
     treatments: gpd.GeoDataFrame | None = None,
+    streaming_started: Callable[[], None] | None = None,
 ) -> Estimate:
     """Run the whole estimate for ``project`` and return the results (nothing is written).
 
     supply → availability → pool by unit → solve → uncertainty → current use. ``inputs``
     may be read already; ``treatments`` (raster projects only) are a scenario's polygons,
-    whose cells' sums the grid pass then also gives (``result.grid.treated``).
+    whose cells' sums the grid pass then also gives (``result.grid.treated``);
+    ``streaming_started`` (raster projects only) is called as the grid's first pass starts.
     """
     say = progress or (lambda message: None)
     days = project.config.project.days
@@ -131,6 +134,7 @@ def estimate(
             project.config.pooling.mode,
             progress,
             treatments,
+            streaming_started,
         )
         areas, supply, problem = grid.areas, grid.supply, grid.problem
     else:
@@ -505,7 +509,8 @@ def run_estimate(
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
     checksums = checksums or BackgroundChecksums(project.files())
-    result = estimate(project, progress)
+    with _report_preload(project, report) as started:
+        result = estimate(project, progress, streaming_started=started)
     say(f"writing outputs to {out}")
     with staged_folder(out, overwrite=overwrite) as staging:
         write_estimate(
@@ -520,25 +525,50 @@ def run_estimate(
     return result
 
 
-def compare(project: Project, scenario_name: str | Sequence[str], progress: Progress | None = None):
-    """Baseline estimate and one or more treatment scenarios over their years.
+@contextmanager
+def _report_preload(project: Project, report: bool) -> Iterator[Callable[[], None] | None]:
+    """What starts the import of the report's modules once the grid's first pass runs (its
+    workers leave the GIL free most of the time); None for a run without report or grid."""
+    if not (report and on_grid(project)):
+        yield None
+        return
+    preload = ReportPreload()
+    try:
+        yield preload.start
+    finally:
+        preload.wait()
+
+
+def compare(
+    project: Project,
+    scenario_name: str | Sequence[str],
+    progress: Progress | None = None,
+    streaming_started: Callable[[], None] | None = None,
+):
+    """Baseline estimate and one or more treatment scenarios over their years
+    (``streaming_started`` as in :func:`estimate`).
 
     Returns ``(estimate, scenario_table)``; the table has ``unit_id, scenario, year,
     years_since_treatment, ncc_animals_baseline, ncc_animals_scenario, change_animals``
     and the same pair for ECC and allowable-use capacity (see :func:`compare_scenarios`).
     """
-    result, table, _scenarios = compare_scenarios(project, scenario_name, progress)
+    result, table, _scenarios = compare_scenarios(
+        project, scenario_name, progress, streaming_started
+    )
     return result, table
 
 
 def compare_scenarios(
-    project: Project, names: str | Sequence[str], progress: Progress | None = None
+    project: Project,
+    names: str | Sequence[str],
+    progress: Progress | None = None,
+    streaming_started: Callable[[], None] | None = None,
 ) -> tuple[Estimate, pd.DataFrame, list[Scenario]]:
     """:func:`compare` for each named scenario, with the scenarios read (for the report)."""
     say = progress or (lambda message: None)
     names = [names] if isinstance(names, str) else list(dict.fromkeys(names))
     if on_grid(project):
-        return _compare_on_grid(project, names, say, progress)
+        return _compare_on_grid(project, names, say, progress, streaming_started)
     result = estimate(project, progress)
     scenarios = [load_scenario(project, name, result.areas, result.supply.strata) for name in names]
     mode = project.config.pooling.mode
@@ -554,9 +584,10 @@ def compare_scenarios(
     return result, pd.concat(frames, ignore_index=True), scenarios
 
 
-def _compare_on_grid(project: Project, names: list[str], say: Progress, progress):
+def _compare_on_grid(project: Project, names: list[str], say: Progress, progress, started):
     """:func:`compare_scenarios` on a raster project: each scenario's treatment polygons burnt
-    in one streamed pass (the baseline of every pass is the same estimate)."""
+    in one streamed pass (the baseline of every pass is the same estimate); ``started`` is
+    called when the first pass starts streaming."""
     inputs = read_inputs(project, say)
     if inputs.strata is not None:
         strata = sorted(inputs.strata["stratum"].unique())
@@ -566,8 +597,15 @@ def _compare_on_grid(project: Project, names: list[str], say: Progress, progress
     frames, scenarios, result = [], [], None
     for name in names:
         section, treatments, responses = read_scenario(project, name, strata)
-        run = estimate(project, progress, inputs=inputs, treatments=treatments)
-        result = result or run
+        first = result is None
+        run = estimate(
+            project,
+            progress,
+            inputs=inputs,
+            treatments=treatments,
+            streaming_started=started if first else None,
+        )
+        result = run if first else result
         scenario = GridScenario(name, section, treatments, responses)
         say(f"scenario {name!r} on the grid: {section.first_year}–{section.last_year}")
         for year in range(section.first_year, section.last_year + 1):
@@ -631,7 +669,10 @@ def run_compare(
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
     checksums = checksums or BackgroundChecksums(project.files())
-    result, table, scenarios = compare_scenarios(project, scenario_name, progress)
+    with _report_preload(project, report) as started:
+        result, table, scenarios = compare_scenarios(
+            project, scenario_name, progress, streaming_started=started
+        )
     say(f"writing outputs to {out}")
     with staged_folder(out, overwrite=overwrite) as staging:
         write_estimate(

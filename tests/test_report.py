@@ -883,3 +883,23 @@ def test_figure_files_for_a_report_author(example_estimate, project, manifest, t
         assert (x, y, unit) == (11811, 11811, 1), name
         root = ElementTree.parse(tmp_path / "figures" / f"{name}.svg").getroot()
         assert root.tag == "{http://www.w3.org/2000/svg}svg"
+
+
+def test_report_preload_imports_the_report_and_restores_the_gil_turn():
+    import sys
+
+    from nutricap.report.bundle import REPORT_MODULES, ReportPreload
+
+    before = sys.getswitchinterval()
+    sys.setswitchinterval(0.004)
+    try:
+        preload = ReportPreload(switch_interval_s=0.0003)
+        preload.wait()  # not started: returns at once
+        assert sys.getswitchinterval() == pytest.approx(0.004)
+        preload.start()
+        preload.start()  # a second call does nothing
+        preload.wait()
+        assert sys.getswitchinterval() == pytest.approx(0.004)  # set back by the thread
+        assert all(name in sys.modules for name in REPORT_MODULES)
+    finally:
+        sys.setswitchinterval(before)

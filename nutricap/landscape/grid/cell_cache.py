@@ -9,6 +9,7 @@ The worker threads write their own chunks at offsets known in advance (``os.pwri
 
 from __future__ import annotations
 
+import mmap
 import os
 import shutil
 import tempfile
@@ -62,31 +63,31 @@ class CellCache:
     def records(self) -> Iterator[tuple[Window, np.ndarray, np.ndarray]]:
         """Yield each window with its cells' keys (cells,) and forage left (classes, cells).
 
-        The arrays share one buffer: they are valid until the next window is yielded.
+        The arrays are views of the file mapped into memory (no copy), one window at a time:
+        a window's mapping is released when its arrays are no longer referenced, so memory
+        does not grow with the raster.
         """
         n_classes = self.n_classes
-        buffer = bytearray(int(4 * self.cells.max(initial=0) * (1 + n_classes)))
         with open(self.path, "rb", buffering=0) as stream:
-            for window in self.windows:
-                n = int(window.height) * int(window.width)
-                record = memoryview(buffer)[: 4 * n * (1 + n_classes)]
-                _read_into(stream, record, self.path)
-                keys = np.frombuffer(record, dtype=np.int32, count=n)
-                kg = np.frombuffer(record, dtype=np.float32, offset=4 * n)
-                yield window, keys, kg.reshape(n_classes, n)
+            size = os.fstat(stream.fileno()).st_size
+            for window, offset, n in zip(self.windows, self.offsets, self.cells):
+                start = int(offset) - int(offset) % mmap.ALLOCATIONGRANULARITY
+                end = int(offset) + 4 * int(n) * (1 + n_classes)
+                if end > size:
+                    raise OSError(f"temporary cell file {self.path} is shorter than expected")
+                mapped = mmap.mmap(
+                    stream.fileno(), end - start, offset=start, access=mmap.ACCESS_READ
+                )
+                at = int(offset) - start
+                keys = np.frombuffer(mapped, dtype=np.int32, count=int(n), offset=at)
+                kg = np.frombuffer(
+                    mapped, dtype=np.float32, count=int(n) * n_classes, offset=at + 4 * int(n)
+                )
+                del mapped  # unmapped with the last array that views it
+                yield window, keys, kg.reshape(n_classes, int(n))
 
     def remove(self) -> None:
         self._finalizer()
-
-
-def _read_into(stream, record: memoryview, path: Path) -> None:
-    """Fill ``record`` from an unbuffered binary stream (a read may return fewer bytes)."""
-    filled = 0
-    while filled < len(record):
-        count = stream.readinto(record[filled:])
-        if not count:
-            raise OSError(f"temporary cell file {path} is shorter than expected")
-        filled += count
 
 
 def _write_at(fd: int, array: np.ndarray, offset: int) -> None:

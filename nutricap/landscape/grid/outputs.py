@@ -30,6 +30,8 @@ if TYPE_CHECKING:
 DENSITY_NODATA = -9999.0
 COMPRESSION_LEVEL = {"zstd": {"zstd_level": 1}, "deflate": {"zlevel": 1}}
 """Fast levels for capacity_density.tif: float noise compresses little better at high levels."""
+DENSITY_CHUNK_CELLS = 65_536
+"""Cells computed at a time in the density pass (its arrays stay in the CPU cache)."""
 GIL_TURN_S = 0.0002
 """Longest wait of a thread for the GIL while the density pass runs beside the report [s]."""
 
@@ -59,18 +61,30 @@ def window_density(keys, kg_per_ha, per_class, dump: int, out: np.ndarray, scrat
     at ``dump``.
 
     Whole windows at a time, so that the thread computing it seldom needs the GIL (the
-    report is drawn in the main thread meanwhile).
+    report is drawn in the main thread meanwhile); within the window, in runs of
+    :data:`DENSITY_CHUNK_CELLS` cells, so that each step's arrays stay in the CPU cache.
     """
-    index = scratch.take("key index", keys.shape, np.intp)
+    size = keys.size
+    step = min(DENSITY_CHUNK_CELLS, size)
+    index = scratch.take("key index", (step,), np.intp)
+    term = scratch.take("term", (step,), np.float32)
+    for first in range(0, size, step):
+        part = slice(first, min(first + step, size))
+        n = part.stop - first
+        _chunk_density(
+            keys[part], kg_per_ha[:, part], per_class, dump, out[part], index[:n], term[:n]
+        )
+    return out
+
+
+def _chunk_density(keys, kg_per_ha, per_class, dump, out, index, term) -> None:
     np.copyto(index, keys, casting="safe")
-    term = scratch.take("term", keys.shape, np.float32)
     out.fill(np.float32(0.0))
     for column in range(per_class.shape[0]):
         np.take(per_class[column], index, out=term)
         term *= kg_per_ha[column]
         out += term
     out[keys == dump] = DENSITY_NODATA
-    return out
 
 
 def write_capacity_density(

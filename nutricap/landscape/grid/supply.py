@@ -174,6 +174,7 @@ def grid_problem(
     mode: str,
     progress: Progress | None = None,
     treatments: gpd.GeoDataFrame | None = None,
+    streaming_started: Callable[[], None] | None = None,
 ) -> GridResult:
     """Build the capacity problem from the rasters and availability rules of ``project``.
 
@@ -195,6 +196,8 @@ def grid_problem(
     treatments : GeoDataFrame, optional
         A scenario's treatment polygons: burnt as one more part of the key, so that the
         same pass also gives the treated cells' sums (:class:`TreatedSums`).
+    streaming_started : callable, optional
+        Called (without arguments) as the first pass starts, after every layer was checked.
     """
     say = progress or (lambda message: None)
     specs = layer_specs(project)
@@ -253,7 +256,7 @@ def grid_problem(
     burners = shape_burners(units, strata_source, project, grid, treatments)
     lookup = None if strata_source.codes is None else strata_source.codes.polygon_lookup()
     job = new_job(setup, specs, grid, resample, windows, burners, lookup)
-    cache, cluster, resampled = _first_pass(project, job, totals, say, show)
+    cache, cluster, resampled = _first_pass(project, job, totals, say, show, streaming_started)
     result = _assemble(
         project, setup, totals, grid, supply, units_table, (area_crs, reason), mode,
         forage_classes, calibration_report, specs, resampled, windows, cache, show,
@@ -276,7 +279,7 @@ def _treated(totals: Totals, pairs, setup: GridSetup, grid: Grid) -> TreatedSums
     )
 
 
-def _first_pass(project, job: WindowJob, totals: Totals, say: Progress, show: bool):
+def _first_pass(project, job: WindowJob, totals: Totals, say: Progress, show: bool, started=None):
     """Every window into ``totals``: on this machine's threads (keeping the cells for the
     density pass in a :class:`CellCache`) or on the Dask cluster of ``[rasters]
     dask_scheduler``. Returns (cache or None, cluster run or None, resampling by layer key).
@@ -286,6 +289,8 @@ def _first_pass(project, job: WindowJob, totals: Totals, say: Progress, show: bo
     cells, count = job.grid.cells, len(job.windows)
     cache, cluster = None, None
     with streaming_env(), LayerStack(job.specs, job.grid, job.resample) as stack:  # checks all
+        if started is not None:
+            started()
         if address is None:
             say(f"streaming {cells:,} cells in {count} windows")
             cache = CellCache(job.windows, job.setup.n_classes)
