@@ -823,13 +823,24 @@ def test_values_to_verify_box_and_replaceable_tables(example_html):
     assert "[availability] slope_table" in text and "water_table" in text
 
 
-def test_intake_limit_is_labelled_as_an_unreachable_diet(plain_estimate, project, manifest):
+@pytest.mark.parametrize(
+    ("factor", "label"),
+    [
+        ("intake", "target diet unreachable"),
+        ("diet_mix", "diet limits unreachable"),
+        ("diet_share", "<td>one class&#39;s diet-share cap</td>"),
+        ("protein+diet_group", "<td>protein + a diet group&#39;s share</td>"),
+        ("energy+diet_share+diet_group", "energy + one class&#39;s diet-share cap + a diet group"),
+        ("energy+protein", "<td>energy+protein</td>"),
+    ],
+)
+def test_limiting_factors_are_labelled_in_words(plain_estimate, project, manifest, factor, label):
     table = plain_estimate.by_unit.copy()
-    table.loc[table.index[0], "limiting_factor"] = "intake"  # invented for the test
+    table.loc[table.index[0], "limiting_factor"] = factor  # invented for the test
     estimate = dataclasses.replace(plain_estimate, by_unit=table)
     html = render_report(estimate, project=project, manifest=manifest)
     units = re.search(r'<section id="units">(.*?)</section>', html, re.DOTALL).group(1)
-    assert "target diet unreachable" in units
+    assert label in units
 
 
 def test_current_numbers_say_where_they_come_from(example_html, example_estimate):

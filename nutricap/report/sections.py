@@ -311,15 +311,26 @@ UNIT_COLUMNS = [
 
 LIMITING_LABELS = {
     "intake": "target diet unreachable (no forage mix meets it within intake)",
+    "diet_mix": "diet limits unreachable (no forage mix meets the target diet within the "
+    "diet-composition limits)",
 }
 """Report labels of ``limiting_factor`` values whose CSV word alone would mislead."""
+COMPOSITION_WORDS = {
+    "diet_share": "one class's diet-share cap",
+    "diet_group": "a diet group's share",
+}
+"""Words for the diet-composition parts of a binding ``limiting_factor`` ("protein+diet_group")."""
 
 
 def limiting_label(value: Any) -> str:
     """The report's label of a ``limiting_factor`` value (the CSV keeps the value itself)."""
     if is_missing(value):
         return "–"
-    return LIMITING_LABELS.get(str(value), str(value))
+    text = str(value)
+    parts = text.split("+")
+    if text in LIMITING_LABELS or not COMPOSITION_WORDS.keys() & set(parts):
+        return LIMITING_LABELS.get(text, text)
+    return " + ".join(COMPOSITION_WORDS.get(part, part) for part in parts)
 
 
 #: Columns summed in the total row (additive over units; intervals and rates are not).
