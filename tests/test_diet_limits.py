@@ -240,3 +240,22 @@ def test_unmeetable_mix_gives_zero_and_a_note(project):
         and f"in unit(s) {units}: their NCC is 0 (limiting factor 'diet_mix')" in note
         for note in result.notes
     ), result.notes
+
+
+@needs_solver
+def test_sensitivity_moves_the_diet_limits_like_the_project_file(example_estimate, project):
+    # The tornado's diet-limit group at ± the example's 10 % change equals total NCC of the
+    # example re-run with the sagebrush cap written as 0.28 × 0.9 and 0.28 × 1.1 in the
+    # project file (the example's cap, invented for the example); loosening never lowers NCC.
+    row = example_estimate.uncertainty.sensitivity.set_index("input").loc[
+        "diet-composition limits (every share bound)"
+    ]
+    base = example_estimate.by_unit["ncc_animals"].sum()
+    text = project.read_text().replace("bootstrap_replicates = 1000", "bootstrap_replicates = 0")
+    moved = {}
+    for name, factor in (("low", 0.9), ("high", 1.1)):
+        project.write_text(text.replace("max_share = 0.28", f"max_share = {0.28 * factor!r}"))
+        moved[name] = estimate(load_project(project)).by_unit["ncc_animals"].sum() - base
+    assert row["low_change_animals"] == pytest.approx(moved["low"], rel=1e-9)
+    assert row["high_change_animals"] == pytest.approx(moved["high"], rel=1e-9)
+    assert moved["low"] < 0 < moved["high"]
