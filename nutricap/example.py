@@ -166,6 +166,15 @@ timing = "before"
 preference = { grass = 1.0, forb = 0.3, browse = 0.05 }
 """
 
+# A cap on one browse class in the deer's diet, set so that it binds where big sagebrush is
+# plentiful (Coldmarrow, Petrelhollow) and nowhere else; invented for the example.
+DIET_TOML = """
+# Diet-composition limit, invented for the example: big sagebrush at most 28 % of the diet.
+[diet.groups.sagebrush]
+classes = ["big_sagebrush"]
+max_share = 0.28
+"""
+
 PROJECT_TOML = f"""\
 # Example project, invented for the example: no real place, herd or data set.
 [project]
@@ -198,7 +207,7 @@ bootstrap_replicates = 1000
 interval_level = 0.9
 seed = 20261201
 sensitivity_change = 0.1
-{OTHER_HERBIVORES_TOML}"""
+{OTHER_HERBIVORES_TOML}{DIET_TOML}"""
 
 
 RASTER_CELL_M = 50.0

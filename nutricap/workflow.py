@@ -322,12 +322,19 @@ def sensitivity_table(
     days = project.config.project.days
 
     def total_for(
-        problem=problem, herd=herd, de_factor=1.0, dp_factor=1.0, others_factor=1.0
+        problem=problem,
+        herd=herd,
+        de_factor=1.0,
+        dp_factor=1.0,
+        others_factor=1.0,
+        diet_factor=1.0,
     ) -> float:
+        composition = target.composition
         moved = replace(
             target,
             de_min_kcal_per_g=target.de_min_kcal_per_g * de_factor,
             dp_min_pct=None if target.dp_min_pct is None else target.dp_min_pct * dp_factor,
+            composition=None if composition is None else composition.scaled(diet_factor),
         )
         others = tuple(other.scaled(others_factor) for other in inputs.other_herds)
         return float(solve(problem, herd, moved, project, others).ncc.animal_days.sum() / days)
@@ -343,6 +350,7 @@ def sensitivity_table(
         herd_for_mass,
         protein=target.dp_min_pct is not None,
         other_herds=bool(inputs.other_herds),
+        diet_groups=target.composition is not None and bool(target.composition.groups),
     )
     change = project.config.uncertainty.sensitivity_change
     return one_at_a_time(total_for(), groups, change)

@@ -15,6 +15,7 @@ from scipy.optimize import linprog
 from test_shared_range import items
 
 from nutricap.errors import ProjectFileError
+from nutricap.example import DIET_TOML
 from nutricap.inputs.project import load_project
 from nutricap.model.problem import (
     CapacityProblem,
@@ -41,7 +42,14 @@ def add_diet(project, text: str) -> None:
         file.write("\n" + text)
 
 
+def without_example_diet(project) -> None:
+    text = project.read_text(encoding="utf-8")
+    assert DIET_TOML in text
+    project.write_text(text.replace(DIET_TOML, ""), encoding="utf-8")
+
+
 def test_groups_by_growth_form_and_by_classes(project):
+    without_example_diet(project)
     add_diet(
         project,
         '[diet.groups.grasses]\ngrowth_form = "grass"\nmin_share = 0.2\n'
@@ -209,3 +217,45 @@ def test_example_with_limits_meets_them_and_never_gains(example_estimate, projec
     before = example_estimate.by_unit.set_index("unit_id")["ncc_animals"]
     after = limited.by_unit.set_index("unit_id")["ncc_animals"]
     assert (after <= before * (1 + 1e-9)).all()
+
+
+@needs_solver
+def test_unmeetable_mix_gives_zero_and_a_note(project):
+    # Grass at least 90 % of the diet: the richest such diet is 0.9 × the best grass DE +
+    # 0.1 × the best other DE, below the target DE (checked here), so no diet meets both the
+    # threshold and the group (hand argument); without the group the example has capacity.
+    add_diet(project, '[diet.groups.grasses]\ngrowth_form = "grass"\nmin_share = 0.9\n')
+    text = project.read_text().replace("bootstrap_replicates = 1000", "bootstrap_replicates = 0")
+    project.write_text(text)
+    result = estimate(load_project(project))
+    items = result.problem.items
+    grass = items.growth_form == "grass"
+    best_mix = 0.9 * items.de_kcal_per_g[grass].max() + 0.1 * items.de_kcal_per_g[~grass].max()
+    assert best_mix < result.target.de_min_kcal_per_g
+    assert (result.by_unit["ncc_animal_days"] == 0).all()
+    assert (result.by_unit["limiting_factor"] == "diet_mix").all()
+    units = ", ".join(result.by_unit["unit_id"])
+    assert any(
+        note.startswith("no mix of the available forage meets both the target diet and the ")
+        and f"in unit(s) {units}: their NCC is 0 (limiting factor 'diet_mix')" in note
+        for note in result.notes
+    ), result.notes
+
+
+@needs_solver
+def test_sensitivity_moves_the_diet_limits_like_the_project_file(example_estimate, project):
+    # The tornado's diet-limit group at ± the example's 10 % change equals total NCC of the
+    # example re-run with the sagebrush cap written as 0.28 × 0.9 and 0.28 × 1.1 in the
+    # project file (the example's cap, invented for the example); loosening never lowers NCC.
+    row = example_estimate.uncertainty.sensitivity.set_index("input").loc[
+        "diet-composition limits (every share bound)"
+    ]
+    base = example_estimate.by_unit["ncc_animals"].sum()
+    text = project.read_text().replace("bootstrap_replicates = 1000", "bootstrap_replicates = 0")
+    moved = {}
+    for name, factor in (("low", 0.9), ("high", 1.1)):
+        project.write_text(text.replace("max_share = 0.28", f"max_share = {0.28 * factor!r}"))
+        moved[name] = estimate(load_project(project)).by_unit["ncc_animals"].sum() - base
+    assert row["low_change_animals"] == pytest.approx(moved["low"], rel=1e-9)
+    assert row["high_change_animals"] == pytest.approx(moved["high"], rel=1e-9)
+    assert moved["low"] < 0 < moved["high"]

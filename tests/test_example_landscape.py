@@ -153,6 +153,7 @@ def test_project_file_follows_the_schema(first: Path) -> None:
         "uncertainty",
         "scenarios",
         "other_herbivores",
+        "diet",
     }
     assert raw["project"]["season"] == "winter"
     assert raw["project"]["season_days"] == example.SEASON_DAYS
@@ -172,7 +173,7 @@ def test_raster_project_is_the_project_plus_rasters(first: Path) -> None:
     """project_rasters.toml: the same inputs, target and settings, plus the two rasters."""
     base = tomllib.loads((first / "project.toml").read_text(encoding="utf-8"))
     grid = tomllib.loads((first / "project_rasters.toml").read_text(encoding="utf-8"))
-    for section in ("inputs", "target", "forage_use", "pooling", "uncertainty"):
+    for section in ("inputs", "target", "forage_use", "pooling", "uncertainty", "diet"):
         assert grid[section] == base[section], section
     assert set(grid["availability"].values()) >= set(RASTERS)
     project = load_project(first / "project.toml")  # the package's own validation

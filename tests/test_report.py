@@ -823,13 +823,104 @@ def test_values_to_verify_box_and_replaceable_tables(example_html):
     assert "[availability] slope_table" in text and "water_table" in text
 
 
-def test_intake_limit_is_labelled_as_an_unreachable_diet(plain_estimate, project, manifest):
+@pytest.mark.parametrize(
+    ("factor", "label"),
+    [
+        ("intake", "target diet unreachable"),
+        ("diet_mix", "diet limits unreachable"),
+        ("diet_share", "<td>one class&#39;s diet-share cap</td>"),
+        ("protein+diet_group", "<td>protein + a diet group&#39;s share</td>"),
+        ("energy+diet_share+diet_group", "energy + one class&#39;s diet-share cap + a diet group"),
+        ("energy+protein", "<td>energy+protein</td>"),
+    ],
+)
+def test_limiting_factors_are_labelled_in_words(plain_estimate, project, manifest, factor, label):
     table = plain_estimate.by_unit.copy()
-    table.loc[table.index[0], "limiting_factor"] = "intake"  # invented for the test
+    table.loc[table.index[0], "limiting_factor"] = factor  # invented for the test
     estimate = dataclasses.replace(plain_estimate, by_unit=table)
     html = render_report(estimate, project=project, manifest=manifest)
     units = re.search(r'<section id="units">(.*?)</section>', html, re.DOTALL).group(1)
-    assert "target diet unreachable" in units
+    assert label in units
+
+
+def section_table(html: str, section: str, caption: str) -> list[list[str]]:
+    """The body rows (cell texts, unescaped) of the table of ``section`` whose caption starts
+    with ``caption``."""
+    import html as html_module
+
+    body = re.search(rf'<section id="{section}">(.*?)</section>', html, re.DOTALL).group(1)
+    found = re.search(
+        rf"<caption>{re.escape(caption)}.*?</caption>.*?<tbody>(.*?)</tbody>", body, re.DOTALL
+    )
+    assert found, f"no table {caption!r} in section {section!r}"
+    rows = re.findall(r"<tr[^>]*>(.*?)</tr>", found.group(1), re.DOTALL)
+    return [[html_module.unescape(c) for c in re.findall(r"<td[^>]*>(.*?)</td>", r)] for r in rows]
+
+
+def units_at_share(estimate, classes, share: float) -> list[str]:
+    """Units whose diet at NCC holds ``share`` of ``classes`` (recomputed from the eaten table)
+    and whose limiting factor names a composition limit."""
+    eaten = estimate.by_unit_class.pivot_table(
+        index="unit_id", columns="forage_class", values="ncc_eaten_kg", aggfunc="sum"
+    )
+    held = eaten[classes].sum(axis=1) / eaten.sum(axis=1)
+    factor = estimate.by_unit.set_index("unit_id")["limiting_factor"]
+    named = factor.str.contains("diet_group|diet_share")
+    return [
+        unit
+        for unit in estimate.by_unit["unit_id"]
+        if named[unit] and abs(held[unit] - share) < 1e-6
+    ]
+
+
+def test_diet_section_shows_the_example_limit_and_where_it_binds(example_html, example_estimate):
+    # The example's group (invented for the example): big sagebrush at most 28 % of the diet.
+    rows = section_table(example_html, "diet", "Diet groups")
+    assert rows == [["sagebrush", "big_sagebrush", "0 %", "28 %", "Coldmarrow, Petrelhollow"]]
+    # The same units from the run's own tables: the limiting factor names the group family and
+    # the sagebrush share of the eaten diet is 28 %; every other unit eats less sagebrush.
+    assert units_at_share(example_estimate, ["big_sagebrush"], 0.28) == [
+        "Coldmarrow",
+        "Petrelhollow",
+    ]
+    bound = example_estimate.by_unit["limiting_factor"].str.contains("diet_group")
+    assert example_estimate.by_unit.loc[bound, "unit_id"].tolist() == ["Coldmarrow", "Petrelhollow"]
+    diet = re.search(r'<section id="diet">(.*?)</section>', example_html, re.DOTALL).group(1)
+    assert "Coldmarrow (energy + a diet group&#39;s share)" in diet
+    assert "Largest share of the diet of single forage classes" not in diet
+
+
+def test_diet_section_shows_class_caps(project, manifest, tmp_path):
+    # A cap of 10 % on bitterbrush in the forage-class table (invented for the test), the
+    # example's group dropped: the caps table lists it and the units whose limiting factor
+    # names diet_share; in each, some stratum's bitterbrush is 10 % of the diet (the cap
+    # holds for each stratum's forage of the class, docs/methods.md s_ui).
+    import shutil
+
+    from nutricap.example import DIET_TOML
+    from nutricap.workflow import estimate
+
+    folder = tmp_path / "inputs"
+    shutil.copytree(project.folder, folder)
+    classes = pd.read_csv(folder / "forage_classes.csv")
+    classes["max_diet_share"] = np.where(classes["forage_class"] == "bitterbrush", 0.1, np.nan)
+    classes.to_csv(folder / "forage_classes.csv", index=False)
+    text = (folder / project.path.name).read_text().replace(DIET_TOML, "")
+    (folder / project.path.name).write_text(text.replace("replicates = 1000", "replicates = 0"))
+    capped = estimate(load_project(folder / project.path.name))
+    html = render_report(capped, project=project, manifest=manifest)
+    named = capped.by_unit["limiting_factor"].str.contains("diet_share")
+    binding = capped.by_unit.loc[named, "unit_id"].tolist()
+    assert binding, "the cap should bind somewhere"
+    eaten = capped.problem.sum_by_unit(capped.solution.ncc.eaten_kg)
+    share = (
+        eaten[:, capped.problem.items.forage_class == "bitterbrush"] / eaten.sum(axis=1)[:, None]
+    )
+    at_cap = np.isclose(share, 0.1, rtol=0, atol=1e-9).any(axis=1)
+    assert (at_cap[named.to_numpy()]).all()
+    rows = section_table(html, "diet", "Largest share of the diet")
+    assert rows == [["bitterbrush", "10 %", ", ".join(binding)]]
+    assert "Diet groups ([diet]" not in html
 
 
 def test_current_numbers_say_where_they_come_from(example_html, example_estimate):

@@ -28,7 +28,7 @@ from nutricap.report.figures import OKABE_ITO
 BROWSERS = ("chromium", "chromium-browser", "google-chrome", "google-chrome-stable")
 BROWSER = next((path for name in BROWSERS if (path := shutil.which(name))), None)
 TIMEOUT_S = 60
-WINDOW = (1200, 3000)
+WINDOW = (1200, 3600)  # tall enough to reach the capacity chart below the diet limits
 
 pytestmark = pytest.mark.skipif(
     BROWSER is None,

@@ -32,3 +32,25 @@ def test_crude_protein_factor_one_changes_nothing(example_problem):
     everything = np.ones(example_problem.items.size, dtype=bool)
     moved = scaled_crude_protein(example_problem, everything, 1.0).items
     np.testing.assert_allclose(moved.dp_pct, example_problem.items.dp_pct, rtol=0, atol=1e-12)
+
+
+def test_diet_limit_group_moves_the_class_caps_and_the_groups(example_problem):
+    # A class cap of 0.5 and one of 0.95 (invented for the test) × 1.1: 0.55 and 1 (capped
+    # by hand); uncapped classes stay at 1; the groups are moved by the same factor.
+    from dataclasses import replace
+
+    from nutricap.model.sensitivity import input_groups
+
+    shares = np.ones(example_problem.items.size)
+    shares[0], shares[1] = 0.5, 0.95
+    problem = replace(example_problem, items=replace(example_problem.items, max_diet_share=shares))
+    calls = []
+    groups = input_groups(
+        problem, lambda **given: calls.append(given) or 0.0, lambda f: None, protein=False
+    )
+    groups["diet-composition limits (every share bound)"](1.1)
+    moved = calls[-1]["problem"].items.max_diet_share
+    np.testing.assert_allclose(moved, [0.55, 1.0, *shares[2:]], rtol=1e-12)
+    assert calls[-1]["diet_factor"] == 1.1
+    plain = input_groups(example_problem, lambda **given: 0.0, lambda f: None, protein=False)
+    assert "diet-composition limits (every share bound)" not in plain

@@ -115,14 +115,52 @@ def test_outputs_written_and_manifest_hashes_inputs(example_project, tmp_path):
     assert leftovers == []
 
 
-def test_protein_limited_ncc_equals_an_lp_with_the_linear_dp_equation(project):
-    # Independent check of the whole pipeline's NCC: for every unit, scipy.optimize.linprog
-    # (HiGHS) maximises forage eaten under the diet DE and DP thresholds and the allowable-use
-    # caps, with item DP recomputed here from crude protein by the linear Robbins et al. (1987)
-    # equation (DP = -3.87 + 0.9283 CP - 11.82 BSA; CP terms read in a secondary table citing
-    # Hanley et al. 1992, BSA slope from memory), never clipped at 0.
+#: The example's diet group (its project file, invented for the example): big sagebrush at
+#: most 28 % of the diet.
+EXAMPLE_SAGEBRUSH_MAX_SHARE = 0.28
+
+
+def linear_dp_pct(items) -> np.ndarray:
+    """Item DP by the linear Robbins et al. (1987) equation (DP = -3.87 + 0.9283 CP - 11.82
+    BSA; CP terms read in a secondary table citing Hanley et al. 1992, BSA slope from memory),
+    never clipped at 0 [% DM]."""
+    return -3.87 + 0.9283 * items.cp_pct - 11.82 * items.tannin
+
+
+def sagebrush_rows(items, max_share: float = EXAMPLE_SAGEBRUSH_MAX_SHARE) -> np.ndarray:
+    """The row of x_sage <= M Σx as K x <= 0: K = 1[big_sagebrush] - M."""
+    return (items.forage_class == "big_sagebrush").astype(float)[np.newaxis] - max_share
+
+
+def linprog_ncc_animal_days(result, composition_rows: np.ndarray) -> np.ndarray:
+    """NCC per unit by scipy.optimize.linprog (HiGHS): the largest Σx / intake with
+    0 <= x <= allowable use × available (after the example's cattle permit), the diet DE and
+    DP mixes (DP by :func:`linear_dp_pct`) and the rows K x <= 0 [animal-days]."""
     from scipy.optimize import linprog
 
+    items, problem = result.problem.items, result.solved_problem
+    caps = np.broadcast_to(problem.allowable_fraction, problem.available_kg.shape)
+    de_min, dp_min = result.target.de_min_kcal_per_g, result.target.dp_min_pct
+    rows = np.vstack(
+        [-(items.de_kcal_per_g - de_min), -(linear_dp_pct(items) - dp_min), composition_rows]
+    )
+    limits = []
+    for row in range(problem.available_kg.shape[0]):
+        lp = linprog(
+            c=-np.ones(items.size),
+            A_ub=rows,
+            b_ub=np.zeros(len(rows)),
+            bounds=list(zip(np.zeros(items.size), problem.available_kg[row] * caps[row])),
+            method="highs",
+        )
+        limits.append(-lp.fun)
+    return problem.sum_by_unit(np.array(limits)) / result.herd.intake_kg_per_day
+
+
+def test_protein_limited_ncc_equals_an_lp_with_the_linear_dp_equation(project):
+    # Independent check of the whole pipeline's NCC: for every unit, scipy.optimize.linprog
+    # (HiGHS) maximises forage eaten under the diet DE and DP thresholds, the example's diet
+    # group and the allowable-use caps, with item DP recomputed by the linear equation.
     # The example with a lower diet DE threshold, so that protein limits (the DP threshold
     # is still derived from the target state).
     text = project.read_text(encoding="utf-8")
@@ -130,26 +168,33 @@ def test_protein_limited_ncc_equals_an_lp_with_the_linear_dp_equation(project):
         text.replace("[target]\n", "[target]\ndiet_de_min_kcal_per_g = 2.0\n"), encoding="utf-8"
     )
     result = estimate(load_project(project))
-    # The forage and use caps the deer get after the example's cattle permit.
-    items, problem = result.problem.items, result.solved_problem
-    caps = np.broadcast_to(problem.allowable_fraction, problem.available_kg.shape)
-    dp = -3.87 + 0.9283 * items.cp_pct - 11.82 * items.tannin
-    assert (dp < 0).any(), "the example should hold forage below 4.2 % CP"
-    de_min, dp_min = result.target.de_min_kcal_per_g, result.target.dp_min_pct
-    limits = []
-    for row in range(problem.available_kg.shape[0]):
-        allowed = problem.available_kg[row] * caps[row]
-        lp = linprog(
-            c=-np.ones(items.size),
-            A_ub=np.vstack([-(items.de_kcal_per_g - de_min), -(dp - dp_min)]),
-            b_ub=[0.0, 0.0],
-            bounds=list(zip(np.zeros(items.size), allowed)),
-            method="highs",
-        )
-        limits.append(-lp.fun)
-    lp_days = problem.sum_by_unit(np.array(limits)) / result.herd.intake_kg_per_day
+    assert (linear_dp_pct(result.problem.items) < 0).any(), (
+        "the example should hold forage below 4.2 % CP"
+    )
+    lp_days = linprog_ncc_animal_days(result, sagebrush_rows(result.problem.items))
     np.testing.assert_allclose(result.by_unit["ncc_animal_days"], lp_days, rtol=1e-8)
     assert (result.by_unit["limiting_factor"] == "protein").all()
+
+
+def test_ncc_with_the_example_diet_group_equals_an_lp_with_the_share_row(example_estimate):
+    # The example as it is (energy limits; the sagebrush cap binds in some units): the whole
+    # pipeline's NCC against scipy.optimize.linprog with the extra row x_sage <= 0.28 Σx.
+    items = example_estimate.problem.items
+    lp_days = linprog_ncc_animal_days(example_estimate, sagebrush_rows(items))
+    by_unit = example_estimate.by_unit
+    np.testing.assert_allclose(by_unit["ncc_animal_days"], lp_days, rtol=1e-8)
+    # Where the limiting factor names the group, the cap binds: without its row the LP gives
+    # more, and the eaten diet holds exactly 28 % sagebrush; elsewhere the row changes nothing.
+    free_days = linprog_ncc_animal_days(example_estimate, np.zeros((0, items.size)))
+    binds = by_unit["limiting_factor"].str.contains("diet_group").to_numpy()
+    assert binds.any() and not binds.all()
+    assert (free_days[binds] > lp_days[binds] * (1 + 1e-6)).all()
+    np.testing.assert_allclose(free_days[~binds], lp_days[~binds], rtol=1e-8)
+    eaten = example_estimate.by_unit_class.pivot_table(
+        index="unit_id", columns="forage_class", values="ncc_eaten_kg", aggfunc="sum"
+    ).loc[by_unit["unit_id"]]
+    sage_share = (eaten["big_sagebrush"] / eaten.sum(axis=1)).to_numpy()
+    np.testing.assert_allclose(sage_share[binds], EXAMPLE_SAGEBRUSH_MAX_SHARE, rtol=1e-9)
 
 
 def test_outputs_of_lon_lat_units_carry_the_named_equal_area_crs(project, tmp_path):

@@ -10,7 +10,7 @@ again with :func:`solve_problem`.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import pandas as pd
@@ -197,6 +197,20 @@ class DietLimits:
     """The diet-composition limits of the project file's ``[diet]`` table."""
 
     groups: tuple[DietGroup, ...] = ()
+
+    def scaled(self, factor: float) -> DietLimits:
+        """Every group's minimum and maximum share × ``factor``, at most 1 (the sensitivity's
+        move of the limits)."""
+        return DietLimits(
+            tuple(
+                replace(
+                    group,
+                    min_share=min(group.min_share * factor, 1.0),
+                    max_share=min(group.max_share * factor, 1.0),
+                )
+                for group in self.groups
+            )
+        )
 
     def membership(self, items: ForageItems) -> np.ndarray:
         """Which items belong to each group, bool (groups, items)."""

@@ -93,12 +93,20 @@ def unit_class_table(problem: CapacityProblem, solution: Solution) -> pd.DataFra
 
 
 def unreachable_notes(by_unit: pd.DataFrame) -> list[str]:
-    """Units whose NCC is zero because no mix of their forage reaches the target diet."""
+    """Units whose NCC is zero because no mix of their forage reaches the target diet, or
+    none that also keeps the diet-composition limits ([diet] groups, ``max_diet_share``)."""
+    factor = by_unit["limiting_factor"]
     return _units_note(
         by_unit,
-        by_unit["limiting_factor"] == "intake",
+        factor == "intake",
         "no mix of the available forage reaches the target diet in unit(s) {units}: their NCC "
         "is 0 (limiting factor 'intake')",
+    ) + _units_note(
+        by_unit,
+        factor == "diet_mix",
+        "no mix of the available forage meets both the target diet and the diet-composition "
+        "limits (the [diet] groups' shares, the forage classes' max_diet_share) in unit(s) "
+        "{units}: their NCC is 0 (limiting factor 'diet_mix')",
     )
 
 

@@ -59,13 +59,17 @@ def input_groups(
     *,
     protein: bool,
     other_herds: bool = False,
+    diet_groups: bool = False,
 ) -> dict[str, Callable[[float], float]]:
     """The input groups: biomass, DE (and DP) by class, body mass, thresholds, allowable use.
 
     ``total_for(problem=..., herd=..., de_factor=..., dp_factor=...)`` returns total
     NCC [animals] with any of those replaced or scaled; ``herd_for_mass(f)`` is the
     herd's requirement with every body mass × f. With ``other_herds``, the other herbivores'
-    numbers (every herd × f) are a group too (``total_for(others_factor=f)``).
+    numbers (every herd × f) are a group too (``total_for(others_factor=f)``). With
+    diet-composition limits (``diet_groups``: the [diet] groups; or a class's
+    ``max_diet_share`` below 1), every share bound × f, at most 1, is one group
+    (``total_for(diet_factor=f)`` moves the groups' bounds).
     """
     groups: dict[str, Callable[[float], float]] = {}
     for name in np.unique(problem.items.forage_class):
@@ -93,6 +97,17 @@ def input_groups(
         groups["diet DP threshold (protein requirement)"] = lambda f: total_for(dp_factor=f)
     if other_herds:
         groups["other herbivores' numbers"] = lambda f: total_for(others_factor=f)
+    shares = problem.items.max_diet_share
+    capped = shares is not None and bool((shares < 1).any())
+    if diet_groups or capped:
+        groups["diet-composition limits (every share bound)"] = lambda f: total_for(
+            problem=(
+                scaled_item_attribute(problem, "max_diet_share", everything, f, upper=1.0)
+                if capped
+                else problem
+            ),
+            diet_factor=f,
+        )
     return groups
 
 

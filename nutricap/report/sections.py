@@ -242,7 +242,88 @@ def diet(estimate: Estimate) -> dict:
             ),
             "Animal-unit equivalent [AU/animal]": THREE_DECIMALS(herd.animal_unit_equivalent),
         },
+        "limits": diet_limits(estimate),
     }
+
+
+AT_LIMIT_TOL = 1e-6
+"""A diet share within this of a limit [share, 0–1] counts as at the limit."""
+
+
+def diet_limits(estimate: Estimate) -> dict | None:
+    """The diet-composition limits (each [diet] group: classes, minimum, maximum; each class's
+    max_diet_share below 1) and the units where each binds; None without limits.
+
+    A limit binds in a unit whose limiting factor names its family (diet_group, diet_share);
+    when the family holds several limits, only where the unit's diet at NCC sits at this one.
+    A max_diet_share holds for the class's forage in each stratum (problem item) on its own.
+    """
+    items = estimate.problem.items
+    composition = estimate.target.composition
+    groups = composition.groups if composition is not None else ()
+    capped = (
+        {} if items.max_diet_share is None else dict(zip(items.forage_class, items.max_diet_share))
+    )
+    caps = {name: share for name, share in capped.items() if share < 1}
+    if not groups and not caps:
+        return None
+    eaten = estimate.by_unit_class.pivot_table(
+        index="unit_id", columns="forage_class", values="ncc_eaten_kg", aggfunc="sum"
+    ).reindex(estimate.by_unit["unit_id"])
+    shares = eaten.div(eaten.sum(axis=1).where(lambda total: total > 0), axis=0)
+    factor = estimate.by_unit.set_index("unit_id")["limiting_factor"].astype(str).str.split("+")
+
+    def binding(family: str, share: pd.Series, low: float, high: float, alone: bool) -> str:
+        named = factor.apply(lambda parts: family in parts)
+        at_limit = ((share - low).abs() <= AT_LIMIT_TOL) & (low > 0)
+        at_limit |= ((share - high).abs() <= AT_LIMIT_TOL) & (high < 1)
+        units = share.index[named & (at_limit | alone)].tolist()
+        return ", ".join(map(str, units)) if units else "none"
+
+    member = composition.membership(items) if groups else np.zeros((0, items.size), bool)
+    group_rows = []
+    for group, inside in zip(groups, member):
+        classes = list(dict.fromkeys(items.forage_class[inside]))
+        share = shares.reindex(columns=classes).sum(axis=1, min_count=1)
+        group_rows.append(
+            {
+                "Group": group.name,
+                "Forage classes": ", ".join(classes) or "none in the table",
+                "Minimum share": _share(group.min_share),
+                "Maximum share": _share(group.max_share),
+                "Binds in": binding(
+                    "diet_group", share, group.min_share, group.max_share, len(groups) == 1
+                ),
+            }
+        )
+    cap_rows = [
+        {
+            "Forage class": name,
+            "Maximum share (max_diet_share)": _share(cap),
+            "Binds in": binding(
+                "diet_share", shares.reindex(columns=[name]).iloc[:, 0], 0, cap, len(caps) == 1
+            ),
+        }
+        for name, cap in caps.items()
+    ]
+    bound = factor[factor.apply(lambda parts: bool({"diet_group", "diet_share"} & set(parts)))]
+    return {
+        "groups": _rows_table(group_rows),
+        "caps": _rows_table(cap_rows),
+        "binding": [f"{unit} ({limiting_label('+'.join(parts))})" for unit, parts in bound.items()],
+    }
+
+
+def _share(value: float) -> str:
+    return f"{100 * value:.4g} %"
+
+
+def _rows_table(rows: list[dict]) -> dict | None:
+    """A table of text cells from rows of {header: text}; None when there are no rows."""
+    if not rows:
+        return None
+    frame = pd.DataFrame(rows)
+    return table(frame, [Column(name, name) for name in frame.columns])
 
 
 # --- 5. capacity chart and per-unit table -----------------------------------------------------
@@ -311,15 +392,26 @@ UNIT_COLUMNS = [
 
 LIMITING_LABELS = {
     "intake": "target diet unreachable (no forage mix meets it within intake)",
+    "diet_mix": "diet limits unreachable (no forage mix meets the target diet within the "
+    "diet-composition limits)",
 }
 """Report labels of ``limiting_factor`` values whose CSV word alone would mislead."""
+COMPOSITION_WORDS = {
+    "diet_share": "one class's diet-share cap",
+    "diet_group": "a diet group's share",
+}
+"""Words for the diet-composition parts of a binding ``limiting_factor`` ("protein+diet_group")."""
 
 
 def limiting_label(value: Any) -> str:
     """The report's label of a ``limiting_factor`` value (the CSV keeps the value itself)."""
     if is_missing(value):
         return "–"
-    return LIMITING_LABELS.get(str(value), str(value))
+    text = str(value)
+    parts = text.split("+")
+    if text in LIMITING_LABELS or not COMPOSITION_WORDS.keys() & set(parts):
+        return LIMITING_LABELS.get(text, text)
+    return " + ".join(COMPOSITION_WORDS.get(part, part) for part in parts)
 
 
 #: Columns summed in the total row (additive over units; intervals and rates are not).

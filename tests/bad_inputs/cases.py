@@ -1038,12 +1038,12 @@ CASES = [
     Case(
         "project: arrays nested 5,000 deep",
         append_text("project.toml", "x = " + "[" * 5000 + "]" * 5000),
-        r"project\.toml: line 52: arrays or inline tables nested too deeply to read",
+        r"project\.toml: line 57: arrays or inline tables nested too deeply to read",
     ),
     Case(
         "project: inline tables nested 3,000 deep",
         append_text("project.toml", "x = " + "{a=" * 3000 + "1" + "}" * 3000),
-        r"project\.toml: line 52: arrays or inline tables nested too deeply to read",
+        r"project\.toml: line 57: arrays or inline tables nested too deeply to read",
     ),
     Case(
         "project: input is a symbolic link to itself",
