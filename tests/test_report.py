@@ -892,9 +892,9 @@ def test_diet_section_shows_the_example_limit_and_where_it_binds(example_html, e
 
 def test_diet_section_shows_class_caps(project, manifest, tmp_path):
     # A cap of 10 % on bitterbrush in the forage-class table (invented for the test), the
-    # example's group dropped: the caps table lists it and the units whose limiting factor
-    # names diet_share; in each, some stratum's bitterbrush is 10 % of the diet (the cap
-    # holds for each stratum's forage of the class, docs/methods.md s_ui).
+    # example's group dropped: the cap bounds the whole class (bitterbrush grows in several
+    # strata), so in every unit bitterbrush is at most 10 % of the diet eaten; the caps table
+    # lists the units where the class sits at its cap and a composition limit is named.
     import shutil
 
     from nutricap.example import DIET_TOML
@@ -909,15 +909,15 @@ def test_diet_section_shows_class_caps(project, manifest, tmp_path):
     (folder / project.path.name).write_text(text.replace("replicates = 1000", "replicates = 0"))
     capped = estimate(load_project(folder / project.path.name))
     html = render_report(capped, project=project, manifest=manifest)
-    named = capped.by_unit["limiting_factor"].str.contains("diet_share")
-    binding = capped.by_unit.loc[named, "unit_id"].tolist()
-    assert binding, "the cap should bind somewhere"
     eaten = capped.problem.sum_by_unit(capped.solution.ncc.eaten_kg)
-    share = (
-        eaten[:, capped.problem.items.forage_class == "bitterbrush"] / eaten.sum(axis=1)[:, None]
+    share = eaten[:, capped.problem.items.forage_class == "bitterbrush"].sum(axis=1) / eaten.sum(
+        axis=1
     )
-    at_cap = np.isclose(share, 0.1, rtol=0, atol=1e-9).any(axis=1)
-    assert (at_cap[named.to_numpy()]).all()
+    assert (share <= 0.1 + 1e-9).all()  # the whole class, x_c <= 0.1 Σx
+    named = capped.by_unit["limiting_factor"].str.contains("diet_share|diet_group")
+    at_cap = np.isclose(share, 0.1, rtol=0, atol=1e-9)
+    binding = capped.by_unit.loc[named.to_numpy() & at_cap, "unit_id"].tolist()
+    assert binding, "the cap should bind somewhere"
     rows = section_table(html, "diet", "Largest share of the diet")
     assert rows == [["bitterbrush", "10 %", ", ".join(binding)]]
     assert "Diet groups ([diet]" not in html

@@ -226,14 +226,36 @@ class DietLimits:
 
 def composition_limits(items: ForageItems, diet: DietLimits | None) -> dict[str, np.ndarray]:
     """The keyword arguments of :func:`nutritional_capacity` for the diet-composition limits:
-    none when no item has a share below 1 and no group is given (the plain solve)."""
-    limits = {}
-    if items.max_diet_share is not None and (items.max_diet_share < 1).any():
-        limits["max_diet_share"] = items.max_diet_share
+    none when no item has a share below 1 and no group is given (the plain solve).
+
+    A forage class's ``max_diet_share`` bounds the whole class, x_c <= s_c Σx. A class that is
+    one item keeps it as that item's share; a class grown in several strata (several items)
+    becomes one more group over its items (maximum s_c), since capping each item at s_c would
+    let the class as a whole exceed it.
+    """
+    shares = items.max_diet_share
+    rows, lows, highs = [], [], []
     if diet is not None and diet.groups:
-        limits["diet_groups"] = diet.membership(items)
-        limits["min_group_share"] = np.array([group.min_share for group in diet.groups])
-        limits["max_group_share"] = np.array([group.max_share for group in diet.groups])
+        rows.append(diet.membership(items))
+        lows += [group.min_share for group in diet.groups]
+        highs += [group.max_share for group in diet.groups]
+    item_shares = None
+    if shares is not None and (shares < 1).any():
+        item_shares = shares.copy()
+        for name in np.unique(items.forage_class[shares < 1]):
+            members = items.forage_class == name
+            if members.sum() > 1:
+                rows.append(members[None, :])
+                lows.append(0.0)
+                highs.append(float(shares[members].min()))
+                item_shares[members] = 1.0
+    limits = {}
+    if item_shares is not None and (item_shares < 1).any():
+        limits["max_diet_share"] = item_shares
+    if rows:
+        limits["diet_groups"] = np.vstack(rows).astype(bool)
+        limits["min_group_share"] = np.array(lows, dtype=float)
+        limits["max_group_share"] = np.array(highs, dtype=float)
     return limits
 
 

@@ -254,9 +254,11 @@ def diet_limits(estimate: Estimate) -> dict | None:
     """The diet-composition limits (each [diet] group: classes, minimum, maximum; each class's
     max_diet_share below 1) and the units where each binds; None without limits.
 
-    A limit binds in a unit whose limiting factor names its family (diet_group, diet_share);
-    when the family holds several limits, only where the unit's diet at NCC sits at this one.
-    A max_diet_share holds for the class's forage in each stratum (problem item) on its own.
+    A group binds in a unit whose limiting factor names diet_group; when there are several
+    groups, only where the unit's diet at NCC sits at this one. A max_diet_share bounds the
+    whole class (a class grown in several strata is solved as one more group over its items),
+    so it binds where the class's share of the diet sits at the cap and the limiting factor
+    names a composition limit.
     """
     items = estimate.problem.items
     composition = estimate.target.composition
@@ -273,8 +275,8 @@ def diet_limits(estimate: Estimate) -> dict | None:
     shares = eaten.div(eaten.sum(axis=1).where(lambda total: total > 0), axis=0)
     factor = estimate.by_unit.set_index("unit_id")["limiting_factor"].astype(str).str.split("+")
 
-    def binding(family: str, share: pd.Series, low: float, high: float, alone: bool) -> str:
-        named = factor.apply(lambda parts: family in parts)
+    def binding(families: set, share: pd.Series, low: float, high: float, alone: bool) -> str:
+        named = factor.apply(lambda parts: bool(families & set(parts)))
         at_limit = ((share - low).abs() <= AT_LIMIT_TOL) & (low > 0)
         at_limit |= ((share - high).abs() <= AT_LIMIT_TOL) & (high < 1)
         units = share.index[named & (at_limit | alone)].tolist()
@@ -292,7 +294,7 @@ def diet_limits(estimate: Estimate) -> dict | None:
                 "Minimum share": _share(group.min_share),
                 "Maximum share": _share(group.max_share),
                 "Binds in": binding(
-                    "diet_group", share, group.min_share, group.max_share, len(groups) == 1
+                    {"diet_group"}, share, group.min_share, group.max_share, len(groups) == 1
                 ),
             }
         )
@@ -301,7 +303,11 @@ def diet_limits(estimate: Estimate) -> dict | None:
             "Forage class": name,
             "Maximum share (max_diet_share)": _share(cap),
             "Binds in": binding(
-                "diet_share", shares.reindex(columns=[name]).iloc[:, 0], 0, cap, len(caps) == 1
+                {"diet_share", "diet_group"},
+                shares.reindex(columns=[name]).iloc[:, 0],
+                0,
+                cap,
+                False,
             ),
         }
         for name, cap in caps.items()
