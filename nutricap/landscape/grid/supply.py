@@ -32,6 +32,7 @@ from nutricap.landscape import availability as rules_mod
 from nutricap.landscape.grid.calibration import CalibratedSums, calibrated_sums
 from nutricap.landscape.grid.cell_cache import CellCache
 from nutricap.landscape.grid.cluster import ClusterRun, WindowJob, new_job
+from nutricap.landscape.grid.overview import OverviewMap
 from nutricap.landscape.grid.rasters import (
     Grid,
     LayerSpec,
@@ -120,6 +121,8 @@ class GridResult:
         Layer key → resampling method (None when the layer was on the grid).
     calibrated_sums : list of CalibratedSums
         One per calibrated group, for the model bootstrap (empty without calibrated groups).
+    overview_maps : list of OverviewMap
+        Coarse maps for the report (capacity density, what each rule removed).
     """
 
     problem: CapacityProblem
@@ -139,6 +142,7 @@ class GridResult:
     show_progress: bool = False
     calibrated_sums: list[CalibratedSums] = field(default_factory=list, repr=False)
     cluster: ClusterRun | None = field(default=None, repr=False)
+    overview_maps: list[OverviewMap] = field(default_factory=list, repr=False)
     rules: rules_mod.CellRules | None = field(default=None, repr=False)  # the rules applied
     key_available_kg: np.ndarray | None = field(default=None, repr=False)
     """(units, strata, classes) forage left by the rules [kg]: the problem's supply."""
