@@ -21,7 +21,7 @@ import numpy as np
 import pandas as pd
 import pyogrio
 import shapely
-from pyproj import CRS, Proj
+from pyproj import CRS, Proj, Transformer
 from pyproj.crs import ProjectedCRS
 from pyproj.crs.coordinate_operation import LambertAzimuthalEqualAreaConversion
 from shapely.validation import explain_validity
@@ -55,6 +55,11 @@ DENSIFY_SEGMENT_M = 100.0
 another, and an edge must follow the same path as the neighbour's edge that a T-junction
 vertex splits, or the two overlap (by hectares on edges of tens of kilometres)."""
 DENSIFY_SEGMENT_DEG = 0.001
+REPROJECT_BATCH_VERTICES = 250_000
+"""Vertices (after densifying) reprojected at a time: memory of reprojecting long edges of a
+large landscape stays flat (temporary copies of ~100 bytes per vertex)."""
+OVERLAP_BATCH_PAIRS = 500
+"""Pairs of neighbouring polygons intersected at a time by the overlap check."""
 AREAL_SCALE_TOLERANCE = 0.005
 """A projected CRS whose areal scale departs more than this from 1 over the units is not used
 for areas. UTM inside its zone stays within about 0.2 % (point scale k0 = 0.9996 on the central
@@ -544,8 +549,24 @@ def to_area_crs(frame: gpd.GeoDataFrame, crs: CRS) -> gpd.GeoDataFrame:
         step = DENSIFY_SEGMENT_DEG
     else:
         step = DENSIFY_SEGMENT_M / source.axis_info[0].unit_conversion_factor
-    dense = frame.set_geometry(shapely.segmentize(frame.geometry.to_numpy(), step), crs=source)
-    return dense.to_crs(crs)
+    transformer = Transformer.from_crs(source, crs, always_xy=True)
+    geometries = frame.geometry.to_numpy()
+    projected = np.empty(len(geometries), dtype=object)
+    for batch in _vertex_batches(geometries, step):
+        dense = shapely.segmentize(geometries[batch], step)
+        projected[batch] = shapely.transform(dense, transformer.transform, interleaved=False)
+    return frame.set_geometry(gpd.GeoSeries(projected, index=frame.index, crs=crs))
+
+
+def _vertex_batches(geometries: np.ndarray, step: float) -> list[slice]:
+    """Runs of ``geometries`` of about :data:`REPROJECT_BATCH_VERTICES` vertices each once
+    split into pieces of ``step``: the reprojection's temporary copies stay small however long
+    the edges (a single geometry larger than the budget is a batch of its own)."""
+    vertices = shapely.get_num_coordinates(geometries) + shapely.length(geometries) / step
+    batch_of = np.floor(np.cumsum(vertices) / REPROJECT_BATCH_VERTICES).astype(np.int64)
+    starts = np.flatnonzero(np.diff(batch_of, prepend=-1) != 0)
+    ends = np.append(starts[1:], len(geometries))
+    return [slice(int(a), int(b)) for a, b in zip(starts, ends)]
 
 
 def _area_problem(crs: CRS, units: gpd.GeoDataFrame) -> str | None:
@@ -581,10 +602,9 @@ def check_no_overlaps(
     left, right = left[pairs], right[pairs]
     if left.size == 0:
         return None
-    first_side = frame.geometry.iloc[left].reset_index(drop=True)
-    second_side = frame.geometry.iloc[right].reset_index(drop=True)
-    shared = first_side.intersection(second_side).area.to_numpy()
-    smaller = np.minimum(first_side.area.to_numpy(), second_side.area.to_numpy())
+    shared = _shared_areas(frame.geometry.to_numpy(), left, right)
+    areas = shapely.area(frame.geometry.to_numpy())
+    smaller = np.minimum(areas[left], areas[right])
     tolerance = np.maximum(OVERLAP_TOLERANCE_M2, OVERLAP_RELATIVE_TOLERANCE * smaller)
     overlapping = np.flatnonzero(shared > tolerance)
     ids = frame[id_column].to_numpy()
@@ -608,6 +628,18 @@ def check_no_overlaps(
         f"(1 m² or {OVERLAP_RELATIVE_TOLERANCE:g} of the smaller polygon, whichever is more; "
         "what is left of edges meeting at T-junctions after reprojection) and is counted in both"
     )
+
+
+def _shared_areas(geometries: np.ndarray, left: np.ndarray, right: np.ndarray) -> np.ndarray:
+    """Area of ``geometries[left] ∩ geometries[right]``, pair by pair [CRS units²], in batches
+    of :data:`OVERLAP_BATCH_PAIRS` pairs (the intersections of densified neighbours hold many
+    vertices; memory stays flat however many units)."""
+    shared = np.empty(left.size)
+    for start in range(0, left.size, OVERLAP_BATCH_PAIRS):
+        part = slice(start, start + OVERLAP_BATCH_PAIRS)
+        pieces = shapely.intersection(geometries[left[part]], geometries[right[part]])
+        shared[part] = shapely.area(pieces)
+    return shared
 
 
 def overlay_strata_on_units(
