@@ -5,8 +5,10 @@ classes from the plot means of the cell's stratum, direct classes from their ras
 calibrated classes from the index raster and the group models, see
 :mod:`nutricap.landscape.grid.calibration`) → the availability rules
 (:func:`nutricap.landscape.availability.apply_rules`) → sums by (unit, stratum) key. Sums are
-taken over runs of equal key along each row (``numpy.add.reduceat``) and the run sums are
-added into the keys (``numpy.bincount``). A cell belongs to a unit or stratum polygon when its
+taken over runs of equal key along each row (``numpy.add.reduceat``; a run also ends where a
+block of the coarse grid of the report's maps begins, :mod:`nutricap.landscape.grid.overview`),
+each window's runs are added by (block, key) pair and the pairs into the keys and blocks
+(``numpy.bincount``). A cell belongs to a unit or stratum polygon when its
 centre lies in it (GDAL's rasteriser); cells outside the strata map carry no forage.
 
 Worker threads read and compute the windows (:class:`WindowReader`, :func:`stream_windows`),
@@ -38,6 +40,7 @@ from nutricap.landscape.grid.calibration import (
     reprediction_terms,
 )
 from nutricap.landscape.grid.cell_cache import CellCache, KeepCells
+from nutricap.landscape.grid.overview import BlockSums, CoarseGrid, PairSums, pair_sums
 from nutricap.landscape.grid.rasters import Grid, LayerStack, Scratch, ShapeBurner
 from nutricap.landscape.strata_raster import polygons_from_codes
 
@@ -75,6 +78,8 @@ class GridSetup:
     treatment_pair: np.ndarray | None = None
     """(units + 1, treatment polygons + 1) pair number of a burnt unit code × treatment
     polygon code, -1 where the two do not meet (or none); None without a scenario."""
+    coarse: CoarseGrid | None = None
+    """Blocks of the report's maps; None: one block per window (no maps)."""
 
     @property
     def n_classes(self) -> int:
@@ -115,23 +120,47 @@ class WindowData:
 
 
 @dataclass
-class WindowSums:
-    """What one window (or a chunk of it) adds to the totals."""
+class ChunkRuns:
+    """A chunk's sums over runs of equal key (each run in one row and one map block)."""
 
     run_keys: np.ndarray
+    run_starts: np.ndarray  # first cell of each run (flat index into the chunk)
     run_cells: np.ndarray
     run_sums: np.ndarray  # (rows of the layout, runs) float32
     calibration_cells: np.ndarray  # (groups, 3): beyond range, beyond margin, negative
     treated: TreatedRuns | None = None  # treated cells' sums (scenarios only)
 
+
+@dataclass
+class WindowSums:
+    """What one window adds to the totals: its sums by (map block, key) pair."""
+
+    pairs: PairSums
+    calibration_cells: np.ndarray  # (groups, 3): beyond range, beyond margin, negative
+    treated: TreatedRuns | None = None  # treated cells' sums (scenarios only)
+
     @staticmethod
-    def concatenate(parts: list[WindowSums]) -> WindowSums:
-        treated = [part.treated for part in parts if part.treated is not None]
+    def of_chunks(setup: GridSetup, window: Window, parts: list[tuple[int, ChunkRuns]]):
+        """The window's sums from its chunks' runs (``(first cell, runs)`` of each chunk)."""
+        starts = np.concatenate([first + part.run_starts for first, part in parts])
+        keys = np.concatenate([part.run_keys for _, part in parts])
+        coarse = setup.coarse
+        if coarse is None:
+            blocks, span = np.zeros_like(starts), (0, 0, 1, 1)
+        else:
+            blocks, span = coarse.local_blocks(window, starts), coarse.span(window)
+        pairs = pair_sums(
+            keys,
+            blocks,
+            np.concatenate([part.run_cells for _, part in parts]),
+            np.concatenate([part.run_sums for _, part in parts], axis=1),
+            setup.dump_key + 1,
+            span,
+        )
+        treated = [part.treated for _, part in parts if part.treated is not None]
         return WindowSums(
-            np.concatenate([part.run_keys for part in parts]),
-            np.concatenate([part.run_cells for part in parts]),
-            np.concatenate([part.run_sums for part in parts], axis=1),
-            sum(part.calibration_cells for part in parts),
+            pairs,
+            sum(part.calibration_cells for _, part in parts),
             TreatedRuns.concatenate(treated) if treated else None,
         )
 
@@ -160,16 +189,21 @@ class TreatedRuns:
 
 @dataclass
 class Totals:
-    """Sums over every window, by key (unit × (strata + "no stratum") + dump)."""
+    """Sums over every window, by key (unit × (strata + "no stratum") + dump), and by block
+    of the report's maps."""
 
     cells: np.ndarray
     sums: np.ndarray
     calibration_cells: np.ndarray
     treated_cells: np.ndarray | None = None  # (treated keys,), scenarios only
     treated_sums: np.ndarray | None = None  # (treated keys, 2 × classes)
+    blocks: BlockSums | None = None
 
     def add(self, part: WindowSums) -> None:
-        _add_runs(self.cells, self.sums, part.run_keys, part.run_cells, part.run_sums)
+        pairs = part.pairs
+        _add_runs(self.cells, self.sums, pairs.keys, pairs.cells, pairs.sums)
+        if self.blocks is not None:
+            self.blocks.add(pairs)
         self.calibration_cells += part.calibration_cells
         if part.treated is not None:
             runs = part.treated
@@ -179,7 +213,7 @@ class Totals:
 
 
 def _add_runs(cells, sums, run_keys, run_cells, run_sums) -> None:
-    """Add run sums into the totals by key (float64)."""
+    """Add run (or pair) sums into the totals by key (float64)."""
     cells += np.bincount(run_keys, weights=run_cells, minlength=cells.size)
     for row, values in enumerate(run_sums):
         sums[:, row] += np.bincount(run_keys, weights=values, minlength=cells.size)
@@ -251,13 +285,13 @@ def window_sums(setup: GridSetup, data: WindowData, keep: KeepCells | None = Non
         part, keys, kg_per_ha = chunk_sums(setup, data.rows(first, last))
         if keep is not None:
             keep(first * width, keys, kg_per_ha)
-        parts.append(part)
-    return WindowSums.concatenate(parts)
+        parts.append((first * width, part))
+    return WindowSums.of_chunks(setup, data.window, parts)
 
 
-def chunk_sums(setup: GridSetup, data: WindowData) -> tuple[WindowSums, np.ndarray, np.ndarray]:
-    """:func:`window_sums` of a few rows; also each cell's key (the dump key where the cell
-    has no data) and forage left (classes, cells) [kg/ha]."""
+def chunk_sums(setup: GridSetup, data: WindowData) -> tuple[ChunkRuns, np.ndarray, np.ndarray]:
+    """:func:`window_sums` of a few rows (their runs); also each cell's key (the dump key
+    where the cell has no data) and forage left (classes, cells) [kg/ha]."""
     units = data.units.ravel().astype(np.intp)  # burnt as int32, GDAL's fast path
     polygons = data.polygons.ravel().astype(np.intp)
     key = setup.unit_base[units] + setup.polygon_stratum[polygons]
@@ -291,9 +325,10 @@ def chunk_sums(setup: GridSetup, data: WindowData) -> tuple[WindowSums, np.ndarr
     if setup.calibrated:
         available = outcome.available_kg_per_ha
         reprediction_terms(setup.calibrated, predictions, available, stacked[layout.calibration])
-    run_keys, run_cells, run_sums = _run_sums(key, stacked, data.units.shape)
+    breaks = None if setup.coarse is None else setup.coarse.column_starts(data.window)
+    runs = _run_sums(key, stacked, data.units.shape, breaks)
     cell_keys = np.where(valid, key, setup.dump_key).astype(np.int32)
-    sums = WindowSums(run_keys, run_cells, run_sums, calibration_cells)
+    sums = ChunkRuns(*runs, calibration_cells)
     if setup.treatment_pair is not None:
         sums.treated = _treated_runs(setup, data, units, polygons, outcome)
     return sums, cell_keys, outcome.available_kg_per_ha
@@ -371,15 +406,19 @@ def _gross_biomass(setup: GridSetup, data: WindowData, polygons, valid, lacking,
     return counts, predictions
 
 
-def _run_sums(key: np.ndarray, stacked: np.ndarray, shape: tuple[int, int]):
-    """Sums of ``stacked`` rows over runs of equal key; runs break at row ends of the window."""
+def _run_sums(key: np.ndarray, stacked: np.ndarray, shape: tuple[int, int], breaks=None):
+    """Sums of ``stacked`` rows over runs of equal key; runs break at row ends of the window
+    and at the columns ``breaks`` (a slice: where a block of the maps begins). Returns each
+    run's key, first cell, cells and sums."""
     key2d = key.reshape(shape)
     start = np.empty(shape, dtype=bool)
     start[:, 0] = True
     np.not_equal(key2d[:, 1:], key2d[:, :-1], out=start[:, 1:])
+    if breaks is not None:
+        start[:, breaks] = True
     starts = np.flatnonzero(start)
     run_cells = np.diff(np.append(starts, key.size))
-    return key[starts], run_cells, np.add.reduceat(stacked, starts, axis=1)
+    return key[starts], starts, run_cells, np.add.reduceat(stacked, starts, axis=1)
 
 
 # --- streaming ------------------------------------------------------------------------------
