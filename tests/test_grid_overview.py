@@ -166,6 +166,8 @@ def test_snow_removal_by_block_equals_numpy_over_whole_arrays(landscape_plain, c
 def test_capacity_density_map_is_the_block_mean_of_the_written_raster(
     rules_folder, tmp_path, coarse_7
 ):
+    """Block means of capacity_density.tif (rasterio, numpy) over the cells in a unit
+    (shapely's cell-centre membership), cells without a density counting 0."""
     out = tmp_path / "results"
     result = run_estimate(_project(rules_folder, project_text(RASTERS, RULES_TEXT)), out)
     layer = _maps(result)["capacity_density"]
@@ -173,15 +175,16 @@ def test_capacity_density_map_is_the_block_mean_of_the_written_raster(
     with rasterio.open(out / "capacity_density.tif") as src:
         density = src.read(1, masked=True)
         assert src.tags()["units"] == "animal-days per hectare (NCC)"
-    holds = ~np.ma.getmaskarray(density)
-    cells = _block_sum(holds.astype(float), BLOCK)
+    in_unit = _membership(_units()) >= 0
+    assert np.ma.getmaskarray(density)[in_unit].any()  # cells without a density count 0
+    cells = _block_sum(in_unit.astype(float), BLOCK)
     with np.errstate(invalid="ignore"):
-        mean = _block_sum(density.filled(0.0).astype(float), BLOCK) / cells
+        mean = _block_sum(np.where(in_unit, density.filled(0.0), 0.0), BLOCK) / cells
     np.testing.assert_array_equal(np.isnan(layer.values), cells == 0)
     # The raster's cells are float32 products and sums (about 1e-7 relative each).
     np.testing.assert_allclose(layer.values, mean, rtol=2e-6, atol=1e-9)
     assert np.nanmax(layer.values) > 0
-    # Σ map × its cells × cell area = the units' NCC (animal-days, capacity_by_unit.csv).
+    # Σ map × its unit cells × cell area = the units' NCC (animal-days, capacity_by_unit.csv).
     ncc = pd.read_csv(out / "capacity_by_unit.csv")["ncc_animal_days"].sum()
     assert np.nansum(layer.values * cells) * CELL_HA == pytest.approx(ncc, rel=1e-9)
 

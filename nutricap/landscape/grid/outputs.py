@@ -69,17 +69,19 @@ def key_coefficients(
 def capacity_density_map(
     result: GridResult, available_kg: np.ndarray, eaten_kg: np.ndarray, intake_kg_per_day: float
 ) -> OverviewMap:
-    """The coarse map of capacity_density.tif: each block's mean NCC [animal-days per ha]
-    over its cells that hold a density (in a unit and a stratum, with data).
+    """The coarse map of capacity_density.tif: each block's NCC [animal-days per ha] over
+    its unit area, i.e. the mean of the file's cells in the block that lie in a unit, those
+    without a density (no stratum, no data) counting 0.
 
     Notes
     -----
     A cell's density is linear in its forage left per class, ``Σ_c kg_c · k[key, c]`` with
-    the coefficients ``k`` of :func:`key_coefficients` (animal-days per kg). The block mean is
-    therefore ``Σ_(key, c) k[key, c] · S[block, key, c] / n[block]``, with S the first pass's
-    sums of forage left [kg/ha] by (block, key) pair and n the block's cells with a density
-    (:class:`~nutricap.landscape.grid.overview.BlockSums`); the file is not read back (the
-    report is drawn while it is written). NaN where the block has no such cell. The file's
+    the coefficients ``k`` of :func:`key_coefficients` (animal-days per kg). The block's
+    value is therefore ``Σ_(key, c) k[key, c] · S[block, key, c] / n[block]``, with S the
+    first pass's sums of forage left [kg/ha] by (block, key) pair and n the block's cells in
+    a unit (:class:`~nutricap.landscape.grid.overview.BlockSums`); the file is not read back
+    (the report is drawn while it is written). Σ value × n × cell area over the blocks is
+    the units' NCC [animal-days]. NaN where no cell of the block lies in a unit. The file's
     cells are float32 arithmetic, so the two agree to about 1e-7 relative, not to the bit.
     """
     blocks = result.blocks
@@ -87,7 +89,7 @@ def capacity_density_map(
     block, key, forage = blocks.available_pairs()
     pair_days = np.einsum("pc,cp->p", coefficients[key], forage)
     total = np.bincount(block, weights=pair_days, minlength=blocks.coarse.size)
-    cells = blocks.cells_with_data()
+    cells = blocks.unit_cells
     with np.errstate(invalid="ignore", divide="ignore"):
         mean = np.where(cells > 0, total.reshape(cells.shape) / cells, np.nan)
     grid = result.grid

@@ -7,11 +7,14 @@ grid* aligned to the raster grid, :class:`CoarseGrid`) and hand the report one
 :class:`OverviewMap` per layer: the capacity density and what each availability rule removed.
 The report draws them; it computes nothing from them.
 
-How the sums are taken (the first pass, :mod:`nutricap.landscape.grid.window_pass`): the runs
-of equal key along each row of a window also break where a block begins, so that every run
-lies in one block and one key; each window's runs are added by (block, key) pair
-(:func:`pair_sums`), and the main thread adds the pairs into the totals by key and into
-:class:`BlockSums`. Per-unit and per-block figures are thus sums of the same pair sums.
+How the sums are taken (the first pass, :mod:`nutricap.landscape.grid.window_pass`): the
+per-cell rows the maps need (forage left by class, forage removed by each rule) are summed over
+runs of equal key along each row that also end where a block begins, so that every run lies in
+one block and one key; each window's runs are added by (block, key) pair (:func:`pair_sums`),
+and the main thread adds the pairs into the totals by key and into :class:`BlockSums`. The
+per-unit tables and the maps are thus sums of the same pair sums (they agree to float64
+rounding). The per-cell rows the maps do not need are summed over the longer runs of equal key
+only (a numpy call per run and row is what the maps cost).
 """
 
 from __future__ import annotations
@@ -176,16 +179,14 @@ class BlockSums:
     unit_key, stratum_key : bool arrays (keys,)
         Keys of cells in a unit; in a unit and a stratum (the keys of the problem).
     n_rows : int
-        Rows of the per-cell array kept per block (the first ``n_rows`` of the layout).
+        Rows of the per-cell array summed by block (the layout's map rows: forage left by
+        class, then removed by each rule).
     available : slice
         Rows of the forage left per class, kept by (block, key) pair for the density map.
     unit_cells : float array (rows, cols)
-        Cells of each block in a unit (in a stratum or not).
-    stratum_cells : float array (rows, cols)
-        Cells of each block in a unit and a stratum.
+        Cells of each block in a unit (in a stratum or not, with data or not).
     sums : float64 array (n_rows, rows, cols)
-        The first ``n_rows`` rows of the per-cell array summed over the block's cells in a
-        unit and a stratum.
+        The map rows summed over the block's cells in a unit and a stratum [kg/ha × cells].
     pairs : list of (blocks, keys, available sums)
         Per window: the coarse block (flat index), key and forage left of each class
         [kg/ha summed over cells] of every (block, key) pair of a unit and a stratum.
@@ -197,14 +198,12 @@ class BlockSums:
     n_rows: int
     available: slice
     unit_cells: np.ndarray = field(init=False)
-    stratum_cells: np.ndarray = field(init=False)
     sums: np.ndarray = field(init=False)
     pairs: list = field(init=False, default_factory=list)
 
     def __post_init__(self) -> None:
         shape = (self.coarse.rows, self.coarse.cols)
         self.unit_cells = np.zeros(shape)
-        self.stratum_cells = np.zeros(shape)
         self.sums = np.zeros((self.n_rows, *shape))
 
     def add(self, part: PairSums) -> None:
@@ -219,17 +218,11 @@ class BlockSums:
 
         self.unit_cells[place] += by_block(self.unit_key[part.keys], part.cells)
         inside = self.stratum_key[part.keys]
-        self.stratum_cells[place] += by_block(inside, part.cells)
         for row in range(self.n_rows):
             self.sums[(row, *place)] += by_block(inside, part.sums[row])
         local_row, local_col = np.divmod(part.blocks[inside], n_cols)
         blocks = (local_row + first_row) * self.coarse.cols + local_col + first_col
         self.pairs.append((blocks, part.keys[inside], part.sums[self.available][:, inside]))
-
-    def cells_with_data(self) -> np.ndarray:
-        """Cells of each block in a unit and a stratum with data in every layer: those that
-        hold a capacity density (the last row kept is the layout's ``nodata``)."""
-        return self.stratum_cells - self.sums[-1]
 
     def available_pairs(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Every window's (block, key) pairs of a unit and a stratum: (coarse block (flat),

@@ -294,13 +294,12 @@ def grid_problem(
 
 def _block_sums(setup: GridSetup, n_units: int) -> BlockSums:
     """Empty sums by block of the maps: the keys of a unit (``unit_base`` order: unit ×
-    (strata + "no stratum")), those of a unit and a stratum, the layout's rows up to
-    ``nodata``."""
+    (strata + "no stratum")), those of a unit and a stratum, the layout's map rows."""
     key = np.arange(setup.dump_key + 1)
     in_unit = key < n_units * (setup.n_strata + 1)
     in_stratum = in_unit & (key % (setup.n_strata + 1) < setup.n_strata)
     layout = layout_of(setup)
-    return BlockSums(setup.coarse, in_unit, in_stratum, layout.nodata + 1, layout.available)
+    return BlockSums(setup.coarse, in_unit, in_stratum, layout.map_rows, layout.available)
 
 
 def rule_maps(result: GridResult, setup: GridSetup) -> list[OverviewMap]:
@@ -311,21 +310,22 @@ def rule_maps(result: GridResult, setup: GridSetup) -> list[OverviewMap]:
     -----
     A block's value is Σ kg over its cells in a unit and a stratum (with data) ÷ (cells of
     the block in a unit, in a stratum or not, × cell area [ha]): the removed forage is the
-    availability report's (:func:`rule_amounts`, the same sums by block instead of by unit),
-    spread over the block's unit area. NaN where no cell of the block lies in a unit.
+    availability report's (:func:`removed_amounts`, the same pair sums added by block instead
+    of by unit), spread over the block's unit area; the standing forage is the forage left +
+    Σ removed (equal to the standing forage of the cells with data to float32 rounding).
+    NaN where no cell of the block lies in a unit.
     """
     blocks, grid = result.blocks, result.grid
     layout = layout_of(setup)
     flat = blocks.sums.reshape(blocks.n_rows, -1).T
-    _, removed_kg, gross_kg = rule_amounts(flat, layout, grid.cell_area_ha)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        area_ha = np.where(blocks.unit_cells > 0, blocks.unit_cells * grid.cell_area_ha, np.nan)
+    removed_kg = removed_amounts(flat, layout, grid.cell_area_ha)
+    gross_kg = flat[:, layout.available].sum(axis=1) * grid.cell_area_ha + removed_kg.sum(axis=1)
+    area_ha = np.where(blocks.unit_cells > 0, blocks.unit_cells * grid.cell_area_ha, np.nan)
     shape = blocks.unit_cells.shape
     layers = [("standing_forage", "Standing forage before the availability rules", gross_kg)]
     layers += [
         (f"removed_{rule}", f"Forage removed by the {rule.replace('_', ' ')} rule", kg)
-        for rule, kg in zip(setup.rules.active(), removed_kg.T)
-        if rule != "nodata"
+        for rule, kg in zip(setup.rules.active()[1:], removed_kg.T)  # the rules after nodata
     ]
     coarse, transform, crs = blocks.coarse, grid.transform, grid.crs
     return [
@@ -558,12 +558,17 @@ def rule_amounts(sums: np.ndarray, layout: Layout, cell_ha: float):
         Standing forage before the rules [kg].
     """
     area = [sums[:, layout.nodata] * cell_ha]
-    removed = [np.full(len(sums), np.nan)]
-    for number in range(layout.n_rules):
-        removed.append(sums[:, layout.removed(number)] * cell_ha)
-        area.append(sums[:, layout.affected(number)] * cell_ha)
+    area += [sums[:, layout.affected(number)] * cell_ha for number in range(layout.n_rules)]
+    removed = np.column_stack([np.full(len(sums), np.nan), removed_amounts(sums, layout, cell_ha)])
     gross = sums[:, layout.gross].sum(axis=1) * cell_ha
-    return np.column_stack(area), np.column_stack(removed), gross
+    return np.column_stack(area), removed, gross
+
+
+def removed_amounts(sums: np.ndarray, layout: Layout, cell_ha: float) -> np.ndarray:
+    """Forage each rule after ``nodata`` removed [kg], (n, rules), from sums of the layout's
+    rows over cells (by unit or by block: at least its map rows)."""
+    columns = [layout.removed(number) for number in range(layout.n_rules)]
+    return sums[:, columns] * cell_ha
 
 
 def _calibration_report(report, counts, cell_ha, project):

@@ -121,20 +121,29 @@ class WindowData:
 
 @dataclass
 class ChunkRuns:
-    """A chunk's sums over runs of equal key (each run in one row and one map block)."""
+    """A chunk's sums over runs of equal key along its rows: of the layout's rows after the
+    map rows by such runs; of the map rows by runs that also end where a block of the report's
+    maps begins (so that each lies in one block and one key)."""
 
     run_keys: np.ndarray
-    run_starts: np.ndarray  # first cell of each run (flat index into the chunk)
     run_cells: np.ndarray
-    run_sums: np.ndarray  # (rows of the layout, runs) float32
+    run_sums: np.ndarray  # (rows of the layout after the map rows, runs) float32
+    block_keys: np.ndarray
+    block_starts: np.ndarray  # first cell of each block run (flat index into the chunk)
+    block_cells: np.ndarray
+    block_sums: np.ndarray  # (map rows, block runs) float32
     calibration_cells: np.ndarray  # (groups, 3): beyond range, beyond margin, negative
     treated: TreatedRuns | None = None  # treated cells' sums (scenarios only)
 
 
 @dataclass
 class WindowSums:
-    """What one window adds to the totals: its sums by (map block, key) pair."""
+    """What one window adds to the totals: its run sums by key (the layout's rows after the
+    map rows) and its sums by (map block, key) pair (the map rows)."""
 
+    run_keys: np.ndarray
+    run_cells: np.ndarray
+    run_sums: np.ndarray  # (rows of the layout after the map rows, runs) float32
     pairs: PairSums
     calibration_cells: np.ndarray  # (groups, 3): beyond range, beyond margin, negative
     treated: TreatedRuns | None = None  # treated cells' sums (scenarios only)
@@ -142,25 +151,28 @@ class WindowSums:
     @staticmethod
     def of_chunks(setup: GridSetup, window: Window, parts: list[tuple[int, ChunkRuns]]):
         """The window's sums from its chunks' runs (``(first cell, runs)`` of each chunk)."""
-        starts = np.concatenate([first + part.run_starts for first, part in parts])
-        keys = np.concatenate([part.run_keys for _, part in parts])
+        chunks = [part for _, part in parts]
+        starts = np.concatenate([first + part.block_starts for first, part in parts])
         coarse = setup.coarse
         if coarse is None:
             blocks, span = np.zeros_like(starts), (0, 0, 1, 1)
         else:
             blocks, span = coarse.local_blocks(window, starts), coarse.span(window)
         pairs = pair_sums(
-            keys,
+            np.concatenate([part.block_keys for part in chunks]),
             blocks,
-            np.concatenate([part.run_cells for _, part in parts]),
-            np.concatenate([part.run_sums for _, part in parts], axis=1),
+            np.concatenate([part.block_cells for part in chunks]),
+            np.concatenate([part.block_sums for part in chunks], axis=1),
             setup.dump_key + 1,
             span,
         )
-        treated = [part.treated for _, part in parts if part.treated is not None]
+        treated = [part.treated for part in chunks if part.treated is not None]
         return WindowSums(
+            np.concatenate([part.run_keys for part in chunks]),
+            np.concatenate([part.run_cells for part in chunks]),
+            np.concatenate([part.run_sums for part in chunks], axis=1),
             pairs,
-            sum(part.calibration_cells for _, part in parts),
+            sum(part.calibration_cells for part in chunks),
             TreatedRuns.concatenate(treated) if treated else None,
         )
 
@@ -201,7 +213,9 @@ class Totals:
 
     def add(self, part: WindowSums) -> None:
         pairs = part.pairs
-        _add_runs(self.cells, self.sums, pairs.keys, pairs.cells, pairs.sums)
+        split = pairs.sums.shape[0]  # the map rows come from the pairs
+        _add_runs(self.cells, self.sums[:, split:], part.run_keys, part.run_cells, part.run_sums)
+        _add_runs(None, self.sums[:, :split], pairs.keys, pairs.cells, pairs.sums)
         if self.blocks is not None:
             self.blocks.add(pairs)
         self.calibration_cells += part.calibration_cells
@@ -213,10 +227,11 @@ class Totals:
 
 
 def _add_runs(cells, sums, run_keys, run_cells, run_sums) -> None:
-    """Add run (or pair) sums into the totals by key (float64)."""
-    cells += np.bincount(run_keys, weights=run_cells, minlength=cells.size)
+    """Add run (or pair) sums into the totals by key (float64); ``cells`` may be None."""
+    if cells is not None:
+        cells += np.bincount(run_keys, weights=run_cells, minlength=cells.size)
     for row, values in enumerate(run_sums):
-        sums[:, row] += np.bincount(run_keys, weights=values, minlength=cells.size)
+        sums[:, row] += np.bincount(run_keys, weights=values, minlength=len(sums))
 
 
 @dataclass(frozen=True)
@@ -225,8 +240,10 @@ class Layout:
     forage before the rules, the cells without data and, only when there are calibrated
     groups, the terms from which a refitted model's forage follows.
 
-    ``available`` (classes) | ``access`` | (removed, affected) per rule after ``nodata`` |
-    ``gross`` (classes) | ``nodata`` | ``calibration`` (``n_calibration`` rows).
+    ``available`` (classes) | ``removed`` per rule after ``nodata`` | ``access`` |
+    ``affected`` per rule | ``gross`` (classes) | ``nodata`` | ``calibration``
+    (``n_calibration`` rows). The first :attr:`map_rows` (forage left and removed) are also
+    summed by block of the report's maps.
     """
 
     n_classes: int
@@ -242,18 +259,22 @@ class Layout:
         return self.nodata + 1 + self.n_calibration
 
     @property
+    def map_rows(self) -> int:
+        return self.n_classes + self.n_rules
+
+    @property
     def available(self) -> slice:
         return slice(0, self.n_classes)
 
     @property
     def access(self) -> int:
-        return self.n_classes
+        return self.map_rows
 
     def removed(self, number: int) -> int:
-        return self.n_classes + 1 + 2 * number
+        return self.n_classes + number
 
     def affected(self, number: int) -> int:
-        return self.removed(number) + 1
+        return self.map_rows + 1 + number
 
     @property
     def gross(self) -> slice:
@@ -326,7 +347,7 @@ def chunk_sums(setup: GridSetup, data: WindowData) -> tuple[ChunkRuns, np.ndarra
         available = outcome.available_kg_per_ha
         reprediction_terms(setup.calibrated, predictions, available, stacked[layout.calibration])
     breaks = None if setup.coarse is None else setup.coarse.column_starts(data.window)
-    runs = _run_sums(key, stacked, data.units.shape, breaks)
+    runs = _run_sums(key, stacked, data.units.shape, layout.map_rows, breaks)
     cell_keys = np.where(valid, key, setup.dump_key).astype(np.int32)
     sums = ChunkRuns(*runs, calibration_cells)
     if setup.treatment_pair is not None:
@@ -406,19 +427,26 @@ def _gross_biomass(setup: GridSetup, data: WindowData, polygons, valid, lacking,
     return counts, predictions
 
 
-def _run_sums(key: np.ndarray, stacked: np.ndarray, shape: tuple[int, int], breaks=None):
-    """Sums of ``stacked`` rows over runs of equal key; runs break at row ends of the window
-    and at the columns ``breaks`` (a slice: where a block of the maps begins). Returns each
-    run's key, first cell, cells and sums."""
+def _run_sums(key, stacked, shape: tuple[int, int], split: int, breaks: slice | None):
+    """Sums of ``stacked`` rows over runs of equal key (runs break at row ends of the window):
+    of the rows from ``split`` on by such runs, of the rows before it by runs that also break
+    at the columns ``breaks`` (where a block of the maps begins; None: nowhere else).
+
+    Returns (keys, cells, sums) of the runs, then (keys, first cells, cells, sums) of the
+    block runs (:class:`ChunkRuns`' order).
+    """
     key2d = key.reshape(shape)
     start = np.empty(shape, dtype=bool)
     start[:, 0] = True
     np.not_equal(key2d[:, 1:], key2d[:, :-1], out=start[:, 1:])
+    starts = np.flatnonzero(start)
+    runs = (key[starts], np.diff(np.append(starts, key.size)))
+    runs += (np.add.reduceat(stacked[split:], starts, axis=1),)
     if breaks is not None:
         start[:, breaks] = True
-    starts = np.flatnonzero(start)
-    run_cells = np.diff(np.append(starts, key.size))
-    return key[starts], starts, run_cells, np.add.reduceat(stacked, starts, axis=1)
+        starts = np.flatnonzero(start)
+    cells = np.diff(np.append(starts, key.size))
+    return *runs, key[starts], starts, cells, np.add.reduceat(stacked[:split], starts, axis=1)
 
 
 # --- streaming ------------------------------------------------------------------------------
