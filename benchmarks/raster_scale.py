@@ -115,7 +115,7 @@ def build(folder: Path, cells: int) -> None:
         started = time.perf_counter()
         _write_layer(folder / f"{name}.tif", side, transform, number, rng)
         print(f"built {name}.tif in {time.perf_counter() - started:.1f} s", file=sys.stderr)
-    _write_vectors(folder, side, rng)
+    _write_vectors(folder, (side, side), rng)
     _write_tables(folder, rng)
     done.write_text("ok\n")
 
@@ -159,9 +159,14 @@ def _voronoi(points: np.ndarray, frame) -> np.ndarray:
 
 
 def _write_vectors(
-    folder: Path, side: int, rng, n_units: int = N_UNITS, tile_side: int | None = None
+    folder: Path,
+    shape: tuple[int, int],
+    rng,
+    n_units: int = N_UNITS,
+    tile_side: int | None = None,
 ) -> None:
-    east, south = WEST + side * CELL_M, NORTH - side * CELL_M
+    """Units and strata over a grid of ``shape`` = (rows, columns) cells."""
+    east, south = WEST + shape[1] * CELL_M, NORTH - shape[0] * CELL_M
     frame = shapely.box(WEST, south, east, NORTH)
     inner = shapely.box(WEST + 45.0, south + 45.0, east - 45.0, NORTH - 45.0)
 
@@ -260,29 +265,39 @@ def run_exactextract(folder: Path) -> tuple[float, str]:
 MOSAIC_UNITS = 2_000
 
 
-def build_mosaic(folder: Path, cells: int, tile_cells: int) -> int:
-    """Write the VRT mosaic of k × k copies of the cached ``tile_cells`` landscape into
-    ``folder`` (vectors and tables drawn anew over its extent); return k."""
+def mosaic_layout(cells: int, tile_cells: int) -> tuple[int, int]:
+    """(rows, columns) of tiles: round(cells / tile_cells) tiles, the factor pair nearest a
+    square (10 tiles → 2 × 5, 9 → 3 × 3)."""
+    count = max(1, int(round(cells / tile_cells)))
+    rows = max(r for r in range(1, int(np.sqrt(count)) + 1) if count % r == 0)
+    return rows, count // rows
+
+
+def build_mosaic(folder: Path, cells: int, tile_cells: int) -> tuple[int, int]:
+    """Write the VRT mosaic of rows × columns copies of the cached ``tile_cells`` landscape
+    into ``folder`` (vectors and tables drawn anew over its extent); return the layout."""
     tile_folder = CACHE / f"cells_{tile_cells}" / "inputs"
     build(tile_folder, tile_cells)
-    tiles = max(1, int(round(np.sqrt(cells / tile_cells))))
+    layout = mosaic_layout(cells, tile_cells)
     if (folder / "COMPLETE").exists():
-        return tiles
+        return layout
     folder.mkdir(parents=True, exist_ok=True)
     for name in layer_names():
-        write_vrt_mosaic(tile_folder / f"{name}.tif", folder / f"{name}.vrt", tiles)
+        write_vrt_mosaic(tile_folder / f"{name}.tif", folder / f"{name}.vrt", layout)
     with rasterio.open(folder / f"{CLASSES[0]}.vrt") as src:
-        side = src.width
+        shape = (src.height, src.width)
     rng = np.random.default_rng(SEED + 1)
-    _write_vectors(folder, side, rng, n_units=MOSAIC_UNITS, tile_side=side // tiles)
+    _write_vectors(folder, shape, rng, n_units=MOSAIC_UNITS, tile_side=shape[0] // layout[0])
     _write_tables(folder, rng, suffix=".vrt")
     (folder / "COMPLETE").write_text("ok\n")
-    return tiles
+    return layout
 
 
-def write_vrt_mosaic(tile: Path, path: Path, tiles: int) -> None:
-    """A GDAL VRTDataset (gdal.org/drivers/raster/vrt.html) of ``tiles`` × ``tiles`` copies of
-    the GeoTIFF ``tile`` side by side, one SimpleSource each, with its blocks and nodata."""
+def write_vrt_mosaic(tile: Path, path: Path, layout: tuple[int, int]) -> None:
+    """A GDAL VRTDataset (gdal.org/drivers/raster/vrt.html) of ``layout`` = (rows, columns)
+    copies of the GeoTIFF ``tile`` side by side, one SimpleSource each, with its blocks and
+    nodata."""
+    tile_rows, tile_cols = layout
     with rasterio.open(tile) as src:
         width, height, t = src.width, src.height, src.transform
         block_rows, block_cols = src.block_shapes[0]
@@ -293,12 +308,12 @@ def write_vrt_mosaic(tile: Path, path: Path, tiles: int) -> None:
         f'<SrcRect xOff="0" yOff="0" xSize="{width}" ySize="{height}"/>'
         f'<DstRect xOff="{col * width}" yOff="{row * height}" xSize="{width}" '
         f'ySize="{height}"/></SimpleSource>'
-        for row in range(tiles)
-        for col in range(tiles)
+        for row in range(tile_rows)
+        for col in range(tile_cols)
     ]
     nodata_xml = "" if nodata is None else f"<NoDataValue>{nodata!r}</NoDataValue>"
     path.write_text(
-        f'<VRTDataset rasterXSize="{tiles * width}" rasterYSize="{tiles * height}">\n'
+        f'<VRTDataset rasterXSize="{tile_cols * width}" rasterYSize="{tile_rows * height}">\n'
         f"<SRS>{wkt}</SRS>\n"
         f"<GeoTransform>{t.c!r}, {t.a!r}, 0.0, {t.f!r}, 0.0, {t.e!r}</GeoTransform>\n"
         f'<VRTRasterBand dataType="Float32" band="1" blockXSize="{block_cols}" '
@@ -312,7 +327,7 @@ def run_mosaic(args) -> None:
     from distributed import LocalCluster
 
     folder = CACHE / f"mosaic_{args.cells}_of_{args.tile_cells}" / "inputs"
-    tiles = build_mosaic(folder, args.cells, args.tile_cells)
+    tile_rows, tile_cols = build_mosaic(folder, args.cells, args.tile_cells)
     with rasterio.open(folder / f"{CLASSES[0]}.vrt") as src:
         cells = src.width * src.height
     load = os.getloadavg()[0]
@@ -331,14 +346,16 @@ def run_mosaic(args) -> None:
     names = ("capacity_by_unit.csv", "availability_rules.csv", "capacity_density.tif")
     equal = all((local / n).read_bytes() == (remote / n).read_bytes() for n in names)
     print(
-        f"mosaic of {tiles} x {tiles} tiles of {args.tile_cells:,} cells = {cells:,} cells, "
+        f"mosaic of {tile_rows} x {tile_cols} tiles of {args.tile_cells:,} cells = "
+        f"{cells:,} cells, "
         f"{MOSAIC_UNITS} units; read floor {floor:.2f} s; estimate {estimate_s:.2f} s on threads "
         f"(best of {args.repeat}), {cluster_s:.2f} s on a LocalCluster of 2 worker processes; "
         f"1-min load before {load:.2f}, after {os.getloadavg()[0]:.2f}",
         file=sys.stderr,
     )
     print(
-        f"cells={cells} mosaic_tiles={tiles * tiles} ratio_to_read_floor={estimate_s / floor:.2f} "
+        f"cells={cells} mosaic_tiles={tile_rows * tile_cols} "
+        f"ratio_to_read_floor={estimate_s / floor:.2f} "
         f"peak_rss_mb={peak_mb:.0f} cluster_s={cluster_s:.2f} equal={'yes' if equal else 'no'}"
     )
 
