@@ -5,11 +5,13 @@ classes from the plot means of the cell's stratum, direct classes from their ras
 calibrated classes from the index raster and the group models, see
 :mod:`nutricap.landscape.grid.calibration`) → the availability rules
 (:func:`nutricap.landscape.availability.apply_rules`) → sums by (unit, stratum) key. Sums are
-taken over runs of equal key along each row (``numpy.add.reduceat``; a run also ends where a
-block of the coarse grid of the report's maps begins, :mod:`nutricap.landscape.grid.overview`),
-each window's runs are added by (block, key) pair and the pairs into the keys and blocks
-(``numpy.bincount``). A cell belongs to a unit or stratum polygon when its
-centre lies in it (GDAL's rasteriser); cells outside the strata map carry no forage.
+taken over runs of equal key along each row (``numpy.add.reduceat``) and the run sums are
+added into the keys (``numpy.bincount``). The rows the report's maps need (forage left by
+class, removed by each rule) are summed over runs that also end where a block of the maps'
+coarse grid begins (:mod:`nutricap.landscape.grid.overview`), added by (block, key) pair in
+each window, and the pairs into the keys and the blocks. A cell belongs to a unit or stratum
+polygon when its centre lies in it (GDAL's rasteriser); cells outside the strata map carry no
+forage.
 
 Worker threads read and compute the windows (:class:`WindowReader`, :func:`stream_windows`),
 each in its own reusable memory (:class:`~nutricap.landscape.grid.rasters.Scratch`), and write
