@@ -148,6 +148,8 @@ def estimate(
     say("solving capacity per unit")
     others = inputs.other_herds
     solution = solve(problem, herd, target, project, others)
+    if grid is not None:  # the report's coarse map of capacity_density.tif (issue 15)
+        grid.add_density_map(problem.available_kg, solution.ncc.eaten_kg, herd.intake_kg_per_day)
     shared = None
     if others:
         say("other herbivores: NCC with and without them")

@@ -67,6 +67,11 @@ def test_cluster_run_equals_the_local_run(folder, tmp_path, threads_cluster):
         np.testing.assert_array_equal(b.read(1), a.read(1))
         assert b.profile == a.profile
     assert remote.grid.cache is None  # no per-cell file on this machine
+    # The report's coarse maps: the same sums by block, so the same maps to the last bit.
+    assert [m.key for m in remote.grid.overview_maps] == [m.key for m in local.grid.overview_maps]
+    for ours, theirs in zip(local.grid.overview_maps, remote.grid.overview_maps):
+        np.testing.assert_array_equal(theirs.values, ours.values)
+        assert theirs.transform == ours.transform
     manifest = json.loads((tmp_path / "cluster" / "run.json").read_text())
     computed_on = manifest["derived"]["raster_path"]["computed_on"]
     assert computed_on == f"Dask cluster at {threads_cluster}"

@@ -174,6 +174,12 @@ def test_an_identity_treatment_changes_nothing_to_the_last_bit(tmp_path):
     # sums beside the unit × stratum sums, which stay as they are.
     alone = estimate(project)
     pd.testing.assert_frame_equal(result.by_unit, alone.by_unit, check_exact=True)
+    # The report's coarse maps are the baseline's, the estimate's to the last bit.
+    maps = result.grid.overview_maps
+    assert [m.key for m in maps] == [m.key for m in alone.grid.overview_maps]
+    assert {"capacity_density", "removed_snow", "removed_min_forage"} <= {m.key for m in maps}
+    for ours, theirs in zip(maps, alone.grid.overview_maps):
+        np.testing.assert_array_equal(ours.values, theirs.values)
 
 
 def test_rules_act_on_the_treated_forage(tmp_path):

@@ -830,3 +830,22 @@ def test_lon_lat_raster_without_resample_is_refused(tmp_path):
     with pytest.raises(SpatialError, match=r"sage\.tif: key 'rasters\.biomass\.sage': the raster "
                        r"that defines the grid has a geographic CRS.*set resample"):  # fmt: skip
         _grid_run(folder, '[rasters]\nbiomass = { sage = "sage.tif" }\n')
+
+
+def test_a_unit_whose_allowable_use_the_cattle_take_has_exactly_zero_ncc(example_project):
+    """The raster example's Rimgrass: snow leaves so little that the cattle permit (500 AUM,
+    invented for the example) takes the whole allowable use of every class cattle eat, so
+    the deer's NCC is exactly 0 (it read 1e-13 animals, 'quantity', from a rounding
+    residue of the allocation)."""
+    text = (example_project.parent / "project_rasters.toml").read_text(encoding="utf-8")
+    text = text.replace("bootstrap_replicates = 1000", "bootstrap_replicates = 0")
+    result = estimate(_project(example_project.parent, text, "rimgrass.toml"))
+    unit = result.by_unit.set_index("unit_id").loc["Rimgrass"]
+    rows = result.problem.row_unit == list(result.by_unit["unit_id"]).index("Rimgrass")
+    items = result.problem.items
+    eaten_by_cattle = pd.Series(items.growth_form).isin(["grass", "forb", "browse"]).to_numpy()
+    usable_kg = (result.problem.available_kg[rows] * items.allowable_use)[:, eaten_by_cattle]
+    # 500 AUM × 353.8 kg (780 lb, SRM 1998 glossary) beyond what the rules leave usable:
+    assert 500 * 780 * 0.45359237 > usable_kg.sum()
+    assert unit["ncc_animals"] == 0.0 and unit["allowable_use_animals"] == 0.0
+    assert unit["limiting_factor"] == "no_forage"

@@ -216,6 +216,40 @@ def test_a_unit_without_the_herd_keeps_its_ncc_bit_for_bit():
     assert ncc_days(shared.problem)[0] < ncc_days(base)[0]
 
 
+def test_demand_beyond_the_headroom_fills_every_preferred_item_exactly():
+    # Demand twice the preferred headroom: by the rule every item eaten at all is filled to
+    # its headroom, so it must lose exactly that, to the last bit (a fill level an ulp short
+    # of 1 left 1e-16 of the headroom, which the target species then counted as forage).
+    rng = np.random.default_rng(3)
+    headroom = rng.uniform(10.0, 5000.0, (200, 8))
+    weight = rng.choice([0.0, 0.05, 0.3, 1.0], (200, 8))
+    demand = 2.0 * (headroom * (weight > 0)).sum(axis=1)
+    taken, unmet = allocate_within_caps_kg(demand, headroom, weight)
+    np.testing.assert_array_equal(taken, np.where(weight > 0, headroom, 0.0))
+    np.testing.assert_array_equal(unmet, demand - taken.sum(axis=1))
+
+
+def test_a_herd_taking_all_allowable_use_leaves_exactly_zero_ncc():
+    # One unit of three patches (rows), three items eaten by cattle at preferences 1, 0.3 and
+    # 0.05 (as the example's permit); the cattle ask more than the allowable use of all of
+    # them, so none is left to the deer: each patch loses exactly its allowable use, the use
+    # cap is exactly 0 and NCC exactly 0 (not 1e-13), whatever the amounts (20 draws).
+    weights = {"browse": 0.05, "forb": 0.3, "grass": 1.0}
+    for seed in range(20):
+        available = np.random.default_rng(seed).uniform(100.0, 40_000.0, (3, 3))
+        base = CapacityProblem(
+            np.array(["u0"], dtype=object),
+            np.array([0, 0, 0]),
+            items([2.8, 2.6, 2.0], [0.5, 0.5, 0.4], ("browse", "forb", "grass")),
+            available,
+        )
+        shared = share_range(base, (herd(1e6, weights),))
+        usable = available * base.items.allowable_use
+        np.testing.assert_array_equal(shared.taken_kg["cattle"], usable)
+        np.testing.assert_array_equal(shared.problem.use_cap, 0.0)
+        np.testing.assert_array_equal(ncc_days(shared.problem), 0.0)
+
+
 forage = st.lists(st.floats(0, 5000), min_size=3, max_size=3)
 
 

@@ -375,7 +375,9 @@ class RuleOutcome:
 
 
 def outcome_rows(n_classes: int, rules: CellRules) -> int:
-    """Rows of the array :func:`apply_rules` fills: classes, access, 2 per rule after nodata."""
+    """Rows of the array :func:`apply_rules` fills: forage left by class, removed by each rule
+    after ``nodata``, access, affected by each rule (the first two blocks of rows are the
+    ones the report's maps sum by block, kept together)."""
     return n_classes + 1 + 2 * (len(rules.active()) - 1)
 
 
@@ -451,10 +453,11 @@ class _RuleState:
         n_classes = gross.shape[0]
         self.gross, self.rules, self.valid = gross, rules, valid
         self.available = out[:n_classes]
-        self.access = out[n_classes]
+        n_rules = len(rules.active()) - 1
+        self.access = out[n_classes + n_rules]
         np.copyto(self.access, valid)
         self.rows = {
-            rule: (out[n_classes + 1 + 2 * i], out[n_classes + 2 + 2 * i])
+            rule: (out[n_classes + i], out[n_classes + n_rules + 1 + i])
             for i, rule in enumerate(rules.active()[1:])
         }
         self.total = gross.sum(axis=0, dtype=np.float32)

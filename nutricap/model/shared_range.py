@@ -108,7 +108,8 @@ def share_range(problem: CapacityProblem, herds: tuple[OtherHerd, ...]) -> Share
         )
         of_unit = unit_headroom[problem.row_unit]
         share = np.divide(headroom, of_unit, out=np.zeros_like(headroom), where=of_unit > 0)
-        taken[herd.name] = unit_taken[problem.row_unit] * share
+        full = (unit_taken >= unit_headroom)[problem.row_unit]  # each row's share exactly
+        taken[herd.name] = np.where(full, headroom, unit_taken[problem.row_unit] * share)
         taken_total = taken_total + taken[herd.name]
     if not taken_total.any():
         return SharedRange(problem, taken, unmet)

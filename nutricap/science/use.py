@@ -137,7 +137,10 @@ def allocate_within_caps_kg(demand_kg, headroom_kg, preference=None):
     ``Σ_i taken_i = min(D, Σ_{p_i > 0} h_i)``. ``λ`` is found exactly: ``f(λ) = Σ h_i min(1,
     λ p_i)`` is piecewise linear and increasing with breakpoints ``1 / p_i``, so the items
     are sorted by breakpoint and the segment holding the target is solved for ``λ``. Below
-    every breakpoint this is the proportional rule ``D · p_i h_i / Σ p h``. The same
+    every breakpoint this is the proportional rule ``D · p_i h_i / Σ p h``. Where the demand
+    reaches the preferred items' whole headroom every one of them is filled to exactly its
+    headroom (``λ p_i`` computed in floating point may fall an ulp short of 1, and the
+    residue, 1e-16 of the headroom, would count as forage still usable). The same
     allocation minimises ``Σ taken_i² / (p_i h_i)`` subject to the demand and the caps
     (its KKT conditions), which is how the tests check it independently. Our stated rule
     (docs/methods.md), not taken from a publication.
@@ -148,6 +151,8 @@ def allocate_within_caps_kg(demand_kg, headroom_kg, preference=None):
     weight = np.broadcast_to(weight, headroom.shape)
     level = _fill_level(demand, headroom, weight)
     fill = np.where(weight > 0, np.minimum(1.0, level[..., None] * weight), 0.0)
+    full = demand >= np.where(weight > 0, headroom, 0.0).sum(axis=-1)
+    fill[full] = weight[full] > 0
     taken = headroom * fill
     unmet = demand - taken.sum(axis=-1)
     return taken, np.where(unmet > UNMET_TOLERANCE * demand, unmet, 0.0)

@@ -22,6 +22,7 @@ import rasterio
 from rasterio.windows import Window
 from tqdm import tqdm
 
+from nutricap.landscape.grid.overview import OverviewMap, block_map
 from nutricap.landscape.grid.rasters import Scratch, streaming_env
 
 if TYPE_CHECKING:
@@ -39,6 +40,15 @@ GIL_TURN_S = 0.0002
 def density_coefficients(
     result: GridResult, available_kg: np.ndarray, eaten_kg: np.ndarray, intake_kg_per_day: float
 ) -> np.ndarray:
+    """Animal-days per kg of each class's forage left in a cell, by key: (keys, classes),
+    float32 (:func:`key_coefficients`, as the density pass uses them)."""
+    coefficients = key_coefficients(result, available_kg, eaten_kg, intake_kg_per_day)
+    return coefficients.astype(np.float32)
+
+
+def key_coefficients(
+    result: GridResult, available_kg: np.ndarray, eaten_kg: np.ndarray, intake_kg_per_day: float
+) -> np.ndarray:
     """Animal-days per kg of each class's forage left in a cell, by key: (keys, classes).
 
     ``eaten_kg[row, item] / available_kg[row, item] / intake`` of the key's row and the
@@ -53,7 +63,40 @@ def density_coefficients(
     rows = result.row_of_key[has_row]
     columns = result.stratum_of_key[has_row][:, None] * n_classes + np.arange(n_classes)
     coefficients[has_row] = ratio[rows[:, None], columns]
-    return (coefficients / intake_kg_per_day).astype(np.float32)
+    return coefficients / intake_kg_per_day
+
+
+def capacity_density_map(
+    result: GridResult, available_kg: np.ndarray, eaten_kg: np.ndarray, intake_kg_per_day: float
+) -> OverviewMap:
+    """The coarse map of capacity_density.tif: each block's NCC [animal-days per ha] over
+    its unit area, i.e. the mean of the file's cells in the block that lie in a unit, those
+    without a density (no stratum, no data) counting 0.
+
+    Notes
+    -----
+    A cell's density is linear in its forage left per class, ``Σ_c kg_c · k[key, c]`` with
+    the coefficients ``k`` of :func:`key_coefficients` (animal-days per kg). The block's
+    value is therefore ``Σ_(key, c) k[key, c] · S[block, key, c] / n[block]``, with S the
+    first pass's sums of forage left [kg/ha] by (block, key) pair and n the block's cells in
+    a unit (:class:`~nutricap.landscape.grid.overview.BlockSums`); the file is not read back
+    (the report is drawn while it is written). Σ value × n × cell area over the blocks is
+    the units' NCC [animal-days]. NaN where no cell of the block lies in a unit. The file's
+    cells are float32 arithmetic, so the two agree to about 1e-7 relative, not to the bit.
+    """
+    blocks = result.blocks
+    coefficients = key_coefficients(result, available_kg, eaten_kg, intake_kg_per_day)
+    block, key, forage = blocks.available_pairs()
+    pair_days = np.einsum("pc,cp->p", coefficients[key], forage)
+    total = np.bincount(block, weights=pair_days, minlength=blocks.coarse.size)
+    cells = blocks.unit_cells
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.where(cells > 0, total.reshape(cells.shape) / cells, np.nan)
+    grid = result.grid
+    return block_map(
+        "capacity_density", "Capacity density (NCC)", "animal-days per ha", mean, blocks.coarse,
+        grid.transform, grid.crs,
+    )  # fmt: skip
 
 
 def window_density(keys, kg_per_ha, per_class, dump: int, out: np.ndarray, scratch: Scratch):

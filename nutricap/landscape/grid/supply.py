@@ -32,7 +32,8 @@ from nutricap.landscape import availability as rules_mod
 from nutricap.landscape.grid.calibration import CalibratedSums, calibrated_sums
 from nutricap.landscape.grid.cell_cache import CellCache
 from nutricap.landscape.grid.cluster import ClusterRun, WindowJob, new_job
-from nutricap.landscape.grid.overview import OverviewMap
+from nutricap.landscape.grid.outputs import capacity_density_map
+from nutricap.landscape.grid.overview import BlockSums, CoarseGrid, OverviewMap, block_map
 from nutricap.landscape.grid.rasters import (
     Grid,
     LayerSpec,
@@ -122,7 +123,11 @@ class GridResult:
     calibrated_sums : list of CalibratedSums
         One per calibrated group, for the model bootstrap (empty without calibrated groups).
     overview_maps : list of OverviewMap
-        Coarse maps for the report (capacity density, what each rule removed).
+        Coarse maps for the report: the standing forage and what each rule removed (from the
+        first pass), then the capacity density once the problem is solved
+        (:meth:`add_density_map`).
+    blocks : BlockSums
+        The first pass's sums by block of the maps' coarse grid.
     """
 
     problem: CapacityProblem
@@ -149,6 +154,19 @@ class GridResult:
     full_supply: StratumSupply | None = field(default=None, repr=False)  # means of all classes
     overview_maps: list[OverviewMap] = field(default_factory=list, repr=False)
     treated: TreatedSums | None = field(default=None, repr=False)  # with a scenario only
+    blocks: BlockSums | None = field(default=None, repr=False)
+
+    def add_density_map(
+        self, available_kg: np.ndarray, eaten_kg: np.ndarray, intake_kg_per_day: float
+    ) -> None:
+        """Append the coarse map of capacity_density.tif (NCC animal-days per ha) to
+        :attr:`overview_maps`, from the solution's (rows, items) forage available and eaten
+        [kg] and the daily intake [kg/day] (as :func:`~nutricap.landscape.grid.outputs.
+        write_capacity_density` is given them)."""
+        if self.blocks is not None:
+            self.overview_maps.append(
+                capacity_density_map(self, available_kg, eaten_kg, intake_kg_per_day)
+            )
 
     def describe(self) -> dict:
         """Grid, resampling and rules in plain values, for the run manifest."""
@@ -247,6 +265,7 @@ def grid_problem(
         water_key=layer_key(specs, "availability.distance_to_water"),
         dump_key=n_keys,
         treatment_pair=None if pairs is None else pairs[0],
+        coarse=CoarseGrid.for_shape(grid.height, grid.width),
     )
     window_size = config.rasters.window_size if config.rasters is not None else None
     windows = grid_windows(grid, window_size)
@@ -255,6 +274,7 @@ def grid_problem(
     totals = Totals(
         np.zeros(n_keys), np.zeros((n_keys, n_rows)), np.zeros((len(groups), 3), np.int64),
         np.zeros(n_treated), np.zeros((n_treated, 2 * len(classes))),
+        _block_sums(setup, len(units)),
     )  # fmt: skip
     show = progress is not None and not getattr(progress, "quiet", False)
     burners = shape_burners(units, strata_source, project, grid, treatments)
@@ -265,10 +285,53 @@ def grid_problem(
         project, setup, totals, grid, supply, units_table, (area_crs, reason), mode,
         forage_classes, calibration_report, specs, resampled, windows, cache, show,
     )  # fmt: skip
+    result.overview_maps.extend(rule_maps(result, setup))
     if pairs is not None:
         result = dataclasses.replace(result, treated=_treated(totals, pairs, setup, grid))
     result = dataclasses.replace(result, notes=overlap_notes + _grid_notes(grid) + result.notes)
     return dataclasses.replace(result, cluster=cluster) if cluster is not None else result
+
+
+def _block_sums(setup: GridSetup, n_units: int) -> BlockSums:
+    """Empty sums by block of the maps: the keys of a unit (``unit_base`` order: unit ×
+    (strata + "no stratum")), those of a unit and a stratum, the layout's map rows."""
+    key = np.arange(setup.dump_key + 1)
+    in_unit = key < n_units * (setup.n_strata + 1)
+    in_stratum = in_unit & (key % (setup.n_strata + 1) < setup.n_strata)
+    layout = layout_of(setup)
+    return BlockSums(setup.coarse, in_unit, in_stratum, layout.map_rows, layout.available)
+
+
+def rule_maps(result: GridResult, setup: GridSetup) -> list[OverviewMap]:
+    """Coarse maps of the first pass: standing forage before the rules, and the forage each
+    rule after ``nodata`` removed, in kg per ha of the block's area in units.
+
+    Notes
+    -----
+    A block's value is Σ kg over its cells in a unit and a stratum (with data) ÷ (cells of
+    the block in a unit, in a stratum or not, × cell area [ha]): the removed forage is the
+    availability report's (:func:`removed_amounts`, the same pair sums added by block instead
+    of by unit), spread over the block's unit area; the standing forage is the forage left +
+    Σ removed (equal to the standing forage of the cells with data to float32 rounding).
+    NaN where no cell of the block lies in a unit.
+    """
+    blocks, grid = result.blocks, result.grid
+    layout = layout_of(setup)
+    flat = blocks.sums.reshape(blocks.n_rows, -1).T
+    removed_kg = removed_amounts(flat, layout, grid.cell_area_ha)
+    gross_kg = flat[:, layout.available].sum(axis=1) * grid.cell_area_ha + removed_kg.sum(axis=1)
+    area_ha = np.where(blocks.unit_cells > 0, blocks.unit_cells * grid.cell_area_ha, np.nan)
+    shape = blocks.unit_cells.shape
+    layers = [("standing_forage", "Standing forage before the availability rules", gross_kg)]
+    layers += [
+        (f"removed_{rule}", f"Forage removed by the {rule.replace('_', ' ')} rule", kg)
+        for rule, kg in zip(setup.rules.active()[1:], removed_kg.T)  # the rules after nodata
+    ]
+    coarse, transform, crs = blocks.coarse, grid.transform, grid.crs
+    return [
+        block_map(key, title, "kg per ha", kg.reshape(shape) / area_ha, coarse, transform, crs)
+        for key, title, kg in layers
+    ]
 
 
 def _treated(totals: Totals, pairs, setup: GridSetup, grid: Grid) -> TreatedSums:
@@ -342,8 +405,9 @@ def _assemble(
     compression = project.config.rasters.density_compression if project.config.rasters else "zstd"
     return GridResult(
         problem, areas, supply, report, calibration, notes, grid, resampled, windows, cache,
-        row_of_key, stratum_of_key, setup.classes, compression, show, calibrated, None,
-        setup.rules, available_kg, mapped_ha, full_supply,
+        row_of_key, stratum_of_key, setup.classes, compression, show, calibrated,
+        rules=setup.rules, key_available_kg=available_kg, mapped_ha=mapped_ha,
+        full_supply=full_supply, blocks=totals.blocks,
     )  # fmt: skip
 
 
@@ -468,18 +532,43 @@ def _areas(units_table, strata_names, mapped_ha, accessible_ha, crs_reason) -> S
 
 
 def _rules_report(units_table, rules, sums, layout: Layout, cell_ha) -> pd.DataFrame:
-    per_unit = sums.sum(axis=1)
-    active = rules.active()
-    area = [per_unit[:, layout.nodata] * cell_ha]
-    removed = [np.full(len(units_table), np.nan)]
-    for number in range(layout.n_rules):
-        removed.append(per_unit[:, layout.removed(number)] * cell_ha)
-        area.append(per_unit[:, layout.affected(number)] * cell_ha)
-    gross = per_unit[:, layout.gross].sum(axis=1) * cell_ha
+    area, removed, gross = rule_amounts(sums.sum(axis=1), layout, cell_ha)
     return rules_mod.rules_report(
-        units_table["unit_id"].to_numpy(), active, np.column_stack(area),
-        np.column_stack(removed), gross,
-    )  # fmt: skip
+        units_table["unit_id"].to_numpy(), rules.active(), area, removed, gross
+    )
+
+
+def rule_amounts(sums: np.ndarray, layout: Layout, cell_ha: float):
+    """What each rule did, from sums of the layout's rows over cells (by unit, or by block).
+
+    Parameters
+    ----------
+    sums : ndarray (n, rows of the layout, at least up to ``nodata``)
+    layout : Layout
+    cell_ha : float
+        Area of a cell [ha].
+
+    Returns
+    -------
+    area_ha : ndarray (n, rules)
+        Area where each active rule removed something (``nodata``: without data) [ha].
+    removed_kg : ndarray (n, rules)
+        Forage each rule removed [kg]; NaN for ``nodata`` (unknown there).
+    gross_kg : ndarray (n,)
+        Standing forage before the rules [kg].
+    """
+    area = [sums[:, layout.nodata] * cell_ha]
+    area += [sums[:, layout.affected(number)] * cell_ha for number in range(layout.n_rules)]
+    removed = np.column_stack([np.full(len(sums), np.nan), removed_amounts(sums, layout, cell_ha)])
+    gross = sums[:, layout.gross].sum(axis=1) * cell_ha
+    return np.column_stack(area), removed, gross
+
+
+def removed_amounts(sums: np.ndarray, layout: Layout, cell_ha: float) -> np.ndarray:
+    """Forage each rule after ``nodata`` removed [kg], (n, rules), from sums of the layout's
+    rows over cells (by unit or by block: at least its map rows)."""
+    columns = [layout.removed(number) for number in range(layout.n_rules)]
+    return sums[:, columns] * cell_ha
 
 
 def _calibration_report(report, counts, cell_ha, project):

@@ -6,8 +6,12 @@ calibrated classes from the index raster and the group models, see
 :mod:`nutricap.landscape.grid.calibration`) → the availability rules
 (:func:`nutricap.landscape.availability.apply_rules`) → sums by (unit, stratum) key. Sums are
 taken over runs of equal key along each row (``numpy.add.reduceat``) and the run sums are
-added into the keys (``numpy.bincount``). A cell belongs to a unit or stratum polygon when its
-centre lies in it (GDAL's rasteriser); cells outside the strata map carry no forage.
+added into the keys (``numpy.bincount``). The rows the report's maps need (forage left by
+class, removed by each rule) are summed over runs that also end where a block of the maps'
+coarse grid begins (:mod:`nutricap.landscape.grid.overview`), added by (block, key) pair in
+each window, and the pairs into the keys and the blocks. A cell belongs to a unit or stratum
+polygon when its centre lies in it (GDAL's rasteriser); cells outside the strata map carry no
+forage.
 
 Worker threads read and compute the windows (:class:`WindowReader`, :func:`stream_windows`),
 each in its own reusable memory (:class:`~nutricap.landscape.grid.rasters.Scratch`), and write
@@ -38,6 +42,7 @@ from nutricap.landscape.grid.calibration import (
     reprediction_terms,
 )
 from nutricap.landscape.grid.cell_cache import CellCache, KeepCells
+from nutricap.landscape.grid.overview import BlockSums, CoarseGrid, PairSums, pair_sums
 from nutricap.landscape.grid.rasters import Grid, LayerStack, Scratch, ShapeBurner
 from nutricap.landscape.strata_raster import polygons_from_codes
 
@@ -75,6 +80,8 @@ class GridSetup:
     treatment_pair: np.ndarray | None = None
     """(units + 1, treatment polygons + 1) pair number of a burnt unit code × treatment
     polygon code, -1 where the two do not meet (or none); None without a scenario."""
+    coarse: CoarseGrid | None = None
+    """Blocks of the report's maps; None: one block per window (no maps)."""
 
     @property
     def n_classes(self) -> int:
@@ -115,23 +122,59 @@ class WindowData:
 
 
 @dataclass
-class WindowSums:
-    """What one window (or a chunk of it) adds to the totals."""
+class ChunkRuns:
+    """A chunk's sums over runs of equal key along its rows: of the layout's rows after the
+    map rows by such runs; of the map rows by runs that also end where a block of the report's
+    maps begins (so that each lies in one block and one key)."""
 
     run_keys: np.ndarray
     run_cells: np.ndarray
-    run_sums: np.ndarray  # (rows of the layout, runs) float32
+    run_sums: np.ndarray  # (rows of the layout after the map rows, runs) float32
+    block_keys: np.ndarray
+    block_starts: np.ndarray  # first cell of each block run (flat index into the chunk)
+    block_cells: np.ndarray
+    block_sums: np.ndarray  # (map rows, block runs) float32
+    calibration_cells: np.ndarray  # (groups, 3): beyond range, beyond margin, negative
+    treated: TreatedRuns | None = None  # treated cells' sums (scenarios only)
+
+
+@dataclass
+class WindowSums:
+    """What one window adds to the totals: its run sums by key (the layout's rows after the
+    map rows) and its sums by (map block, key) pair (the map rows)."""
+
+    run_keys: np.ndarray
+    run_cells: np.ndarray
+    run_sums: np.ndarray  # (rows of the layout after the map rows, runs) float32
+    pairs: PairSums
     calibration_cells: np.ndarray  # (groups, 3): beyond range, beyond margin, negative
     treated: TreatedRuns | None = None  # treated cells' sums (scenarios only)
 
     @staticmethod
-    def concatenate(parts: list[WindowSums]) -> WindowSums:
-        treated = [part.treated for part in parts if part.treated is not None]
+    def of_chunks(setup: GridSetup, window: Window, parts: list[tuple[int, ChunkRuns]]):
+        """The window's sums from its chunks' runs (``(first cell, runs)`` of each chunk)."""
+        chunks = [part for _, part in parts]
+        starts = np.concatenate([first + part.block_starts for first, part in parts])
+        coarse = setup.coarse
+        if coarse is None:
+            blocks, span = np.zeros_like(starts), (0, 0, 1, 1)
+        else:
+            blocks, span = coarse.local_blocks(window, starts), coarse.span(window)
+        pairs = pair_sums(
+            np.concatenate([part.block_keys for part in chunks]),
+            blocks,
+            np.concatenate([part.block_cells for part in chunks]),
+            np.concatenate([part.block_sums for part in chunks], axis=1),
+            setup.dump_key + 1,
+            span,
+        )
+        treated = [part.treated for part in chunks if part.treated is not None]
         return WindowSums(
-            np.concatenate([part.run_keys for part in parts]),
-            np.concatenate([part.run_cells for part in parts]),
-            np.concatenate([part.run_sums for part in parts], axis=1),
-            sum(part.calibration_cells for part in parts),
+            np.concatenate([part.run_keys for part in chunks]),
+            np.concatenate([part.run_cells for part in chunks]),
+            np.concatenate([part.run_sums for part in chunks], axis=1),
+            pairs,
+            sum(part.calibration_cells for part in chunks),
             TreatedRuns.concatenate(treated) if treated else None,
         )
 
@@ -160,16 +203,23 @@ class TreatedRuns:
 
 @dataclass
 class Totals:
-    """Sums over every window, by key (unit × (strata + "no stratum") + dump)."""
+    """Sums over every window, by key (unit × (strata + "no stratum") + dump), and by block
+    of the report's maps."""
 
     cells: np.ndarray
     sums: np.ndarray
     calibration_cells: np.ndarray
     treated_cells: np.ndarray | None = None  # (treated keys,), scenarios only
     treated_sums: np.ndarray | None = None  # (treated keys, 2 × classes)
+    blocks: BlockSums | None = None
 
     def add(self, part: WindowSums) -> None:
-        _add_runs(self.cells, self.sums, part.run_keys, part.run_cells, part.run_sums)
+        pairs = part.pairs
+        split = pairs.sums.shape[0]  # the map rows come from the pairs
+        _add_runs(self.cells, self.sums[:, split:], part.run_keys, part.run_cells, part.run_sums)
+        _add_runs(None, self.sums[:, :split], pairs.keys, pairs.cells, pairs.sums)
+        if self.blocks is not None:
+            self.blocks.add(pairs)
         self.calibration_cells += part.calibration_cells
         if part.treated is not None:
             runs = part.treated
@@ -179,10 +229,11 @@ class Totals:
 
 
 def _add_runs(cells, sums, run_keys, run_cells, run_sums) -> None:
-    """Add run sums into the totals by key (float64)."""
-    cells += np.bincount(run_keys, weights=run_cells, minlength=cells.size)
+    """Add run (or pair) sums into the totals by key (float64); ``cells`` may be None."""
+    if cells is not None:
+        cells += np.bincount(run_keys, weights=run_cells, minlength=cells.size)
     for row, values in enumerate(run_sums):
-        sums[:, row] += np.bincount(run_keys, weights=values, minlength=cells.size)
+        sums[:, row] += np.bincount(run_keys, weights=values, minlength=len(sums))
 
 
 @dataclass(frozen=True)
@@ -191,8 +242,10 @@ class Layout:
     forage before the rules, the cells without data and, only when there are calibrated
     groups, the terms from which a refitted model's forage follows.
 
-    ``available`` (classes) | ``access`` | (removed, affected) per rule after ``nodata`` |
-    ``gross`` (classes) | ``nodata`` | ``calibration`` (``n_calibration`` rows).
+    ``available`` (classes) | ``removed`` per rule after ``nodata`` | ``access`` |
+    ``affected`` per rule | ``gross`` (classes) | ``nodata`` | ``calibration``
+    (``n_calibration`` rows). The first :attr:`map_rows` (forage left and removed) are also
+    summed by block of the report's maps.
     """
 
     n_classes: int
@@ -208,18 +261,22 @@ class Layout:
         return self.nodata + 1 + self.n_calibration
 
     @property
+    def map_rows(self) -> int:
+        return self.n_classes + self.n_rules
+
+    @property
     def available(self) -> slice:
         return slice(0, self.n_classes)
 
     @property
     def access(self) -> int:
-        return self.n_classes
+        return self.map_rows
 
     def removed(self, number: int) -> int:
-        return self.n_classes + 1 + 2 * number
+        return self.n_classes + number
 
     def affected(self, number: int) -> int:
-        return self.removed(number) + 1
+        return self.map_rows + 1 + number
 
     @property
     def gross(self) -> slice:
@@ -251,13 +308,13 @@ def window_sums(setup: GridSetup, data: WindowData, keep: KeepCells | None = Non
         part, keys, kg_per_ha = chunk_sums(setup, data.rows(first, last))
         if keep is not None:
             keep(first * width, keys, kg_per_ha)
-        parts.append(part)
-    return WindowSums.concatenate(parts)
+        parts.append((first * width, part))
+    return WindowSums.of_chunks(setup, data.window, parts)
 
 
-def chunk_sums(setup: GridSetup, data: WindowData) -> tuple[WindowSums, np.ndarray, np.ndarray]:
-    """:func:`window_sums` of a few rows; also each cell's key (the dump key where the cell
-    has no data) and forage left (classes, cells) [kg/ha]."""
+def chunk_sums(setup: GridSetup, data: WindowData) -> tuple[ChunkRuns, np.ndarray, np.ndarray]:
+    """:func:`window_sums` of a few rows (their runs); also each cell's key (the dump key
+    where the cell has no data) and forage left (classes, cells) [kg/ha]."""
     units = data.units.ravel().astype(np.intp)  # burnt as int32, GDAL's fast path
     polygons = data.polygons.ravel().astype(np.intp)
     key = setup.unit_base[units] + setup.polygon_stratum[polygons]
@@ -291,9 +348,10 @@ def chunk_sums(setup: GridSetup, data: WindowData) -> tuple[WindowSums, np.ndarr
     if setup.calibrated:
         available = outcome.available_kg_per_ha
         reprediction_terms(setup.calibrated, predictions, available, stacked[layout.calibration])
-    run_keys, run_cells, run_sums = _run_sums(key, stacked, data.units.shape)
+    breaks = None if setup.coarse is None else setup.coarse.column_starts(data.window)
+    runs = _run_sums(key, stacked, data.units.shape, layout.map_rows, breaks)
     cell_keys = np.where(valid, key, setup.dump_key).astype(np.int32)
-    sums = WindowSums(run_keys, run_cells, run_sums, calibration_cells)
+    sums = ChunkRuns(*runs, calibration_cells)
     if setup.treatment_pair is not None:
         sums.treated = _treated_runs(setup, data, units, polygons, outcome)
     return sums, cell_keys, outcome.available_kg_per_ha
@@ -371,15 +429,26 @@ def _gross_biomass(setup: GridSetup, data: WindowData, polygons, valid, lacking,
     return counts, predictions
 
 
-def _run_sums(key: np.ndarray, stacked: np.ndarray, shape: tuple[int, int]):
-    """Sums of ``stacked`` rows over runs of equal key; runs break at row ends of the window."""
+def _run_sums(key, stacked, shape: tuple[int, int], split: int, breaks: slice | None):
+    """Sums of ``stacked`` rows over runs of equal key (runs break at row ends of the window):
+    of the rows from ``split`` on by such runs, of the rows before it by runs that also break
+    at the columns ``breaks`` (where a block of the maps begins; None: nowhere else).
+
+    Returns (keys, cells, sums) of the runs, then (keys, first cells, cells, sums) of the
+    block runs (:class:`ChunkRuns`' order).
+    """
     key2d = key.reshape(shape)
     start = np.empty(shape, dtype=bool)
     start[:, 0] = True
     np.not_equal(key2d[:, 1:], key2d[:, :-1], out=start[:, 1:])
     starts = np.flatnonzero(start)
-    run_cells = np.diff(np.append(starts, key.size))
-    return key[starts], run_cells, np.add.reduceat(stacked, starts, axis=1)
+    runs = (key[starts], np.diff(np.append(starts, key.size)))
+    runs += (np.add.reduceat(stacked[split:], starts, axis=1),)
+    if breaks is not None:
+        start[:, breaks] = True
+        starts = np.flatnonzero(start)
+    cells = np.diff(np.append(starts, key.size))
+    return *runs, key[starts], starts, cells, np.add.reduceat(stacked[:split], starts, axis=1)
 
 
 # --- streaming ------------------------------------------------------------------------------
