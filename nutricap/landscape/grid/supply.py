@@ -142,13 +142,13 @@ class GridResult:
     show_progress: bool = False
     calibrated_sums: list[CalibratedSums] = field(default_factory=list, repr=False)
     cluster: ClusterRun | None = field(default=None, repr=False)
-    overview_maps: list[OverviewMap] = field(default_factory=list, repr=False)
     rules: rules_mod.CellRules | None = field(default=None, repr=False)  # the rules applied
     key_available_kg: np.ndarray | None = field(default=None, repr=False)
     """(units, strata, classes) forage left by the rules [kg]: the problem's supply."""
     mapped_ha: np.ndarray | None = field(default=None, repr=False)  # (units, strata) [ha]
     full_supply: StratumSupply | None = field(default=None, repr=False)  # means of all classes
     treated: TreatedSums | None = field(default=None, repr=False)  # with a scenario only
+    overview_maps: list[OverviewMap] = field(default_factory=list, repr=False)
 
     def describe(self) -> dict:
         """Grid, resampling and rules in plain values, for the run manifest."""
