@@ -10,6 +10,7 @@ import dataclasses
 import math
 from typing import Any
 
+import geopandas as gpd
 import pandas as pd
 
 from nutricap.cautions import CAUTION
@@ -124,27 +125,34 @@ SCENARIO_METHOD = (
 )
 
 
-def scenario(scenario_table: pd.DataFrame | None, scenarios: list | None = None) -> dict | None:
-    """The treatment-scenario section: description, treatments, responses, chart, tables."""
+def scenario(
+    scenario_table: pd.DataFrame | None,
+    scenarios: list | None = None,
+    units: gpd.GeoDataFrame | None = None,
+) -> dict | None:
+    """The treatment-scenario section: description, treatments and their map, responses,
+    chart, tables (``units``: the unit polygons under the treatment map)."""
     if scenario_table is None:
         return None
-    units = scenario_table["unit_id"].nunique()
+    n_units = scenario_table["unit_id"].nunique()
     scenarios = scenarios or []
     years = treatment_years(scenarios)
     chart = figures.scenario_figure(
-        scenario_table, per_unit=units <= MAX_SCENARIO_PANELS, treatment_years=years
+        scenario_table, per_unit=n_units <= MAX_SCENARIO_PANELS, treatment_years=years
     )
     summed = [name for name in SCENARIO_SUMMED if name in scenario_table.columns]
-    totals = scenario_table.groupby(["scenario", "year"], as_index=False, sort=True)[summed].sum()
+    totals = scenario_table.groupby(["scenario", "year"], as_index=False, sort=False)[summed].sum()
     totals["change_animals"] = totals["ncc_animals_scenario"] - totals["ncc_animals_baseline"]
     return {
         "figure": embedded_figure(
             chart,
             "Line charts of NCC, allowable-use capacity and ECC over the years, baseline "
-            "against each treatment scenario, treatment years marked.",
+            "against each treatment scenario, with their change from the baseline, treatment "
+            "years marked.",
             "scenario_by_year",
         ),
-        "per_unit_panels": units <= MAX_SCENARIO_PANELS,
+        "map": _treatment_map(scenarios, units),
+        "per_unit_panels": n_units <= MAX_SCENARIO_PANELS,
         "described": [_described(s) for s in scenarios],
         "treated": _treated_table(scenarios),
         "responses": _responses_table(scenarios),
@@ -160,6 +168,18 @@ SCENARIO_SUMMED = (
     "allowable_use_animals_scenario",
     "ecc_animals_scenario",
 )
+
+
+def _treatment_map(scenarios: list, units: gpd.GeoDataFrame | None) -> dict | None:
+    """The treatment polygons of every scenario over the units, or None without them."""
+    layers = [(s.name, s.treatments) for s in scenarios if s.treatments is not None]
+    if units is None or not layers:
+        return None
+    return embedded_figure(
+        figures.treatment_map(units, layers),
+        "Map of the treatment polygons of each scenario over the management units.",
+        "scenario_treatments_map",
+    )
 
 
 def _described(scenario) -> dict:
