@@ -796,3 +796,22 @@ def test_report_preload_imports_the_report_and_restores_the_gil_turn():
         assert all(name in sys.modules for name in REPORT_MODULES)
     finally:
         sys.setswitchinterval(before)
+
+
+def test_key_pressure_when_no_allowable_use_is_left():
+    # Invented for the test: unit A's key classes keep a trace of allowable use (1.6e-16, what
+    # other herbivores can leave), unit B's are used 2,300.5 times their allowable use.
+    from nutricap.report.use_section import NONE_LEFT, key_pressure
+
+    by_unit = pd.DataFrame({"unit_id": ["A", "B"]})
+    use_by_class = pd.DataFrame(
+        {
+            "unit_id": ["A", "A", "B"],
+            "forage_class": ["sage", "forbs", "sage"],
+            "key": [True, True, True],
+            "use_fraction": [1.5, 1.6, 0.5 * 2300.5],
+            "allowable_use": [1.6e-16, 1.7e-16, 0.5],
+        }
+    )
+    cells, names = key_pressure(by_unit, use_by_class)
+    assert cells == [NONE_LEFT, "2,300.50 ×"] and names == "sage"

@@ -17,9 +17,14 @@ from nutricap.cautions import CAUTION
 from nutricap.model.scenarios import treatment_years
 from nutricap.report import figures
 from nutricap.report.formatting import (
+    FORAGE_CLASS,
     ONE_DECIMAL,
+    SCENARIO,
     THREE_DECIMALS,
+    TREATMENT,
     TWO_DECIMALS,
+    UNIT,
+    YEAR,
     Column,
     embedded_figure,
     format_auto,
@@ -73,8 +78,8 @@ def _signed(value: Any) -> str:
 # --- 7. treatment scenarios -------------------------------------------------------------------
 
 SCENARIO_TOTAL_COLUMNS = [
-    Column("scenario", "Scenario"),
-    Column("year", "Year"),
+    SCENARIO,
+    YEAR,
     numeric_column("ncc_animals_baseline", "Baseline NCC [animals]"),
     numeric_column("ncc_animals_scenario", "Scenario NCC [animals]"),
     numeric_column("change_animals", "Change in NCC [animals]", _signed),
@@ -83,25 +88,25 @@ SCENARIO_TOTAL_COLUMNS = [
 ]
 
 SCENARIO_UNIT_COLUMNS = [
-    Column("unit_id", "Unit"),
+    UNIT,
     *SCENARIO_TOTAL_COLUMNS[:2],
     Column("years_since_treatment", "Years since treatment", format_auto, numeric=True),
     *SCENARIO_TOTAL_COLUMNS[2:5],
 ]
 
 TREATED_COLUMNS = [
-    Column("scenario", "Scenario"),
-    Column("treatment", "Treatment"),
-    Column("year", "Year"),
-    Column("unit_id", "Unit"),
+    SCENARIO,
+    TREATMENT,
+    YEAR,
+    UNIT,
     Column("stratum", "Stratum treated"),
     Column("new_stratum", "Becomes stratum"),
     numeric_column("accessible_ha", "Treated area [ha, accessible]", ONE_DECIMAL),
 ]
 
 RESPONSE_COLUMNS = [
-    Column("treatment", "Treatment"),
-    Column("forage_class", "Forage class"),
+    TREATMENT,
+    FORAGE_CLASS,
     Column("growth_form", "Growth form"),
     numeric_column("years_since", "Years since treatment", format_auto),
     numeric_column("biomass_multiplier", "Biomass × [–]", TWO_DECIMALS),
@@ -201,8 +206,18 @@ def _treated_table(scenarios: list) -> dict | None:
     frames = [s.treated.assign(scenario=s.name) for s in scenarios]
     frame = pd.concat(frames, ignore_index=True)
     frame["new_stratum"] = frame["new_stratum"].replace("", "(same)")
-    frame = frame.sort_values(["scenario", "year", "unit_id", "stratum"], kind="stable")
+    keys = ["scenario", "treatment", "year", "unit_id", "stratum", "new_stratum"]
+    order = {name: index for index, name in enumerate(s.name for s in scenarios)}
+    frame = frame.groupby(keys, as_index=False, sort=False)["accessible_ha"].sum()
+    frame = frame.sort_values(
+        ["scenario", "year", "unit_id", "stratum"], key=_scenario_order(order), kind="stable"
+    )
     return table(frame, TREATED_COLUMNS)
+
+
+def _scenario_order(order: dict):
+    """Sort key: scenarios in the order they were compared, other columns as they are."""
+    return lambda column: column.map(order) if column.name == "scenario" else column
 
 
 def _responses_table(scenarios: list) -> dict | None:
@@ -341,7 +356,7 @@ def _trend_figures(data: dict) -> dict:
 SHARED_RANGE_COLUMNS = [
     Column("herd", "Herd"),
     Column("timing", "Timing"),
-    Column("unit_id", "Unit"),
+    UNIT,
     numeric_column("taken_aum", "Forage taken [AUM]", ONE_DECIMAL),
     numeric_column("unmet_aum", "Demand unmet [AUM]", ONE_DECIMAL),
     numeric_column("ncc_animals_without_others", "NCC without other herbivores [animals]"),

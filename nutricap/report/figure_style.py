@@ -19,13 +19,16 @@ Nuñez, J.R., Anderton, C.R. & Renslow, R.S. 2018. Optimizing colormaps with con
 from __future__ import annotations
 
 import io
+import weakref
 from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd
+from matplotlib import rc_context
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import Formatter, FuncFormatter
+from matplotlib.transforms import Bbox
 
 from nutricap.errors import printable
 
@@ -80,25 +83,37 @@ def figure_png(figure: Figure, *, dpi: int = PNG_DPI) -> bytes:
         The PNG file's bytes.
     """
     buffer = io.BytesIO()
-    figure.savefig(
-        buffer,
-        format="png",
-        dpi=dpi,
-        bbox_inches="tight",
-        pad_inches=PAD_IN,
-        metadata={"Software": None},
-    )
+    box = laid_out(figure)
+    figure.savefig(buffer, format="png", dpi=dpi, bbox_inches=box, metadata={"Software": None})
     return buffer.getvalue()
 
 
 def figure_svg(figure: Figure) -> bytes:
-    """Render ``figure`` to SVG bytes, trimmed as :func:`figure_png` (no date, so that a rerun
-    writes the same file)."""
+    """Render ``figure`` to SVG bytes, trimmed as :func:`figure_png`; text stays text (a report
+    author can edit it), and there is no date, so that a rerun writes the same file."""
     buffer = io.BytesIO()
-    figure.savefig(
-        buffer, format="svg", bbox_inches="tight", pad_inches=PAD_IN, metadata={"Date": None}
-    )
+    with rc_context({"svg.fonttype": "none"}):
+        figure.savefig(buffer, format="svg", bbox_inches=laid_out(figure), metadata={"Date": None})
     return buffer.getvalue()
+
+
+def laid_out(figure: Figure) -> Bbox:
+    """Lay ``figure`` out once and return what it draws [inches] plus :data:`PAD_IN`.
+
+    The constrained layout is solved on the first call and then kept (the layout engine is
+    set aside), so that each later rendering (embedded PNG, PNG file, SVG file) draws the
+    figure once, without solving the layout or measuring the tight box again.
+    """
+    box = _BOXES.get(figure)
+    if box is None:
+        figure.draw_without_rendering()
+        box = figure.get_tightbbox(figure.canvas.get_renderer()).padded(PAD_IN)
+        figure.set_layout_engine("none")
+        _BOXES[figure] = box
+    return box
+
+
+_BOXES: weakref.WeakKeyDictionary[Figure, Bbox] = weakref.WeakKeyDictionary()
 
 
 def scenario_colour(index: int) -> str:

@@ -16,6 +16,7 @@ import pandas as pd
 from nutricap.report import figures, methods_text
 from nutricap.report.formatting import (
     ONE_DECIMAL,
+    SOURCE,
     THREE_DECIMALS,
     Column,
     embedded_figure,
@@ -58,7 +59,7 @@ REDUCTION_COLUMNS = [
     Column("factor", "Factor"),
     Column("range", "Class"),
     numeric_column("reduction_pct", "Capacity removed [%]"),
-    Column("source", "Source"),
+    SOURCE,
 ]
 
 

@@ -18,7 +18,10 @@ from nutricap.model.results import totals_table
 from nutricap.report import figures
 from nutricap.report.formatting import (
     ANIMALS,
+    FORAGE_CLASS,
     ONE_DECIMAL,
+    STRATUM,
+    UNIT,
     Column,
     crs_label,
     decimals,
@@ -268,7 +271,7 @@ def _rounded(name: str, header: str) -> Column:
 
 
 UNIT_COLUMNS = [
-    Column("unit_id", "Unit"),
+    UNIT,
     _rounded("area_ha", "Area [ha]"),
     _rounded("available_forage_kg", "Available forage [kg DM]"),
     _rounded("ncc_animals", "NCC [animals]"),
@@ -418,8 +421,8 @@ def _total_cell(frame: pd.DataFrame, column: Column) -> str:
 # --- 10. supply by stratum --------------------------------------------------------------------
 
 SUPPLY_COLUMNS = [
-    Column("stratum", "Stratum"),
-    Column("forage_class", "Forage class"),
+    STRATUM,
+    FORAGE_CLASS,
     numeric_column("mean_kg_per_ha", "Mean [kg DM/ha]", ONE_DECIMAL),
     numeric_column("se_kg_per_ha", "Standard error [kg DM/ha]", ONE_DECIMAL),
     numeric_column("n_plots", "Plots (n)"),

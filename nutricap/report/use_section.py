@@ -11,7 +11,13 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from nutricap.report.formatting import Column, is_missing, numeric_column, table
+from nutricap.report.formatting import (
+    UNIT,
+    Column,
+    is_missing,
+    numeric_column,
+    table,
+)
 
 # --- 6. use and overuse -----------------------------------------------------------------------
 
@@ -19,7 +25,7 @@ USE_COLUMNS = ("current_animals", "overuse", "key_use_fraction")
 
 #: Columns of the use table, shown when present (written by :mod:`nutricap.model.use`).
 USE_TABLE_COLUMNS = [
-    Column("unit_id", "Unit"),
+    UNIT,
     numeric_column("current_animals", "Current animals [animals]"),
     numeric_column("ncc_animals", "NCC [animals]"),
     numeric_column("allowable_use_animals", "Allowable-use capacity [animals]"),
@@ -33,6 +39,11 @@ USE_TABLE_COLUMNS = [
     Column("above_ncc", "Numbers above NCC"),
     numeric_column("reduction_for_ncc_animals", "Fewer animals to reach NCC [animals, advisory]"),
 ]
+
+NO_USE_LEFT = 1e-9
+"""Allowable use [fraction of a class's forage] below which none is left for the herd (other
+herbivores took it, or rounding left a trace): no ratio is worth writing."""
+NONE_LEFT = "none left within allowable use"
 
 SAME_PRESSURE = 1e-6
 """Relative difference below which key classes' use ÷ allowable use are reported as one."""
@@ -68,16 +79,18 @@ def key_pressure(by_unit: pd.DataFrame, use_by_class: pd.DataFrame | None) -> tu
         named = by_unit["key_class"] if "key_class" in by_unit.columns else pd.Series([], dtype=str)
         names = ", ".join(map(str, named.unique())) or "not named"
         return [_times(value) for value in ratio], names
-    key = use_by_class[use_by_class["key"].map(is_flag) & (use_by_class["allowable_use"] > 0)]
-    if key.empty:  # no key class: every class is watched (nutricap.model.use)
-        key = use_by_class[use_by_class["allowable_use"] > 0]
+    watched = use_by_class[use_by_class["key"].map(is_flag)]
+    if not (watched["allowable_use"] > 0).any():  # no key class: every class is watched
+        watched = use_by_class  # (nutricap.model.use)
+    key = watched[watched["allowable_use"] > NO_USE_LEFT]
     key = key.assign(ratio=key["use_fraction"] / key["allowable_use"])
     cells = []
     for unit in by_unit["unit_id"]:
         rows = key[key["unit_id"] == unit]
         ratios = rows["ratio"].to_numpy(dtype=float)
         if ratios.size == 0:
-            cells.append("–")
+            used_up = (watched["unit_id"] == unit) & (watched["allowable_use"] > 0)
+            cells.append(NONE_LEFT if used_up.any() else "–")
         elif np.ptp(ratios) <= SAME_PRESSURE * max(float(ratios.max()), 1e-12):
             cells.append(_times(ratios.max()))
         else:
@@ -88,7 +101,7 @@ def key_pressure(by_unit: pd.DataFrame, use_by_class: pd.DataFrame | None) -> tu
 
 
 def _times(ratio: float) -> str:
-    return "–" if is_missing(ratio) else f"{float(ratio):.2f} ×"
+    return "–" if is_missing(ratio) else f"{float(ratio):,.2f} ×"
 
 
 def is_flag(value: Any) -> bool:
