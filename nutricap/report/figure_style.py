@@ -90,7 +90,8 @@ def figure_png(figure: Figure, *, dpi: int = PNG_DPI) -> bytes:
 
 def figure_svg(figure: Figure) -> bytes:
     """Render ``figure`` to SVG bytes, trimmed as :func:`figure_png`; text stays text (a report
-    author can edit it); no date and fixed ids (svg.hashsalt), so that a rerun writes the same file."""
+    author can edit it); no date and fixed ids (``svg.hashsalt``), so that a rerun writes the
+    same file."""
     buffer = io.BytesIO()
     with rc_context({"svg.fonttype": "none", "svg.hashsalt": "nutricap"}):
         figure.savefig(buffer, format="svg", bbox_inches=laid_out(figure), metadata={"Date": None})
