@@ -33,9 +33,9 @@ OVERWRITE_HELP = (
 )
 
 QUIET_HELP = "print nothing but errors (no progress, no summary, no warnings)"
-FIGURES_HELP = (
-    "also write each figure of the report as PNG (300 dpi) and SVG files into OUT/figures/, "
-    "for placing in a document"
+NO_FIGURES_HELP = (
+    "do not write the report's figures as files (by default each is also written as PNG at "
+    "300 dpi and SVG into figures/ beside report.html, for placing in a document)"
 )
 PDF_HELP = (
     "also write report.pdf, the report printed by headless Chromium or Chrome (found on the "
@@ -114,7 +114,7 @@ def _add_demo(commands) -> None:
     )
     parser.add_argument("--quiet", action="store_true", help=QUIET_HELP)
     parser.add_argument("--pdf", action="store_true", help=PDF_HELP)
-    parser.add_argument("--figures", action="store_true", help=FIGURES_HELP)
+    parser.add_argument("--no-figures", action="store_true", help=NO_FIGURES_HELP)
     parser.set_defaults(handler=run_demo)
 
 
@@ -169,7 +169,7 @@ def _add_output_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--overwrite", action="store_true", help=OVERWRITE_HELP)
     parser.add_argument("--no-report", action="store_true", help="skip report.html")
     parser.add_argument("--pdf", action="store_true", help=PDF_HELP)
-    parser.add_argument("--figures", action="store_true", help=FIGURES_HELP)
+    parser.add_argument("--no-figures", action="store_true", help=NO_FIGURES_HELP)
     parser.add_argument("--quiet", action="store_true", help=QUIET_HELP)
 
 
@@ -305,7 +305,7 @@ def run_estimate_command(args: argparse.Namespace) -> int:
         progress=progress,
         checksums=checksums,
         pdf_browser=browser,
-        figure_files=args.figures,
+        figure_files=not args.no_figures,
     )
     _print_summary(result, args.out, quiet=args.quiet)
     return EXIT_OK
@@ -330,7 +330,7 @@ def run_compare_command(args: argparse.Namespace) -> int:
         progress=progress,
         checksums=checksums,
         pdf_browser=browser,
-        figure_files=args.figures,
+        figure_files=not args.no_figures,
     )
     if args.quiet:
         return EXIT_OK
@@ -348,15 +348,15 @@ def run_compare_command(args: argparse.Namespace) -> int:
 def _pdf_browser(args: argparse.Namespace):
     """The browser that prints ``--pdf`` (looked for before any work), or None without it.
 
-    ``--pdf`` and ``--figures`` come with the report: either beside ``--no-report`` is refused.
+    ``--pdf`` comes with the report: beside ``--no-report`` it is refused (without the report
+    there are no figure files either).
     """
-    for flag in ("pdf", "figures"):
-        if getattr(args, flag, False) and getattr(args, "no_report", False):
-            raise InputError(
-                "needs the HTML report, which --no-report leaves out",
-                source=f"--{flag}",
-                expected=f"--{flag} or --no-report, not both",
-            )
+    if getattr(args, "pdf", False) and getattr(args, "no_report", False):
+        raise InputError(
+            "needs the HTML report, which --no-report leaves out",
+            source="--pdf",
+            expected="--pdf or --no-report, not both",
+        )
     if not getattr(args, "pdf", False):
         return None
     from nutricap.report.pdf import find_browser
@@ -397,7 +397,7 @@ def run_demo(args: argparse.Namespace) -> int:
         write_example_landscape(staging)
     project_file = inputs / "project.toml"
     project = load_project(project_file)
-    options = {"pdf_browser": browser, "figure_files": args.figures}
+    options = {"pdf_browser": browser, "figure_files": not args.no_figures}
     result = run_estimate(project, results, overwrite=overwrite, progress=progress, **options)
     _print_summary(result, results, caution=False, quiet=args.quiet)
     progress(

@@ -622,7 +622,7 @@ def _compare_on_grid(project: Project, names: list[str], say: Progress, progress
             problem, since = grid_scenario_year(run.grid, scenario, year, mode)
             frames.append(_scenario_year(project, result, name, year, problem, since))
         treated = treated_pieces(run.grid, scenario)
-        scenarios.append(Scenario(name, section, treated, responses))
+        scenarios.append(Scenario(name, section, treated, responses, treatments))
     return result, pd.concat(frames, ignore_index=True), scenarios
 
 

@@ -280,13 +280,19 @@ def test_error_messages_escape_ids(project, tmp_path, capsys):
     assert "\\x1b[31mred\\nfake line" in err
 
 
-def test_figures_flag_writes_each_report_figure_as_png_and_svg(project, tmp_path, capsys):
+def test_report_figures_are_written_as_png_and_svg_unless_asked_not_to(project, tmp_path, capsys):
     out = tmp_path / "results"
-    assert _run(capsys, "estimate", project, "--out", out, "--figures", "--quiet")[0] == 0
+    assert _run(capsys, "estimate", project, "--out", out, "--quiet")[0] == 0
     images = (out / "report.html").read_text(encoding="utf-8").count("<img ")
+    assert images >= 2
     assert len(list((out / "figures").glob("*.png"))) == images
     assert len(list((out / "figures").glob("*.svg"))) == images
+    # The figures are part of the run's outputs: a rerun with --overwrite replaces them.
+    assert _run(capsys, "estimate", project, "--out", out, "--overwrite", "--quiet")[0] == 0
+    bare = tmp_path / "bare"
+    assert _run(capsys, "estimate", project, "--out", bare, "--no-figures", "--quiet")[0] == 0
+    assert (bare / "report.html").is_file() and not (bare / "figures").exists()
     code, _, err = _run(
-        capsys, "estimate", project, "--out", tmp_path / "b", "--figures", "--no-report"
+        capsys, "estimate", project, "--out", tmp_path / "b", "--pdf", "--no-report"
     )
     assert code == 2 and "--no-report" in err and not (tmp_path / "b").exists()

@@ -17,13 +17,10 @@ import struct
 import warnings
 from html.parser import HTMLParser
 
-import geopandas as gpd
 import numpy as np
 import pandas as pd
 import pytest
 from markupsafe import escape
-from matplotlib.container import ErrorbarContainer
-from shapely.geometry import box
 
 from nutricap.cautions import CAUTION
 from nutricap.errors import printable
@@ -465,202 +462,6 @@ def test_is_flag(value, flagged):
     assert is_flag(value) is flagged
 
 
-# --- figures (small frames invented for the test) ------------------------------------------
-
-
-def check_png(figure) -> None:
-    data = figures.figure_png(figure)
-    width, height = png_size(data)
-    assert width > 100 and height > 100
-
-
-def legend_texts(ax) -> list[str]:
-    return [text.get_text() for text in ax.get_legend().get_texts()]
-
-
-def test_ncc_density_map():
-    units = gpd.GeoDataFrame(
-        {"unit_id": ["North", "South"]},
-        geometry=[box(0, 1000, 1000, 2000), box(0, 0, 1000, 1000)],
-        crs="EPSG:32612",
-    )
-    by_unit = pd.DataFrame({"unit_id": ["North", "South"], "ncc_per_km2": [12.0, 30.0]})
-    figure = figures.ncc_density_map(units, by_unit)
-    check_png(figure)
-    labels = [ax.get_ylabel() for ax in figure.axes] + [ax.get_xlabel() for ax in figure.axes]
-    assert any("animals/km²" in label for label in labels)
-    assert any("[km]" in label for label in labels)
-    names = [text.get_text() for text in figure.axes[0].texts]
-    # The unit names, the north arrow and the scale bar (extent 1 km + margins: a quarter of it
-    # rounded down to 1, 2 or 5 × 10^k m is 200 m).
-    assert sorted(names) == ["200 m", "N", "North", "South"]
-    # The CRS's name as pyproj gives it, not a PROJ string or a bare code.
-    from pyproj import CRS
-
-    assert any(CRS("EPSG:32612").name in label for label in labels)
-
-
-@pytest.mark.parametrize(
-    "extent, length", [(15000.0, 2000.0), (1000.0, 200.0), (4.0, 1.0), (80000.0, 20000.0)]
-)
-def test_scale_bar_is_a_round_quarter_of_the_extent(extent, length):
-    # Arithmetic: the largest 1, 2 or 5 × 10^k not above extent / 4.
-    assert figures.scale_bar_length(extent) == length
-
-
-def capacity_frame(intervals: bool) -> pd.DataFrame:
-    frame = pd.DataFrame(
-        {
-            "unit_id": ["A", "B"],
-            "ncc_animals": [100.0, 250.0],
-            "ecc_animals": [400.0, 900.0],
-            "allowable_use_animals": [200.0, 500.0],
-        }
-    )
-    if intervals:
-        for name in ("ncc_animals", "ecc_animals", "allowable_use_animals"):
-            frame[f"{name}_lo"] = frame[name] * 0.8
-            frame[f"{name}_hi"] = frame[name] * 1.2
-    return frame
-
-
-@pytest.mark.parametrize("intervals", [False, True])
-def test_capacity_figure(intervals):
-    figure = figures.capacity_figure(capacity_frame(intervals), season_days=120, interval_level=0.9)
-    check_png(figure)
-    ax = figure.axes[0]
-    bars = [c for c in ax.containers if isinstance(c, ErrorbarContainer)]
-    assert len(bars) == (3 if intervals else 0)
-    assert "[animals" in ax.get_xlabel()
-    assert any(("90 % interval" in text) is intervals for text in legend_texts(ax))
-
-
-def test_capacity_figure_limits_units():
-    frame = pd.DataFrame(
-        {
-            "unit_id": [f"U{i}" for i in range(10)],
-            "ncc_animals": np.arange(10.0),
-            "ecc_animals": np.arange(10.0) * 4,
-            "allowable_use_animals": np.arange(10.0) * 2,
-        }
-    )
-    figure = figures.capacity_figure(frame, max_units=4)
-    ticks = [t.get_text() for t in figure.axes[0].get_yticklabels()]
-    assert sorted(ticks) == ["U6", "U7", "U8", "U9"]  # the four largest ECC
-    assert "4 of 10" in figure.axes[0].get_title()
-
-
-def test_population_trend_figure_with_ceiling():
-    figure = figures.population_trend_figure(
-        [2020, 2021, 2022],
-        [100, 150, 190],
-        [2020, 2021, 2022],
-        [105, 145, 185],
-        400.0,
-        300.0,
-        900.0,
-    )
-    check_png(figure)
-    texts = legend_texts(figure.axes[0])
-    for label in (
-        "K (fitted ceiling): 400",
-        "K/2 (maximum sustained yield level): 200",
-        "NCC from forage: 300",
-        "ECC from forage: 900",
-        "Fitted logistic",
-    ):
-        assert label in texts
-    assert figure.axes[0].get_ylabel().endswith("]")
-
-
-def test_population_trend_figure_without_ceiling():
-    figure = figures.population_trend_figure(
-        [2020, 2021, 2022], [100, 150, 190], None, None, None, 300.0, None
-    )
-    ax = figure.axes[0]
-    texts = legend_texts(ax)
-    assert not any(text.startswith("K") for text in texts)
-    assert any("no evidence of a ceiling" in text for text in texts)
-    assert "no evidence of a ceiling" in ax.get_title()
-    assert len(ax.lines) == 2  # the counts and the NCC line
-
-
-def test_scenario_figure_total_is_sum_over_units():
-    table = invented_scenario(["A", "B", "C"])
-    figure = figures.scenario_figure(table)
-    ax = figure.axes[0]
-    lines = {line.get_label(): line for line in ax.lines}
-    expected = table.groupby("year")["ncc_animals_scenario"].sum()
-    np.testing.assert_allclose(lines["scenario: spring burn"].get_ydata(), expected.to_numpy())
-    np.testing.assert_allclose(lines["baseline"].get_ydata(), 300.0)
-    check_png(figure)
-
-
-def test_scenario_figure_small_multiples():
-    figure = figures.scenario_figure(invented_scenario(["A", "B", "C", "D"]), per_unit=True)
-    assert len(figure.axes) == 5
-    assert [ax.get_title() for ax in figure.axes[1:]] == ["NCC, A", "NCC, B", "NCC, C", "NCC, D"]
-
-
-def test_scenario_figure_charts_three_capacities_from_zero_with_treatment_years():
-    table = invented_scenario(["A", "B"])
-    for stem, factor in (("allowable_use", 2.0), ("ecc", 4.0)):  # invented for the test
-        table[f"{stem}_animals_baseline"] = factor * table["ncc_animals_baseline"]
-        table[f"{stem}_animals_scenario"] = factor * table["ncc_animals_scenario"]
-    figure = figures.scenario_figure(table, treatment_years={"spring burn": [2027]})
-    titles = [ax.get_title() for ax in figure.axes]
-    assert titles == [
-        "NCC, total over units",
-        "Allowable-use capacity, total over units",
-        "ECC, total over units",
-    ]
-    for ax in figure.axes:
-        assert ax.get_ylim()[0] == 0.0
-        marks = [line for line in ax.lines if list(line.get_xdata()) == [2027, 2027]]
-        assert len(marks) == 1 and marks[0].get_linestyle() == ":"
-        figure.canvas.draw()
-        labels = [label.get_text() for label in ax.get_yticklabels() if label.get_text()]
-        assert len(labels) == len(set(labels)), labels
-
-
-def test_tick_labels_get_the_decimals_that_keep_them_apart():
-    # The case: totals between 127.6 and 128.4 printed as "128, 128, 127".
-    figure = figures._new_figure(4.0, 3.0)
-    ax = figure.add_subplot()
-    ax.plot([0, 1], [127.6, 128.4])
-    ax.set_ylim(127.6, 128.4)
-    digits = figures.distinct_tick_labels(ax.yaxis)
-    figure.canvas.draw()
-    labels = [label.get_text() for label in ax.get_yticklabels() if label.get_text()]
-    assert digits >= 1 and len(labels) == len(set(labels)) > 2
-
-
-def test_scenario_figure_needs_its_columns():
-    with pytest.raises(ValueError, match="ncc_animals_scenario"):
-        figures.scenario_figure(invented_scenario(["A"]).drop(columns="ncc_animals_scenario"))
-
-
-def test_tornado_sorted_by_range():
-    figure = figures.tornado_figure(invented_sensitivity(), change=0.1)
-    check_png(figure)
-    ax = figure.axes[0]
-    top_to_bottom = [t.get_text() for t in ax.get_yticklabels()][::-1]
-    assert top_to_bottom == ["diet DE threshold", "intake", "biomass"]  # ranges 1450, 220, 185
-    assert legend_texts(ax) == ["input at -10%", "input at +10%"]
-
-
-def test_tornado_limits_inputs():
-    table = pd.DataFrame(
-        {
-            "input": list("abcdef"),
-            "low_change_animals": -np.arange(6.0),
-            "high_change_animals": np.arange(6.0),
-        }
-    )
-    figure = figures.tornado_figure(table, max_inputs=3)
-    assert sorted(t.get_text() for t in figure.axes[0].get_yticklabels()) == ["d", "e", "f"]
-
-
 # --- CSV and Markdown outputs (nutricap.report.tables): text from the inputs stays text ------
 
 HOSTILE_IDS = ["=1+2", "+cmd|' /C calc'!A0", "-3.5", "@SUM(A1)", "\tTab", "\rCR", "-x", "a=b",
@@ -961,7 +762,8 @@ def test_raster_report_says_the_livestock_rules_and_what_they_removed(
 def test_figure_files_for_a_report_author(example_estimate, project, manifest, tmp_path):
     import xml.etree.ElementTree as ElementTree
 
-    from nutricap.report.html import report_parts, write_figures
+    from nutricap.report.figures import write_figures
+    from nutricap.report.html import report_parts
 
     html, shown = report_parts(example_estimate, project=project, manifest=manifest)
     assert len(shown) == html.count("<img ")
@@ -994,3 +796,22 @@ def test_report_preload_imports_the_report_and_restores_the_gil_turn():
         assert all(name in sys.modules for name in REPORT_MODULES)
     finally:
         sys.setswitchinterval(before)
+
+
+def test_key_pressure_when_no_allowable_use_is_left():
+    # Invented for the test: unit A's key classes keep a trace of allowable use (1.6e-16, what
+    # other herbivores can leave), unit B's are used 2,300.5 times their allowable use.
+    from nutricap.report.use_section import NONE_LEFT, key_pressure
+
+    by_unit = pd.DataFrame({"unit_id": ["A", "B"]})
+    use_by_class = pd.DataFrame(
+        {
+            "unit_id": ["A", "A", "B"],
+            "forage_class": ["sage", "forbs", "sage"],
+            "key": [True, True, True],
+            "use_fraction": [1.5, 1.6, 0.5 * 2300.5],
+            "allowable_use": [1.6e-16, 1.7e-16, 0.5],
+        }
+    )
+    cells, names = key_pressure(by_unit, use_by_class)
+    assert cells == [NONE_LEFT, "2,300.50 ×"] and names == "sage"

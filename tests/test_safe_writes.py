@@ -239,6 +239,7 @@ def test_outputs_follow_the_umask(project, tmp_path, capsys, umask, folder_mode,
         os.umask(previous)
     modes = {path.name: path.stat().st_mode & 0o777 for path in [out, *out.rglob("*")]}
     assert modes.pop("results") == folder_mode
+    assert modes.pop("figures") == folder_mode  # the report's figure files, a folder inside
     assert modes and set(modes.values()) == {file_mode}, modes
     assert (out.parent.stat().st_mode & 0o777) == folder_mode
 

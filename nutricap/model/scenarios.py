@@ -80,19 +80,23 @@ class Scenario:
         treated piece.
     responses : DataFrame
         The response table.
+    treatments : GeoDataFrame, optional
+        The treatment polygons (``treatment``, ``year``), for the report's map.
     """
 
     name: str
     section: ScenarioSection
     treated: pd.DataFrame
     responses: pd.DataFrame
+    treatments: gpd.GeoDataFrame | None = None
 
 
 def load_scenario(project: Project, name: str, areas: StratumAreas, strata: list[str]) -> Scenario:
     """Read a scenario's layer and table, check them, and overlay the treatments."""
     section, treatments, responses = read_scenario(project, name, strata)
-    treated = overlay_treatments(areas, to_area_crs(treatments, areas.area_crs))
-    return Scenario(name, section, treated, responses)
+    treatments = to_area_crs(treatments, areas.area_crs)
+    treated = overlay_treatments(areas, treatments)
+    return Scenario(name, section, treated, responses, treatments)
 
 
 def read_scenario(

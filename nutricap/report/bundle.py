@@ -84,7 +84,7 @@ def write_estimate(
     scenarios: list | None = None,
     checksums: BackgroundChecksums | None = None,
     pdf_browser: Path | None = None,
-    figure_files: bool = False,
+    figure_files: bool = True,
 ) -> None:
     """Write the tables, the manifest and (unless ``report=False``) the HTML report.
 
@@ -93,7 +93,7 @@ def write_estimate(
     ``scenarios`` (:class:`nutricap.model.scenarios.Scenario`) are described in the report.
     ``pdf_browser``: also print the report to ``report.pdf`` with this browser
     (:func:`nutricap.report.pdf.find_browser`). ``figure_files``: also write the report's
-    figures as PNG (300 dpi) and SVG files into ``figures/``.
+    figures as PNG (300 dpi) and SVG files into ``figures/`` (False: the report only).
     """
     config = project.config
     totals = totals_table(result)

@@ -10,15 +10,21 @@ import dataclasses
 import math
 from typing import Any
 
+import geopandas as gpd
 import pandas as pd
 
 from nutricap.cautions import CAUTION
 from nutricap.model.scenarios import treatment_years
 from nutricap.report import figures
 from nutricap.report.formatting import (
+    FORAGE_CLASS,
     ONE_DECIMAL,
+    SCENARIO,
     THREE_DECIMALS,
+    TREATMENT,
     TWO_DECIMALS,
+    UNIT,
+    YEAR,
     Column,
     embedded_figure,
     format_auto,
@@ -72,8 +78,8 @@ def _signed(value: Any) -> str:
 # --- 7. treatment scenarios -------------------------------------------------------------------
 
 SCENARIO_TOTAL_COLUMNS = [
-    Column("scenario", "Scenario"),
-    Column("year", "Year"),
+    SCENARIO,
+    YEAR,
     numeric_column("ncc_animals_baseline", "Baseline NCC [animals]"),
     numeric_column("ncc_animals_scenario", "Scenario NCC [animals]"),
     numeric_column("change_animals", "Change in NCC [animals]", _signed),
@@ -82,25 +88,25 @@ SCENARIO_TOTAL_COLUMNS = [
 ]
 
 SCENARIO_UNIT_COLUMNS = [
-    Column("unit_id", "Unit"),
+    UNIT,
     *SCENARIO_TOTAL_COLUMNS[:2],
     Column("years_since_treatment", "Years since treatment", format_auto, numeric=True),
     *SCENARIO_TOTAL_COLUMNS[2:5],
 ]
 
 TREATED_COLUMNS = [
-    Column("scenario", "Scenario"),
-    Column("treatment", "Treatment"),
-    Column("year", "Year"),
-    Column("unit_id", "Unit"),
+    SCENARIO,
+    TREATMENT,
+    YEAR,
+    UNIT,
     Column("stratum", "Stratum treated"),
     Column("new_stratum", "Becomes stratum"),
     numeric_column("accessible_ha", "Treated area [ha, accessible]", ONE_DECIMAL),
 ]
 
 RESPONSE_COLUMNS = [
-    Column("treatment", "Treatment"),
-    Column("forage_class", "Forage class"),
+    TREATMENT,
+    FORAGE_CLASS,
     Column("growth_form", "Growth form"),
     numeric_column("years_since", "Years since treatment", format_auto),
     numeric_column("biomass_multiplier", "Biomass × [–]", TWO_DECIMALS),
@@ -124,27 +130,34 @@ SCENARIO_METHOD = (
 )
 
 
-def scenario(scenario_table: pd.DataFrame | None, scenarios: list | None = None) -> dict | None:
-    """The treatment-scenario section: description, treatments, responses, chart, tables."""
+def scenario(
+    scenario_table: pd.DataFrame | None,
+    scenarios: list | None = None,
+    units: gpd.GeoDataFrame | None = None,
+) -> dict | None:
+    """The treatment-scenario section: description, treatments and their map, responses,
+    chart, tables (``units``: the unit polygons under the treatment map)."""
     if scenario_table is None:
         return None
-    units = scenario_table["unit_id"].nunique()
+    n_units = scenario_table["unit_id"].nunique()
     scenarios = scenarios or []
     years = treatment_years(scenarios)
     chart = figures.scenario_figure(
-        scenario_table, per_unit=units <= MAX_SCENARIO_PANELS, treatment_years=years
+        scenario_table, per_unit=n_units <= MAX_SCENARIO_PANELS, treatment_years=years
     )
     summed = [name for name in SCENARIO_SUMMED if name in scenario_table.columns]
-    totals = scenario_table.groupby(["scenario", "year"], as_index=False, sort=True)[summed].sum()
+    totals = scenario_table.groupby(["scenario", "year"], as_index=False, sort=False)[summed].sum()
     totals["change_animals"] = totals["ncc_animals_scenario"] - totals["ncc_animals_baseline"]
     return {
         "figure": embedded_figure(
             chart,
             "Line charts of NCC, allowable-use capacity and ECC over the years, baseline "
-            "against each treatment scenario, treatment years marked.",
+            "against each treatment scenario, with their change from the baseline, treatment "
+            "years marked.",
             "scenario_by_year",
         ),
-        "per_unit_panels": units <= MAX_SCENARIO_PANELS,
+        "map": _treatment_map(scenarios, units),
+        "per_unit_panels": n_units <= MAX_SCENARIO_PANELS,
         "described": [_described(s) for s in scenarios],
         "treated": _treated_table(scenarios),
         "responses": _responses_table(scenarios),
@@ -160,6 +173,18 @@ SCENARIO_SUMMED = (
     "allowable_use_animals_scenario",
     "ecc_animals_scenario",
 )
+
+
+def _treatment_map(scenarios: list, units: gpd.GeoDataFrame | None) -> dict | None:
+    """The treatment polygons of every scenario over the units, or None without them."""
+    layers = [(s.name, s.treatments) for s in scenarios if s.treatments is not None]
+    if units is None or not layers:
+        return None
+    return embedded_figure(
+        figures.treatment_map(units, layers),
+        "Map of the treatment polygons of each scenario over the management units.",
+        "scenario_treatments_map",
+    )
 
 
 def _described(scenario) -> dict:
@@ -181,8 +206,18 @@ def _treated_table(scenarios: list) -> dict | None:
     frames = [s.treated.assign(scenario=s.name) for s in scenarios]
     frame = pd.concat(frames, ignore_index=True)
     frame["new_stratum"] = frame["new_stratum"].replace("", "(same)")
-    frame = frame.sort_values(["scenario", "year", "unit_id", "stratum"], kind="stable")
+    keys = ["scenario", "treatment", "year", "unit_id", "stratum", "new_stratum"]
+    order = {name: index for index, name in enumerate(s.name for s in scenarios)}
+    frame = frame.groupby(keys, as_index=False, sort=False)["accessible_ha"].sum()
+    frame = frame.sort_values(
+        ["scenario", "year", "unit_id", "stratum"], key=_scenario_order(order), kind="stable"
+    )
     return table(frame, TREATED_COLUMNS)
+
+
+def _scenario_order(order: dict):
+    """Sort key: scenarios in the order they were compared, other columns as they are."""
+    return lambda column: column.map(order) if column.name == "scenario" else column
 
 
 def _responses_table(scenarios: list) -> dict | None:
@@ -321,7 +356,7 @@ def _trend_figures(data: dict) -> dict:
 SHARED_RANGE_COLUMNS = [
     Column("herd", "Herd"),
     Column("timing", "Timing"),
-    Column("unit_id", "Unit"),
+    UNIT,
     numeric_column("taken_aum", "Forage taken [AUM]", ONE_DECIMAL),
     numeric_column("unmet_aum", "Demand unmet [AUM]", ONE_DECIMAL),
     numeric_column("ncc_animals_without_others", "NCC without other herbivores [animals]"),

@@ -94,6 +94,18 @@ def numeric_column(name: str, header: str, format_value: Callable[[Any], str] = 
     return Column(name, header, format_value, numeric=True)
 
 
+# Columns that several tables of the report show, declared once (same name, same header).
+UNIT = Column("unit_id", "Unit")
+SCENARIO = Column("scenario", "Scenario")
+YEAR = Column("year", "Year")
+TREATMENT = Column("treatment", "Treatment")
+STRATUM = Column("stratum", "Stratum")
+FORAGE_CLASS = Column("forage_class", "Forage class")
+STATE = Column("state", "State")
+SOURCE = Column("source", "Source")
+PROVENANCE = Column("provenance", "Provenance")
+
+
 def table(
     frame: pd.DataFrame,
     columns: list[Column],

@@ -13,7 +13,9 @@ list every parameter with its provenance). The parts:
 - :mod:`nutricap.report.formatting`: cell formatters, the generic :func:`table`, figures
   as data URIs;
 - :mod:`nutricap.report.sections`: the sections drawn from the estimate (header, inputs,
-  diet, capacity, per-unit table, use, supply);
+  capacity, per-unit table, supply), :mod:`nutricap.report.diet_section` (target diet, herd,
+  diet-composition limits) and :mod:`nutricap.report.use_section` (use and overuse);
+- :mod:`nutricap.report.raster_section`: grid, rules, models and maps of a raster run;
 - :mod:`nutricap.report.extra_sections`: sensitivity, treatment scenarios, population trend;
 - :mod:`nutricap.report.methods_text`: every equation with its source;
 - :mod:`nutricap.report.provenance`: the parameter tables and the run manifest.
@@ -31,16 +33,19 @@ import pandas as pd
 
 from nutricap.cautions import CAUTION
 from nutricap.report import (
+    diet_section,
     extra_sections,
     figures,
     provenance,
     raster_section,
     references,
     sections,
+    use_section,
 )
 from nutricap.report.formatting import embedded_figure
 from nutricap.report.methods_text import methods
-from nutricap.report.sections import INTERVAL_COLUMNS, has_interval, is_flag, unit_table
+from nutricap.report.sections import INTERVAL_COLUMNS, has_interval, unit_table
+from nutricap.report.use_section import is_flag
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
@@ -51,8 +56,6 @@ if TYPE_CHECKING:
 __all__ = ["ReportExtras", "is_flag", "methods", "render_report", "unit_table", "write_report"]
 
 TEMPLATE = "report.html.j2"
-FIGURES_FOLDER = "figures"
-"""Folder of the output holding each figure of the report as PNG and SVG."""
 
 
 @dataclass(frozen=True)
@@ -141,7 +144,7 @@ def report_parts(
         "caution": CAUTION,
         "header": sections.header(estimate, project, manifest),
         "inputs": sections.inputs(estimate, project, manifest, n_animal_classes=len(animals)),
-        "diet": sections.diet(estimate),
+        "diet": diet_section.diet(estimate),
         "map": embedded_figure(
             figures.ncc_density_map(estimate.units, estimate.by_unit),
             "Map of the management units shaded by NCC per square kilometre.",
@@ -151,9 +154,11 @@ def report_parts(
         "sensitivity": extra_sections.sensitivity(
             extras.sensitivity_table, extras.sensitivity_change
         ),
-        "use": sections.use(estimate.by_unit, estimate.use_by_class),
+        "use": use_section.use(estimate.by_unit, estimate.use_by_class),
         "shared_range": extra_sections.shared_range(estimate.shared_range, estimate.by_unit),
-        "scenario": extra_sections.scenario(extras.scenario_table, extras.scenarios),
+        "scenario": extra_sections.scenario(
+            extras.scenario_table, extras.scenarios, estimate.units
+        ),
         "trend": extra_sections.trend(extras.trend, estimate.by_unit),
         "unit_table": unit_table(estimate.by_unit, extras.interval_level),
         "supply": sections.supply(estimate),
@@ -177,6 +182,8 @@ def _figure_parts(value: Any) -> list[dict]:
         if "figure" in value and "src" in value:
             return [value]
         return [part for item in value.values() for part in _figure_parts(item)]
+    if isinstance(value, list | tuple):
+        return [part for item in value for part in _figure_parts(item)]
     return []
 
 
@@ -201,26 +208,17 @@ def write_report(
     project: Project,
     manifest: dict,
     extras: ReportExtras | None = None,
-    figure_files: bool = False,
+    figure_files: bool = True,
 ) -> None:
     """Write :func:`render_report` to ``path`` as UTF-8 (into a staging folder, normally).
 
     ``figure_files``: also write each figure beside it as ``figures/NAME.png``
-    (:data:`figures.PRINT_DPI` dpi) and ``figures/NAME.svg``, for a report author to place
-    (about half a second per figure, hence asked for).
+    (:data:`figures.PRINT_DPI` dpi) and ``figures/NAME.svg``, for a report author to place.
     """
     html, shown = report_parts(estimate, project=project, manifest=manifest, extras=extras)
     Path(path).write_text(html, encoding="utf-8")
     if figure_files:
-        write_figures(shown, Path(path).parent / FIGURES_FOLDER)
-
-
-def write_figures(shown: dict[str, Figure], folder: Path) -> None:
-    """Each figure as ``NAME.png`` (:data:`figures.PRINT_DPI` dpi) and ``NAME.svg``."""
-    folder.mkdir(exist_ok=True)
-    for name, figure in shown.items():
-        (folder / f"{name}.png").write_bytes(figures.figure_png(figure, dpi=figures.PRINT_DPI))
-        (folder / f"{name}.svg").write_bytes(figures.figure_svg(figure))
+        figures.write_figures(shown, Path(path).parent / figures.FIGURES_FOLDER)
 
 
 def _template() -> jinja2.Template:

@@ -15,7 +15,12 @@ import numpy as np
 import pandas as pd
 
 from nutricap.report.formatting import (
+    FORAGE_CLASS,
     ONE_DECIMAL,
+    PROVENANCE,
+    SOURCE,
+    STATE,
+    STRATUM,
     THREE_DECIMALS,
     TWO_DECIMALS,
     Column,
@@ -61,14 +66,14 @@ def source_texts(estimate: Estimate, project: Project) -> list[str]:
 
 
 STATE_COLUMNS = [
-    Column("state", "State"),
+    STATE,
     Column("season", "Season"),
     numeric_column("bmr_multiplier", "m [× BMR]", TWO_DECIMALS),
     numeric_column("intake_g_per_kg075_per_day", "Intake i [g DM/kg^0.75/day]", ONE_DECIMAL),
     numeric_column("dp_g_per_kg075_per_day", "DP p [g/kg^0.75/day]", ONE_DECIMAL),
     Column("used_by", "Used by"),
     Column("scope", "Scope"),
-    Column("source", "Source"),
+    SOURCE,
 ]
 
 
@@ -103,9 +108,9 @@ def _animal_rows(animals: pd.DataFrame, project: Project) -> dict:
         Column("animal_class", "Animal class"),
         numeric_column("body_mass_kg", "Body mass [kg]", ONE_DECIMAL),
         numeric_column("share", "Share of herd", TWO_DECIMALS),
-        Column("state", "State"),
+        STATE,
         numeric_column("intake_kg_per_day", "Intake override [kg DM/day]", TWO_DECIMALS),
-        Column("provenance", "Provenance"),
+        PROVENANCE,
     ]
     return table(frame, columns)
 
@@ -119,8 +124,8 @@ def _forage_rows(forage: pd.DataFrame, project: Project) -> dict:
     ]
     frame["stratum"] = frame["stratum"].replace("", "all strata")
     columns = [
-        Column("forage_class", "Forage class"),
-        Column("stratum", "Stratum"),
+        FORAGE_CLASS,
+        STRATUM,
         numeric_column("de_kcal_per_g", "DE [kcal/g DM]", THREE_DECIMALS),
         numeric_column("dmd_pct", "DMD [%]", ONE_DECIMAL),
         numeric_column("cp_pct", "CP [% DM]", ONE_DECIMAL),
@@ -130,7 +135,7 @@ def _forage_rows(forage: pd.DataFrame, project: Project) -> dict:
         ),
         numeric_column("allowable_use", "Allowable use [fraction]", TWO_DECIMALS),
         Column("key", "Key"),
-        Column("provenance", "Provenance"),
+        PROVENANCE,
     ]
     return table(frame, columns)
 
@@ -151,7 +156,7 @@ def _threshold_rows(estimate: Estimate, project: Project) -> dict:
     columns = [
         Column("name", "Parameter"),
         Column("value", "Value", numeric=True),
-        Column("provenance", "Provenance"),
+        PROVENANCE,
     ]
     return table(frame, columns)
 

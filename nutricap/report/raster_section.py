@@ -7,16 +7,19 @@ returns None for a run without rasters.
 
 from __future__ import annotations
 
+import re
 from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
 
-from nutricap.report import methods_text
+from nutricap.report import figures, methods_text
 from nutricap.report.formatting import (
     ONE_DECIMAL,
+    SOURCE,
     THREE_DECIMALS,
     Column,
+    embedded_figure,
     format_auto,
     numeric_column,
     table,
@@ -56,7 +59,7 @@ REDUCTION_COLUMNS = [
     Column("factor", "Factor"),
     Column("range", "Class"),
     numeric_column("reduction_pct", "Capacity removed [%]"),
-    Column("source", "Source"),
+    SOURCE,
 ]
 
 
@@ -69,12 +72,50 @@ def raster_landscape(estimate: Estimate, species: str = "the species") -> dict |
     calibration = grid.calibration_report
     reductions = _reduction_tables(grid.rules)
     return {
+        "maps": overview_figures(grid.overview_maps, estimate.units),
         "facts": _grid_facts(grid),
         "livestock": livestock_rules(rules, grid.rules, species),
         "rules": table(rules, RULE_COLUMNS),
         "calibration": None if calibration is None else table(calibration, CALIBRATION_COLUMNS),
         "reductions": None if reductions is None else table(reductions, REDUCTION_COLUMNS),
     }
+
+
+def overview_figures(maps, units) -> list[dict]:
+    """Each coarse map of the run (:class:`nutricap.landscape.grid.overview.OverviewMap`) as
+    an embedded figure with a one-line caption, the units outlined on top."""
+    return [
+        {
+            **embedded_figure(
+                figures.overview_map(overview, units),
+                f"Map: {overview.title} [{overview.units}].",
+                "raster_" + re.sub(r"[^A-Za-z0-9_-]+", "_", overview.key),
+            ),
+            "caption": overview_caption(overview),
+        }
+        for overview in maps
+    ]
+
+
+def overview_caption(overview) -> str:
+    """One line: what the map shows, its units and the size of its blocks."""
+    transform = overview.transform
+    rows, columns = np.shape(overview.values)
+    return (
+        f"{overview.title} [{overview.units}], on {columns:,} × {rows:,} blocks of "
+        f"{abs(transform.a):,.4g} × {abs(transform.e):,.4g} {_length_unit(overview.crs)}; "
+        "blank: outside the units."
+    )
+
+
+def _length_unit(crs) -> str:
+    """The linear unit of a pyproj or rasterio CRS as a symbol ('m' for metres), or 'map
+    units'."""
+    if crs is None:
+        return "map units"
+    axes = getattr(crs, "axis_info", None)
+    units = (axes[0].unit_name if axes else getattr(crs, "linear_units", None)) or "map units"
+    return "m" if units in ("metre", "meter") else units
 
 
 LIVESTOCK_RULES = {"slope": "slope_table", "distance_to_water": "water_table"}
@@ -123,8 +164,7 @@ def _grid_facts(grid) -> dict[str, str]:
 
 
 def _cell_words(grid) -> str:
-    transform, units = grid.grid.transform, grid.grid.crs.linear_units or "map units"
-    units = "m" if units in ("metre", "meter") else units
+    transform, units = grid.grid.transform, _length_unit(grid.grid.crs)
     return f"{abs(transform.a):g} × {abs(transform.e):g} {units} ({grid.grid.cell_area_ha:g} ha)"
 
 

@@ -1,7 +1,8 @@
 """Sections of the HTML report drawn from the estimate itself.
 
-Header, inputs, diet and herd, capacity chart, per-unit table, use and overuse, and
-supply by stratum; each function returns the template context of its section.
+Header, inputs, capacity chart, per-unit table and supply by stratum (the diet and the use
+sections are :mod:`nutricap.report.diet_section` and :mod:`nutricap.report.use_section`);
+each function returns the template context of its section.
 """
 
 from __future__ import annotations
@@ -17,9 +18,10 @@ from nutricap.model.results import totals_table
 from nutricap.report import figures
 from nutricap.report.formatting import (
     ANIMALS,
+    FORAGE_CLASS,
     ONE_DECIMAL,
-    THREE_DECIMALS,
-    TWO_DECIMALS,
+    STRATUM,
+    UNIT,
     Column,
     crs_label,
     decimals,
@@ -118,13 +120,17 @@ def current_source(estimate: Estimate) -> str | None:
         origin = "the units layer's current_animals column"
     else:
         origin = "the latest count of each unit in the counts table"
-    text = f"Current numbers ({total} animals over all units) come from {origin}"
+    text = (
+        f"Current numbers ({total} animals over all units) come from {origin}; they are the "
+        "current animals of the capacity chart (crosses), the use-and-overuse section and the "
+        "per-unit table"
+    )
     if estimate.trend is not None and "current_animals" in estimate.units.columns:
         latest = estimate.trend.get("latest_count")
         year = estimate.trend.get("latest_year")
         if latest is not None:
             text += (
-                f"; the population-trend section uses the counts instead (latest counted total "
+                f". The population-trend section uses the counts instead (latest counted total "
                 f"{ANIMALS(latest)} animals in {year})"
             )
     return text + "."
@@ -217,121 +223,6 @@ def _relative(path: Path, folder: Path) -> str:
         return str(path)
 
 
-# --- 3. diet and herd -------------------------------------------------------------------------
-
-
-def diet(estimate: Estimate) -> dict:
-    """The diet section: the minimum diet quality and the herd's requirements."""
-    target, herd = estimate.target, estimate.herd
-    return {
-        "de_min": f"{target.de_min_kcal_per_g:.3f}",
-        "dp_min": None if target.dp_min_pct is None else f"{target.dp_min_pct:.2f}",
-        "derivation": target.derivation,
-        "herd": {
-            "Dry-matter intake [kg DM/day] (one NCC or allowable-use animal-day eats this)": (
-                TWO_DECIMALS(herd.intake_kg_per_day)
-            ),
-            "Same animal at maintenance [kcal DE/day] (one ECC animal-day needs this)": ANIMALS(
-                herd.maintenance_de_kcal_per_day
-            ),
-            "Digestible-energy requirement, each class in its state [kcal/day]": ANIMALS(
-                herd.de_kcal_per_day
-            ),
-            "Digestible-protein requirement, each class in its state [g/day]": ONE_DECIMAL(
-                herd.dp_g_per_day
-            ),
-            "Animal-unit equivalent [AU/animal]": THREE_DECIMALS(herd.animal_unit_equivalent),
-        },
-        "limits": diet_limits(estimate),
-    }
-
-
-AT_LIMIT_TOL = 1e-6
-"""A diet share within this of a limit [share, 0–1] counts as at the limit."""
-
-
-def diet_limits(estimate: Estimate) -> dict | None:
-    """The diet-composition limits (each [diet] group: classes, minimum, maximum; each class's
-    max_diet_share below 1) and the units where each binds; None without limits.
-
-    A group binds in a unit whose limiting factor names diet_group; when there are several
-    groups, only where the unit's diet at NCC sits at this one. A max_diet_share bounds the
-    whole class (a class grown in several strata is solved as one more group over its items),
-    so it binds where the class's share of the diet sits at the cap and the limiting factor
-    names a composition limit.
-    """
-    items = estimate.problem.items
-    composition = estimate.target.composition
-    groups = composition.groups if composition is not None else ()
-    capped = (
-        {} if items.max_diet_share is None else dict(zip(items.forage_class, items.max_diet_share))
-    )
-    caps = {name: share for name, share in capped.items() if share < 1}
-    if not groups and not caps:
-        return None
-    eaten = estimate.by_unit_class.pivot_table(
-        index="unit_id", columns="forage_class", values="ncc_eaten_kg", aggfunc="sum"
-    ).reindex(estimate.by_unit["unit_id"])
-    shares = eaten.div(eaten.sum(axis=1).where(lambda total: total > 0), axis=0)
-    factor = estimate.by_unit.set_index("unit_id")["limiting_factor"].astype(str).str.split("+")
-
-    def binding(families: set, share: pd.Series, low: float, high: float, alone: bool) -> str:
-        named = factor.apply(lambda parts: bool(families & set(parts)))
-        at_limit = ((share - low).abs() <= AT_LIMIT_TOL) & (low > 0)
-        at_limit |= ((share - high).abs() <= AT_LIMIT_TOL) & (high < 1)
-        units = share.index[named & (at_limit | alone)].tolist()
-        return ", ".join(map(str, units)) if units else "none"
-
-    member = composition.membership(items) if groups else np.zeros((0, items.size), bool)
-    group_rows = []
-    for group, inside in zip(groups, member):
-        classes = list(dict.fromkeys(items.forage_class[inside]))
-        share = shares.reindex(columns=classes).sum(axis=1, min_count=1)
-        group_rows.append(
-            {
-                "Group": group.name,
-                "Forage classes": ", ".join(classes) or "none in the table",
-                "Minimum share": _share(group.min_share),
-                "Maximum share": _share(group.max_share),
-                "Binds in": binding(
-                    {"diet_group"}, share, group.min_share, group.max_share, len(groups) == 1
-                ),
-            }
-        )
-    cap_rows = [
-        {
-            "Forage class": name,
-            "Maximum share (max_diet_share)": _share(cap),
-            "Binds in": binding(
-                {"diet_share", "diet_group"},
-                shares.reindex(columns=[name]).iloc[:, 0],
-                0,
-                cap,
-                False,
-            ),
-        }
-        for name, cap in caps.items()
-    ]
-    bound = factor[factor.apply(lambda parts: bool({"diet_group", "diet_share"} & set(parts)))]
-    return {
-        "groups": _rows_table(group_rows),
-        "caps": _rows_table(cap_rows),
-        "binding": [f"{unit} ({limiting_label('+'.join(parts))})" for unit, parts in bound.items()],
-    }
-
-
-def _share(value: float) -> str:
-    return f"{100 * value:.4g} %"
-
-
-def _rows_table(rows: list[dict]) -> dict | None:
-    """A table of text cells from rows of {header: text}; None when there are no rows."""
-    if not rows:
-        return None
-    frame = pd.DataFrame(rows)
-    return table(frame, [Column(name, name) for name in frame.columns])
-
-
 # --- 5. capacity chart and per-unit table -----------------------------------------------------
 
 INTERVAL_COLUMNS = {
@@ -380,7 +271,7 @@ def _rounded(name: str, header: str) -> Column:
 
 
 UNIT_COLUMNS = [
-    Column("unit_id", "Unit"),
+    UNIT,
     _rounded("area_ha", "Area [ha]"),
     _rounded("available_forage_kg", "Available forage [kg DM]"),
     _rounded("ncc_animals", "NCC [animals]"),
@@ -527,98 +418,11 @@ def _total_cell(frame: pd.DataFrame, column: Column) -> str:
     return ""
 
 
-# --- 6. use and overuse -----------------------------------------------------------------------
-
-USE_COLUMNS = ("current_animals", "overuse", "key_use_fraction")
-
-#: Columns of the use table, shown when present (written by :mod:`nutricap.model.use`).
-USE_TABLE_COLUMNS = [
-    Column("unit_id", "Unit"),
-    numeric_column("current_animals", "Current animals [animals]"),
-    numeric_column("ncc_animals", "NCC [animals]"),
-    numeric_column("allowable_use_animals", "Allowable-use capacity [animals]"),
-    numeric_column("demand_kg", "Season demand of current animals [kg DM]"),
-    Column("key_pressure", "Demand on the key forage classes [× their allowable use]"),
-    Column("overuse", "Use above allowable"),
-    numeric_column(
-        "reduction_for_key_use_animals",
-        "Fewer animals to bring use to allowable [animals, advisory]",
-    ),
-    Column("above_ncc", "Numbers above NCC"),
-    numeric_column("reduction_for_ncc_animals", "Fewer animals to reach NCC [animals, advisory]"),
-]
-
-SAME_PRESSURE = 1e-6
-"""Relative difference below which key classes' use ÷ allowable use are reported as one."""
-
-
-def use(by_unit: pd.DataFrame, use_by_class: pd.DataFrame | None = None) -> dict:
-    """The use section: demand against the key classes' allowable use, when assessed."""
-    if not set(USE_COLUMNS) <= set(by_unit.columns):
-        state = "current_only" if "current_animals" in by_unit.columns else "none"
-        return {"state": state, "table": None, "flagged": 0, "key_classes": ""}
-    flags = by_unit["overuse"].map(is_flag)
-    if "above_ncc" in by_unit.columns:
-        flags = flags | by_unit["above_ncc"].map(is_flag)
-    frame = by_unit.copy()
-    pressure, key_classes = key_pressure(frame, use_by_class)
-    frame["key_pressure"] = pressure
-    return {
-        "state": "assessed",
-        "table": table(frame, USE_TABLE_COLUMNS, flag=flags),
-        "flagged": int(flags.sum()),
-        "key_classes": key_classes,
-    }
-
-
-def key_pressure(by_unit: pd.DataFrame, use_by_class: pd.DataFrame | None) -> tuple[list, str]:
-    """Per unit, the key classes' use ÷ allowable use as text ("2.30 ×"); the classes named.
-
-    With equal preference every class is used to the same fraction of its allowable use, so
-    the classes are reported together; a unit whose classes differ lists each one.
-    """
-    if use_by_class is None or "key" not in use_by_class.columns:
-        ratio = by_unit["key_use_fraction"] / by_unit["key_allowable_use"]
-        named = by_unit["key_class"] if "key_class" in by_unit.columns else pd.Series([], dtype=str)
-        names = ", ".join(map(str, named.unique())) or "not named"
-        return [_times(value) for value in ratio], names
-    key = use_by_class[use_by_class["key"].map(is_flag) & (use_by_class["allowable_use"] > 0)]
-    if key.empty:  # no key class: every class is watched (nutricap.model.use)
-        key = use_by_class[use_by_class["allowable_use"] > 0]
-    key = key.assign(ratio=key["use_fraction"] / key["allowable_use"])
-    cells = []
-    for unit in by_unit["unit_id"]:
-        rows = key[key["unit_id"] == unit]
-        ratios = rows["ratio"].to_numpy(dtype=float)
-        if ratios.size == 0:
-            cells.append("–")
-        elif np.ptp(ratios) <= SAME_PRESSURE * max(float(ratios.max()), 1e-12):
-            cells.append(_times(ratios.max()))
-        else:
-            cells.append(
-                "; ".join(f"{name} {_times(r)}" for name, r in zip(rows["forage_class"], ratios))
-            )
-    return cells, ", ".join(map(str, dict.fromkeys(key["forage_class"])))
-
-
-def _times(ratio: float) -> str:
-    return "–" if is_missing(ratio) else f"{float(ratio):.2f} ×"
-
-
-def is_flag(value: Any) -> bool:
-    """Whether an ``overuse`` cell raises a flag: True, or a non-empty text other than no."""
-    if is_missing(value):
-        return False
-    if isinstance(value, str):
-        return value.strip().lower() not in ("", "no", "false", "none", "0", "ok")
-    return bool(value)
-
-
 # --- 10. supply by stratum --------------------------------------------------------------------
 
 SUPPLY_COLUMNS = [
-    Column("stratum", "Stratum"),
-    Column("forage_class", "Forage class"),
+    STRATUM,
+    FORAGE_CLASS,
     numeric_column("mean_kg_per_ha", "Mean [kg DM/ha]", ONE_DECIMAL),
     numeric_column("se_kg_per_ha", "Standard error [kg DM/ha]", ONE_DECIMAL),
     numeric_column("n_plots", "Plots (n)"),

@@ -1,0 +1,188 @@
+"""What every figure of the report shares: palette, resolution, rendering, labels, ticks.
+
+Figures are built without pyplot (no global state) on an Agg canvas (:func:`new_figure`) and
+rendered to PNG or SVG bytes (:func:`figure_png`, :func:`figure_svg`), trimmed to what they
+draw. Colours are the Okabe & Ito (2008) colour-blind-safe set and the ``cividis`` colour map
+(Nuñez, Anderton & Renslow 2018); every series also differs by marker or line style, so no
+figure relies on colour alone.
+
+References
+----------
+Okabe, M. & Ito, K. 2008. Color Universal Design (CUD): how to make figures and
+    presentations that are friendly to colorblind people. Online guide (citation and hex
+    codes from memory).
+Nuñez, J.R., Anderton, C.R. & Renslow, R.S. 2018. Optimizing colormaps with consideration
+    for color vision deficiency. PLoS ONE 13(7):e0199239 (citation from memory; the colour
+    map itself is matplotlib's ``cividis``).
+"""
+
+from __future__ import annotations
+
+import io
+import weakref
+from collections.abc import Sequence
+
+import numpy as np
+import pandas as pd
+from matplotlib import rc_context
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.ticker import Formatter, FuncFormatter
+from matplotlib.transforms import Bbox
+
+from nutricap.errors import printable
+
+#: Okabe & Ito (2008) colour-blind-safe palette (hex codes from memory).
+OKABE_ITO = {
+    "black": "#000000",
+    "orange": "#E69F00",
+    "sky_blue": "#56B4E9",
+    "bluish_green": "#009E73",
+    "yellow": "#F0E442",
+    "blue": "#0072B2",
+    "vermillion": "#D55E00",
+    "reddish_purple": "#CC79A7",
+}
+
+#: Colours of the scenarios of a compare run, in order, on every figure.
+SCENARIO_COLOURS = ("vermillion", "blue", "orange", "reddish_purple", "bluish_green", "sky_blue")
+
+#: Colour map of every map shaded by a value (perceptually uniform, colour-vision-deficiency
+#: safe).
+DENSITY_CMAP = "cividis"
+
+#: Resolution of the PNGs embedded in the report [dots per inch].
+PNG_DPI = 110
+#: Resolution of the PNG files in the output's figures/ folder [dots per inch] (print).
+PRINT_DPI = 300
+#: Margin left around what a figure draws when it is rendered [inches].
+PAD_IN = 0.06
+
+THOUSANDS = FuncFormatter(lambda value, _position: f"{value:,.0f}")
+
+
+def new_figure(width_in: float, height_in: float) -> Figure:
+    """A figure of ``width_in`` × ``height_in`` [inches], constrained layout, Agg canvas."""
+    figure = Figure(figsize=(width_in, height_in), layout="constrained")
+    FigureCanvasAgg(figure)
+    return figure
+
+
+def figure_png(figure: Figure, *, dpi: int = PNG_DPI) -> bytes:
+    """Render ``figure`` to PNG bytes with the Agg canvas, trimmed to what it draws.
+
+    Parameters
+    ----------
+    figure : matplotlib.figure.Figure
+    dpi : int, default :data:`PNG_DPI`
+        Resolution [dots per inch], written into the file's pHYs chunk.
+
+    Returns
+    -------
+    bytes
+        The PNG file's bytes.
+    """
+    buffer = io.BytesIO()
+    box = laid_out(figure)
+    figure.savefig(buffer, format="png", dpi=dpi, bbox_inches=box, metadata={"Software": None})
+    return buffer.getvalue()
+
+
+def figure_svg(figure: Figure) -> bytes:
+    """Render ``figure`` to SVG bytes, trimmed as :func:`figure_png`; text stays text (a report
+    author can edit it); no date and fixed ids (``svg.hashsalt``), so that a rerun writes the
+    same file."""
+    buffer = io.BytesIO()
+    with rc_context({"svg.fonttype": "none", "svg.hashsalt": "nutricap"}):
+        figure.savefig(buffer, format="svg", bbox_inches=laid_out(figure), metadata={"Date": None})
+    return buffer.getvalue()
+
+
+def laid_out(figure: Figure) -> Bbox:
+    """Lay ``figure`` out once and return what it draws [inches] plus :data:`PAD_IN`.
+
+    The constrained layout is solved on the first call and then kept (the layout engine is
+    set aside), so that each later rendering (embedded PNG, PNG file, SVG file) draws the
+    figure once, without solving the layout or measuring the tight box again.
+    """
+    box = _BOXES.get(figure)
+    if box is None:
+        figure.draw_without_rendering()
+        box = figure.get_tightbbox(figure.canvas.get_renderer()).padded(PAD_IN)
+        figure.set_layout_engine("none")
+        _BOXES[figure] = box
+    return box
+
+
+_BOXES: weakref.WeakKeyDictionary[Figure, Bbox] = weakref.WeakKeyDictionary()
+
+
+def scenario_colour(index: int) -> str:
+    """The colour of the ``index``-th scenario (:data:`SCENARIO_COLOURS`)."""
+    return OKABE_ITO[SCENARIO_COLOURS[index % len(SCENARIO_COLOURS)]]
+
+
+def label(text: object) -> str:
+    """An id as chart text: unprintable characters escaped, ``$`` not read as mathtext."""
+    return printable(text).replace("$", r"\$")
+
+
+def signed_animals(value: float, _position: int | None = None) -> str:
+    """A change in animals with its sign and thousands separators: '+1,200', '-35', '0'."""
+    return "0" if round(value) == 0 else f"{value:+,.0f}"
+
+
+class DistinctTicks(Formatter):
+    """Tick labels with thousands separators and the fewest decimals (0 to ``max_decimals``)
+    that write the ticks drawn apart and as they are (0.25 as '0.25', not '0.2'); chosen when
+    the ticks are drawn, so that a later change of the axis's size or limits is followed.
+
+    ``signed``: changes, written with their sign ('+12', '-3.5'; zero as '0').
+    """
+
+    def __init__(self, max_decimals: int = 4, *, signed: bool = False) -> None:
+        self.max_decimals = max_decimals
+        self.signed = signed
+        self.digits = 0
+
+    def choose(self, ticks) -> int:
+        """The decimals for ``ticks`` (kept for later single labels); returned."""
+        ticks = np.asarray(ticks, dtype=float)
+        scale = max(float(np.abs(ticks).max()), 1.0) if ticks.size else 1.0
+        for digits in range(self.max_decimals + 1):
+            labels = {self.text(tick, digits) for tick in ticks}
+            exact = np.all(np.abs(np.round(ticks, digits) - ticks) <= 1e-9 * scale)
+            if exact and len(labels) == ticks.size:
+                break
+        self.digits = digits
+        return digits
+
+    def text(self, value: float, digits: int) -> str:
+        if self.signed and round(value, digits) == 0:
+            return "0"
+        return f"{value:{'+' if self.signed else ''},.{digits}f}"
+
+    def format_ticks(self, values) -> list[str]:
+        digits = self.choose(values)
+        return [self.text(value, digits) for value in values]
+
+    def __call__(self, value: float, position: int | None = None) -> str:
+        return self.text(value, self.digits)
+
+
+def distinct_tick_labels(axis, max_decimals: int = 4, *, signed: bool = False) -> int:
+    """Give ``axis`` a :class:`DistinctTicks` formatter; return the decimals its present
+    ticks get."""
+    formatter = DistinctTicks(max_decimals, signed=signed)
+    axis.set_major_formatter(formatter)
+    return formatter.choose(axis.get_majorticklocs())
+
+
+def require_columns(table: pd.DataFrame, columns: Sequence[str], what: str) -> None:
+    """Raise ValueError naming the ``columns`` that ``table`` (called ``what``) lacks."""
+    missing = [column for column in columns if column not in table.columns]
+    if missing:
+        raise ValueError(
+            f"{what} lacks column(s) {', '.join(missing)}; "
+            f"found {', '.join(map(str, table.columns))}"
+        )

@@ -1,0 +1,374 @@
+"""The report's maps: units shaded by NCC per km², coarse maps of a raster run, treatments.
+
+Every map carries the same furniture (:func:`finish_map`): axes in km (or the CRS's own
+units) named after the CRS, a scale bar (projected CRS in metres), a grid-north arrow, a
+legend or colour bar with units, and little margin around the layers' extent. The maps draw
+what they are handed; nothing here computes capacity.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+from matplotlib import patheffects
+from matplotlib.cm import ScalarMappable
+from matplotlib.colors import Normalize
+from matplotlib.figure import Figure
+from matplotlib.patches import Patch, Rectangle
+from matplotlib.ticker import FuncFormatter
+
+from nutricap.report.figure_style import DENSITY_CMAP, label, new_figure, scenario_colour
+
+#: Width of every map figure [inches]; the height follows the layers' extent.
+MAP_WIDTH_IN = 7.0
+#: Unit names are written on a map of at most this many units.
+MAX_UNITS_LABELLED = 30
+#: Margin around the layers' extent [share of the extent].
+MAP_MARGIN = 0.02
+
+_HALO = [patheffects.withStroke(linewidth=3, foreground="white")]
+_METRES = ("metre", "meter")
+
+
+def map_figure(bounds: Sequence[float]) -> tuple[Figure, object]:
+    """A figure sized to ``bounds`` (west, south, east, north) and its one map axes."""
+    figure = new_figure(*map_size_in(bounds))
+    ax = figure.add_subplot()
+    ax.set_aspect("equal")
+    return figure, ax
+
+
+def map_size_in(bounds: Sequence[float]) -> tuple[float, float]:
+    """Figure size [inches] that fits the layers' extent (map, colour bar and labels)."""
+    width, height = float(bounds[2] - bounds[0]), float(bounds[3] - bounds[1])
+    aspect = height / width if width > 0 and math.isfinite(height / width) else 0.8
+    return MAP_WIDTH_IN, float(np.clip(1.3 + 0.78 * MAP_WIDTH_IN * aspect, 3.0, 9.0))
+
+
+def finish_map(ax, crs, bounds: Sequence[float], title: str) -> None:
+    """Extent (``bounds`` plus :data:`MAP_MARGIN`), axes named after ``crs``, scale bar,
+    north arrow and ``title``: the furniture every map of the report carries."""
+    west, south, east, north = (float(value) for value in bounds)
+    pad_x, pad_y = MAP_MARGIN * (east - west), MAP_MARGIN * (north - south)
+    ax.set_xlim(west - pad_x, east + pad_x)
+    ax.set_ylim(south - pad_y, north + pad_y)
+    map_axes(ax, crs)
+    map_furniture(ax, crs)
+    ax.set_title(title)
+
+
+def colour_bar(figure: Figure, ax, norm: Normalize, cmap, words: str):
+    """A colour bar as tall as the map, to its right, labelled ``words`` (name and units)."""
+    cax = ax.inset_axes([1.03, 0.0, 0.035, 1.0])
+    bar = figure.colorbar(ScalarMappable(norm=norm, cmap=cmap), cax=cax)
+    bar.set_label(words)
+    return bar
+
+
+def scale_bar_length(extent: float) -> float:
+    """A round length (1, 2 or 5 × 10^k) close to a quarter of ``extent`` [same unit]."""
+    if not (extent > 0 and math.isfinite(extent)):
+        return 0.0
+    target = extent / 4.0
+    power = 10.0 ** math.floor(math.log10(target))
+    return max(step * power for step in (1.0, 2.0, 5.0) if step * power <= target)
+
+
+def in_metres(crs) -> bool:
+    """Whether ``crs`` is projected with its first axis in metres (a scale bar can be drawn)."""
+    return crs is not None and crs.is_projected and crs.axis_info[0].unit_name in _METRES
+
+
+def map_furniture(ax, crs) -> None:
+    """A scale bar (projected CRS in metres) and a grid-north arrow, each on a white panel."""
+    x0, x1 = ax.get_xlim()
+    y0, y1 = ax.get_ylim()
+    width, height = x1 - x0, y1 - y0
+    if in_metres(crs):
+        _scale_bar(
+            ax, (x0 + 0.04 * width, y0 + 0.05 * height), scale_bar_length(width), (width, height)
+        )
+    tip = (x1 - 0.05 * width, y1 - 0.04 * height)
+    _panel(ax, tip[0] - 0.03 * width, tip[1] - 0.19 * height, 0.06 * width, 0.205 * height)
+    ax.annotate(
+        "N",
+        xy=tip,
+        xytext=(tip[0], tip[1] - 0.12 * height),
+        ha="center",
+        va="top",
+        fontsize=10,
+        fontweight="bold",
+        arrowprops={"arrowstyle": "-|>", "color": "black", "linewidth": 1.5},
+        zorder=6,
+    )
+
+
+def _scale_bar(ax, corner: tuple, length: float, extent: tuple) -> None:
+    """A two-tone bar of ``length`` [m] from ``corner`` (left, base) with its length written
+    above it; ``extent``: the axes' (width, height) [m]."""
+    (left, base), (width, height) = corner, extent
+    _panel(ax, left - 0.015 * width, base - 0.025 * height, length + 0.03 * width, 0.1 * height)
+    for index in range(2):  # two halves, black and white, as on a printed map
+        ax.add_patch(
+            Rectangle(
+                (left + index * length / 2.0, base),
+                length / 2.0,
+                0.012 * height,
+                facecolor=("black", "white")[index],
+                edgecolor="black",
+                linewidth=0.8,
+                zorder=6,
+            )
+        )
+    words = f"{length / 1000:g} km" if length >= 1000 else f"{length:g} m"
+    ax.annotate(
+        words,
+        (left + length / 2.0, base + 0.02 * height),
+        ha="center",
+        va="bottom",
+        fontsize=8,
+        zorder=6,
+    )
+
+
+def _panel(ax, x: float, y: float, width: float, height: float) -> None:
+    """A white, slightly transparent panel behind a piece of map furniture."""
+    ax.add_patch(
+        Rectangle(
+            (x, y),
+            width,
+            height,
+            facecolor="white",
+            edgecolor="#888888",
+            linewidth=0.5,
+            alpha=0.92,
+            zorder=5,
+        )
+    )
+
+
+def map_axes(ax, crs) -> None:
+    """Axis labels with the CRS's axis names and units; metres shown as km."""
+    if crs is None:
+        ax.set_xlabel("x [map units; layer has no CRS]")
+        ax.set_ylabel("y [map units; layer has no CRS]")
+        return
+    name = crs.name if crs.name and crs.name != "unknown" else crs.to_string()
+    by_direction = {info.direction.lower(): info for info in crs.axis_info}
+    pairs = (
+        (ax.xaxis, by_direction.get("east"), "Easting"),
+        (ax.yaxis, by_direction.get("north"), "Northing"),
+    )
+    for axis, info, fallback in pairs:
+        axis_name = info.name if info is not None else fallback
+        unit = info.unit_name if info is not None else "map units"
+        if unit in _METRES:
+            axis.set_major_formatter(FuncFormatter(lambda value, _p: f"{value / 1000:,.0f}"))
+            unit = "km"
+        axis.set_label_text(f"{axis_name} [{unit}] ({name})")
+
+
+def value_norm(values: np.ndarray, *, from_zero: bool = False) -> Normalize:
+    """Colour scale over the finite ``values`` (from 0 when asked and none is negative)."""
+    finite = values[np.isfinite(values)]
+    if finite.size == 0:
+        return Normalize(0.0, 1.0)
+    low, high = float(finite.min()), float(finite.max())
+    low = 0.0 if from_zero and low >= 0 else low
+    return Normalize(low, high if high > low else low + 1.0)
+
+
+def label_units(ax, frame: gpd.GeoDataFrame) -> None:
+    """Write each unit's id at a point inside it (at most :data:`MAX_UNITS_LABELLED` units)."""
+    if len(frame) > MAX_UNITS_LABELLED:
+        return
+    for unit_id, point in zip(frame["unit_id"], frame.geometry.representative_point()):
+        if point is None or point.is_empty:
+            continue
+        ax.annotate(
+            label(unit_id),
+            (point.x, point.y),
+            ha="center",
+            va="center",
+            fontsize=8,
+            path_effects=_HALO,
+            zorder=4,
+        )
+
+
+def unit_outlines(ax, units: gpd.GeoDataFrame) -> None:
+    """The units' boundaries, dark under white, visible on any colour."""
+    for colour, width in (("#222222", 1.8), ("white", 0.8)):
+        units.boundary.plot(ax=ax, color=colour, linewidth=width, zorder=3)
+
+
+# --- units shaded by NCC per km² --------------------------------------------------------------
+
+
+def ncc_density_map(units: gpd.GeoDataFrame, by_unit: pd.DataFrame) -> Figure:
+    """Map of the management units shaded by NCC density.
+
+    Parameters
+    ----------
+    units : geopandas.GeoDataFrame
+        Unit polygons with ``unit_id`` (the estimate's ``units``, in the area CRS).
+    by_unit : pandas.DataFrame
+        Per-unit table with ``unit_id`` and ``ncc_per_km2`` [animals/km²].
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Units filled on the ``cividis`` scale with a colour bar in animals/km²; units without
+        a value are hatched grey; unit names are written when there are at most
+        :data:`MAX_UNITS_LABELLED` units.
+    """
+    shapes = units[["unit_id", "geometry"]].merge(
+        by_unit[["unit_id", "ncc_per_km2"]], on="unit_id", how="left"
+    )
+    frame = gpd.GeoDataFrame(shapes, geometry="geometry", crs=units.crs)
+    bounds = frame.total_bounds
+    figure, ax = map_figure(bounds)
+    norm = value_norm(frame["ncc_per_km2"].to_numpy(dtype=float))
+    frame.plot(
+        column="ncc_per_km2",
+        cmap=DENSITY_CMAP,
+        norm=norm,
+        ax=ax,
+        edgecolor="white",
+        linewidth=0.8,
+        missing_kwds={"color": "#d9d9d9", "hatch": "///", "label": "no value"},
+    )
+    colour_bar(figure, ax, norm, DENSITY_CMAP, "NCC density [animals/km²]")
+    label_units(ax, frame)
+    finish_map(ax, frame.crs, bounds, "Nutritional carrying capacity per km² by unit")
+    return figure
+
+
+# --- a coarse map of a raster run --------------------------------------------------------------
+
+
+def overview_map(overview, units: gpd.GeoDataFrame | None = None) -> Figure:
+    """One coarse map of a raster run (capacity density, what a rule removed) as an image.
+
+    Parameters
+    ----------
+    overview : nutricap.landscape.grid.overview.OverviewMap
+        ``title``, ``units`` (of the values), ``values`` (2-D, NaN outside the units),
+        ``transform`` and ``crs`` of the coarse grid.
+    units : geopandas.GeoDataFrame, optional
+        Unit polygons with ``unit_id``, outlined (and named) on top, in any CRS.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The values on the ``cividis`` scale (from zero when none is negative), blocks with
+        NaN left transparent, a colour bar in the map's units, and the map furniture.
+    """
+    values = np.asarray(overview.values, dtype=float)
+    west, south, east, north = overview.bounds()
+    outlines = None
+    if units is not None and len(units):
+        outlines = units if units.crs is None else units.to_crs(overview.crs)
+    bounds = _union_bounds((west, south, east, north), outlines)
+    figure, ax = map_figure(bounds)
+    norm = value_norm(values, from_zero=True)
+    cmap = _transparent_nan(DENSITY_CMAP)
+    ax.imshow(
+        np.ma.masked_invalid(values),
+        cmap=cmap,
+        norm=norm,
+        extent=(west, east, south, north),
+        origin="upper" if overview.transform.e < 0 else "lower",
+        interpolation="nearest",
+        zorder=1,
+    )
+    words = f"{overview.title} [{overview.units}]"
+    colour_bar(figure, ax, norm, cmap, words if len(words) <= 48 else f"[{overview.units}]")
+    if outlines is not None:
+        unit_outlines(ax, outlines)
+        label_units(ax, outlines)
+    finish_map(ax, overview.crs, bounds, overview.title)
+    return figure
+
+
+def _transparent_nan(name: str):
+    from matplotlib import colormaps
+
+    return colormaps[name].with_extremes(bad=(0.0, 0.0, 0.0, 0.0))
+
+
+def _union_bounds(bounds: Sequence[float], frame: gpd.GeoDataFrame | None) -> np.ndarray:
+    """(west, south, east, north) covering ``bounds`` and ``frame``'s extent."""
+    if frame is None or frame.empty:
+        return np.asarray(bounds, dtype=float)
+    other = frame.total_bounds
+    return np.array(
+        [
+            min(bounds[0], other[0]),
+            min(bounds[1], other[1]),
+            max(bounds[2], other[2]),
+            max(bounds[3], other[3]),
+        ]
+    )
+
+
+# --- the treatments of a compare run -----------------------------------------------------------
+
+_HATCHES = ("//", "\\\\", "xx", "..", "oo", "++")
+
+
+def treatment_map(units: gpd.GeoDataFrame, treatments: Sequence[tuple[str, gpd.GeoDataFrame]]):
+    """Map of the treatment polygons of each scenario over the management units.
+
+    Parameters
+    ----------
+    units : geopandas.GeoDataFrame
+        Unit polygons with ``unit_id``.
+    treatments : sequence of (str, geopandas.GeoDataFrame)
+        Each scenario's name and its treatment polygons with ``treatment`` and ``year``
+        (in any CRS; drawn in the units' CRS).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Units in light grey with their names; each scenario's polygons in its colour, one
+        hatch per treatment type; a legend of scenario, treatment and year(s); map furniture.
+    """
+    drawn = [(name, _in_crs(layer, units.crs)) for name, layer in treatments]
+    bounds = _union_bounds(units.total_bounds, pd.concat([layer for _n, layer in drawn]))
+    figure, ax = map_figure(bounds)
+    units.plot(ax=ax, color="#eeeeee", edgecolor="#444444", linewidth=0.8, zorder=1)
+    label_units(ax, units)
+    hatches = {}
+    handles = []
+    for index, (name, layer) in enumerate(drawn):
+        colour = scenario_colour(index)
+        for treatment, polygons in layer.groupby("treatment", sort=True):
+            hatch = hatches.setdefault(treatment, _HATCHES[len(hatches) % len(_HATCHES)])
+            style = {"facecolor": colour, "edgecolor": "black", "hatch": hatch, "alpha": 0.75}
+            polygons.plot(ax=ax, linewidth=0.6, zorder=2, **style)
+            years = ", ".join(str(int(year)) for year in sorted(set(polygons["year"])))
+            words = f"{label(name)}: {label(treatment)}, {years}"
+            handles.append(Patch(linewidth=0.6, label=words, **style))
+    finish_map(ax, units.crs, bounds, "Treatments of the scenarios over the management units")
+    ax.legend(
+        handles=handles,
+        title="Scenario: treatment, year",
+        loc="upper center",
+        bbox_to_anchor=(0.5, -0.12),
+        ncols=min(2, len(handles)),
+        fontsize=8,
+        title_fontsize=8,
+        framealpha=0.95,
+    )
+    return figure
+
+
+def _in_crs(layer: gpd.GeoDataFrame, crs) -> gpd.GeoDataFrame:
+    if crs is None or layer.crs is None:
+        return layer
+    return layer.to_crs(crs)

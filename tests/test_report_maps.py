@@ -1,0 +1,158 @@
+"""The report's maps and the sections around them: the raster run's coarse maps, the
+treatment map and tables of a compare run, and the trend section's counted units.
+
+Coarse maps are built in the test from arrays (invented for the test), not by the grid
+passes. The compare report is that of the example project (inputs invented for the
+example); its treated hectares are checked against shapely's overlay of the layers.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import re
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pytest
+from affine import Affine
+from pyproj import CRS
+from test_report import manifest, parse, project, raster_estimate, raster_project  # noqa: F401
+
+from nutricap.cli import main
+from nutricap.inputs.project import load_project
+from nutricap.landscape.grid.overview import OverviewMap
+from nutricap.report.html import ReportExtras, report_parts
+
+
+def section(html: str, name: str) -> str:
+    return re.search(rf'<section id="{name}">(.*?)</section>', html, re.DOTALL).group(1)
+
+
+# --- raster run: every coarse map the passes hand over ---------------------------------------
+
+
+def invented_maps(estimate) -> list[OverviewMap]:
+    """Two coarse maps over the raster run's grid extent (values invented for the test)."""
+    grid = estimate.grid.grid
+    west, north = grid.transform.c, grid.transform.f
+    block = 500.0
+    rows = int(np.ceil(grid.height * abs(grid.transform.e) / block))
+    cols = int(np.ceil(grid.width * grid.transform.a / block))
+    values = np.arange(rows * cols, dtype=float).reshape(rows, cols)
+    values[0, 0] = np.nan
+    transform = Affine(block, 0.0, west, 0.0, -block, north)
+    crs = CRS.from_wkt(grid.crs.to_wkt())
+    return [
+        OverviewMap("capacity_density", "Capacity density", "animal-days per ha", values,
+                    transform, crs),
+        OverviewMap("removed_snow", "Forage removed by snow burial", "kg per ha", values / 2,
+                    transform, crs),
+    ]  # fmt: skip
+
+
+def test_raster_section_shows_every_coarse_map(raster_estimate, raster_project, manifest):  # noqa: F811
+    maps = invented_maps(raster_estimate)
+    grid = dataclasses.replace(raster_estimate.grid, overview_maps=maps)
+    estimate = dataclasses.replace(raster_estimate, grid=grid)
+    html, shown = report_parts(estimate, project=raster_project, manifest=manifest)
+    raster = section(html, "raster")
+    assert raster.count("<img ") == 2
+    rows, cols = maps[0].values.shape
+    for overview in maps:
+        caption = (
+            f"{overview.title} [{overview.units}], on {cols:,} × {rows:,} blocks of 500 × 500 m"
+        )
+        assert caption in raster
+        assert f"raster_{overview.key}" in shown  # written as figures/raster_KEY.png and .svg
+    assert len(shown) == html.count("<img ")
+
+
+def test_raster_section_without_coarse_maps(raster_estimate, raster_project, manifest):  # noqa: F811
+    assert raster_estimate.grid.overview_maps == []  # what the passes hand over today
+    html, shown = report_parts(raster_estimate, project=raster_project, manifest=manifest)
+    assert "<img " not in section(html, "raster")
+    assert not [name for name in shown if name.startswith("raster_")]
+
+
+# --- compare run: the treatments on a map, in a table, with their responses -----------------
+
+
+@pytest.fixture(scope="module")
+def compared(example_project, tmp_path_factory):
+    out = tmp_path_factory.mktemp("compare") / "both"
+    argv = ["compare", str(example_project), "--scenario", "juniper_thinning"]
+    assert main([*argv, "--scenario", "prescribed_burn", "--out", str(out), "--quiet"]) == 0
+    return out
+
+
+def test_compare_report_maps_the_treatments(compared):
+    html = (compared / "report.html").read_text(encoding="utf-8")
+    scenario = section(html, "scenario")
+    assert 'alt="Map of the treatment polygons of each scenario' in scenario
+    for name in ("scenario_treatments_map", "scenario_by_year"):
+        assert (compared / "figures" / f"{name}.png").is_file()
+        assert (compared / "figures" / f"{name}.svg").is_file()
+    # The chart says which y axes start at zero and which do not.
+    assert "Top row: y axes start at zero" in scenario and "do not start at zero" in scenario
+
+
+def test_compare_report_gives_treated_hectares_per_unit(compared, example_project):
+    html = (compared / "report.html").read_text(encoding="utf-8")
+    body = re.search(
+        r"<caption>Treated land by scenario.*?<tbody>(.*?)</tbody>",
+        section(html, "scenario"),
+        re.DOTALL,
+    ).group(1)
+    rows = [re.findall(r"<td[^>]*>(.*?)</td>", row) for row in re.findall(r"<tr>(.*?)</tr>", body)]
+    shown = pd.DataFrame(
+        rows, columns=["scenario", "treatment", "year", "unit_id", "stratum", "new", "ha"]
+    )
+    shown["ha"] = shown["ha"].str.replace(",", "").astype(float)
+    by_unit = shown.groupby(["scenario", "unit_id"])["ha"].sum()
+    # shapely's overlay of each treatment layer with the units, areas in the units' projected
+    # CRS (example_landscape: EPSG:32612, every hectare of a unit accessible).
+    folder = example_project.parent
+    units = gpd.read_file(folder / "units.gpkg")
+    config = load_project(example_project).config
+    for name in ("juniper_thinning", "prescribed_burn"):
+        layer = gpd.read_file(folder / config.scenarios[name].treatments).to_crs(units.crs)
+        pieces = gpd.overlay(layer, units[["unit_id", "geometry"]], how="intersection")
+        expected = pieces.assign(ha=pieces.area / 1e4).groupby("unit_id")["ha"].sum()
+        for unit, hectares in expected.items():
+            assert by_unit[(name, unit)] == pytest.approx(hectares, abs=0.05 * len(shown)), unit
+
+
+# --- trend: the units the counts cover --------------------------------------------------------
+
+
+def test_trend_section_compares_counts_with_the_counted_units(
+    example_estimate,
+    project,  # noqa: F811
+    manifest,  # noqa: F811
+    tmp_path,
+):
+    from nutricap.inputs.counts import read_counts
+    from nutricap.workflow import counts_trend
+
+    by_unit = example_estimate.by_unit
+    two = by_unit["unit_id"].tolist()[:2]
+    rows = [  # counts of two units and of an id that is no unit (invented for the test)
+        {"unit_id": unit, "year": year, "count": 100 + 10 * index + year - 2015}
+        for index, unit in enumerate([*two, "Nowhere"])
+        for year in range(2015, 2021)
+    ]
+    path = tmp_path / "counts.csv"
+    pd.DataFrame(rows).to_csv(path, index=False)
+    trend = counts_trend(project, read_counts(path), lambda message: None, by_unit)
+    extras = ReportExtras(trend=trend, interval_level=0.9)
+    html, shown = report_parts(example_estimate, project=project, manifest=manifest, extras=extras)
+    text = parse(section(html, "trend")).plain_text
+    assert f"the 2 counted units ({', '.join(two)})" in text
+    assert "Nowhere" in text and "match no management unit" in text
+    # The chart's NCC and ECC lines: the sums over the two counted units (pandas).
+    ax = shown["population_trend"].axes[0]
+    lines = {line.get_label().split(":")[0]: line for line in ax.lines}
+    chosen = by_unit[by_unit["unit_id"].isin(two)]
+    assert lines["NCC from forage"].get_ydata()[0] == pytest.approx(chosen["ncc_animals"].sum())
+    assert lines["ECC from forage"].get_ydata()[0] == pytest.approx(chosen["ecc_animals"].sum())
