@@ -499,6 +499,22 @@ def check_unique(frame: pd.DataFrame, keys: list[str], path: Source) -> None:
         )
 
 
+def whole_numbers(table: pd.DataFrame, column: str, path: Source, *, expected: str) -> np.ndarray:
+    """The values of number ``column`` as int64; a :class:`TableError` at the first not whole."""
+    values = table[column].to_numpy(dtype=float)
+    index = first_index(values != np.round(values))
+    if index is not None:
+        raise row_error(
+            f"{column} is not a whole number",
+            path,
+            index,
+            column,
+            expected=expected,
+            found=repr(float(values[index])),
+        )
+    return values.astype(np.int64)
+
+
 def plain_value(value: object) -> object:
     """A numpy scalar as the Python value it holds (for readable messages)."""
     return value.item() if isinstance(value, np.generic) else value

@@ -52,9 +52,9 @@ from nutricap.inputs.columns import (
     check_known,
     check_unique,
     read_csv_table,
-    spreadsheet_row,
 )
-from nutricap.inputs.tables import PLOT_COLUMNS
+from nutricap.inputs.table_source import first_index, row_error
+from nutricap.inputs.tables import PLOT_COLUMNS, require_biomass
 from nutricap.science.supply import biomass_kg_per_ha
 
 MODELS = ("linear", "loglinear")
@@ -372,25 +372,18 @@ def read_calibration_plots(path: Source, known_classes: set[str]) -> pd.DataFram
     if {"dry_mass_g", "frame_area_m2"} <= set(table.columns):
         framed = biomass_kg_per_ha(table["dry_mass_g"].to_numpy(), table["frame_area_m2"])
         direct = direct.fillna(pd.Series(np.asarray(framed), index=table.index))
-    missing = direct.isna().to_numpy()
-    if missing.any():
-        raise TableError(
-            "no biomass value",
-            source=path,
-            location=f"row {spreadsheet_row(int(np.flatnonzero(missing)[0]))}",
-            expected="dry_mass_g with frame_area_m2, or biomass_kg_per_ha",
-            found="empty cells",
-        )
+    require_biomass(direct, path)
     table["biomass_kg_per_ha"] = direct
     check_unique(table, ["plot_id", "forage_class"], path)
     check_known(table, "forage_class", known_classes, path, known_from="the forage-class table")
     moved = table.groupby("plot_id")[["x", "y"]].transform("first").ne(table[["x", "y"]])
-    if moved.any(axis=None):
-        index = int(np.flatnonzero(moved.any(axis=1).to_numpy())[0])
-        raise TableError(
+    index = first_index(moved.any(axis=1))
+    if index is not None:
+        raise row_error(
             "plot recorded at two locations",
-            source=path,
-            location=f"row {spreadsheet_row(index)}, columns 'x'/'y'",
+            path,
+            index,
+            ("x", "y"),
             expected="the same x and y on every row of a plot",
             found=f"plot {table['plot_id'].iloc[index]!r} moved",
         )
