@@ -28,7 +28,8 @@ from nutricap.inputs.columns import (
     plain_value,
     read_csv_table,
 )
-from nutricap.inputs.project import Project, ScenarioSection
+from nutricap.inputs.project import Project
+from nutricap.inputs.project_schema import ScenarioSection
 from nutricap.inputs.table_source import first_index, row_error
 from nutricap.landscape.layer_files import feature_error
 from nutricap.landscape.vectors import (
