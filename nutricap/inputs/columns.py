@@ -16,10 +16,11 @@ one (``tanin`` for ``tannin``) is refused as a misspelling; empty rows at the en
 are ignored, an empty row between data rows is refused (every later row number
 would be off by one); a table with no data rows is refused.
 
-A table may also be an ``.xlsx`` workbook (one sheet, read with openpyxl and validated exactly
-like a CSV file, rows being the sheet's own), and its columns may carry the user's own names:
-a :class:`TableSource` holds the file with the project's ``[columns.KEY]`` mapping and
-``[sheets]`` entry; the mapping is applied here, once, as the table is read, and every later
+A table may also be an ``.xlsx`` workbook (one sheet, read by :mod:`nutricap.inputs.spreadsheet`
+and validated exactly like a CSV file, rows being the sheet's own), and its columns may carry
+the user's own names: a :class:`~nutricap.inputs.table_source.TableSource` holds the file with
+the project's ``[columns.KEY]`` mapping and ``[sheets]`` entry; the mapping is applied here,
+once, as the table is read, and every later
 message about a mapped column names the file's own column (``column 'ELK_NOW' (mapped to
 current_animals)``).
 A line beginning with ``#`` is a comment (the example rows of a template written by
@@ -30,26 +31,32 @@ above a data row is refused, for the same reason as an empty row.
 from __future__ import annotations
 
 import csv
-import datetime as dt
 import difflib
-import functools
 import io
 import re
-import zipfile
-from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
 from nutricap.errors import ProjectFileError, TableError, file_problem
+from nutricap.inputs.spreadsheet import sheet_text_rows
+from nutricap.inputs.table_source import (
+    Source,
+    TableSource,
+    apply_column_names,
+    as_source,
+    closest_name,
+    first_index,
+    row_error,
+    spreadsheet_row,
+)
 
 TRUE_WORDS = frozenset({"true", "yes", "y", "1", "t"})
 FALSE_WORDS = frozenset({"false", "no", "n", "0", "f", ""})
 OTHER_SEPARATORS = {";": "semicolons", "\t": "tabs", "|": "vertical bars"}
 NEWLINE = b"\n"
-SPREADSHEET_SUFFIXES = (".xlsx", ".xlsm")
 OTHER_SPREADSHEETS = (".xls", ".ods", ".numbers")
 NOT_AVAILABLE = frozenset({"na", "n/a"})
 """Cell texts read as blank (case-insensitive) where a column accepts blanks."""
@@ -85,154 +92,6 @@ class Column:
     above: float | None = None
     allow_blank: bool = False
     meaning: str = ""
-
-
-@dataclass(frozen=True)
-class TableSource:
-    """An input table or layer as the project names it.
-
-    Attributes
-    ----------
-    path : Path
-        The file.
-    key : str
-        The project's name of the input (``"plots"``, ``"units"``): the ``KEY`` of
-        ``[columns.KEY]`` and ``[sheets] KEY``; empty for a file read on its own.
-    columns : Mapping of str to str
-        The user's ``[columns.KEY]`` table: our column name → the file's own.
-    sheet : str, optional
-        The sheet of a spreadsheet to read (``[sheets] KEY``); the first sheet when None.
-    project_file : Path, optional
-        The project file, named in messages about the mapping.
-    recognised : dict of str to str
-        Our column name → the file's, for names recognised at read time (a shapefile's
-        10-character forms). Filled by the reader; not part of equality.
-
-    Notes
-    -----
-    Passed as ``source`` of an :class:`~nutricap.errors.InputError`, it names the file and
-    rewrites the location so that a mapped column reads ``'ELK_NOW' (mapped to
-    current_animals)`` and a spreadsheet's rows are preceded by the sheet's name.
-    """
-
-    path: Path
-    key: str = ""
-    columns: Mapping[str, str] = field(default_factory=dict)
-    sheet: str | None = None
-    project_file: Path | None = None
-    recognised: dict[str, str] = field(default_factory=dict, compare=False, repr=False)
-
-    def __str__(self) -> str:
-        return str(self.path)
-
-    def __fspath__(self) -> str:
-        return str(self.path)
-
-    @property
-    def name(self) -> str:
-        """The file's name (as ``Path.name``)."""
-        return self.path.name
-
-    @property
-    def is_spreadsheet(self) -> bool:
-        return self.path.suffix.lower() in SPREADSHEET_SUFFIXES
-
-    def mapped(self) -> dict[str, str]:
-        """Every renamed column, ours → the file's: the user's mapping and the recognised."""
-        return {**self.columns, **self.recognised}
-
-    @functools.cached_property
-    def sheet_name(self) -> str | None:
-        """The sheet read: the one named in the project file, or the workbook's first."""
-        if self.sheet is not None or not self.is_spreadsheet:
-            return self.sheet
-        try:
-            return _sheet_names(self.path)[0]
-        except (OSError, ValueError, KeyError, IndexError, zipfile.BadZipFile, ImportError):
-            return None
-
-    def relabel(self, location: str | None) -> str | None:
-        """``location`` with mapped columns under the file's names and the sheet first."""
-        if location is not None:
-            for ours, theirs in self.mapped().items():
-                location = location.replace(repr(ours), f"{theirs!r} (mapped to {ours})")
-        if self.is_spreadsheet and self.sheet_name is not None:
-            sheet = f"sheet {self.sheet_name!r}"
-            location = f"{sheet}, {location}" if location else sheet
-        return location
-
-    def key_of(self, table: str) -> str:
-        """The project-file key of one of this input's sections (``columns.units``)."""
-        return f"{table}.{self.key}" if self.key else table
-
-
-Source = Path | TableSource
-"""A table's file: a bare path, or a :class:`TableSource` with the user's names."""
-
-
-def as_source(path: Path | TableSource) -> TableSource:
-    """``path`` as a :class:`TableSource` (a bare path: no mapping, first sheet)."""
-    return path if isinstance(path, TableSource) else TableSource(Path(path))
-
-
-def apply_column_names(
-    names: list[str], source: TableSource, declared: list[str], what: str
-) -> dict[str, str]:
-    """The renaming (file's name → ours) that gives a table its declared column names.
-
-    The user's ``[columns.KEY]`` mapping is checked against ``declared`` (our names) and
-    ``names`` (the file's); a problem is one :class:`~nutricap.errors.ProjectFileError`
-    naming the project file and the key.
-    """
-    taken: dict[str, str] = {}
-    for ours, theirs in source.columns.items():
-        if ours not in declared:
-            _mapping_error(
-                source, ours, f"the {what} has no column {ours!r} to map", ours, declared,
-                expected="one of the columns nutricap reads from it: " + ", ".join(declared),
-            )  # fmt: skip
-        if theirs not in names:
-            _mapping_error(
-                source, ours, f"{source.path} has no column {theirs!r}", theirs, names,
-                expected="a column of the file: " + ", ".join(map(repr, names)),
-            )  # fmt: skip
-        if theirs in taken:
-            raise ProjectFileError(
-                f"column {theirs!r} is mapped twice, to {taken[theirs]!r} and {ours!r}",
-                source=source.project_file,
-                location=f"key '{source.key_of('columns')}.{ours}'",
-                expected="each of the file's columns mapped once",
-                found=f"{theirs!r} again",
-            )
-        if ours in names and ours != theirs:
-            raise ProjectFileError(
-                f"{source.path} has a column {ours!r} of its own besides {theirs!r} mapped to it",
-                source=source.project_file,
-                location=f"key '{source.key_of('columns')}.{ours}'",
-                expected=f"one column to read as {ours!r}: rename or drop the other",
-                found=f"columns {ours!r} and {theirs!r}",
-            )
-        taken[theirs] = ours
-    return taken
-
-
-def _mapping_error(
-    source: TableSource, ours: str, message: str, name: str, known: list[str], *, expected: str
-) -> None:
-    """Raise the error of mapping ``ours``: ``name`` is not among ``known`` (did you mean)."""
-    close = closest_name(name, known)
-    raise ProjectFileError(
-        message + (f"; did you mean {close!r}?" if close else ""),
-        source=source.project_file,
-        location=f"key '{source.key_of('columns')}.{ours}'",
-        expected=expected,
-        found=repr(name),
-    )
-
-
-def spreadsheet_row(index: int) -> int:
-    """Row number a user sees in a spreadsheet for data row ``index`` (0-based)."""
-    return int(index) + 2
 
 
 def read_csv_table(path: Path | TableSource, columns: list[Column], *, what: str) -> pd.DataFrame:
@@ -271,12 +130,7 @@ def _read_raw(source: TableSource, what: str) -> pd.DataFrame:
     lines = text.splitlines()
     header = lines[0].strip() if lines else ""
     if not header:
-        raise TableError(
-            f"{what} is empty" if not text.strip() else f"{what} has no header on row 1",
-            source=source,
-            location="row 1",
-            expected="a header row naming the columns",
-        )
+        raise _no_header(what, not text.strip(), source)
     _refuse_other_separators(header, source, what)
     _refuse_repeated_columns([name.strip() for name in next(csv.reader([header]))], source)
     try:
@@ -306,35 +160,11 @@ def _refuse_sheet_of_csv(source: TableSource) -> None:
         )
 
 
-def _sheet_names(path: Path) -> list[str]:
-    import openpyxl
-
-    book = openpyxl.load_workbook(path, read_only=True, data_only=True)
-    try:
-        return [sheet.title for sheet in book.worksheets]
-    finally:
-        book.close()
-
-
 def _read_sheet(source: TableSource, what: str) -> pd.DataFrame:
-    """One sheet of an ``.xlsx`` workbook as text cells, row 1 the header (as a CSV file).
-
-    Cells are read as the workbook saved them (formulas as their last computed values);
-    numbers are written back in full (``repr``), whole numbers without ``.0``, dates in ISO
-    form, true/false as words.
-    """
-    rows = _sheet_rows(source, what)
-    width = max((len(row) for row in rows), default=0)
-    rows = [[_cell_text(value) for value in row] + [""] * (width - len(row)) for row in rows]
+    """One sheet of an ``.xlsx`` workbook as text cells, row 1 the header (as a CSV file)."""
+    rows = sheet_text_rows(source, what)
     if not rows or not any(rows[0]):
-        raise TableError(
-            f"{what} is empty"
-            if not any(any(row) for row in rows)
-            else f"{what} has no header on row 1",
-            source=source,
-            location="row 1",
-            expected="a header row naming the columns",
-        )
+        raise _no_header(what, not any(any(row) for row in rows), source)
     header, body = rows[0], rows[1:]
     kept = [i for i, name in enumerate(header) if name.strip() or any(row[i] for row in body)]
     header = [header[i].strip() or f"Unnamed: {i}" for i in kept]
@@ -343,70 +173,14 @@ def _read_sheet(source: TableSource, what: str) -> pd.DataFrame:
     return _stripped(frame, source, what)
 
 
-def _sheet_rows(source: TableSource, what: str) -> list[tuple]:
-    problem = file_problem(source.path)
-    if problem is not None or source.path.is_dir():
-        raise TableError(
-            f"{what} {problem or 'is a folder, not a file'}",
-            source=source,
-            expected="an existing .xlsx workbook",
-        )
-    try:
-        import openpyxl
-    except ImportError:
-        raise TableError(
-            f"{what} is a spreadsheet and openpyxl, which reads them, is not installed",
-            source=source,
-            expected="openpyxl >= 3.1 installed (a dependency of nutricap)",
-        ) from None
-    try:
-        book = openpyxl.load_workbook(source.path, read_only=True, data_only=True)
-    except (OSError, ValueError, KeyError, zipfile.BadZipFile) as exc:
-        raise TableError(
-            f"{what} cannot be read as an .xlsx workbook ({type(exc).__name__})",
-            source=source,
-            expected="an Excel workbook saved as .xlsx",
-            found="a truncated file, or another format named .xlsx",
-        ) from None
-    try:
-        sheet = _chosen_sheet(book, source)
-        return list(sheet.iter_rows(min_row=1, values_only=True))
-    finally:
-        book.close()
-
-
-def _chosen_sheet(book, source: TableSource):
-    names = [sheet.title for sheet in book.worksheets]
-    if not names:
-        raise TableError("the workbook has no sheets", source=source, expected="one sheet")
-    if source.sheet is None:
-        return book.worksheets[0]
-    if source.sheet not in names:
-        close = closest_name(source.sheet, names)
-        raise ProjectFileError(
-            f"{source.path} has no sheet {source.sheet!r}"
-            + (f"; did you mean {close!r}?" if close else ""),
-            source=source.project_file,
-            location=f"key 'sheets.{source.key}'",
-            expected="one of the workbook's sheets: " + ", ".join(map(repr, names)),
-            found=repr(source.sheet),
-        )
-    return book[source.sheet]
-
-
-def _cell_text(value: object) -> str:
-    """A cell's value as the text a CSV file would hold."""
-    if value is None:
-        return ""
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, float):
-        return str(int(value)) if value.is_integer() else repr(value)
-    if isinstance(value, dt.datetime) and value.time() == dt.time(0):
-        return value.date().isoformat()
-    if isinstance(value, dt.date | dt.time):
-        return value.isoformat()
-    return str(value)
+def _no_header(what: str, empty: bool, source: TableSource) -> TableError:
+    """The error of a table without a header row: an empty file, or blank cells on row 1."""
+    return TableError(
+        f"{what} is empty" if empty else f"{what} has no header on row 1",
+        source=source,
+        location="row 1",
+        expected="a header row naming the columns",
+    )
 
 
 def _is_comment(line: str) -> bool:
@@ -552,29 +326,16 @@ def _without_empty_rows(frame: pd.DataFrame, path: Source, what: str) -> pd.Data
             found="none",
         )
     frame = frame.iloc[: filled[-1] + 1]
-    if empty[: filled[-1]].any():
-        index = int(np.flatnonzero(empty[: filled[-1]])[0])
-        raise TableError(
+    index = first_index(empty[: filled[-1]])
+    if index is not None:
+        raise row_error(
             "empty row between data rows",
-            source=path,
-            location=f"row {spreadsheet_row(index)}",
+            path,
+            index,
             expected="no empty rows (delete it, so that row numbers stay those of the file)",
             found="an empty row",
         )
     return frame
-
-
-def closest_name(name: str, candidates: list[str], cutoff: float = 0.6) -> str | None:
-    """The candidate closest to ``name`` ignoring case (difflib ratio), or None below ``cutoff``.
-
-    Examples
-    --------
-    >>> closest_name("UnitID", ["unit_id", "stratum"])
-    'unit_id'
-    """
-    lowered = {candidate.lower(): candidate for candidate in candidates}
-    close = difflib.get_close_matches(name.lower(), list(lowered), n=1, cutoff=cutoff)
-    return lowered[close[0]] if close else None
 
 
 def _check_columns(frame: pd.DataFrame, columns: list[Column], path: Source) -> None:
@@ -634,13 +395,13 @@ def _convert_column(values: pd.Series, column: Column, path: Source) -> pd.Serie
 def _check_blanks(values: pd.Series, column: Column, path: Source) -> None:
     if column.allow_blank:
         return
-    blank = values == ""
-    if blank.any():
-        index = int(np.flatnonzero(blank.to_numpy())[0])
-        raise TableError(
+    index = first_index(values == "")
+    if index is not None:
+        raise row_error(
             "empty value",
-            source=path,
-            location=f"row {spreadsheet_row(index)}, column {column.name!r}",
+            path,
+            index,
+            column.name,
             expected=column.meaning or "a value",
             found="an empty cell",
         )
@@ -648,13 +409,13 @@ def _check_blanks(values: pd.Series, column: Column, path: Source) -> None:
 
 def _convert_flags(values: pd.Series, column: Column, path: Source) -> pd.Series:
     lowered = values.str.lower()
-    unknown = ~lowered.isin(TRUE_WORDS | FALSE_WORDS)
-    if unknown.any():
-        index = int(np.flatnonzero(unknown.to_numpy())[0])
-        raise TableError(
+    index = first_index(~lowered.isin(TRUE_WORDS | FALSE_WORDS))
+    if index is not None:
+        raise row_error(
             "not a true/false value",
-            source=path,
-            location=f"row {spreadsheet_row(index)}, column {column.name!r}",
+            path,
+            index,
+            column.name,
             expected="true or false",
             found=repr(values.iloc[index]),
         )
@@ -663,13 +424,13 @@ def _convert_flags(values: pd.Series, column: Column, path: Source) -> pd.Series
 
 def _convert_numbers(values: pd.Series, column: Column, path: Source) -> pd.Series:
     numbers = pd.to_numeric(values.where(values != ""), errors="coerce").astype(float)
-    bad_text = numbers.isna() & (values != "")
-    if bad_text.any():
-        index = int(np.flatnonzero(bad_text.to_numpy())[0])
-        raise TableError(
+    index = first_index(numbers.isna() & (values != ""))
+    if index is not None:
+        raise row_error(
             "not a number" + _date_words(values.iloc[index]),
-            source=path,
-            location=f"row {spreadsheet_row(index)}, column {column.name!r}",
+            path,
+            index,
+            column.name,
             expected=column.meaning or "a number",
             found=repr(values.iloc[index]),
         )
@@ -699,13 +460,13 @@ def _check_range(numbers: pd.Series, column: Column, path: Source) -> None:
         problems |= finite <= column.above
     if column.maximum is not None:
         problems |= finite > column.maximum
-    problems &= ~np.isnan(finite)
-    if problems.any():
-        index = int(np.flatnonzero(problems)[0])
-        raise TableError(
+    index = first_index(problems & ~np.isnan(finite))
+    if index is not None:
+        raise row_error(
             "value out of range",
-            source=path,
-            location=f"row {spreadsheet_row(index)}, column {column.name!r}",
+            path,
+            index,
+            column.name,
             expected=_range_words(column),
             found=repr(float(finite[index])),
         )
@@ -738,6 +499,22 @@ def check_unique(frame: pd.DataFrame, keys: list[str], path: Source) -> None:
         )
 
 
+def whole_numbers(table: pd.DataFrame, column: str, path: Source, *, expected: str) -> np.ndarray:
+    """The values of number ``column`` as int64; a :class:`TableError` at the first not whole."""
+    values = table[column].to_numpy(dtype=float)
+    index = first_index(values != np.round(values))
+    if index is not None:
+        raise row_error(
+            f"{column} is not a whole number",
+            path,
+            index,
+            column,
+            expected=expected,
+            found=repr(float(values[index])),
+        )
+    return values.astype(np.int64)
+
+
 def plain_value(value: object) -> object:
     """A numpy scalar as the Python value it holds (for readable messages)."""
     return value.item() if isinstance(value, np.generic) else value
@@ -747,16 +524,16 @@ def check_known(
     frame: pd.DataFrame, column: str, known: set[str], path: Source, *, known_from: str
 ) -> None:
     """Raise :class:`TableError` at the first value of ``column`` not in ``known``."""
-    unknown = ~frame[column].isin(known).to_numpy()
-    if unknown.any():
-        index = int(np.flatnonzero(unknown)[0])
+    index = first_index(~frame[column].isin(known))
+    if index is not None:
         value = frame[column].iloc[index]
         close = difflib.get_close_matches(str(value), sorted(known), n=1)
         hint = f"; did you mean {close[0]!r}?" if close else ""
-        raise TableError(
+        raise row_error(
             f"unknown {column} {value!r}{hint}",
-            source=path,
-            location=f"row {spreadsheet_row(index)}, column {column!r}",
+            path,
+            index,
+            column,
             expected=f"one of the {column} values in {known_from}",
             found=repr(value),
         )

@@ -20,6 +20,7 @@ from nutricap.inputs.columns import (
     Source,
     read_csv_table,
     spreadsheet_row,
+    whole_numbers,
 )
 from nutricap.science import population
 
@@ -63,28 +64,13 @@ def read_counts(path: Source) -> pd.DataFrame:
             found="only a header",
         )
     table["row"] = [spreadsheet_row(index) for index in range(len(table))]
-    _check_whole_years(table, path)
+    table["year"] = whole_numbers(table, "year", path, expected="a calendar year such as 2019")
     if "unit_id" not in table.columns:
         table["unit_id"] = ""
     if "removals" not in table.columns:
         table["removals"] = np.nan
     _check_one_count_per_year(table, path)
     return table
-
-
-def _check_whole_years(table: pd.DataFrame, path: Path) -> None:
-    years = table["year"].to_numpy()
-    fractional = years != np.round(years)
-    if fractional.any():
-        index = int(np.flatnonzero(fractional)[0])
-        raise TableError(
-            "year is not a whole number",
-            source=path,
-            location=f"row {table['row'].iloc[index]}, column 'year'",
-            expected="a calendar year such as 2019",
-            found=repr(float(years[index])),
-        )
-    table["year"] = years.astype(int)
 
 
 def _check_one_count_per_year(table: pd.DataFrame, path: Path) -> None:

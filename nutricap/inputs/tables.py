@@ -14,7 +14,8 @@ import numpy as np
 import pandas as pd
 
 from nutricap.errors import TableError
-from nutricap.inputs.columns import Column, Source, check_unique, read_csv_table, spreadsheet_row
+from nutricap.inputs.columns import Column, Source, check_unique, read_csv_table
+from nutricap.inputs.table_source import first_index, row_error
 from nutricap.science.forage_quality import (
     GROSS_ENERGY_KCAL_PER_G_DEFAULT,
     digestible_energy_kcal_per_g,
@@ -192,26 +193,26 @@ def _refuse_fractions_as_percent(table: pd.DataFrame, names: tuple[str, ...], pa
     """
     for name in names:
         values = table[name].to_numpy(dtype=float)
-        fraction = (values > 0) & (values <= 1)
-        if fraction.any():
-            index = int(np.flatnonzero(fraction)[0])
-            raise TableError(
+        index = first_index((values > 0) & (values <= 1))
+        if index is not None:
+            raise row_error(
                 "a value of 1 % or less: a fraction given instead of percent?",
-                source=path,
-                location=f"row {spreadsheet_row(index)}, column {name!r}",
+                path,
+                index,
+                name,
                 expected="percent of dry matter (48 for 48 %)",
                 found=f"{values[index]:g}",
             )
 
 
 def _require_energy(table: pd.DataFrame, path: Path) -> None:
-    missing = table["de_kcal_per_g"].isna() & table["dmd_pct"].isna()
-    if missing.any():
-        index = int(np.flatnonzero(missing.to_numpy())[0])
-        raise TableError(
+    index = first_index(table["de_kcal_per_g"].isna() & table["dmd_pct"].isna())
+    if index is not None:
+        raise row_error(
             "no energy value",
-            source=path,
-            location=f"row {spreadsheet_row(index)}, columns 'de_kcal_per_g'/'dmd_pct'",
+            path,
+            index,
+            ("de_kcal_per_g", "dmd_pct"),
             expected="de_kcal_per_g, or dmd_pct to compute it from",
             found="both empty",
         )
@@ -223,10 +224,11 @@ def _require_class_rows(table: pd.DataFrame, path: Path) -> None:
     orphans = ~overrides["forage_class"].isin(classes)
     if orphans.any():
         index = overrides.index[orphans.to_numpy()][0]
-        raise TableError(
+        raise row_error(
             "stratum-specific row for a class without a general row",
-            source=path,
-            location=f"row {spreadsheet_row(index)}, column 'forage_class'",
+            path,
+            index,
+            "forage_class",
             expected="a row with the same forage_class and an empty stratum",
             found=repr(table.at[index, "forage_class"]),
         )
@@ -260,21 +262,25 @@ def read_plots(path: Source) -> pd.DataFrame:
         )
         _require_plausible_framed_biomass(table, framed, path)
         direct = direct.fillna(pd.Series(framed, index=table.index))
-    missing = direct.isna()
-    if missing.any():
-        index = int(np.flatnonzero(missing.to_numpy())[0])
-        raise TableError(
-            "no biomass value",
-            source=path,
-            location=f"row {spreadsheet_row(index)}",
-            expected="dry_mass_g with frame_area_m2, or biomass_kg_per_ha",
-            found="empty cells",
-        )
+    require_biomass(direct, path)
     table["biomass_kg_per_ha"] = direct
     check_unique(table, ["plot_id", "forage_class"], path)
     _require_one_stratum_per_plot(table, path)
     _require_bare_rows_bare(table, path)
     return table
+
+
+def require_biomass(biomass_kg_per_ha: pd.Series, path: Source) -> None:
+    """Every row has a biomass: given directly, or from mass and frame area (NaN: neither)."""
+    index = first_index(biomass_kg_per_ha.isna())
+    if index is not None:
+        raise row_error(
+            "no biomass value",
+            path,
+            index,
+            expected="dry_mass_g with frame_area_m2, or biomass_kg_per_ha",
+            found="empty cells",
+        )
 
 
 def _require_bare_rows_bare(table: pd.DataFrame, path: Path) -> None:
@@ -285,24 +291,24 @@ def _require_bare_rows_bare(table: pd.DataFrame, path: Path) -> None:
     bare = (table["forage_class"] == "").to_numpy()
     if not bare.any():
         return
-    loaded = bare & (table["biomass_kg_per_ha"].to_numpy() > 0)
-    if loaded.any():
-        index = int(np.flatnonzero(loaded)[0])
-        raise TableError(
+    index = first_index(bare & (table["biomass_kg_per_ha"].to_numpy() > 0))
+    if index is not None:
+        raise row_error(
             "forage without a forage class",
-            source=path,
-            location=f"row {spreadsheet_row(index)}, column 'forage_class'",
+            path,
+            index,
+            "forage_class",
             expected="a forage class, or mass 0 on the one row of a bare plot",
             found=f"an empty cell with {table['biomass_kg_per_ha'].iloc[index]:g} kg/ha",
         )
     bare_plots = set(table.loc[bare, "plot_id"])
-    mixed = (~bare & table["plot_id"].isin(bare_plots)).to_numpy()
-    if mixed.any():
-        index = int(np.flatnonzero(mixed)[0])
-        raise TableError(
+    index = first_index(~bare & table["plot_id"].isin(bare_plots))
+    if index is not None:
+        raise row_error(
             "plot recorded both as bare and with a forage class",
-            source=path,
-            location=f"row {spreadsheet_row(index)}, column 'forage_class'",
+            path,
+            index,
+            "forage_class",
             expected="one row with an empty forage_class for a bare plot, or rows with classes",
             found=f"plot {table['plot_id'].iloc[index]!r} also on a row with an empty forage_class",
         )
@@ -310,13 +316,13 @@ def _require_bare_rows_bare(table: pd.DataFrame, path: Path) -> None:
 
 def _require_pairs(table: pd.DataFrame, path: Path) -> None:
     mass, area = table["dry_mass_g"], table["frame_area_m2"]
-    lonely = mass.notna() & area.isna()
-    if lonely.any():
-        index = int(np.flatnonzero(lonely.to_numpy())[0])
-        raise TableError(
+    index = first_index(mass.notna() & area.isna())
+    if index is not None:
+        raise row_error(
             "dry mass without a frame area",
-            source=path,
-            location=f"row {spreadsheet_row(index)}, column 'frame_area_m2'",
+            path,
+            index,
+            "frame_area_m2",
             expected="the frame area in m² (greater than 0)",
             found="an empty cell",
         )
@@ -327,14 +333,14 @@ def _require_plausible_framed_biomass(
 ) -> None:
     """Biomass from mass and frame obeys the range of ``biomass_kg_per_ha`` (units mixed up?)."""
     limit = next(c.maximum for c in PLOT_COLUMNS if c.name == "biomass_kg_per_ha")
-    absurd = framed_kg_per_ha > limit
-    if absurd.any():
-        index = int(np.flatnonzero(absurd)[0])
+    index = first_index(framed_kg_per_ha > limit)
+    if index is not None:
         mass, area = table["dry_mass_g"].iloc[index], table["frame_area_m2"].iloc[index]
-        raise TableError(
+        raise row_error(
             "biomass out of range; is the mass in grams and the frame area in m²?",
-            source=path,
-            location=f"row {spreadsheet_row(index)}, columns 'dry_mass_g'/'frame_area_m2'",
+            path,
+            index,
+            ("dry_mass_g", "frame_area_m2"),
             expected=f"at most {limit:g} kg/ha (10 × dry_mass_g / frame_area_m2)",
             found=f"{framed_kg_per_ha[index]:g} kg/ha from {mass:g} g in {area:g} m²",
         )
@@ -342,13 +348,13 @@ def _require_plausible_framed_biomass(
 
 def _require_one_stratum_per_plot(table: pd.DataFrame, path: Path) -> None:
     first = table.groupby("plot_id")["stratum"].transform("first")
-    conflict = (table["stratum"] != first).to_numpy()
-    if conflict.any():
-        index = int(np.flatnonzero(conflict)[0])
-        raise TableError(
+    index = first_index(table["stratum"] != first)
+    if index is not None:
+        raise row_error(
             "plot recorded in two strata",
-            source=path,
-            location=f"row {spreadsheet_row(index)}, column 'stratum'",
+            path,
+            index,
+            "stratum",
             expected=f"stratum {first.iloc[index]!r} as in the plot's first row",
             found=repr(table["stratum"].iloc[index]),
         )

@@ -16,8 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
-from nutricap.errors import TableError
-from nutricap.inputs.columns import Column, Source, check_unique, read_csv_table, spreadsheet_row
+from nutricap.inputs.columns import Column, Source, check_unique, read_csv_table, whole_numbers
 
 MAX_CODE = 2**24 - 1
 """Largest code: rasters are read as float32, which holds every integer up to 2^24 exactly."""
@@ -72,23 +71,13 @@ class StrataCodes:
 def read_strata_codes(path: Source) -> StrataCodes:
     """Read and check the codes table (whole codes, each listed once)."""
     table = read_csv_table(path, CODE_COLUMNS, what="strata codes table")
-    codes = table["code"].to_numpy(dtype=float)
-    fractional = np.flatnonzero(codes != np.round(codes))
-    if fractional.size:
-        row = int(fractional[0])
-        raise TableError(
-            "code is not a whole number",
-            source=path,
-            location=f"row {spreadsheet_row(row)}, column 'code'",
-            expected="an integer code of the strata raster",
-            found=repr(float(codes[row])),
-        )
+    codes = whole_numbers(table, "code", path, expected="an integer code of the strata raster")
     check_unique(table, ["code"], path)
     fraction = None
     if "accessible_fraction" in table.columns:
         fraction = table["accessible_fraction"].fillna(1.0).to_numpy(dtype=np.float32)
         fraction = fraction if (fraction < 1).any() else None
-    return StrataCodes(codes.astype(np.int64), list(table["stratum"]), path, fraction)
+    return StrataCodes(codes, list(table["stratum"]), path, fraction)
 
 
 def polygons_from_codes(

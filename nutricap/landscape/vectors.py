@@ -10,16 +10,12 @@ longitudes and latitudes is refused (its CRS is wrong).
 
 from __future__ import annotations
 
-import warnings
 from collections.abc import Sequence
-from contextlib import closing
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import geopandas as gpd
 import numpy as np
 import pandas as pd
-import pyogrio
 import shapely
 from pyproj import CRS, Proj, Transformer
 from pyproj.crs import ProjectedCRS
@@ -27,19 +23,15 @@ from pyproj.crs.coordinate_operation import LambertAzimuthalEqualAreaConversion
 from shapely.validation import explain_validity
 
 from nutricap.errors import SpatialError
-from nutricap.inputs.columns import (
-    Source,
-    TableSource,
-    apply_column_names,
-    as_source,
-    closest_name,
-    plain_value,
+from nutricap.inputs.columns import plain_value
+from nutricap.inputs.table_source import Source, as_source, closest_name
+from nutricap.landscape.layer_files import (
+    feature_error,
+    layer_renaming,
+    open_layer,
 )
 
 M2_PER_HA = 10_000.0
-DBF_NAME_CHARS = 10
-"""A shapefile's attribute names (dBASE fields) hold at most this many characters; GDAL cuts
-longer names when it writes one and numbers the names a cut makes equal (``current_1``)."""
 OVERLAP_TOLERANCE_M2 = 1.0
 """Two polygons sharing more than this area [m²] (or :data:`OVERLAP_RELATIVE_TOLERANCE` of the
 smaller one, when that is more) count as overlapping."""
@@ -118,11 +110,11 @@ def read_layer(
     shapefile, our names cut to 10 characters (``current_an``), recorded in the source.
     """
     source = as_source(path)
-    frame = _open_layer(source, layer, what)
+    frame = open_layer(source, layer, what)
     if frame.empty:
         raise SpatialError(f"{what} has no features", source=source, expected="polygons")
     declared = [*columns, *optional]
-    frame = frame.rename(columns=_layer_renaming(frame, source, layer, declared, what))
+    frame = frame.rename(columns=layer_renaming(frame, source, layer, declared, what))
     for column in columns:
         if column not in frame.columns:
             attributes = [str(c) for c in frame.columns if c != "geometry"]
@@ -153,73 +145,6 @@ def read_layer(
     return frame
 
 
-def _layer_renaming(
-    frame: gpd.GeoDataFrame,
-    source: TableSource,
-    layer: str | None,
-    declared: list[str],
-    what: str,
-) -> dict[str, str]:
-    """File's name → ours: the user's mapping, then our long names cut to 10 characters."""
-    names = [str(c) for c in frame.columns if c != frame.geometry.name]
-    renaming = apply_column_names(names, source, declared, what)
-    shapefile = _is_shapefile(source.path, layer)
-    for ours in declared:
-        cut = ours[:DBF_NAME_CHARS]
-        if ours in names or ours in source.columns or cut == ours or cut not in names:
-            continue
-        if cut in renaming:  # the user mapped that column to another of ours
-            continue
-        twins = [n for n in names if n != cut and _same_cut(n, ours)]
-        others = [o for o in declared if o != ours and o[:DBF_NAME_CHARS] == cut]
-        if not shapefile or twins or others:
-            _refuse_cut_name(source, names, ours, cut, [*twins, *others], what)
-        renaming[cut] = ours
-        source.recognised[ours] = cut
-    return renaming
-
-
-def _same_cut(name: str, ours: str) -> bool:
-    """Whether ``name`` is GDAL's numbered form of ``ours`` cut short (``current_1``)."""
-    stem, _, number = name.rpartition("_")
-    return number.isdigit() and bool(stem) and ours.startswith(stem)
-
-
-def _refuse_cut_name(
-    source: TableSource, names: list[str], ours: str, cut: str, rivals: list[str], what: str
-) -> None:
-    line = f"[{source.key_of('columns')}] {ours} = {cut!r}"
-    if rivals:
-        why = f"is {ours!r} cut to {DBF_NAME_CHARS} characters, but so could be " + ", ".join(
-            map(repr, rivals)
-        )
-    else:
-        why = f"looks like {ours!r} cut to {DBF_NAME_CHARS} characters (as a shapefile cuts it)"
-    raise SpatialError(
-        f"{what} attribute {cut!r} {why}; say which column is {ours!r} in the project file",
-        source=source.path,
-        location=f"attribute {cut!r}",
-        expected=f"attribute {ours!r}, or the line {line} under the project file's columns",
-        found="attributes " + ", ".join(map(repr, names)),
-    )
-
-
-def _is_shapefile(path: Path, layer: str | None) -> bool:
-    """Whether ``path`` is read by GDAL's shapefile driver (``.shp``, ``.dbf``, a folder or
-    zip of them): its attribute names were cut to 10 characters."""
-    suffix = path.suffix.lower()
-    if suffix in (".shp", ".dbf", ".shz"):
-        return True
-    if suffix not in (".zip", "") and not path.is_dir():
-        return False
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")  # several layers, none named: the first is asked
-            return pyogrio.read_info(path, layer=layer)["driver"] == "ESRI Shapefile"
-    except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, ValueError):
-        return False
-
-
 def _check_on_earth(frame: gpd.GeoDataFrame, path: Source, what: str) -> None:
     """Refuse a local (engineering) CRS: without a datum on the Earth the layer can be set
     neither on the other layers nor on an equal-area projection."""
@@ -232,133 +157,6 @@ def _check_on_earth(frame: gpd.GeoDataFrame, path: Source, what: str) -> None:
             "a site grid before use",
             found=f"CRS {crs.name!r}",
         )
-
-
-def _open_layer(source: TableSource, layer: str | None, what: str) -> gpd.GeoDataFrame:
-    path = source.path
-    if layer is None:
-        layer = _only_spatial_layer(path, what)
-    try:
-        frame = gpd.read_file(path, layer=layer, engine="pyogrio")
-    except pyogrio.errors.DataLayerError as exc:
-        names = _layer_names(path)
-        if layer is None or layer in names or not names:
-            raise SpatialError(f"cannot read {what}: {exc}", source=path) from None
-        raise SpatialError(
-            f"the file has no layer {layer!r}",
-            source=path,
-            location=f"layer {layer!r}",
-            expected="one of the file's layers: " + ", ".join(map(repr, names)),
-            found=repr(layer),
-        ) from None
-    except (pyogrio.errors.DataSourceError, ValueError) as exc:
-        detail = str(exc)
-        if "not recognized as being in a supported file format" in detail:
-            detail = "not a vector format GDAL can read"
-        elif "malformed" in detail or "not a database" in detail:
-            detail = "the file is truncated or corrupt (SQLite: the database image is malformed)"
-        raise SpatialError(
-            f"cannot read {what}: {detail}",
-            source=path,
-            expected="a vector layer (GeoPackage preferred)",
-        ) from None
-    if not isinstance(frame, gpd.GeoDataFrame):
-        raise SpatialError(
-            f"{what} has no geometries",
-            source=path,
-            expected="a vector layer of polygons (GeoPackage preferred)",
-            found="a table without geometries",
-        )
-    _refuse_nul_text(frame, path, layer, what)
-    return frame
-
-
-def _refuse_nul_text(frame: gpd.GeoDataFrame, path: Path, layer: str | None, what: str) -> None:
-    """Refuse a text attribute holding a NUL character (byte 0).
-
-    GDAL reads text only up to a NUL, so ``"Cold\\0marrow"`` would become unit ``"Cold"``; in a
-    GeoPackage the whole text is read again with SQLite to see it.
-    """
-    for column in frame.columns.drop(frame.geometry.name):
-        text = frame[column].map(lambda value: isinstance(value, str) and "\0" in value)
-        if text.any():
-            where = _feature(frame, text.to_numpy(dtype=bool))
-            _raise_nul(path, where, column, frame[column][text].iloc[0], what)
-    found = _geopackage_nul(path, layer)
-    if found is not None:
-        index, column, value = found
-        _raise_nul(path, f"feature {index} (of {len(frame)})", column, value, what)
-
-
-def _raise_nul(path: Path, where: str, column: str, value: str, what: str) -> None:
-    raise SpatialError(
-        f"{what} has a NUL character (byte 0) in attribute {column!r}; GDAL reads text "
-        "only up to it",
-        source=path,
-        location=where,
-        expected="text without NUL characters",
-        found=repr(value),
-    )
-
-
-def _geopackage_nul(path: Path, layer: str | None) -> tuple[int, str, str] | None:
-    """(feature number, column, text) of the first text holding a NUL in a GeoPackage layer."""
-    import sqlite3
-
-    try:
-        with open(path, "rb") as stream:
-            if stream.read(16) != b"SQLite format 3\0":
-                return None
-        layer = layer or _layer_names(path, spatial_only=True)[0]
-        uri = Path(path).resolve().as_uri() + "?mode=ro&immutable=1"  # never writes
-        with closing(sqlite3.connect(uri, uri=True)) as db:
-            table = '"' + layer.replace('"', '""') + '"'
-            columns = db.execute(f"SELECT name, type FROM pragma_table_info({_quoted(layer)})")
-            for column, kind in columns.fetchall():
-                if not str(kind).upper().startswith("TEXT"):
-                    continue
-                name = '"' + column.replace('"', '""') + '"'
-                hit = db.execute(
-                    f"SELECT rowid, CAST({name} AS BLOB) FROM {table} "
-                    f"WHERE instr(CAST({name} AS BLOB), X'00') > 0 ORDER BY rowid LIMIT 1"
-                ).fetchone()
-                if hit is not None:
-                    rank = db.execute(f"SELECT COUNT(*) FROM {table} WHERE rowid <= ?", hit[:1])
-                    text = bytes(hit[1]).decode("utf-8", errors="replace")
-                    return int(rank.fetchone()[0]), column, text
-    except (OSError, IndexError, sqlite3.Error):
-        return None  # not a GeoPackage SQLite can read: GDAL's reading stands
-    return None
-
-
-def _quoted(text: str) -> str:
-    """``text`` as an SQL string literal."""
-    return "'" + text.replace("'", "''") + "'"
-
-
-def _layer_names(path: Path, *, spatial_only: bool = False) -> list[str]:
-    try:
-        layers = pyogrio.list_layers(path)
-    except (pyogrio.errors.DataSourceError, ValueError):
-        return []
-    return [str(name) for name, kind in layers if kind is not None or not spatial_only]
-
-
-def _only_spatial_layer(path: Path, what: str) -> str | None:
-    """The one layer with geometries when no layer is named; refuse a choice of several.
-
-    Tables without geometries (e.g. the styles a GIS saves in a GeoPackage) do not count.
-    """
-    spatial = _layer_names(path, spatial_only=True)
-    if len(spatial) > 1:
-        raise SpatialError(
-            f"the file holds {len(spatial)} layers and the project file names none for the {what}",
-            source=path,
-            expected="the layer to use named in the project file (units_layer, strata_layer, "
-            "…): one of " + ", ".join(map(repr, spatial)),
-            found="no layer name",
-        )
-    return spatial[0] if spatial else None
 
 
 def _check_geographic_range(frame: gpd.GeoDataFrame, path: Source, what: str) -> None:
@@ -374,12 +172,13 @@ def _check_geographic_range(frame: gpd.GeoDataFrame, path: Source, what: str) ->
     ).to_numpy()
     if outside.any():
         first = bounds[outside].iloc[0]
-        raise SpatialError(
+        raise feature_error(
             f"{what} has coordinates that are not longitudes and latitudes, yet its CRS is "
             f"geographic ({CRS.from_user_input(frame.crs).to_string()}); "
             "the layer's CRS is probably wrong",
-            source=path,
-            location=_feature(frame, outside),
+            path,
+            frame,
+            outside,
             expected="longitude -180..360 and latitude -90..90, or the layer's true CRS",
             found=f"x {first['minx']:.6g}..{first['maxx']:.6g}, "
             f"y {first['miny']:.6g}..{first['maxy']:.6g}",
@@ -401,10 +200,12 @@ def read_units(
     _require_filled_text(units, "unit_id", path, "units layer")
     duplicated = units["unit_id"].duplicated().to_numpy()
     if duplicated.any():
-        raise SpatialError(
+        raise feature_error(
             "duplicate unit_id",
-            source=path,
-            location=_feature(units, duplicated, "unit_id"),
+            path,
+            units,
+            duplicated,
+            "unit_id",
             expected="each unit_id once",
             found=repr(units["unit_id"][duplicated].iloc[0]),
         )
@@ -434,10 +235,12 @@ def _require_filled_text(frame: gpd.GeoDataFrame, column: str, path: Source, wha
     text = frame[column].astype("string").str.strip()
     blank = (text.isna() | (text == "")).to_numpy()
     if blank.any():
-        raise SpatialError(
+        raise feature_error(
             f"{what} has an empty {column}",
-            source=path,
-            location=_feature(frame, blank, column),
+            path,
+            frame,
+            blank,
+            column,
             expected=f"a {column} for every feature",
             found="an empty value",
         )
@@ -453,10 +256,12 @@ def _require_numbers(
         bad |= values > high
     if bad.any():
         bounds = f"between {low:g} and {high:g}" if high is not None else f"at least {low:g}"
-        raise SpatialError(
+        raise feature_error(
             f"{what} has a bad {column}",
-            source=path,
-            location=_feature(frame, bad, column),
+            path,
+            frame,
+            bad,
+            column,
             expected=f"a number {bounds}",
             found=repr(plain_value(frame[column][bad].iloc[0])),
         )
@@ -467,39 +272,36 @@ def _check_geometries(frame: gpd.GeoDataFrame, path: Source, what: str) -> None:
     geometry = frame.geometry
     empty = (geometry.isna() | geometry.is_empty).to_numpy()
     if empty.any():
-        raise SpatialError(
+        raise feature_error(
             f"{what} has an empty geometry",
-            source=path,
-            location=_feature(frame, empty),
+            path,
+            frame,
+            empty,
             expected="a polygon",
             found="no geometry",
         )
     polygonal = geometry.geom_type.isin(["Polygon", "MultiPolygon"]).to_numpy()
     if not polygonal.all():
         bad = ~polygonal
-        raise SpatialError(
+        raise feature_error(
             f"{what} has a non-polygon geometry",
-            source=path,
-            location=_feature(frame, bad),
+            path,
+            frame,
+            bad,
             expected="Polygon or MultiPolygon",
             found=str(geometry[bad].iloc[0].geom_type),
         )
     invalid = ~geometry.is_valid.to_numpy()
     if invalid.any():
         reason = explain_validity(geometry[invalid].iloc[0])
-        raise SpatialError(
+        raise feature_error(
             f"{what} has an invalid geometry ({reason})",
-            source=path,
-            location=_feature(frame, invalid),
+            path,
+            frame,
+            invalid,
             expected="a valid polygon",
             found="an invalid polygon; repair it in a GIS (e.g. make valid)",
         )
-
-
-def _feature(frame: gpd.GeoDataFrame, mask: np.ndarray, column: str | None = None) -> str:
-    index = int(np.flatnonzero(mask)[0])
-    attribute = f", attribute {column!r}" if column is not None else ""
-    return f"feature {index + 1} (of {len(frame)}){attribute}"
 
 
 def choose_area_crs(units: gpd.GeoDataFrame) -> tuple[CRS, str]:

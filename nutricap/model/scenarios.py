@@ -18,7 +18,7 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 
-from nutricap.errors import InputError, SpatialError, TableError
+from nutricap.errors import InputError, SpatialError
 from nutricap.inputs.columns import (
     FIRST_YEAR,
     LAST_YEAR,
@@ -27,9 +27,11 @@ from nutricap.inputs.columns import (
     check_unique,
     plain_value,
     read_csv_table,
-    spreadsheet_row,
 )
-from nutricap.inputs.project import Project, ScenarioSection
+from nutricap.inputs.project import Project
+from nutricap.inputs.project_schema import ScenarioSection
+from nutricap.inputs.table_source import first_index, row_error
+from nutricap.landscape.layer_files import feature_error
 from nutricap.landscape.vectors import (
     M2_PER_HA,
     StratumAreas,
@@ -145,13 +147,13 @@ def read_responses(path: Source) -> pd.DataFrame:
             table[name] = ""
     for name in ("de_shift_kcal_per_g", "cp_shift_pct"):
         table[name] = table.get(name, pd.Series(0.0, index=table.index)).fillna(0.0)
-    both = (table["forage_class"] != "") == (table["growth_form"] != "")
-    if both.any():
-        index = int(np.flatnonzero(both.to_numpy())[0])
-        raise TableError(
+    index = first_index((table["forage_class"] != "") == (table["growth_form"] != ""))
+    if index is not None:
+        raise row_error(
             "a response row must name a forage class or a growth form",
-            source=path,
-            location=f"row {spreadsheet_row(index)}, columns 'forage_class'/'growth_form'",
+            path,
+            index,
+            ("forage_class", "growth_form"),
             expected="exactly one of the two filled",
             found="both" if table["forage_class"].iloc[index] else "neither",
         )
@@ -178,27 +180,29 @@ def read_treatments(path: Source, layer: str | None, strata: list[str]) -> gpd.G
         bad = ~np.isfinite(years) | (years != np.round(years))
         bad |= (years < FIRST_YEAR) | (years > LAST_YEAR)
     if bad.any():
-        index = int(np.flatnonzero(bad)[0])
-        raise SpatialError(
+        raise feature_error(
             "treatment year is not a calendar year",
-            source=path,
-            location=f"feature {index + 1} (of {len(frame)}), attribute 'year'",
+            path,
+            frame,
+            bad,
+            "year",
             expected=f"a whole year from {FIRST_YEAR} to {LAST_YEAR}, such as 2027",
-            found=repr(plain_value(frame["year"].iloc[index])),
+            found=repr(plain_value(frame["year"][bad].iloc[0])),
         )
     frame["year"] = years.astype(int)
     if "new_stratum" not in frame.columns:
         frame["new_stratum"] = ""
     frame["new_stratum"] = frame["new_stratum"].fillna("").astype(str).str.strip()
-    unknown = ~frame["new_stratum"].isin(["", *strata])
+    unknown = ~frame["new_stratum"].isin(["", *strata]).to_numpy()
     if unknown.any():
-        index = int(np.flatnonzero(unknown.to_numpy())[0])
-        raise SpatialError(
+        raise feature_error(
             "new_stratum is not a stratum with plots",
-            source=path,
-            location=f"feature {index + 1} (of {len(frame)}), attribute 'new_stratum'",
+            path,
+            frame,
+            unknown,
+            "new_stratum",
             expected="empty, or one of " + ", ".join(map(repr, strata)),
-            found=repr(frame["new_stratum"].iloc[index]),
+            found=repr(frame["new_stratum"][unknown].iloc[0]),
         )
     check_no_overlaps(frame.assign(_id=np.arange(1, len(frame) + 1)), "_id", path, "treatments")
     return frame
