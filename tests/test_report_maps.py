@@ -69,8 +69,10 @@ def test_raster_section_shows_every_coarse_map(raster_estimate, raster_project, 
 
 
 def test_raster_section_without_coarse_maps(raster_estimate, raster_project, manifest):  # noqa: F811
-    assert raster_estimate.grid.overview_maps == []  # what the passes hand over today
-    html, shown = report_parts(raster_estimate, project=raster_project, manifest=manifest)
+    assert raster_estimate.grid.overview_maps  # the passes hand over maps ...
+    grid = dataclasses.replace(raster_estimate.grid, overview_maps=[])  # ... a run may have none
+    estimate = dataclasses.replace(raster_estimate, grid=grid)
+    html, shown = report_parts(estimate, project=raster_project, manifest=manifest)
     assert "<img " not in section(html, "raster")
     assert not [name for name in shown if name.startswith("raster_")]
 
