@@ -44,50 +44,19 @@ def add_check(commands) -> None:
 
 
 def run_estimate_command(args: argparse.Namespace) -> int:
-    from nutricap.inputs.project import load_project
-    from nutricap.report.manifest import BackgroundChecksums
-
-    browser = pdf_browser(args)
-    progress = StepPrinter(args.quiet)
-    project = load_project(args.project)
-    checksums = BackgroundChecksums(project.files())  # while the libraries are imported
+    project, options = _project_and_run_options(args)
     from nutricap.workflow import run_estimate
 
-    result = run_estimate(
-        project,
-        args.out,
-        overwrite=args.overwrite,
-        report=not args.no_report,
-        progress=progress,
-        checksums=checksums,
-        pdf_browser=browser,
-        figure_files=not args.no_figures,
-    )
+    result = run_estimate(project, args.out, **options)
     print_summary(result, args.out, quiet=args.quiet)
     return EXIT_OK
 
 
 def run_compare_command(args: argparse.Namespace) -> int:
-    from nutricap.inputs.project import load_project
-    from nutricap.report.manifest import BackgroundChecksums
-
-    browser = pdf_browser(args)
-    progress = StepPrinter(args.quiet)
-    project = load_project(args.project)
-    checksums = BackgroundChecksums(project.files())  # while the libraries are imported
+    project, options = _project_and_run_options(args)
     from nutricap.workflow import run_compare
 
-    result, table = run_compare(
-        project,
-        args.scenario,
-        args.out,
-        overwrite=args.overwrite,
-        report=not args.no_report,
-        progress=progress,
-        checksums=checksums,
-        pdf_browser=browser,
-        figure_files=not args.no_figures,
-    )
+    result, table = run_compare(project, args.scenario, args.out, **options)
     if args.quiet:
         return EXIT_OK
     for name, rows in table.groupby("scenario", sort=False):
@@ -99,6 +68,27 @@ def run_compare_command(args: argparse.Namespace) -> int:
     say(f"Table: {Path(args.out) / 'scenario_by_unit.csv'}")
     say(f"CAUTION: {CAUTION}")
     return EXIT_OK
+
+
+def _project_and_run_options(args: argparse.Namespace) -> tuple:
+    """The project of ``estimate`` or ``compare`` and the options of its run (the browser for
+    ``--pdf`` looked for first, the inputs' checksums started while the libraries load)."""
+    from nutricap.inputs.project import load_project
+    from nutricap.report.manifest import BackgroundChecksums
+
+    browser = pdf_browser(args)
+    progress = StepPrinter(args.quiet)
+    project = load_project(args.project)
+    checksums = BackgroundChecksums(project.files())  # while the libraries are imported
+    options = {
+        "overwrite": args.overwrite,
+        "report": not args.no_report,
+        "progress": progress,
+        "checksums": checksums,
+        "pdf_browser": browser,
+        "figure_files": not args.no_figures,
+    }
+    return project, options
 
 
 def run_check(args: argparse.Namespace) -> int:

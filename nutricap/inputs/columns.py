@@ -80,6 +80,12 @@ class Column:
     allow_blank: bool = False
     meaning: str = ""
 
+    @classmethod
+    def optional(cls, name: str, kind: str = "number", **limits) -> Column:
+        """A column the file may leave out, or leave blank in any row (``limits``: the other
+        fields, e.g. ``minimum`` and ``meaning``)."""
+        return cls(name, kind, required=False, allow_blank=True, **limits)
+
 
 def read_csv_table(path: Path | TableSource, columns: list[Column], *, what: str) -> pd.DataFrame:
     """Read ``path`` and validate it against ``columns``.

@@ -25,30 +25,13 @@ from nutricap.science.supply import biomass_kg_per_ha
 
 FORAGE_CLASS_COLUMNS = [
     Column("forage_class", "text", meaning="name of the forage class"),
-    Column("growth_form", "text", required=False, allow_blank=True),
-    Column(
-        "de_kcal_per_g",
-        required=False,
-        allow_blank=True,
-        above=0,
-        maximum=5,
-        meaning="digestible energy, kcal per g dry matter",
+    Column.optional("growth_form", "text"),
+    Column.optional(
+        "de_kcal_per_g", above=0, maximum=5, meaning="digestible energy, kcal per g dry matter"
     ),
-    Column(
-        "dmd_pct",
-        required=False,
-        allow_blank=True,
-        above=0,
-        maximum=100,
-        meaning="dry-matter digestibility, percent",
-    ),
-    Column(
-        "gross_energy_kcal_per_g",
-        required=False,
-        allow_blank=True,
-        above=3,
-        maximum=6,
-        meaning="gross energy, kcal per g dry matter",
+    Column.optional("dmd_pct", above=0, maximum=100, meaning="dry-matter digestibility, percent"),
+    Column.optional(
+        "gross_energy_kcal_per_g", above=3, maximum=6, meaning="gross energy, kcal per g dry matter"
     ),
     Column(
         "cp_pct",
@@ -63,36 +46,20 @@ FORAGE_CLASS_COLUMNS = [
         maximum=1,
         meaning="fraction of current growth that may be used, 0 to 1",
     ),
-    Column("key", "flag", required=False, allow_blank=True),
-    Column(
-        "height_cm",
-        required=False,
-        allow_blank=True,
-        minimum=0,
-        maximum=3000,
-        meaning="forage height, cm",
+    Column.optional("key", "flag"),
+    Column.optional("height_cm", minimum=0, maximum=3000, meaning="forage height, cm"),
+    Column.optional(
+        "tannin", minimum=0, maximum=1, meaning="tannin protein precipitation, mg BSA per mg forage"
     ),
-    Column(
-        "tannin",
-        required=False,
-        allow_blank=True,
-        minimum=0,
-        maximum=1,
-        meaning="tannin protein precipitation, mg BSA per mg forage",
-    ),
-    Column(
+    Column.optional(
         "preference",
-        required=False,
-        allow_blank=True,
         above=0,
         maximum=1000,
         meaning="relative preference weight for allocating current use, > 0 (default 1)",
     ),
-    Column("stratum", "text", required=False, allow_blank=True),
-    Column(
+    Column.optional("stratum", "text"),
+    Column.optional(
         "max_diet_share",
-        required=False,
-        allow_blank=True,
         minimum=0,
         maximum=1,
         meaning="largest share of the diet the class may make up, 0 to 1 (default 1)",
@@ -108,30 +75,11 @@ PLOT_COLUMNS = [
         allow_blank=True,
         meaning="forage class clipped (empty on the one row of a bare plot)",
     ),
-    Column(
-        "dry_mass_g",
-        required=False,
-        allow_blank=True,
-        minimum=0,
-        maximum=100_000,
-        meaning="oven-dry mass in the frame, g",
+    Column.optional(
+        "dry_mass_g", minimum=0, maximum=100_000, meaning="oven-dry mass in the frame, g"
     ),
-    Column(
-        "frame_area_m2",
-        required=False,
-        allow_blank=True,
-        above=0,
-        maximum=10_000,
-        meaning="frame area, m²",
-    ),
-    Column(
-        "biomass_kg_per_ha",
-        required=False,
-        allow_blank=True,
-        minimum=0,
-        maximum=100_000,
-        meaning="dry biomass, kg/ha",
-    ),
+    Column.optional("frame_area_m2", above=0, maximum=10_000, meaning="frame area, m²"),
+    Column.optional("biomass_kg_per_ha", minimum=0, maximum=100_000, meaning="dry biomass, kg/ha"),
 ]
 
 ANIMAL_CLASS_COLUMNS = [
@@ -139,10 +87,8 @@ ANIMAL_CLASS_COLUMNS = [
     Column("body_mass_kg", above=0, maximum=2000, meaning="live body mass, kg"),
     Column("share", minimum=0, maximum=1, meaning="share of the herd, 0 to 1"),
     Column("state", "text", meaning="reproductive state, e.g. maintenance, gestation, lactation"),
-    Column(
+    Column.optional(
         "intake_kg_per_day",
-        required=False,
-        allow_blank=True,
         above=0,
         maximum=60,
         meaning="dry-matter intake override, kg per animal per day",

@@ -24,12 +24,10 @@ MAX_CODE = 2**24 - 1
 CODE_COLUMNS = [
     Column("code", minimum=0, maximum=MAX_CODE, meaning="integer code of the strata raster"),
     Column("stratum", kind="text", meaning="stratum name, as in the plots table"),
-    Column(
+    Column.optional(
         "accessible_fraction",
-        required=False,
         minimum=0.0,
         maximum=1.0,
-        allow_blank=True,
         meaning="share of the code's ground animals can reach, 0-1 (blank: 1)",
     ),
 ]

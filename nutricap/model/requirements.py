@@ -26,8 +26,8 @@ STATE_TABLE_COLUMNS = [
     Column("bmr_multiplier", above=0.0, maximum=20.0, meaning="ME as a multiple of 70 W^0.75"),
     Column("intake_g_per_kg075_per_day", above=0.0, maximum=500.0, meaning="g DM/kg^0.75/day"),
     Column("dp_g_per_kg075_per_day", minimum=0.0, maximum=100.0, meaning="g DP/kg^0.75/day"),
-    Column("scope", "text", required=False, allow_blank=True),
-    Column("description", "text", required=False, allow_blank=True),
+    Column.optional("scope", "text"),
+    Column.optional("description", "text"),
     Column("source", "text", meaning="where each row's values come from"),
 ]
 

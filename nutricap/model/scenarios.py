@@ -45,22 +45,15 @@ from nutricap.science.treatment import response_at
 
 RESPONSE_COLUMNS = [
     Column("treatment", "text", meaning="treatment type, as in the treatments layer"),
-    Column("forage_class", "text", required=False, allow_blank=True),
-    Column("growth_form", "text", required=False, allow_blank=True),
+    Column.optional("forage_class", "text"),
+    Column.optional("growth_form", "text"),
     Column("years_since", minimum=0, maximum=200, meaning="years since treatment, >= 0"),
     Column("biomass_multiplier", minimum=0, maximum=50, meaning="biomass × this, >= 0"),
-    Column(
-        "de_shift_kcal_per_g",
-        required=False,
-        allow_blank=True,
-        minimum=-3,
-        maximum=3,
-        meaning="change of digestible energy, kcal/g",
+    Column.optional(
+        "de_shift_kcal_per_g", minimum=-3, maximum=3, meaning="change of digestible energy, kcal/g"
     ),
-    Column(
+    Column.optional(
         "cp_shift_pct",
-        required=False,
-        allow_blank=True,
         minimum=-30,
         maximum=30,
         meaning="change of crude protein, percentage points",

@@ -6,12 +6,13 @@ from __future__ import annotations
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
+from typing import TypedDict, Unpack
 
 import pandas as pd
 
 from nutricap.inputs.project import Project
 from nutricap.model.estimate import Estimate
-from nutricap.model.scenarios import treatment_years
+from nutricap.model.scenarios import Scenario, treatment_years
 from nutricap.report.bundle import ReportPreload, write_estimate
 from nutricap.report.manifest import BackgroundChecksums
 from nutricap.report.output_folder import check_output_folder, staged_folder
@@ -24,9 +25,53 @@ from nutricap.workflow.reading import Progress, on_grid
 # or chart is written (SciPy likewise, inside the science functions that need it).
 
 
-def run_estimate(
+class RunOptions(TypedDict, total=False):
+    """The keyword options of :func:`run_estimate` and :func:`run_compare`.
+
+    Attributes
+    ----------
+    overwrite : bool
+        Replace an existing output folder (only an earlier run's outputs, unchanged); default
+        False.
+    report : bool
+        Write ``report.html``; default True.
+    progress : callable, optional
+        Told each step of the run (a message).
+    checksums : BackgroundChecksums, optional
+        SHA-256 of :meth:`Project.files` for the manifest, started by the caller as early as
+        possible; otherwise they start here, beside the estimate.
+    pdf_browser : Path, optional
+        Also print the report to ``report.pdf`` with this browser.
+    figure_files : bool
+        Also write the report's figures as PNG and SVG files into ``figures/``; default False.
+    """
+
+    overwrite: bool
+    report: bool
+    progress: Progress | None
+    checksums: BackgroundChecksums | None
+    pdf_browser: Path | None
+    figure_files: bool
+
+
+def run_estimate(project: Project, out: Path, **options: Unpack[RunOptions]) -> Estimate:
+    """Estimate ``project`` and write every output into ``out`` atomically (``options``: see
+    :class:`RunOptions`)."""
+    return _run_and_write(project, out, None, **options)[0]
+
+
+def run_compare(
+    project: Project, scenario_name: str | Sequence[str], out: Path, **options: Unpack[RunOptions]
+) -> tuple[Estimate, pd.DataFrame]:
+    """Estimate, run the scenario, and write everything (plus the scenario table and chart);
+    ``options`` as in :func:`run_estimate`."""
+    return _run_and_write(project, out, scenario_name, **options)
+
+
+def _run_and_write(
     project: Project,
     out: Path,
+    scenario_names: str | Sequence[str] | None,
     *,
     overwrite: bool = False,
     report: bool = True,
@@ -34,19 +79,20 @@ def run_estimate(
     checksums: BackgroundChecksums | None = None,
     pdf_browser: Path | None = None,
     figure_files: bool = False,
-) -> Estimate:
-    """Estimate ``project`` and write every output into ``out`` atomically.
-
-    ``checksums`` of :meth:`Project.files` for the manifest may be started by the caller
-    (as early as possible); otherwise they start here, beside the estimate.
-    ``pdf_browser``: also print the report to ``report.pdf`` with this browser;
-    ``figure_files``: also write its figures as PNG and SVG files into ``figures/``.
-    """
+) -> tuple[Estimate, pd.DataFrame | None]:
+    """The estimate (with ``scenario_names``: the comparison) and its outputs written into
+    ``out`` atomically; returns the estimate and the scenario table (None without scenarios)."""
     say = progress or (lambda message: None)
     out = check_output_folder(out, project.files(), overwrite=overwrite)
     checksums = checksums or BackgroundChecksums(project.files())
+    table, scenarios = None, None
     with _report_preload(project, report) as started:
-        result = estimate(project, progress, streaming_started=started)
+        if scenario_names is None:
+            result = estimate(project, progress, streaming_started=started)
+        else:
+            result, table, scenarios = compare_scenarios(
+                project, scenario_names, progress, streaming_started=started
+            )
     say(f"writing outputs to {out}")
     with staged_folder(out, overwrite=overwrite) as staging:
         write_estimate(
@@ -54,11 +100,26 @@ def run_estimate(
             project,
             staging,
             report=report,
+            scenario_table=table,
+            scenarios=scenarios,
             checksums=checksums,
             pdf_browser=pdf_browser,
             figure_files=figure_files,
         )
-    return result
+        if table is not None:
+            _write_scenario_outputs(table, scenarios, staging)
+    return result, table
+
+
+def _write_scenario_outputs(table: pd.DataFrame, scenarios: list[Scenario], folder: Path) -> None:
+    """``scenario_by_unit.csv`` and its chart ``scenario_by_unit.png``."""
+    write_csv(table, folder / "scenario_by_unit.csv")
+    from nutricap.report.figures import figure_png, scenario_figure
+
+    chart = figure_png(
+        scenario_figure(table, per_unit=True, treatment_years=treatment_years(scenarios))
+    )
+    (folder / "scenario_by_unit.png").write_bytes(chart)
 
 
 @contextmanager
@@ -73,49 +134,3 @@ def _report_preload(project: Project, report: bool) -> Iterator[Callable[[], Non
         yield preload.start
     finally:
         preload.wait()
-
-
-def run_compare(
-    project: Project,
-    scenario_name: str | Sequence[str],
-    out: Path,
-    *,
-    overwrite: bool = False,
-    report: bool = True,
-    progress: Progress | None = None,
-    checksums: BackgroundChecksums | None = None,
-    pdf_browser: Path | None = None,
-    figure_files: bool = False,
-) -> tuple[Estimate, pd.DataFrame]:
-    """Estimate, run the scenario, and write everything (plus the scenario table and chart).
-
-    ``checksums``, ``pdf_browser`` and ``figure_files`` as in :func:`run_estimate`.
-    """
-    say = progress or (lambda message: None)
-    out = check_output_folder(out, project.files(), overwrite=overwrite)
-    checksums = checksums or BackgroundChecksums(project.files())
-    with _report_preload(project, report) as started:
-        result, table, scenarios = compare_scenarios(
-            project, scenario_name, progress, streaming_started=started
-        )
-    say(f"writing outputs to {out}")
-    with staged_folder(out, overwrite=overwrite) as staging:
-        write_estimate(
-            result,
-            project,
-            staging,
-            report=report,
-            scenario_table=table,
-            scenarios=scenarios,
-            checksums=checksums,
-            pdf_browser=pdf_browser,
-            figure_files=figure_files,
-        )
-        write_csv(table, staging / "scenario_by_unit.csv")
-        from nutricap.report.figures import figure_png, scenario_figure
-
-        chart = figure_png(
-            scenario_figure(table, per_unit=True, treatment_years=treatment_years(scenarios))
-        )
-        (staging / "scenario_by_unit.png").write_bytes(chart)
-    return result, table
