@@ -14,6 +14,10 @@ from shapely.affinity import translate
 
 from nutricap.cli import main
 
+NO_FIGURES = "--no-figures"
+"""For the runs whose figure files no test here looks at (each figure is a 300-dpi PNG and an
+SVG); test_report_figures_are_written_as_png_and_svg_unless_asked_not_to checks them."""
+
 
 def _run(capsys, *argv):
     code = main([str(a) for a in argv])
@@ -29,7 +33,7 @@ def test_help_shows_caution(capsys):
 
 
 def test_estimate_succeeds(project, tmp_path, capsys):
-    code, out, _ = _run(capsys, "estimate", project, "--out", tmp_path / "results")
+    code, out, _ = _run(capsys, "estimate", project, "--out", tmp_path / "results", NO_FIGURES)
     assert code == 0
     assert "capacity_by_unit.csv" in out and "CAUTION" in out
 
@@ -37,7 +41,7 @@ def test_estimate_succeeds(project, tmp_path, capsys):
 def test_report_written_by_default_and_skipped_on_request(project, tmp_path, capsys):
     with_report = tmp_path / "with"
     without = tmp_path / "without"
-    assert _run(capsys, "estimate", project, "--out", with_report, "--quiet")[0] == 0
+    assert _run(capsys, "estimate", project, "--out", with_report, NO_FIGURES, "--quiet")[0] == 0
     assert _run(capsys, "estimate", project, "--out", without, "--no-report", "--quiet")[0] == 0
     assert (with_report / "report.html").stat().st_size > 10_000
     assert not (without / "report.html").exists()
@@ -52,7 +56,7 @@ def test_check_writes_nothing(project, capsys):
 
 
 def test_demo_runs(tmp_path, capsys):
-    code, out, _ = _run(capsys, "demo", "--out", tmp_path / "demo")
+    code, out, _ = _run(capsys, "demo", "--out", tmp_path / "demo", NO_FIGURES)
     assert code == 0
     # The example's over-stocked unit (invented for the example) is flagged in the summary.
     assert "flag: unit Petrelhollow" in out and "report.html" in out
@@ -73,17 +77,17 @@ def _tree(folder):
 
 def test_demo_overwrite_deletes_only_what_the_demo_wrote(tmp_path, capsys):
     demo = tmp_path / "demo"
-    assert _run(capsys, "demo", "--out", demo, "--quiet") == (0, "", "")
+    assert _run(capsys, "demo", "--out", demo, NO_FIGURES, "--quiet") == (0, "", "")
     for where in ("example_landscape/my_plots.csv", "results/notes.txt", "my_map.qgz"):
         (demo / where).write_text("the user's own file\n")
         before = _tree(demo)
-        code, out, err = _run(capsys, "demo", "--out", demo, "--overwrite", "--quiet")
+        code, out, err = _run(capsys, "demo", "--out", demo, "--overwrite", NO_FIGURES, "--quiet")
         assert code == 2 and out == "" and len(err.strip().splitlines()) == 1, err
         assert Path(where).name in err
         assert _tree(demo) == before, "nothing deleted, nothing written"
         (demo / where).unlink()
     # Unchanged, the demo's own folders are replaced.
-    assert _run(capsys, "demo", "--out", demo, "--overwrite", "--quiet") == (0, "", "")
+    assert _run(capsys, "demo", "--out", demo, "--overwrite", NO_FIGURES, "--quiet") == (0, "", "")
     assert sorted(p.name for p in demo.iterdir()) == ["example_landscape", "results",
                                                       "results_rasters"]  # fmt: skip
 
@@ -177,7 +181,7 @@ def test_out_inside_input_folder_refused(project, capsys):
 
 def test_existing_output_needs_overwrite_and_survives_failure(project, tmp_path, capsys):
     out = tmp_path / "results"
-    assert _run(capsys, "estimate", project, "--out", out, "--quiet")[0] == 0
+    assert _run(capsys, "estimate", project, "--out", out, NO_FIGURES, "--quiet")[0] == 0
     first = (out / "capacity_by_unit.csv").read_bytes()
     code, _, err = _run(capsys, "estimate", project, "--out", out, "--quiet")
     assert code == 2 and "--overwrite" in err

@@ -215,7 +215,8 @@ def test_compare_writes_its_outputs_for_a_raster_project(tmp_path, capsys):
     write_landscape(folder)
     (folder / "project.toml").write_text(project_text(RASTERS, SNOW) + _write_scenario(folder))
     out = tmp_path / "out"
-    code = main(["compare", str(folder / "project.toml"), "--scenario", "work", "--out", str(out)])
+    argv = ["compare", str(folder / "project.toml"), "--scenario", "work", "--out", str(out)]
+    code = main([*argv, "--no-figures"])
     assert code == 0, capsys.readouterr().err
     table = pd.read_csv(out / "scenario_by_unit.csv")
     assert len(table) == 4 * 15  # units × years 2026–2040

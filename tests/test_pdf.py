@@ -96,7 +96,8 @@ def test_a_failed_print_discards_the_whole_run(tmp_path, monkeypatch, capsys, ex
     browser = stand_in_browser(tmp_path, "exit 1")
     monkeypatch.setenv(pdf.BROWSER_VARIABLE, str(browser))
     out = tmp_path / "results"
-    code = main(["estimate", str(example_project), "--out", str(out), "--pdf", "--quiet"])
+    argv = ["estimate", str(example_project), "--out", str(out), "--pdf", "--no-figures"]
+    code = main([*argv, "--quiet"])
     err = capsys.readouterr().err.strip().splitlines()
     assert code == 2 and len(err) == 1 and "could not be printed to PDF" in err[0]
     assert not out.exists() and not [p for p in os.listdir(tmp_path) if "partial" in p]

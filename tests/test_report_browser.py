@@ -152,7 +152,7 @@ def _words(text: str) -> str:
 def printed_demo(tmp_path_factory):
     pytest.importorskip("pypdf")
     out = tmp_path_factory.mktemp("printed") / "demo"
-    assert main(["demo", "--out", str(out), "--pdf", "--quiet"]) == 0
+    assert main(["demo", "--out", str(out), "--pdf", "--no-figures", "--quiet"]) == 0
     return out
 
 

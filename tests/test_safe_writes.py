@@ -106,7 +106,7 @@ def test_out_is_a_symbolic_link_loop(project, tmp_path, capsys):
 
 def test_existing_results_replaced_only_with_overwrite(project, tmp_path, capsys):
     out = tmp_path / "results"
-    assert _run(capsys, "estimate", project, "--out", out, "--quiet")[0] == 0
+    assert _run(capsys, "estimate", project, "--out", out, "--no-figures", "--quiet")[0] == 0
     first = _digest(out)
     _refused(capsys, ("estimate", project, "--out", out, "--quiet"), "--overwrite")
     assert _digest(out) == first

@@ -104,7 +104,8 @@ def test_stratum_change_moves_the_treated_area(project):
 
 def test_compare_command_writes_table_and_chart(project, tmp_path, capsys):
     out = tmp_path / "compare"
-    code = main(["compare", str(project), "--scenario", "prescribed_burn", "--out", str(out)])
+    argv = ["compare", str(project), "--scenario", "prescribed_burn", "--out", str(out)]
+    code = main([*argv, "--no-figures"])
     assert code == 0
     table = pd.read_csv(out / "scenario_by_unit.csv")
     required = [
@@ -152,7 +153,7 @@ def test_compare_report_of_several_scenarios(project, tmp_path, capsys):
 
     out = tmp_path / "both"
     argv = ["compare", str(project), "--scenario", "juniper_thinning"]
-    argv += ["--scenario", "prescribed_burn", "--out", str(out), "--quiet"]
+    argv += ["--scenario", "prescribed_burn", "--out", str(out), "--no-figures", "--quiet"]
     assert main(argv) == 0
     manifest = json.loads((out / "run.json").read_text())
     assert manifest["command"] == "compare"

@@ -329,7 +329,8 @@ def same_as_north_up(folder: Path, table: pd.DataFrame, reference: pd.DataFrame)
         )
         south_up_biomass("juniper", north_up=True)(copy)
         out = Path(scratch) / "results"
-        assert main(["estimate", str(copy / "project.toml"), "--out", str(out), "--quiet"]) == 0
+        project = str(copy / "project.toml")
+        assert main(["estimate", project, "--out", str(out), "--no-figures", "--quiet"]) == 0
         pd.testing.assert_frame_equal(table, pd.read_csv(out / "capacity_by_unit.csv"))
     assert (table["ncc_animals"] > 0).all()
 
