@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import base64
 from collections.abc import Callable
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
@@ -134,16 +135,43 @@ so that two share a page."""
 
 
 def embedded_figure(figure: Figure, alt: str, name: str) -> dict:
-    """``figure`` as a base64 PNG data URI with its alt text (and whether it is tall).
+    """``figure`` for the report: its alt text, whether it is tall, and its file name.
 
     ``name`` is the figure's file name (no extension) in the output's ``figures/`` folder;
-    the figure itself is kept under ``"figure"`` for :func:`nutricap.report.html.write_report`.
+    the figure itself is kept under ``"figure"``. ``"src"`` (the base64 PNG data URI) is
+    filled by :func:`render_embedded` once every figure of the report is built.
     """
-    png = figures.figure_png(figure)
     return {
-        "src": "data:image/png;base64," + base64.b64encode(png).decode("ascii"),
+        "src": None,
         "alt": alt,
         "tall": bool(figure.get_figheight() > TALL_FIGURE_IN),
         "name": name,
         "figure": figure,
     }
+
+
+def render_embedded(parts: list[dict], *, print_files: bool) -> dict[str, Future]:
+    """Fill each :func:`embedded_figure` part's ``"src"``; return the print PNGs by name.
+
+    Without ``print_files`` each figure is drawn at the report's resolution only and nothing
+    is returned. With them each figure is drawn once, at the print resolution; a background
+    thread encodes the report's image reduced from that drawing
+    (:func:`figures.screen_png`) and, after all of those, the print PNGs
+    (:func:`figures.print_png`), returned as futures for the figure files.
+    """
+    if not print_files:
+        for part in parts:
+            part["src"] = _data_uri(figures.figure_png(part["figure"]))
+        return {}
+    encoder = ThreadPoolExecutor(max_workers=1, thread_name_prefix="png")
+    drawn = [(part, figures.figure_pixels(part["figure"])) for part in parts]
+    screens = [encoder.submit(figures.screen_png, image) for _, image in drawn]
+    printed = {part["name"]: encoder.submit(figures.print_png, image) for part, image in drawn}
+    encoder.shutdown(wait=False)
+    for (part, _), screen in zip(drawn, screens, strict=True):
+        part["src"] = _data_uri(screen.result())
+    return printed
+
+
+def _data_uri(png: bytes) -> str:
+    return "data:image/png;base64," + base64.b64encode(png).decode("ascii")
