@@ -45,14 +45,8 @@ import nutricap.model.uncertainty as uncertainty
 from nutricap.example import write_example_landscape
 from nutricap.inputs.project import load_project
 from nutricap.model.problem import CapacityProblem
-from nutricap.workflow import (
-    assess_uncertainty,
-    build_supply,
-    diet_target,
-    estimate,
-    herd_requirement,
-    read_inputs,
-)
+from nutricap.model.requirements import diet_target, herd_requirement
+from nutricap.workflow import assess_uncertainty, build_supply, estimate, read_inputs
 
 UNITS_SEED = 5_000
 

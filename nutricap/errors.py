@@ -55,7 +55,7 @@ class InputError(NutricapError):
         What is wrong, in plain words.
     source : str or Path, optional
         The file (or project key) the problem is in; shown first. An object with a
-        ``relabel(location)`` method (``inputs.columns.TableSource``) rewrites the location
+        ``relabel(location)`` method (``inputs.table_source.TableSource``) rewrites the location
         (the user's own column names, a spreadsheet's sheet).
     location : str, optional
         Where in the source: ``"row 12, column dry_mass_g"``, ``"key target.state"``.

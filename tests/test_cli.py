@@ -238,7 +238,7 @@ def _fake_result(count):
 
 
 def test_summary_shows_the_20_largest_units_the_totals_and_the_table(tmp_path, capsys):
-    from nutricap.cli import _print_summary
+    from nutricap.cli.console import print_summary as _print_summary
 
     result = _fake_result(200)
     _print_summary(result, tmp_path)
@@ -256,7 +256,7 @@ def test_summary_shows_the_20_largest_units_the_totals_and_the_table(tmp_path, c
 
 
 def test_ids_are_printed_escaped(tmp_path, capsys):
-    from nutricap.cli import _print_summary
+    from nutricap.cli.console import print_summary as _print_summary
 
     result = _fake_result(3)
     result.by_unit.loc[0, "unit_id"] = "\x1b[2J\x1b[Hfake\nnutricap: OK\u202e"

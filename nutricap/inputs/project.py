@@ -17,7 +17,6 @@ from pathlib import Path
 from pydantic import BaseModel, ValidationError
 
 from nutricap.errors import FILE_MISSING, ProjectFileError, file_problem
-from nutricap.inputs.columns import TableSource, has_data_rows
 from nutricap.inputs.project_schema import (
     SOURCE_PATH_KEYS,
     OtherHerbivoreSection,
@@ -25,6 +24,8 @@ from nutricap.inputs.project_schema import (
     ScenarioSection,
 )
 from nutricap.inputs.raster_config import raster_input_paths
+from nutricap.inputs.table_cells import has_data_rows
+from nutricap.inputs.table_source import TableSource
 from nutricap.inputs.template import README, is_template_readme
 
 __all__ = ["OtherHerbivoreSection", "Project", "ProjectConfig", "ScenarioSection", "load_project"]

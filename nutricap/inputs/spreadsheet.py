@@ -1,7 +1,8 @@
 """The ``.xlsx`` reader: one sheet of a workbook as the text cells a CSV file would hold.
 
-Read with openpyxl (imported only when a workbook is read); :mod:`nutricap.inputs.columns`
-then validates the cells exactly like a CSV file's, rows being the sheet's own.
+Read with openpyxl (imported only when a workbook is read); :mod:`nutricap.inputs.table_cells`
+and :mod:`nutricap.inputs.columns` then check the cells exactly like a CSV file's, rows being
+the sheet's own.
 """
 
 from __future__ import annotations

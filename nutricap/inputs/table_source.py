@@ -6,8 +6,9 @@ against the file's header. Rows in messages are spreadsheet rows (the header is 
 first data row is row 2: :func:`spreadsheet_row`); :func:`row_error` builds the
 :class:`~nutricap.errors.TableError` of one data row, :func:`first_index` finds it.
 
-Below :mod:`nutricap.inputs.columns` (the CSV reader) and
-:mod:`nutricap.inputs.spreadsheet` (the ``.xlsx`` reader), which both use it.
+Below :mod:`nutricap.inputs.table_cells` (a table's file as text cells),
+:mod:`nutricap.inputs.spreadsheet` (the ``.xlsx`` reader) and :mod:`nutricap.inputs.columns`
+(the declared columns), which all use it.
 """
 
 from __future__ import annotations

@@ -14,7 +14,8 @@ import shutil
 from pathlib import Path
 
 from nutricap.errors import FILE_MISSING, OutputError, file_problem
-from nutricap.inputs.columns import COMMENT, Column
+from nutricap.inputs.columns import Column
+from nutricap.inputs.table_cells import COMMENT
 from nutricap.inputs.tables import ANIMAL_CLASS_COLUMNS, FORAGE_CLASS_COLUMNS, PLOT_COLUMNS
 
 PROJECT_FILE = "project.toml"

@@ -43,7 +43,8 @@ from nutricap.report.output_folder import write_outputs_list
 
 FILES = Path(__file__).parent / "files"
 GRID = from_origin(452_000.0, 4_291_000.0, 100.0, 100.0)
-"""A 100-m grid over the example's 15 × 10 km extent (ORIGIN_X_M, ... in nutricap/example.py)."""
+"""A 100-m grid over the example's 15 × 10 km extent (ORIGIN_X_M, ... in nutricap/example/
+layers.py)."""
 SHIFTED_GRID = from_origin(452_050.0, 4_291_000.0, 100.0, 100.0)
 """:data:`GRID` moved by half a cell."""
 Recipe = Callable[[Path], None]

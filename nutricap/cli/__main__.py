@@ -1,0 +1,3 @@
+from nutricap.cli.app import run_and_exit
+
+run_and_exit()
