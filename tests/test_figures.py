@@ -230,6 +230,44 @@ def test_figure_files_are_300_dpi_png_and_valid_svg(tmp_path):
         assert "axes_1" in groups, name
 
 
+def test_one_drawing_gives_the_print_and_the_report_images():
+    import io
+
+    from PIL import Image
+
+    from nutricap.report.figure_style import PNG_DPI, PRINT_DPI, SCREEN_REDUCTION
+    from nutricap.report.formatting import embedded_figure, render_embedded
+
+    figure = MAPS["raster overview"]()
+    pixels = np.asarray(figures.figure_pixels(figure))
+    # matplotlib's own PNG of the same figure at the same resolution (decoded by Pillow) is
+    # the reference: the raw buffer kept must be exactly those pixels.
+    reference = np.asarray(Image.open(io.BytesIO(figures.figure_png(figure, dpi=PRINT_DPI))))
+    assert pixels.shape == reference.shape and np.array_equal(pixels, reference)
+    part = embedded_figure(figure, "alt", "units")
+    printed = render_embedded([part], print_files=True)
+    screen = np.asarray(Image.open(io.BytesIO(base64_png(part["src"]))))
+    print_file = np.asarray(Image.open(io.BytesIO(printed["units"].result())))
+    assert np.array_equal(print_file, reference)
+    # Pillow's reduce keeps a last, partial block: ceil(side / 3) pixels a side.
+    rows, columns = (-(-side // SCREEN_REDUCTION) for side in reference.shape[:2])
+    assert screen.shape == (rows, columns, 4) and PRINT_DPI // PNG_DPI == SCREEN_REDUCTION
+    # Each report pixel of a whole block is the mean of its 3 × 3 print pixels (numpy, to ±1
+    # for rounding).
+    whole_rows, whole_columns = (side // 3 for side in reference.shape[:2])
+    blocks = reference[: whole_rows * 3, : whole_columns * 3].astype(float)
+    means = blocks.reshape(whole_rows, 3, whole_columns, 3, 4).mean(axis=(1, 3))
+    assert np.abs(screen[:whole_rows, :whole_columns] - means).max() <= 1.0
+
+
+def base64_png(uri: str) -> bytes:
+    import base64
+
+    prefix = "data:image/png;base64,"
+    assert uri.startswith(prefix)
+    return base64.b64decode(uri[len(prefix) :])
+
+
 # --- charts -------------------------------------------------------------------------------------
 
 

@@ -765,7 +765,7 @@ def test_figure_files_for_a_report_author(example_estimate, project, manifest, t
     from nutricap.report.figures import write_figures
     from nutricap.report.html import report_parts
 
-    html, shown = report_parts(example_estimate, project=project, manifest=manifest)
+    html, shown, _ = report_parts(example_estimate, project=project, manifest=manifest)
     assert len(shown) == html.count("<img ")
     write_figures(shown, tmp_path / "figures")
     for name in shown:

@@ -55,7 +55,7 @@ def test_raster_section_shows_every_coarse_map(raster_estimate, raster_project, 
     maps = invented_maps(raster_estimate)
     grid = dataclasses.replace(raster_estimate.grid, overview_maps=maps)
     estimate = dataclasses.replace(raster_estimate, grid=grid)
-    html, shown = report_parts(estimate, project=raster_project, manifest=manifest)
+    html, shown, _ = report_parts(estimate, project=raster_project, manifest=manifest)
     raster = section(html, "raster")
     assert raster.count("<img ") == 2
     rows, cols = maps[0].values.shape
@@ -72,7 +72,7 @@ def test_raster_section_without_coarse_maps(raster_estimate, raster_project, man
     assert raster_estimate.grid.overview_maps  # the passes hand over maps ...
     grid = dataclasses.replace(raster_estimate.grid, overview_maps=[])  # ... a run may have none
     estimate = dataclasses.replace(raster_estimate, grid=grid)
-    html, shown = report_parts(estimate, project=raster_project, manifest=manifest)
+    html, shown, _ = report_parts(estimate, project=raster_project, manifest=manifest)
     assert "<img " not in section(html, "raster")
     assert not [name for name in shown if name.startswith("raster_")]
 
@@ -148,7 +148,9 @@ def test_trend_section_compares_counts_with_the_counted_units(
     pd.DataFrame(rows).to_csv(path, index=False)
     trend = counts_trend(project, read_counts(path), lambda message: None, by_unit)
     extras = ReportExtras(trend=trend, interval_level=0.9)
-    html, shown = report_parts(example_estimate, project=project, manifest=manifest, extras=extras)
+    html, shown, _ = report_parts(
+        example_estimate, project=project, manifest=manifest, extras=extras
+    )
     text = parse(section(html, "trend")).plain_text
     assert f"the 2 counted units ({', '.join(two)})" in text
     assert "Nowhere" in text and "match no management unit" in text

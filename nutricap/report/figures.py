@@ -10,6 +10,7 @@ rendering). This module gathers their public names and writes the figure files
 
 from __future__ import annotations
 
+from concurrent.futures import Future
 from pathlib import Path
 
 from matplotlib.figure import Figure
@@ -33,9 +34,12 @@ from nutricap.report.figure_style import (
     PNG_DPI,
     PRINT_DPI,
     distinct_tick_labels,
+    figure_pixels,
     figure_png,
     figure_svg,
     new_figure,
+    print_png,
+    screen_png,
     signed_animals,
 )
 from nutricap.report.maps import (
@@ -62,10 +66,13 @@ __all__ = [
     "capacity_figure",
     "distinct_tick_labels",
     "figure_png",
+    "figure_pixels",
     "figure_svg",
     "ncc_density_map",
     "new_figure",
     "overview_map",
+    "print_png",
+    "screen_png",
     "population_trend_figure",
     "scale_bar_length",
     "scenario_figure",
@@ -80,14 +87,26 @@ FIGURES_FOLDER = "figures"
 """Folder of the output holding each figure of the report as PNG and SVG."""
 
 
-def write_figures(shown: dict[str, Figure], folder: Path) -> list[Path]:
+def write_figures(
+    shown: dict[str, Figure], folder: Path, printed: dict[str, Future] | None = None
+) -> list[Path]:
     """Each figure as ``NAME.png`` (:data:`PRINT_DPI` dpi) and ``NAME.svg`` in ``folder``
-    (created; normally inside the run's staging folder); returns the files written."""
+    (created; normally inside the run's staging folder); returns the files written.
+
+    ``printed``: print PNGs being encoded already, by name (futures of their bytes, see
+    :func:`nutricap.report.formatting.render_embedded`); the other figures are drawn here.
+    The SVGs are drawn first, while those are encoded.
+    """
+    printed = printed or {}
     folder.mkdir(exist_ok=True)
     written = []
     for name, figure in shown.items():
-        png, svg = folder / f"{name}.png", folder / f"{name}.svg"
-        png.write_bytes(figure_png(figure, dpi=PRINT_DPI))
+        svg = folder / f"{name}.svg"
         svg.write_bytes(figure_svg(figure))
-        written += [png, svg]
+        written.append(svg)
+    for name, figure in shown.items():
+        png = folder / f"{name}.png"
+        drawn = printed.get(name)
+        png.write_bytes(figure_png(figure, dpi=PRINT_DPI) if drawn is None else drawn.result())
+        written.append(png)
     return written

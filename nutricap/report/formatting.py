@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import base64
 from collections.abc import Callable
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
@@ -134,16 +135,50 @@ so that two share a page."""
 
 
 def embedded_figure(figure: Figure, alt: str, name: str) -> dict:
-    """``figure`` as a base64 PNG data URI with its alt text (and whether it is tall).
+    """``figure`` for the report: its alt text, whether it is tall, and its file name.
 
     ``name`` is the figure's file name (no extension) in the output's ``figures/`` folder;
-    the figure itself is kept under ``"figure"`` for :func:`nutricap.report.html.write_report`.
+    the figure itself is kept under ``"figure"``. ``"src"`` (the base64 PNG data URI) is
+    filled by :func:`render_embedded` once every figure of the report is built.
     """
-    png = figures.figure_png(figure)
     return {
-        "src": "data:image/png;base64," + base64.b64encode(png).decode("ascii"),
+        "src": None,
         "alt": alt,
         "tall": bool(figure.get_figheight() > TALL_FIGURE_IN),
         "name": name,
         "figure": figure,
     }
+
+
+def render_embedded(parts: list[dict], *, print_files: bool) -> dict[str, Future]:
+    """Fill each :func:`embedded_figure` part's ``"src"``; return the print PNGs by name.
+
+    Without ``print_files`` each figure is drawn at the report's resolution only and nothing
+    is returned. With them each figure is drawn once, at the print resolution, and a
+    background thread encodes, figure after figure, the report's image reduced from that
+    drawing (:func:`figures.screen_png`) and the print PNG (:func:`figures.print_png`),
+    while the next figure is drawn; at most two drawings are held (the one being encoded and
+    the one just drawn: about 16 MB each for a 7-inch map at 300 dpi). The print PNGs are
+    returned as futures for the figure files.
+    """
+    if not print_files:
+        for part in parts:
+            part["src"] = _data_uri(figures.figure_png(part["figure"]))
+        return {}
+    encoder = ThreadPoolExecutor(max_workers=1, thread_name_prefix="png")
+    screens, printed, pending = [], {}, None
+    for part in parts:
+        image = figures.figure_pixels(part["figure"])
+        if pending is not None:
+            pending.result()  # the previous drawing is let go before this one is queued
+        screens.append(encoder.submit(figures.screen_png, image))
+        pending = printed[part["name"]] = encoder.submit(figures.print_png, image)
+        del image  # the encoder's tasks hold the drawing until they are done
+    encoder.shutdown(wait=False)
+    for part, screen in zip(parts, screens, strict=True):
+        part["src"] = _data_uri(screen.result())
+    return printed
+
+
+def _data_uri(png: bytes) -> str:
+    return "data:image/png;base64," + base64.b64encode(png).decode("ascii")

@@ -42,12 +42,14 @@ from nutricap.report import (
     sections,
     use_section,
 )
-from nutricap.report.formatting import embedded_figure
+from nutricap.report.formatting import embedded_figure, render_embedded
 from nutricap.report.methods_text import methods
 from nutricap.report.sections import INTERVAL_COLUMNS, has_interval, unit_table
 from nutricap.report.use_section import is_flag
 
 if TYPE_CHECKING:
+    from concurrent.futures import Future
+
     from matplotlib.figure import Figure
 
     from nutricap.inputs.project import Project
@@ -108,8 +110,9 @@ def report_parts(
     project: Project,
     manifest: dict,
     extras: ReportExtras | None = None,
-) -> tuple[str, dict[str, Figure]]:
-    """The HTML report of ``estimate`` and its figures by file name.
+    print_figures: bool = False,
+) -> tuple[str, dict[str, Figure], dict[str, Future]]:
+    """The HTML report of ``estimate``, its figures by file name and their print PNGs.
 
     Parameters
     ----------
@@ -122,6 +125,9 @@ def report_parts(
         input files' SHA-256, the area CRS and the run date.
     extras : ReportExtras, optional
         Scenario, sensitivity and trend results; each section appears only when given.
+    print_figures : bool, default False
+        Also draw each figure at the print resolution (the report's images are then reduced
+        from those drawings, see :func:`nutricap.report.formatting.render_embedded`).
 
     Returns
     -------
@@ -129,6 +135,9 @@ def report_parts(
         The HTML text.
     figures : dict of str → matplotlib.figure.Figure
         Every figure of the report by its file name (no extension).
+    printed : dict of str → concurrent.futures.Future
+        The print PNG (bytes) of every figure by file name, being encoded in a background
+        thread (empty unless ``print_figures``).
     """
     extras = extras or ReportExtras()
     animals, forage = estimate.animals, estimate.forage_classes
@@ -172,8 +181,10 @@ def report_parts(
         "to_verify": references.values_to_verify(reductions=_reductions_used(estimate)),
         "manifest": provenance.manifest_summary(manifest),
     }
-    shown = {part["name"]: part["figure"] for part in _figure_parts(context)}
-    return _template().render(**context), shown
+    parts = _figure_parts(context)
+    printed = render_embedded(parts, print_files=print_figures)
+    shown = {part["name"]: part["figure"] for part in parts}
+    return _template().render(**context), shown, printed
 
 
 def _figure_parts(value: Any) -> list[dict]:
@@ -215,10 +226,12 @@ def write_report(
     ``figure_files``: also write each figure beside it as ``figures/NAME.png``
     (:data:`figures.PRINT_DPI` dpi) and ``figures/NAME.svg``, for a report author to place.
     """
-    html, shown = report_parts(estimate, project=project, manifest=manifest, extras=extras)
+    html, shown, printed = report_parts(
+        estimate, project=project, manifest=manifest, extras=extras, print_figures=figure_files
+    )
     Path(path).write_text(html, encoding="utf-8")
     if figure_files:
-        figures.write_figures(shown, Path(path).parent / figures.FIGURES_FOLDER)
+        figures.write_figures(shown, Path(path).parent / figures.FIGURES_FOLDER, printed)
 
 
 def _template() -> jinja2.Template:

@@ -52,6 +52,9 @@ LOGISTIC_METHOD = (
 _R_MAX_BOUNDS = (-0.99, 3.0)
 _CROWDING_BOUNDS = (-5.0, 50.0)  # 1/K times the largest count
 _SINGULAR_CONDITION = 1e12
+_FIT_TOLERANCE = 1e-13
+"""ftol, xtol and gtol of the fit: far below scipy's default 1e-8, so that the optimum found
+does not depend on the path (the machine's BLAS kernels) beyond about 12 digits."""
 _PREDICTION_FLOOR_FRACTION = 1e-6
 
 
@@ -621,7 +624,15 @@ def _least_squares_best_start(residuals, counts, steps, harvest, scale):
     bounds = tuple(zip(_R_MAX_BOUNDS, _CROWDING_BOUNDS, strict=True))
     fits = [
         optimize.least_squares(
-            residuals, start, jac="3-point", bounds=bounds, method="trf", x_scale=1.0
+            residuals,
+            start,
+            jac="3-point",
+            bounds=bounds,
+            method="trf",
+            x_scale=1.0,
+            ftol=_FIT_TOLERANCE,
+            xtol=_FIT_TOLERANCE,
+            gtol=_FIT_TOLERANCE,
         )
         for start in _start_values(counts, steps, harvest, scale)
     ]
