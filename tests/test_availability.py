@@ -1,4 +1,4 @@
-"""Tests of nutricap.landscape.availability: the per-cell availability rules.
+"""Tests of nutricap.landscape.availability and .rules_on_cells: the per-cell availability rules.
 
 Check values come from the definitions of the rules (stated beside each), from the packaged
 Holechek (1988) table (slope middle classes from memory; the rest read in a secondary source,
@@ -20,12 +20,14 @@ from nutricap.errors import TableError
 from nutricap.landscape.availability import (
     RULES,
     CellRules,
-    apply_rules,
-    available_all_or_none,
-    exposed_fraction_above_snow,
     load_reduction_table,
     reduction_fraction,
     rules_report,
+)
+from nutricap.landscape.rules_on_cells import (
+    apply_rules,
+    available_all_or_none,
+    exposed_fraction_above_snow,
     slope_percent_from_degrees,
 )
 

@@ -1,4 +1,5 @@
-"""Tests of nutricap.landscape.grid.rasters: grid checks, windows, windowed reads, burning polygons.
+"""Tests of nutricap.landscape.grid.rasters and .layers: grid checks, windows, windowed reads,
+burning polygons.
 
 Check values come from SI definitions (cell areas), pyproj (unit of a CRS), numpy (nearest
 resampling of a 2× coarser grid is a repeat), and shapely's point-in-polygon test on cell
@@ -15,14 +16,8 @@ from rasterio.transform import Affine, from_origin
 from shapely.geometry import Polygon
 
 from nutricap.errors import SpatialError
-from nutricap.landscape.grid.rasters import (
-    GridLayer,
-    LayerSpec,
-    LayerStack,
-    ShapeBurner,
-    grid_windows,
-    read_grid,
-)
+from nutricap.landscape.grid.layers import GridLayer, LayerStack
+from nutricap.landscape.grid.rasters import LayerSpec, ShapeBurner, grid_windows, read_grid
 
 WEST, NORTH, CELL = 300_000.0, 5_000_000.0, 30.0
 

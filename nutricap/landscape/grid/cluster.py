@@ -31,22 +31,11 @@ from rasterio.windows import Window
 from tqdm import tqdm
 
 from nutricap.errors import ProjectFileError
+from nutricap.landscape.grid.layers import LayerStack
 from nutricap.landscape.grid.outputs import window_density
-from nutricap.landscape.grid.rasters import (
-    Grid,
-    LayerSpec,
-    LayerStack,
-    Scratch,
-    ShapeBurner,
-    streaming_env,
-)
-from nutricap.landscape.grid.window_pass import (
-    GridSetup,
-    Totals,
-    WindowReader,
-    WindowSums,
-    window_sums,
-)
+from nutricap.landscape.grid.rasters import Grid, LayerSpec, Scratch, ShapeBurner, streaming_env
+from nutricap.landscape.grid.sums import GridSetup, Totals, WindowSums
+from nutricap.landscape.grid.window_pass import WindowReader, window_sums
 
 IN_FLIGHT_PER_WORKER = 2
 """Density windows computed ahead per worker (bounds memory while results stream back)."""

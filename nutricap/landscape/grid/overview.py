@@ -138,7 +138,7 @@ class PairSums:
         :meth:`CoarseGrid.span` of the window.
     cells : float array (pairs,)
     sums : float64 array (rows, pairs)
-        The rows of the per-cell array summed (see ``window_pass.Layout``).
+        The rows of the per-cell array summed (see ``sums.Layout``).
     """
 
     keys: np.ndarray

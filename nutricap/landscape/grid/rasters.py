@@ -1,21 +1,18 @@
-"""Raster layers on one grid: checks, windows, windowed reads and polygons burnt per window.
+"""The grid every raster layer is read on: its checks, windows, and polygons burnt per window.
 
 The grid is defined by one raster (the first layer of the project). Every other layer must share
 its CRS and cell size and be aligned with it (cell edges on the same lines; the extent may
-differ, cells off a layer's extent have no data). A layer that is not aligned is refused, or
-resampled onto the grid when the project asks for it (``resample = "nearest" | "bilinear" |
-"average"``, by GDAL's warper).
+differ, cells off a layer's extent have no data): :func:`alignment_problem` says why one is not
+(the reading of the layers, aligned or resampled, is in :mod:`nutricap.landscape.grid.layers`).
 
 Rasters are read in windows aligned to the grid layer's blocks, so that memory does not grow
-with the raster. Nodata is honoured everywhere: a band's nodata value, NaN, and a GDAL
-per-dataset mask all mark cells without data. Polygons (units, strata, exclusion masks) are
-burnt per window by GDAL's rasteriser: a cell belongs to a polygon when its centre lies in it.
+with the raster. Polygons (units, strata, exclusion masks) are burnt per window by GDAL's
+rasteriser: a cell belongs to a polygon when its centre lies in it.
 """
 
 from __future__ import annotations
 
 import math
-import threading
 import warnings
 from dataclasses import dataclass
 from pathlib import Path
@@ -27,9 +24,7 @@ import rasterio.windows
 import shapely
 from affine import Affine
 from pyproj import CRS
-from rasterio.enums import MaskFlags, Resampling
 from rasterio.errors import NotGeoreferencedWarning, RasterioIOError
-from rasterio.vrt import WarpedVRT
 from rasterio.warp import calculate_default_transform
 from rasterio.windows import Window
 
@@ -51,11 +46,6 @@ warnings.filterwarnings(
     category=NotGeoreferencedWarning,
     module="rasterio.features",
 )
-RESAMPLING = {
-    "nearest": Resampling.nearest,
-    "bilinear": Resampling.bilinear,
-    "average": Resampling.average,
-}
 
 
 class Scratch:
@@ -156,7 +146,7 @@ def read_grid(path: Path, key: str, *, resample: str = "none", area_crs=None) ->
     it at about its resolution (GDAL's default for the warp), refused otherwise.
     """
     with open_raster(path, key) as src:
-        crs = _raster_crs(src, path, key)
+        crs = raster_crs(src, path, key)
         t = src.transform
         if t.b != 0 or t.d != 0:
             raise SpatialError(
@@ -205,7 +195,9 @@ def open_raster(path: Path, key: str):
         ) from None
 
 
-def _raster_crs(src, path: Path, key: str):
+def raster_crs(src, path: Path, key: str):
+    """The CRS of raster ``src``; a raster without one, or with a local (engineering) CRS not
+    tied to the Earth, is a :class:`SpatialError`."""
     if src.crs is None:
         raise SpatialError(
             "raster has no coordinate reference system",
@@ -299,235 +291,6 @@ VALUE_RANGES = {
 100,000 kg/ha for biomass; the others only catch wrong units or corrupt files)."""
 CATEGORICAL_KEYS = {"rasters.strata.raster": "integer stratum codes"}
 """Layers of codes: read as they are and resampled (when asked) by the nearest cell only."""
-
-
-class GridLayer:
-    """One raster read on the grid, window by window (not thread-safe: one per thread).
-
-    An aligned raster is read directly (with its offset from the grid); with ``resample`` not
-    ``"none"`` a misaligned raster is warped onto the grid by GDAL with that method.
-    """
-
-    def __init__(self, spec: LayerSpec, grid: Grid, resample: str) -> None:
-        self.spec = spec
-        self.src = open_raster(spec.path, spec.key)
-        _raster_crs(self.src, spec.path, spec.key)
-        self.resampled_by: str | None = None
-        problem = alignment_problem(grid, self.src)
-        self.offset = (0, 0)
-        if problem is None:
-            t = self.src.transform
-            self.offset = (
-                round((t.f - grid.transform.f) / grid.transform.e),
-                round((t.c - grid.transform.c) / grid.transform.a),
-            )
-            self.dataset = self.src
-        elif resample == "none":
-            self.src.close()
-            expected, found = problem
-            raise SpatialError(
-                "raster is not on the grid of the first raster layer",
-                source=spec.path,
-                location=f"key {spec.key!r}",
-                expected=expected + "; or set resample in [rasters] to resample it",
-                found=found,
-            )
-        else:
-            method = "nearest" if spec.categorical else resample
-            self.dataset = WarpedVRT(
-                self.src,
-                crs=grid.crs,
-                transform=grid.transform,
-                width=grid.width,
-                height=grid.height,
-                resampling=RESAMPLING[method],
-            )
-            self.resampled_by = method
-        self._check_bands_and_type()
-        if spec.categorical and np.dtype(self.src.dtypes[0]).kind not in "ui":
-            self.close()
-            raise SpatialError(
-                "raster of codes holds non-integer values",
-                source=spec.path,
-                location=f"key {spec.key!r}",
-                expected=f"an integer raster ({spec.meaning})",
-                found=f"data type {self.src.dtypes[0]}",
-            )
-        self.nodata = self.dataset.nodata
-        flags = self.dataset.mask_flag_enums[0]
-        self.per_dataset_mask = MaskFlags.per_dataset in flags or MaskFlags.alpha in flags
-        self.is_float = np.dtype(self.dataset.dtypes[0]).kind == "f"
-
-    def _check_bands_and_type(self) -> None:
-        """Refuse rasters whose values cannot be one number per cell."""
-        path, key = self.spec.path, self.spec.key
-        if self.src.count != 1:
-            self.close()
-            raise SpatialError(
-                f"raster has {self.src.count} bands",
-                source=path,
-                location=f"key {key!r}",
-                expected="a single-band raster (one value per cell)",
-                found=f"{self.src.count} bands; save the band you mean as its own GeoTIFF",
-            )
-        kind = np.dtype(self.src.dtypes[0]).kind
-        if kind not in "uif":
-            self.close()
-            raise SpatialError(
-                "raster values are not real numbers",
-                source=path,
-                location=f"key {key!r}",
-                expected="an integer or floating-point raster",
-                found=f"data type {self.src.dtypes[0]}",
-            )
-
-    def read(self, window: Window, scratch: Scratch | None = None) -> tuple[np.ndarray, np.ndarray]:
-        """Values (float32) and validity (bool) of the grid cells in ``window``.
-
-        With ``scratch``, a window inside the layer's extent is read into its buffers
-        (valid until this layer reads again in the same thread).
-        """
-        shape = (int(window.height), int(window.width))
-        inner, target = self._intersection(window)
-        if inner is None:
-            return np.zeros(shape, dtype=np.float32), np.zeros(shape, dtype=bool)
-        try:
-            if scratch is not None and (int(inner.height), int(inner.width)) == shape:
-                part = scratch.take(f"values {self.spec.key}", shape, np.float32)
-                self.dataset.read(1, window=inner, out=part)
-            else:
-                part = self.dataset.read(1, window=inner, out_dtype=np.float32)
-                scratch = None
-            ok = self._valid(part, inner, scratch)
-        except RasterioIOError as exc:
-            raise self._unreadable(inner, exc) from None
-        self._check_range(part, ok, inner)
-        if part.shape == shape:
-            return part, ok
-        values = np.zeros(shape, dtype=np.float32)
-        valid = np.zeros(shape, dtype=bool)
-        values[target] = part
-        valid[target] = ok
-        return values, valid
-
-    def _unreadable(self, inner: Window, exc: RasterioIOError) -> SpatialError:
-        """The error of a window GDAL cannot read: a truncated or corrupt file."""
-        detail = str(exc.__cause__ or exc)
-        return SpatialError(
-            "cannot read the raster's cells: the file is truncated or corrupt",
-            source=self.spec.path,
-            location=f"key {self.spec.key!r}, cells from row {int(inner.row_off)}, "
-            f"column {int(inner.col_off)}",
-            expected="a complete GeoTIFF (copy or export it again)",
-            found=f"GDAL: {detail.removeprefix(self.spec.path.name + ', ')}",
-        )
-
-    def _check_range(self, part: np.ndarray, ok: np.ndarray, inner: Window) -> None:
-        """Refuse a value outside the layer's possible range, naming the first such cell."""
-        spec = self.spec
-        if spec.minimum is None or part.size == 0:
-            return
-        if part.min() >= spec.minimum and part.max() <= spec.maximum:
-            return  # every value in range, nodata included (no masked pass needed)
-        low, high = part.min(initial=np.inf, where=ok), part.max(initial=-np.inf, where=ok)
-        if low >= spec.minimum and high <= spec.maximum:
-            return
-        bad = ok & ((part < spec.minimum) | (part > spec.maximum))
-        row, col = (int(i) for i in np.argwhere(bad)[0])
-        raise SpatialError(
-            "raster value out of range",
-            source=spec.path,
-            location=(
-                f"key {spec.key!r}, cell row {int(inner.row_off) + row}, "
-                f"column {int(inner.col_off) + col}"
-            ),
-            expected=f"{spec.meaning} between {spec.minimum:g} and {spec.maximum:g}",
-            found=f"{float(part[row, col]):g}",
-        )
-
-    def _valid(self, part: np.ndarray, inner: Window, scratch: Scratch | None) -> np.ndarray:
-        """Cells with data: not the nodata value, not NaN, not masked."""
-        if scratch is None:
-            ok = np.ones(part.shape, dtype=bool)
-        else:
-            ok = scratch.take(f"valid {self.spec.key}", part.shape, bool)
-            ok.fill(True)
-        if self.nodata is not None and not np.isnan(self.nodata):
-            np.not_equal(part, np.float32(self.nodata), out=ok)
-        if self.is_float and np.isnan(np.add.reduce(part, axis=None)):  # a NaN somewhere
-            ok &= ~np.isnan(part)
-        if self.per_dataset_mask:
-            ok &= self.dataset.read_masks(1, window=inner) > 0
-        return ok
-
-    def _intersection(self, window: Window):
-        """The part of ``window`` this layer covers: (layer window, slices into the window)."""
-        row_off, col_off = self.offset
-        r0, c0 = int(window.row_off) - row_off, int(window.col_off) - col_off
-        r1, c1 = r0 + int(window.height), c0 + int(window.width)
-        rr0, cc0 = max(r0, 0), max(c0, 0)
-        rr1, cc1 = min(r1, self.dataset.height), min(c1, self.dataset.width)
-        if rr0 >= rr1 or cc0 >= cc1:
-            return None, None
-        inner = Window(cc0, rr0, cc1 - cc0, rr1 - rr0)
-        target = (slice(rr0 - r0, rr1 - r0), slice(cc0 - c0, cc1 - c0))
-        return inner, target
-
-    def close(self) -> None:
-        if self.dataset is not self.src:
-            self.dataset.close()
-        self.src.close()
-
-
-class LayerStack:
-    """Every raster layer of a run, opened once per reading thread.
-
-    Opening in the constructor checks every layer against the grid at once (errors are
-    raised there, in the calling thread).
-    """
-
-    def __init__(self, specs: list[LayerSpec], grid: Grid, resample: str) -> None:
-        self.specs = specs
-        self.grid = grid
-        self.resample = resample
-        self._local = threading.local()
-        self._opened: list[GridLayer] = []
-        self._lock = threading.Lock()
-        self.resampled = {layer.spec.key: layer.resampled_by for layer in self._layers()}
-
-    def _layers(self) -> list[GridLayer]:
-        layers = getattr(self._local, "layers", None)
-        if layers is None:
-            layers = []
-            try:
-                for spec in self.specs:
-                    layers.append(GridLayer(spec, self.grid, self.resample))
-            except BaseException:
-                for layer in layers:
-                    layer.close()
-                raise
-            self._local.layers = layers
-            with self._lock:
-                self._opened.extend(layers)
-        return layers
-
-    def read(
-        self, window: Window, scratch: Scratch | None = None
-    ) -> dict[str, tuple[np.ndarray, np.ndarray]]:
-        """Values and validity of every layer in ``window``, by key (see :meth:`GridLayer.read`)."""
-        return {layer.spec.key: layer.read(window, scratch) for layer in self._layers()}
-
-    def close(self) -> None:
-        with self._lock:
-            for layer in self._opened:
-                layer.close()
-            self._opened.clear()
-
-    def __enter__(self) -> LayerStack:
-        return self
-
-    def __exit__(self, *exc) -> None:
-        self.close()
 
 
 def grid_windows(grid: Grid, window_size: int | None = None) -> list[Window]:
