@@ -15,13 +15,18 @@ vegetation strata. Then measures, in this order:
     start included); its peak RSS is read with resource.getrusage(RUSAGE_CHILDREN) right
     after the estimate runs, before any other child runs, so the data building here does not
     count;
+(b') the same estimate with ``--no-figures`` (the report without its PNG and SVG files);
+(f) the fresh-memory floor: writing as many bytes as the cell cache between the two passes
+    holds (4 + 4 × classes per cell) into a new temporary file and removing it (on some
+    virtual machines a page touched for the first time costs far more than the copy);
 (c) per-unit class sums of the 6 forage rasters by exactextract (`exact_extract(..., "sum")`),
     in a child process as well (wall time, interpreter start included).
 
 Each is run ``--repeat`` times (default 3) and the fastest run is kept, since the machine
 may be shared. The last line printed is exactly
-``cells=N ratio_to_read_floor=R ratio_to_exactextract=E peak_rss_mb=M`` with R = (b)/(a),
-E = (b)/(c) and M the peak RSS of (b) [MB].
+``cells=N ratio_to_read_floor=R ratio_to_exactextract=E peak_rss_mb=M
+no_figures_ratio_to_read_floor=R' no_figures_ratio_to_exactextract=E'`` (one line) with
+R = (b)/(a), E = (b)/(c), M the peak RSS of (b) [MB], and R', E' the same for (b').
 
 With ``--mosaic`` the landscape of ``--cells`` cells is a GDAL VRT mosaic (one VRTDataset per
 layer, a SimpleSource per tile) of k × k copies of the cached landscape of ``--tile-cells``
@@ -41,6 +46,7 @@ import os
 import resource
 import subprocess
 import sys
+import tempfile
 import time
 from pathlib import Path
 
@@ -65,6 +71,7 @@ HEIGHTS_CM = (60, 90, 150, 50, 40, 10)  # invented for the benchmark
 N_UNITS = 200
 STRATA = ("steppe", "shrubland", "woodland", "meadow")
 BLOCK = 512
+CELL_CACHE_BYTES = 4 + 4 * len(CLASSES)  # the cell cache's record: key, forage left per class
 FORAGE_TABLE = """forage_class,growth_form,de_kcal_per_g,cp_pct,allowable_use,key,height_cm
 sagebrush,browse,2.75,10.5,0.5,true,60
 bitterbrush,browse,2.45,8.0,0.5,true,90
@@ -228,11 +235,25 @@ def read_floor(folder: Path, suffix: str = ".tif") -> float:
     return time.perf_counter() - started
 
 
-def run_estimate(folder: Path, project: str = "project.toml", out_name: str = "out"):
+def write_floor(cells: int, bytes_per_cell: int = CELL_CACHE_BYTES) -> float:
+    """Seconds to write ``cells × bytes_per_cell`` bytes (what the cell cache between the two
+    passes holds) into a new file of the temporary folder, 16 MiB at a time, and remove it:
+    the cost of fresh page-cache memory on this machine (on some virtual machines the first
+    touch of a page is far slower than the copy)."""
+    block = np.ones(16 * 2**20 // 4, dtype=np.float32)
+    total = cells * bytes_per_cell
+    started = time.perf_counter()
+    with tempfile.TemporaryFile() as handle:
+        for offset in range(0, total, block.nbytes):
+            os.pwrite(handle.fileno(), block[: (total - offset) // 4], offset)
+    return time.perf_counter() - started
+
+
+def run_estimate(folder: Path, project: str = "project.toml", out_name: str = "out", *extra: str):
     """Wall seconds and peak RSS [MB] of `nutricap estimate` in a child process."""
     out = folder.parent / out_name
     command = [sys.executable, "-m", "nutricap", "estimate", str(folder / project)]
-    command += ["--out", str(out), "--overwrite", "--quiet"]
+    command += ["--out", str(out), "--overwrite", "--quiet", *extra]
     started = time.perf_counter()
     subprocess.run(command, check=True, stdout=subprocess.DEVNULL)
     seconds = time.perf_counter() - started
@@ -382,17 +403,24 @@ def main() -> None:
     floor = min(read_floor(folder) for _ in range(args.repeat))
     estimate_s, peak_mb = min(run_estimate(folder) for _ in range(args.repeat))
     peak_mb = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0
+    plain_s, _ = min(
+        run_estimate(folder, "project.toml", "out", "--no-figures") for _ in range(args.repeat)
+    )
+    fresh = min(write_floor(side * side) for _ in range(args.repeat))
     extract_s, extract_report = min(run_exactextract(folder) for _ in range(args.repeat))
     print(
-        f"grid {side} x {side} = {side * side:,} cells; read floor {floor:.2f} s; estimate "
-        f"{estimate_s:.2f} s; exactextract {extract_s:.2f} s (its own timer, units: "
+        f"grid {side} x {side} = {side * side:,} cells; read floor {floor:.2f} s; fresh-memory "
+        f"floor {fresh:.2f} s; estimate {estimate_s:.2f} s ({plain_s:.2f} s with "
+        f"--no-figures); exactextract {extract_s:.2f} s (its own timer, units: "
         f"{extract_report}); best of {args.repeat}; 1-min load before the run {load:.2f}, "
         f"after {os.getloadavg()[0]:.2f}",
         file=sys.stderr,
     )
     print(
         f"cells={args.cells} ratio_to_read_floor={estimate_s / floor:.2f} "
-        f"ratio_to_exactextract={estimate_s / extract_s:.2f} peak_rss_mb={peak_mb:.0f}"
+        f"ratio_to_exactextract={estimate_s / extract_s:.2f} peak_rss_mb={peak_mb:.0f} "
+        f"no_figures_ratio_to_read_floor={plain_s / floor:.2f} "
+        f"no_figures_ratio_to_exactextract={plain_s / extract_s:.2f}"
     )
 
 
