@@ -58,7 +58,7 @@ PRINT_DPI = 300
 SCREEN_REDUCTION = 3
 #: Resolution of the PNGs embedded in the report [dots per inch].
 PNG_DPI = PRINT_DPI // SCREEN_REDUCTION
-#: zlib level of the print PNGs: about 40 % less time than the default 6 for files 5–40 %
+#: zlib level of the print PNGs: about 40 % less time than the default 6 for files 5–65 %
 #: larger (measured on a raster run's six figures; level 6 for the report's small images).
 PRINT_PNG_LEVEL = 1
 #: Margin left around what a figure draws when it is rendered [inches].
@@ -83,12 +83,6 @@ class RenderOnlyCanvas(FigureCanvasAgg):
 
     def draw_idle(self, *args, **kwargs) -> None:
         return None
-
-    def forget_renderer(self) -> None:
-        """Let go of the cached Agg renderer (its pixel buffer: about 16 MB for a 7-inch map
-        at 300 dpi); the next drawing makes a new one."""
-        self.renderer = None
-        self._lastKey = None  # matplotlib's key of the cached renderer (size and dpi)
 
 
 def figure_png(figure: Figure, *, dpi: int = PNG_DPI) -> bytes:
@@ -117,8 +111,6 @@ def figure_pixels(figure: Figure, dpi: int = PRINT_DPI) -> Image.Image:
     """
     sink = _PixelSink()
     figure.savefig(sink, format="raw", dpi=dpi, bbox_inches=laid_out(figure))
-    if isinstance(figure.canvas, RenderOnlyCanvas):
-        figure.canvas.forget_renderer()
     if sink.pixels is None or sink.pixels.ndim != 3 or sink.pixels.shape[2] != 4:
         raise RuntimeError("matplotlib's raw output is not a (rows, columns, 4) RGBA buffer")
     return Image.fromarray(sink.pixels, "RGBA")
