@@ -22,7 +22,7 @@ demo: $(VENV)/.installed
 	$(BIN)/nutricap demo --out $(DEMO_OUT) --overwrite
 
 test: $(VENV)/.installed-test
-	$(BIN)/python -m pytest -q
+	$(BIN)/python -m pytest -q -n 2
 	$(BIN)/ruff check nutricap tests benchmarks example_landscape
 
 lint: $(VENV)/.installed-test

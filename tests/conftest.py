@@ -38,6 +38,28 @@ def example_estimate(example_project):
     return estimate(load_project(example_project))
 
 
+BAD_INPUT_COUNT = "bad_input_cases_run"
+"""Key under which each pytest-xdist worker hands its count of bad-input cases back."""
+
+
+def pytest_sessionfinish(session):
+    """On a pytest-xdist worker, hand the count of bad-input cases run to the controller."""
+    from bad_inputs import CASES_RUN
+
+    output = getattr(session.config, "workeroutput", None)
+    if output is not None:
+        output[BAD_INPUT_COUNT] = len(session.config.stash.get(CASES_RUN, []))
+
+
+@pytest.hookimpl(optionalhook=True)
+def pytest_testnodedown(node, error):
+    """On the pytest-xdist controller, add up the workers' counts (see pytest_sessionfinish)."""
+    from bad_inputs import CASES_RUN
+
+    count = getattr(node, "workeroutput", {}).get(BAD_INPUT_COUNT, 0)
+    node.config.stash.setdefault(CASES_RUN, []).extend(["(worker)"] * count)
+
+
 def pytest_terminal_summary(terminalreporter, exitstatus, config):
     """Report how many bad-input cases (tests/bad_inputs/cases.py) were run."""
     from bad_inputs import CASES_RUN
