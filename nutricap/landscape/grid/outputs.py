@@ -1,6 +1,6 @@
 """The grid path's raster output: capacity_density.tif (its tables are written by the report).
 
-The density raster is the grid path's second pass: it reads the per-cell forage kept in the
+The density raster is the grid path's second pass: it reads back the per-cell forage kept in the
 :class:`~nutricap.landscape.grid.cell_cache.CellCache` window by window (or, on a Dask cluster,
 takes each window's density from the workers, :mod:`nutricap.landscape.grid.cluster`) and writes
 animal-days per hectare from each cell's share of the forage eaten in its row of the solution.
@@ -103,8 +103,8 @@ def window_density(keys, kg_per_ha, per_class, dump: int, out: np.ndarray, scrat
     """Animal-days per ha of each cell into ``out``: Σ_c kg_c × coefficient[key, c]; nodata
     at ``dump``.
 
-    Whole windows at a time, so that the thread computing it seldom needs the GIL (the
-    report is drawn in the main thread meanwhile); within the window, in runs of
+    A whole chunk of the first pass at a time, so that the thread computing it seldom needs
+    the GIL (the report is drawn in the main thread meanwhile); within it, in runs of
     :data:`DENSITY_CHUNK_CELLS` cells, so that each step's arrays stay in the CPU cache.
     """
     size = keys.size
@@ -208,10 +208,12 @@ def _cached_density(
     being written).
     """
     scratch = Scratch()
-    for number, (window, keys, kg) in enumerate(result.cache.records()):
+    for number, (window, chunks) in enumerate(result.cache.records()):
         shape = (int(window.height), int(window.width))
         density = scratch.take(f"density {number % 2}", shape, np.float32)
-        window_density(keys, kg, per_class, dump, density.reshape(-1), scratch)
+        cells = density.reshape(-1)
+        for first, keys, kg in chunks:
+            window_density(keys, kg, per_class, dump, cells[first : first + keys.size], scratch)
         yield window, density
 
 

@@ -57,7 +57,12 @@ from nutricap.landscape.grid.setup import (
     unit_areas,
 )
 from nutricap.landscape.grid.sums import GridSetup, Totals, layout_of
-from nutricap.landscape.grid.window_pass import WORKERS, WindowReader, stream_windows
+from nutricap.landscape.grid.window_pass import (
+    WORKERS,
+    WindowReader,
+    chunk_rows,
+    stream_windows,
+)
 from nutricap.landscape.plots import StratumSupply
 from nutricap.landscape.vectors import StratumAreas, choose_area_crs
 from nutricap.model.problem import CapacityProblem, build_forage_items
@@ -321,7 +326,7 @@ def _first_pass(project, job: WindowJob, totals: Totals, say: Progress, show: bo
             started()
         if address is None:
             say(f"streaming {cells:,} cells in {count} windows")
-            cache = CellCache(job.windows, job.setup.n_classes)
+            cache = CellCache(job.windows, job.setup.n_classes, chunk_rows)
             reader = WindowReader(stack, job.grid, job.burners, job.strata_lookup)
             stream_windows(job.setup, reader, job.windows, totals, cache, show)
             cache.finish()
