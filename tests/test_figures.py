@@ -247,7 +247,7 @@ def test_one_drawing_gives_the_print_and_the_report_images():
     part = embedded_figure(figure, "alt", "units")
     printed = render_embedded([part], print_files=True)
     screen = np.asarray(Image.open(io.BytesIO(base64_png(part["src"]))))
-    print_file = np.asarray(Image.open(io.BytesIO(printed["units"].result())))
+    print_file = np.asarray(Image.open(io.BytesIO(printed["units"].png.result())))
     assert np.array_equal(print_file, reference)
     # Pillow's reduce keeps a last, partial block: ceil(side / 3) pixels a side.
     rows, columns = (-(-side // SCREEN_REDUCTION) for side in reference.shape[:2])
@@ -258,6 +258,31 @@ def test_one_drawing_gives_the_print_and_the_report_images():
     blocks = reference[: whole_rows * 3, : whole_columns * 3].astype(float)
     means = blocks.reshape(whole_rows, 3, whole_columns, 3, 4).mean(axis=(1, 3))
     assert np.abs(screen[:whole_rows, :whole_columns] - means).max() <= 1.0
+
+
+def test_figures_drawn_in_the_second_process_are_the_files_drawn_here():
+    # The second process draws pickled figures with the same functions (figure_process): its
+    # files must be byte for byte those of drawing the same figures here, and it must have
+    # drawn some of them (it takes figures from the end of the list).
+    from nutricap.report.figure_process import draw_files
+    from nutricap.report.formatting import (
+        MIN_FIGURES_FOR_PROCESS,
+        embedded_figure,
+        render_embedded,
+    )
+
+    names = [*MAPS, "ncc density again"]
+    assert len(names) >= MIN_FIGURES_FOR_PROCESS
+    makers = [*MAPS.values(), MAPS["ncc density"]]
+    parts = [embedded_figure(make(), "alt", name) for name, make in zip(names, makers)]
+    files = render_embedded(parts, print_files=True)
+    here = [draw_files(make()) for make in makers]
+    assert any(files[name].svg is not None for name in names)  # drawn by the other process
+    for part, name, expected in zip(parts, names, here):
+        assert base64_png(part["src"]) == expected.screen_png, name
+        assert files[name].png.result() == expected.print_png, name
+        if files[name].svg is not None:
+            assert files[name].svg == expected.svg, name
 
 
 def base64_png(uri: str) -> bytes:

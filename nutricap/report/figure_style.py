@@ -64,7 +64,19 @@ PRINT_PNG_LEVEL = 1
 #: Margin left around what a figure draws when it is rendered [inches].
 PAD_IN = 0.06
 
-THOUSANDS = FuncFormatter(lambda value, _position: f"{value:,.0f}")
+
+def thousands(value: float, _position: int | None = None) -> str:
+    """A tick label with thousands separators and no decimals (module-level, so that a
+    figure using it pickles, see :mod:`nutricap.report.figure_process`)."""
+    return f"{value:,.0f}"
+
+
+def kilometres(value_m: float, _position: int | None = None) -> str:
+    """A tick label of metres in whole kilometres, with thousands separators."""
+    return f"{value_m / 1000:,.0f}"
+
+
+THOUSANDS = FuncFormatter(thousands)
 
 
 def new_figure(width_in: float, height_in: float) -> Figure:

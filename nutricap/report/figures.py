@@ -10,8 +10,8 @@ rendering). This module gathers their public names and writes the figure files
 
 from __future__ import annotations
 
-from concurrent.futures import Future
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from matplotlib.figure import Figure
 
@@ -28,6 +28,7 @@ from nutricap.report.charts import (
     sort_by_range,
     tornado_figure,
 )
+from nutricap.report.figure_process import plain_collections
 from nutricap.report.figure_style import (
     DENSITY_CMAP,
     OKABE_ITO,
@@ -49,6 +50,9 @@ from nutricap.report.maps import (
     scale_bar_length,
     treatment_map,
 )
+
+if TYPE_CHECKING:
+    from nutricap.report.formatting import FigureFiles
 
 __all__ = [
     "CAPACITY_SERIES",
@@ -88,25 +92,27 @@ FIGURES_FOLDER = "figures"
 
 
 def write_figures(
-    shown: dict[str, Figure], folder: Path, printed: dict[str, Future] | None = None
+    shown: dict[str, Figure], folder: Path, drawn: dict[str, FigureFiles] | None = None
 ) -> list[Path]:
     """Each figure as ``NAME.png`` (:data:`PRINT_DPI` dpi) and ``NAME.svg`` in ``folder``
     (created; normally inside the run's staging folder); returns the files written.
 
-    ``printed``: print PNGs being encoded already, by name (futures of their bytes, see
-    :func:`nutricap.report.formatting.render_embedded`); the other figures are drawn here.
-    The SVGs are drawn first, while those are encoded.
+    ``drawn``: figure files being made already, by name (see
+    :func:`nutricap.report.formatting.render_embedded`); what they lack is drawn here. The
+    SVGs are drawn first, while the print PNGs are encoded.
     """
-    printed = printed or {}
+    drawn = drawn or {}
     folder.mkdir(exist_ok=True)
     written = []
     for name, figure in shown.items():
+        plain_collections(figure)  # as every figure drawn with its files (figure_process)
         svg = folder / f"{name}.svg"
-        svg.write_bytes(figure_svg(figure))
+        made = drawn.get(name)
+        svg.write_bytes(figure_svg(figure) if made is None or made.svg is None else made.svg)
         written.append(svg)
     for name, figure in shown.items():
         png = folder / f"{name}.png"
-        drawn = printed.get(name)
-        png.write_bytes(figure_png(figure, dpi=PRINT_DPI) if drawn is None else drawn.result())
+        made = drawn.get(name)
+        png.write_bytes(figure_png(figure, dpi=PRINT_DPI) if made is None else made.png.result())
         written.append(png)
     return written

@@ -7,8 +7,10 @@ template (:mod:`nutricap.report.html`); they compute nothing.
 from __future__ import annotations
 
 import base64
+from collections import deque
 from collections.abc import Callable
 from concurrent.futures import Future, ThreadPoolExecutor
+from contextlib import nullcontext
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
@@ -16,6 +18,12 @@ import numpy as np
 import pandas as pd
 
 from nutricap.report import figures
+from nutricap.report.figure_process import (
+    DrawnFigure,
+    FigureProcess,
+    draw_files,
+    plain_collections,
+)
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
@@ -150,34 +158,85 @@ def embedded_figure(figure: Figure, alt: str, name: str) -> dict:
     }
 
 
-def render_embedded(parts: list[dict], *, print_files: bool) -> dict[str, Future]:
-    """Fill each :func:`embedded_figure` part's ``"src"``; return the print PNGs by name.
+MIN_FIGURES_FOR_PROCESS = 3
+"""With figure files and at least this many figures, a second process draws some of them
+(:mod:`nutricap.report.figure_process`); with fewer, starting it costs more than it saves."""
+
+
+@dataclass(frozen=True)
+class FigureFiles:
+    """A figure's print PNG (bytes, being encoded) and its SVG when it was drawn already
+    (in the second process; None: the figure files' writer draws it)."""
+
+    png: Future
+    svg: bytes | None = None
+
+
+def render_embedded(parts: list[dict], *, print_files: bool) -> dict[str, FigureFiles]:
+    """Fill each :func:`embedded_figure` part's ``"src"``; return the figure files by name.
 
     Without ``print_files`` each figure is drawn at the report's resolution only and nothing
-    is returned. With them each figure is drawn once, at the print resolution, and a
-    background thread encodes, figure after figure, the report's image reduced from that
-    drawing (:func:`figures.screen_png`) and the print PNG (:func:`figures.print_png`),
-    while the next figure is drawn; at most two drawings are held (the one being encoded and
-    the one just drawn: about 16 MB each for a 7-inch map at 300 dpi). The print PNGs are
-    returned as futures for the figure files.
+    is returned. With them each figure is drawn once, at the print resolution: here, where a
+    background thread encodes the report's image reduced from that drawing
+    (:func:`figures.screen_png`) and the print PNG (:func:`figures.print_png`) while the next
+    figure is drawn (at most two drawings held: about 16 MB each for a 7-inch map at
+    300 dpi); and, from :data:`MIN_FIGURES_FOR_PROCESS` figures on, also in a second process,
+    which takes figures from the end of the list while this one takes them from the start.
     """
     if not print_files:
         for part in parts:
             part["src"] = _data_uri(figures.figure_png(part["figure"]))
         return {}
-    encoder = ThreadPoolExecutor(max_workers=1, thread_name_prefix="png")
-    screens, printed, pending = [], {}, None
     for part in parts:
-        image = figures.figure_pixels(part["figure"])
-        if pending is not None:
-            pending.result()  # the previous drawing is let go before this one is queued
-        screens.append(encoder.submit(figures.screen_png, image))
-        pending = printed[part["name"]] = encoder.submit(figures.print_png, image)
-        del image  # the encoder's tasks hold the drawing until they are done
-    encoder.shutdown(wait=False)
-    for part, screen in zip(parts, screens, strict=True):
-        part["src"] = _data_uri(screen.result())
-    return printed
+        plain_collections(part["figure"])
+    queue = deque(parts)
+    handed: list[tuple[dict, Future]] = []
+    here: dict[str, tuple[Future, Future]] = {}
+    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="png") as encoder:
+        with FigureProcess() if len(parts) >= MIN_FIGURES_FOR_PROCESS else nullcontext() as other:
+            pending = None
+            while queue:
+                if other is not None and (not handed or handed[-1][1].done()):
+                    future = other.draw(queue[-1]["figure"])
+                    if future is not None:
+                        handed.append((queue.pop(), future))
+                        continue
+                    other = None  # it cannot take figures: draw the rest here
+                part = queue.popleft()
+                image = figures.figure_pixels(part["figure"])
+                if pending is not None:
+                    pending.result()  # the previous drawing is let go before this one is queued
+                screen = encoder.submit(figures.screen_png, image)
+                pending = encoder.submit(figures.print_png, image)
+                here[part["name"]] = (screen, pending)
+                del image  # the encoder's tasks hold the drawing until they are done
+            drawn = {part["name"]: _drawn_elsewhere(part, future) for part, future in handed}
+    files = {}
+    for part in parts:
+        name = part["name"]
+        if name in drawn:
+            part["src"] = _data_uri(drawn[name].screen_png)
+            files[name] = FigureFiles(_done(drawn[name].print_png), drawn[name].svg)
+        else:
+            screen, printed = here[name]
+            part["src"] = _data_uri(screen.result())
+            files[name] = FigureFiles(printed)
+    return files
+
+
+def _drawn_elsewhere(part: dict, future: Future) -> DrawnFigure:
+    """The second process's drawing of ``part``'s figure, or the same drawing made here if
+    the process failed (the figure was pickled before it was handed over, and is unchanged)."""
+    try:
+        return future.result()
+    except Exception:  # noqa: BLE001 - a broken process, or a figure that did not unpickle
+        return draw_files(part["figure"])
+
+
+def _done(value: Any) -> Future:
+    future: Future = Future()
+    future.set_result(value)
+    return future
 
 
 def _data_uri(png: bytes) -> str:

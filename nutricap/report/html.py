@@ -42,14 +42,12 @@ from nutricap.report import (
     sections,
     use_section,
 )
-from nutricap.report.formatting import embedded_figure, render_embedded
+from nutricap.report.formatting import FigureFiles, embedded_figure, render_embedded
 from nutricap.report.methods_text import methods
 from nutricap.report.sections import INTERVAL_COLUMNS, has_interval, unit_table
 from nutricap.report.use_section import is_flag
 
 if TYPE_CHECKING:
-    from concurrent.futures import Future
-
     from matplotlib.figure import Figure
 
     from nutricap.inputs.project import Project
@@ -111,8 +109,8 @@ def report_parts(
     manifest: dict,
     extras: ReportExtras | None = None,
     print_figures: bool = False,
-) -> tuple[str, dict[str, Figure], dict[str, Future]]:
-    """The HTML report of ``estimate``, its figures by file name and their print PNGs.
+) -> tuple[str, dict[str, Figure], dict[str, FigureFiles]]:
+    """The HTML report of ``estimate``, its figures by file name and their files' images.
 
     Parameters
     ----------
@@ -135,9 +133,9 @@ def report_parts(
         The HTML text.
     figures : dict of str → matplotlib.figure.Figure
         Every figure of the report by its file name (no extension).
-    printed : dict of str → concurrent.futures.Future
-        The print PNG (bytes) of every figure by file name, being encoded in a background
-        thread (empty unless ``print_figures``).
+    drawn : dict of str → nutricap.report.formatting.FigureFiles
+        The print PNG (being encoded) and, for the figures the second process drew, the SVG
+        of every figure by file name (empty unless ``print_figures``).
     """
     extras = extras or ReportExtras()
     animals, forage = estimate.animals, estimate.forage_classes
@@ -182,9 +180,9 @@ def report_parts(
         "manifest": provenance.manifest_summary(manifest),
     }
     parts = _figure_parts(context)
-    printed = render_embedded(parts, print_files=print_figures)
+    drawn = render_embedded(parts, print_files=print_figures)
     shown = {part["name"]: part["figure"] for part in parts}
-    return _template().render(**context), shown, printed
+    return _template().render(**context), shown, drawn
 
 
 def _figure_parts(value: Any) -> list[dict]:
@@ -226,12 +224,12 @@ def write_report(
     ``figure_files``: also write each figure beside it as ``figures/NAME.png``
     (:data:`figures.PRINT_DPI` dpi) and ``figures/NAME.svg``, for a report author to place.
     """
-    html, shown, printed = report_parts(
+    html, shown, drawn = report_parts(
         estimate, project=project, manifest=manifest, extras=extras, print_figures=figure_files
     )
     Path(path).write_text(html, encoding="utf-8")
     if figure_files:
-        figures.write_figures(shown, Path(path).parent / figures.FIGURES_FOLDER, printed)
+        figures.write_figures(shown, Path(path).parent / figures.FIGURES_FOLDER, drawn)
 
 
 def _template() -> jinja2.Template:

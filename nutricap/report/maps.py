@@ -21,7 +21,13 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Patch, Rectangle
 from matplotlib.ticker import FuncFormatter
 
-from nutricap.report.figure_style import DENSITY_CMAP, label, new_figure, scenario_colour
+from nutricap.report.figure_style import (
+    DENSITY_CMAP,
+    kilometres,
+    label,
+    new_figure,
+    scenario_colour,
+)
 
 #: Width of every map figure [inches]; the height follows the layers' extent.
 MAP_WIDTH_IN = 7.0
@@ -167,7 +173,7 @@ def map_axes(ax, crs) -> None:
         axis_name = info.name if info is not None else fallback
         unit = info.unit_name if info is not None else "map units"
         if unit in _METRES:
-            axis.set_major_formatter(FuncFormatter(lambda value, _p: f"{value / 1000:,.0f}"))
+            axis.set_major_formatter(FuncFormatter(kilometres))
             unit = "km"
         axis.set_label_text(f"{axis_name} [{unit}] ({name})")
 
