@@ -160,3 +160,39 @@ def test_trend_section_compares_counts_with_the_counted_units(
     chosen = by_unit[by_unit["unit_id"].isin(two)]
     assert lines["NCC from forage"].get_ydata()[0] == pytest.approx(chosen["ncc_animals"].sum())
     assert lines["ECC from forage"].get_ydata()[0] == pytest.approx(chosen["ecc_animals"].sum())
+
+
+# --- drawn shapes: polygons simplified to what a print can show ------------------------------
+
+
+def test_drawn_shapes_drop_vertices_no_print_can_show():
+    """A 10 km square densified every metre (40,000 vertices) with a notch of 500 m, far
+    above a print pixel: drawn, it keeps the notch and loses the rest; shapely's Hausdorff
+    distance between drawn and true outline stays within the stated tolerance."""
+    from shapely.geometry import Polygon
+
+    from nutricap.report.figure_style import PRINT_DPI
+    from nutricap.report.maps import MAP_WIDTH_IN, SIMPLIFY_PIXELS, drawn_shapes
+
+    side_m = 10_000.0
+    square = Polygon([(0, 0), (side_m, 0), (side_m, side_m), (0, side_m)]).segmentize(1.0)
+    notch = Polygon([(4_000, 0), (4_500, 0), (4_500, 500), (4_000, 500)])
+    unit = square.difference(notch).segmentize(1.0)
+    frame = gpd.GeoDataFrame({"unit_id": ["u1"]}, geometry=[unit], crs="EPSG:32611")
+
+    drawn = drawn_shapes(frame).geometry.iloc[0]
+
+    tolerance_m = SIMPLIFY_PIXELS * side_m / (MAP_WIDTH_IN * PRINT_DPI)
+    assert len(unit.exterior.coords) > 40_000
+    assert len(drawn.exterior.coords) <= 12  # 8 corners, closed ring
+    assert drawn.is_valid
+    assert drawn.hausdorff_distance(unit) <= tolerance_m
+    # every point moves by at most the tolerance: the area by at most perimeter x tolerance
+    assert abs(drawn.area - unit.area) <= unit.length * tolerance_m
+
+
+def test_drawn_shapes_leave_an_empty_frame_alone():
+    from nutricap.report.maps import drawn_shapes
+
+    frame = gpd.GeoDataFrame({"unit_id": []}, geometry=[], crs="EPSG:32611")
+    assert drawn_shapes(frame) is frame

@@ -23,6 +23,7 @@ from matplotlib.ticker import FuncFormatter
 
 from nutricap.report.figure_style import (
     DENSITY_CMAP,
+    PRINT_DPI,
     kilometres,
     label,
     new_figure,
@@ -35,6 +36,8 @@ MAP_WIDTH_IN = 7.0
 MAX_UNITS_LABELLED = 30
 #: Margin around the layers' extent [share of the extent].
 MAP_MARGIN = 0.02
+#: Polygons are drawn simplified to this share of a print pixel (:func:`drawn_shapes`).
+SIMPLIFY_PIXELS = 0.25
 
 _HALO = [patheffects.withStroke(linewidth=3, foreground="white")]
 _METRES = ("metre", "meter")
@@ -53,6 +56,26 @@ def map_size_in(bounds: Sequence[float]) -> tuple[float, float]:
     width, height = float(bounds[2] - bounds[0]), float(bounds[3] - bounds[1])
     aspect = height / width if width > 0 and math.isfinite(height / width) else 0.8
     return MAP_WIDTH_IN, float(np.clip(1.3 + 0.78 * MAP_WIDTH_IN * aspect, 3.0, 9.0))
+
+
+def drawn_shapes(frame: gpd.GeoDataFrame) -> gpd.GeoDataFrame:
+    """``frame`` with its geometries simplified to :data:`SIMPLIFY_PIXELS` of a pixel of the
+    map's print file (:data:`PRINT_DPI`, :data:`MAP_WIDTH_IN` wide: a tolerance in the
+    frame's own CRS units; Douglas–Peucker, each geometry kept valid).
+
+    Units are densified every 100 m before they are reprojected (landscape.vectors), so a
+    map of a large landscape would otherwise draw vertices no print can show: the 2,000 units
+    of a 1e9-cell benchmark have about 1.7 million, held again by every map and written out
+    in every SVG.
+    """
+    if frame.empty:
+        return frame
+    west, south, east, north = frame.total_bounds
+    extent = max(east - west, north - south)
+    tolerance = SIMPLIFY_PIXELS * extent / (MAP_WIDTH_IN * PRINT_DPI)
+    if not (math.isfinite(tolerance) and tolerance > 0):
+        return frame
+    return frame.set_geometry(frame.geometry.simplify(tolerance, preserve_topology=True))
 
 
 def finish_map(ax, crs, bounds: Sequence[float], title: str) -> None:
@@ -235,7 +258,7 @@ def ncc_density_map(units: gpd.GeoDataFrame, by_unit: pd.DataFrame) -> Figure:
     shapes = units[["unit_id", "geometry"]].merge(
         by_unit[["unit_id", "ncc_per_km2"]], on="unit_id", how="left"
     )
-    frame = gpd.GeoDataFrame(shapes, geometry="geometry", crs=units.crs)
+    frame = drawn_shapes(gpd.GeoDataFrame(shapes, geometry="geometry", crs=units.crs))
     bounds = frame.total_bounds
     figure, ax = map_figure(bounds)
     norm = value_norm(frame["ncc_per_km2"].to_numpy(dtype=float))
@@ -278,7 +301,8 @@ def overview_map(overview, units: gpd.GeoDataFrame | None = None) -> Figure:
     west, south, east, north = overview.bounds()
     outlines = None
     if units is not None and len(units):
-        outlines = units if units.crs is None else units.to_crs(overview.crs)
+        outlines = drawn_shapes(units)
+        outlines = outlines if units.crs is None else outlines.to_crs(overview.crs)
     bounds = _union_bounds((west, south, east, north), outlines)
     figure, ax = map_figure(bounds)
     norm = value_norm(values, from_zero=True)
@@ -344,7 +368,8 @@ def treatment_map(units: gpd.GeoDataFrame, treatments: Sequence[tuple[str, gpd.G
         Units in light grey with their names; each scenario's polygons in its colour, one
         hatch per treatment type; a legend of scenario, treatment and year(s); map furniture.
     """
-    drawn = [(name, _in_crs(layer, units.crs)) for name, layer in treatments]
+    units = drawn_shapes(units)
+    drawn = [(name, drawn_shapes(_in_crs(layer, units.crs))) for name, layer in treatments]
     bounds = _union_bounds(units.total_bounds, pd.concat([layer for _n, layer in drawn]))
     figure, ax = map_figure(bounds)
     units.plot(ax=ax, color="#eeeeee", edgecolor="#444444", linewidth=0.8, zorder=1)
