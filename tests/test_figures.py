@@ -263,8 +263,9 @@ def test_one_drawing_gives_the_print_and_the_report_images():
 def test_figures_drawn_in_the_second_process_are_the_files_drawn_here():
     # The second process draws pickled figures with the same functions (figure_process): its
     # files must be byte for byte those of drawing the same figures here, and it must have
-    # drawn some of them (it takes figures from the end of the list).
-    from nutricap.report.figure_process import draw_files
+    # drawn some of them (it takes figures from the end of the list). A process the caller
+    # started ahead is used and left open (the caller closes it).
+    from nutricap.report.figure_process import FigureProcess, draw_files
     from nutricap.report.formatting import (
         MIN_FIGURES_FOR_PROCESS,
         embedded_figure,
@@ -275,14 +276,16 @@ def test_figures_drawn_in_the_second_process_are_the_files_drawn_here():
     assert len(names) >= MIN_FIGURES_FOR_PROCESS
     makers = [*MAPS.values(), MAPS["ncc density"]]
     parts = [embedded_figure(make(), "alt", name) for name, make in zip(names, makers)]
-    files = render_embedded(parts, print_files=True)
     here = [draw_files(make()) for make in makers]
-    assert any(files[name].svg is not None for name in names)  # drawn by the other process
+    with FigureProcess() as process:
+        files = render_embedded(parts, print_files=True, process=process)
+        assert 0 < process.handed < len(names)  # both processes drew figures
+        again = process.draw(makers[0]())
+        assert again is not None and again.result().svg == here[0].svg
     for part, name, expected in zip(parts, names, here):
         assert base64_png(part["src"]) == expected.screen_png, name
         assert files[name].png.result() == expected.print_png, name
-        if files[name].svg is not None:
-            assert files[name].svg == expected.svg, name
+        assert files[name].svg == expected.svg, name
 
 
 def base64_png(uri: str) -> bytes:

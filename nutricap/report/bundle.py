@@ -26,6 +26,7 @@ from nutricap.report.tables import markdown_table, write_csv, write_geopackage, 
 
 if TYPE_CHECKING:
     from nutricap.model.estimate import Estimate
+    from nutricap.report.figure_process import FigureProcess
     from nutricap.report.html import ReportExtras
 
 # Matplotlib takes about a second to import: the report modules are imported only when a
@@ -85,6 +86,7 @@ def write_estimate(
     checksums: BackgroundChecksums | None = None,
     pdf_browser: Path | None = None,
     figure_files: bool = True,
+    figure_process: FigureProcess | None = None,
 ) -> None:
     """Write the tables, the manifest and (unless ``report=False``) the HTML report.
 
@@ -93,9 +95,75 @@ def write_estimate(
     ``scenarios`` (:class:`nutricap.model.scenarios.Scenario`) are described in the report.
     ``pdf_browser``: also print the report to ``report.pdf`` with this browser
     (:func:`nutricap.report.pdf.find_browser`). ``figure_files``: also write the report's
-    figures as PNG (300 dpi) and SVG files into ``figures/`` (False: the report only).
+    figures as PNG (300 dpi) and SVG files into ``figures/`` (False: the report only), some
+    of them drawn by ``figure_process`` when the caller started one ahead (see
+    :func:`nutricap.report.formatting.render_embedded`).
     """
     config = project.config
+    totals = _write_tables(result, folder)
+    eaten_kg, intake = result.solution.ncc.eaten_kg, result.herd.intake_kg_per_day
+    # Raster outputs (capacity_density.tif: a second streamed pass) are written alongside.
+    available = result.problem.available_kg
+    with grid_outputs_alongside(result.grid, available, eaten_kg, intake, folder):
+        _write_markdown(result, project, totals, folder)
+        manifest = build_manifest(
+            command="estimate" if scenario_table is None else "compare",
+            project_path=project.path,
+            input_paths=project.input_paths(),
+            settings=config.model_dump(mode="json"),
+            derived=_derived_values(result, scenarios),
+            checksums=None if checksums is None else checksums.result(),
+            column_names=project.column_names(),
+        )
+        write_json(manifest, folder / "run.json")
+        if report:
+            extras = report_extras(result, project, scenario_table, scenarios)
+            _write_report(result, project, manifest, extras, folder, figure_files, figure_process)
+            if pdf_browser is not None:
+                from nutricap.report.pdf import write_pdf
+
+                write_pdf(folder / "report.html", pdf_browser)
+
+
+def _write_markdown(result: Estimate, project: Project, totals: pd.DataFrame, folder: Path) -> None:
+    """capacity_by_unit.md: the per-unit table with the season, target diet and totals."""
+    config = project.config
+    context = [
+        f"{config.project.species}, {config.project.name}; season of {result.season_days:g} days.",
+        f"Target diet: {target_words(result.target)}.",
+        *[_total_words(row) for row in totals.itertuples()],
+    ]
+    markdown = markdown_table(result.by_unit, title="Capacity by unit", context_lines=context)
+    (folder / "capacity_by_unit.md").write_text(markdown, encoding="utf-8")
+
+
+def _write_report(
+    result: Estimate,
+    project: Project,
+    manifest: dict,
+    extras: ReportExtras,
+    folder: Path,
+    figure_files: bool,
+    figure_process: FigureProcess | None,
+) -> None:
+    """report.html and (``figure_files``) its figure files, some drawn by ``figure_process``
+    (started ahead; None: started by the report if there are enough figures)."""
+    from nutricap.report.html import write_report
+
+    write_report(
+        folder / "report.html",
+        result,
+        project=project,
+        manifest=manifest,
+        extras=extras,
+        figure_files=figure_files,
+        figure_process=figure_process,
+    )
+
+
+def _write_tables(result: Estimate, folder: Path) -> pd.DataFrame:
+    """Every table of ``result`` (CSV, JSON, the GeoPackage) and, on the polygon path,
+    capacity_density.tif; returns the totals table."""
     totals = totals_table(result)
     write_csv(result.by_unit, folder / "capacity_by_unit.csv")
     write_csv(totals, folder / "capacity_totals.csv")
@@ -121,42 +189,7 @@ def write_estimate(
         write_csv(result.grid.rules_report, folder / "availability_rules.csv")
         if result.grid.calibration_report is not None:
             write_csv(result.grid.calibration_report, folder / "calibration.csv")
-    # Raster outputs (capacity_density.tif: a second streamed pass) are written alongside.
-    available = result.problem.available_kg
-    with grid_outputs_alongside(result.grid, available, eaten_kg, intake, folder):
-        context = [
-            f"{config.project.species}, {config.project.name}; "
-            f"season of {result.season_days:g} days.",
-            f"Target diet: {target_words(result.target)}.",
-            *[_total_words(row) for row in totals.itertuples()],
-        ]
-        markdown = markdown_table(result.by_unit, title="Capacity by unit", context_lines=context)
-        (folder / "capacity_by_unit.md").write_text(markdown, encoding="utf-8")
-        manifest = build_manifest(
-            command="estimate" if scenario_table is None else "compare",
-            project_path=project.path,
-            input_paths=project.input_paths(),
-            settings=config.model_dump(mode="json"),
-            derived=_derived_values(result, scenarios),
-            checksums=None if checksums is None else checksums.result(),
-            column_names=project.column_names(),
-        )
-        write_json(manifest, folder / "run.json")
-        if report:
-            from nutricap.report.html import write_report
-
-            write_report(
-                folder / "report.html",
-                result,
-                project=project,
-                manifest=manifest,
-                extras=report_extras(result, project, scenario_table, scenarios),
-                figure_files=figure_files,
-            )
-            if pdf_browser is not None:
-                from nutricap.report.pdf import write_pdf
-
-                write_pdf(folder / "report.html", pdf_browser)
+    return totals
 
 
 def report_extras(

@@ -48,6 +48,10 @@ def draw_files(figure: Figure) -> DrawnFigure:
     return DrawnFigure(screen_png(image), print_png(image), figure_svg(figure))
 
 
+def _ready() -> None:
+    """The first task of the process: nothing (importing this module is the work)."""
+
+
 def _draw_pickled(data: bytes) -> DrawnFigure:
     """:func:`draw_files` of a pickled figure (runs in the second process)."""
     figure = pickle.loads(data)
@@ -64,12 +68,15 @@ class FigureProcess:
 
     def __init__(self) -> None:
         self._pool: ProcessPoolExecutor | None = None
+        self.handed = 0  # figures handed over so far
 
     def __enter__(self) -> FigureProcess:
+        """Start the process now (it imports matplotlib while this one works on)."""
         try:
             context = multiprocessing.get_context("spawn")
             self._pool = ProcessPoolExecutor(max_workers=1, mp_context=context)
-        except (OSError, ValueError):  # no processes on this platform or sandbox
+            self._pool.submit(_ready)  # the pool starts its process at the first task
+        except (OSError, ValueError, RuntimeError):  # no processes on this platform or sandbox
             self._pool = None
         return self
 
@@ -84,10 +91,12 @@ class FigureProcess:
         try:
             plain_collections(figure)
             data = pickle.dumps(figure)
-            return self._pool.submit(_draw_pickled, data)
+            future = self._pool.submit(_draw_pickled, data)
         except Exception:  # noqa: BLE001 - any failure means: draw it here
             self._pool = None
             return None
+        self.handed += 1
+        return future
 
 
 def plain_collections(figure: Figure) -> None:

@@ -166,13 +166,15 @@ MIN_FIGURES_FOR_PROCESS = 3
 @dataclass(frozen=True)
 class FigureFiles:
     """A figure's print PNG (bytes, being encoded) and its SVG when it was drawn already
-    (in the second process; None: the figure files' writer draws it)."""
+    (None: the figure files' writer draws it)."""
 
     png: Future
     svg: bytes | None = None
 
 
-def render_embedded(parts: list[dict], *, print_files: bool) -> dict[str, FigureFiles]:
+def render_embedded(
+    parts: list[dict], *, print_files: bool, process: FigureProcess | None = None
+) -> dict[str, FigureFiles]:
     """Fill each :func:`embedded_figure` part's ``"src"``; return the figure files by name.
 
     Without ``print_files`` each figure is drawn at the report's resolution only and nothing
@@ -180,8 +182,11 @@ def render_embedded(parts: list[dict], *, print_files: bool) -> dict[str, Figure
     background thread encodes the report's image reduced from that drawing
     (:func:`figures.screen_png`) and the print PNG (:func:`figures.print_png`) while the next
     figure is drawn (at most two drawings held: about 16 MB each for a 7-inch map at
-    300 dpi); and, from :data:`MIN_FIGURES_FOR_PROCESS` figures on, also in a second process,
-    which takes figures from the end of the list while this one takes them from the start.
+    300 dpi); and, from :data:`MIN_FIGURES_FOR_PROCESS` figures on, also in a second process
+    (``process``, started by the caller ahead of the report; None: started here), which takes
+    figures from the end of the list while this one takes them from the start. The SVGs of
+    the figures drawn here are drawn once this one's share is done, while the second process
+    finishes its own.
     """
     if not print_files:
         for part in parts:
@@ -192,8 +197,13 @@ def render_embedded(parts: list[dict], *, print_files: bool) -> dict[str, Figure
     queue = deque(parts)
     handed: list[tuple[dict, Future]] = []
     here: dict[str, tuple[Future, Future]] = {}
+    svgs: dict[str, bytes] = {}
+    if len(parts) < MIN_FIGURES_FOR_PROCESS:
+        second = nullcontext()
+    else:
+        second = nullcontext(process) if process is not None else FigureProcess()
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="png") as encoder:
-        with FigureProcess() if len(parts) >= MIN_FIGURES_FOR_PROCESS else nullcontext() as other:
+        with second as other:
             pending = None
             while queue:
                 if other is not None and (not handed or handed[-1][1].done()):
@@ -210,6 +220,9 @@ def render_embedded(parts: list[dict], *, print_files: bool) -> dict[str, Figure
                 pending = encoder.submit(figures.print_png, image)
                 here[part["name"]] = (screen, pending)
                 del image  # the encoder's tasks hold the drawing until they are done
+            for part in parts:
+                if part["name"] in here:
+                    svgs[part["name"]] = figures.figure_svg(part["figure"])
             drawn = {part["name"]: _drawn_elsewhere(part, future) for part, future in handed}
     files = {}
     for part in parts:
@@ -220,7 +233,7 @@ def render_embedded(parts: list[dict], *, print_files: bool) -> dict[str, Figure
         else:
             screen, printed = here[name]
             part["src"] = _data_uri(screen.result())
-            files[name] = FigureFiles(printed)
+            files[name] = FigureFiles(printed, svgs[name])
     return files
 
 

@@ -52,6 +52,7 @@ if TYPE_CHECKING:
 
     from nutricap.inputs.project import Project
     from nutricap.model.estimate import Estimate
+    from nutricap.report.figure_process import FigureProcess
 
 __all__ = ["ReportExtras", "is_flag", "methods", "render_report", "unit_table", "write_report"]
 
@@ -109,6 +110,7 @@ def report_parts(
     manifest: dict,
     extras: ReportExtras | None = None,
     print_figures: bool = False,
+    figure_process: FigureProcess | None = None,
 ) -> tuple[str, dict[str, Figure], dict[str, FigureFiles]]:
     """The HTML report of ``estimate``, its figures by file name and their files' images.
 
@@ -126,6 +128,9 @@ def report_parts(
     print_figures : bool, default False
         Also draw each figure at the print resolution (the report's images are then reduced
         from those drawings, see :func:`nutricap.report.formatting.render_embedded`).
+    figure_process : FigureProcess, optional
+        A second process for the figures, started ahead by the caller (None: started here
+        when there are enough figures to share).
 
     Returns
     -------
@@ -180,7 +185,7 @@ def report_parts(
         "manifest": provenance.manifest_summary(manifest),
     }
     parts = _figure_parts(context)
-    drawn = render_embedded(parts, print_files=print_figures)
+    drawn = render_embedded(parts, print_files=print_figures, process=figure_process)
     shown = {part["name"]: part["figure"] for part in parts}
     return _template().render(**context), shown, drawn
 
@@ -218,14 +223,21 @@ def write_report(
     manifest: dict,
     extras: ReportExtras | None = None,
     figure_files: bool = True,
+    figure_process: FigureProcess | None = None,
 ) -> None:
     """Write :func:`render_report` to ``path`` as UTF-8 (into a staging folder, normally).
 
     ``figure_files``: also write each figure beside it as ``figures/NAME.png``
-    (:data:`figures.PRINT_DPI` dpi) and ``figures/NAME.svg``, for a report author to place.
+    (:data:`figures.PRINT_DPI` dpi) and ``figures/NAME.svg``, for a report author to place;
+    ``figure_process``: see :func:`report_parts`.
     """
     html, shown, drawn = report_parts(
-        estimate, project=project, manifest=manifest, extras=extras, print_figures=figure_files
+        estimate,
+        project=project,
+        manifest=manifest,
+        extras=extras,
+        print_figures=figure_files,
+        figure_process=figure_process,
     )
     Path(path).write_text(html, encoding="utf-8")
     if figure_files:

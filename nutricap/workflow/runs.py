@@ -6,7 +6,7 @@ from __future__ import annotations
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
-from typing import TypedDict, Unpack
+from typing import TYPE_CHECKING, TypedDict, Unpack
 
 import pandas as pd
 
@@ -20,6 +20,9 @@ from nutricap.report.tables import write_csv
 from nutricap.workflow.comparison import compare_scenarios
 from nutricap.workflow.pipeline import estimate
 from nutricap.workflow.reading import Progress, on_grid
+
+if TYPE_CHECKING:
+    from nutricap.report.figure_process import FigureProcess
 
 # Matplotlib (the report) takes about half a second to import; it is imported where a report
 # or chart is written (SciPy likewise, inside the science functions that need it).
@@ -94,7 +97,8 @@ def _run_and_write(
                 project, scenario_names, progress, streaming_started=started
             )
     say(f"writing outputs to {out}")
-    with staged_folder(out, overwrite=overwrite) as staging:
+    figure_process = _figure_process_ahead(report and figure_files)
+    with figure_process as second, staged_folder(out, overwrite=overwrite) as staging:
         write_estimate(
             result,
             project,
@@ -105,10 +109,26 @@ def _run_and_write(
             checksums=checksums,
             pdf_browser=pdf_browser,
             figure_files=figure_files,
+            figure_process=second,
         )
         if table is not None:
             _write_scenario_outputs(table, scenarios, staging)
     return result, table
+
+
+@contextmanager
+def _figure_process_ahead(wanted: bool) -> Iterator[FigureProcess | None]:
+    """The report's second process for figures (:mod:`nutricap.report.figure_process`),
+    started now (None when not ``wanted``): it starts and imports matplotlib while this one
+    writes the tables and builds the figures. (Started before the estimate, it slowed the
+    grid's first pass by as much as it saved: benchmarks/README.md, seventh session.)"""
+    if not wanted:
+        yield None
+        return
+    from nutricap.report.figure_process import FigureProcess
+
+    with FigureProcess() as process:
+        yield process
 
 
 def _write_scenario_outputs(table: pd.DataFrame, scenarios: list[Scenario], folder: Path) -> None:
