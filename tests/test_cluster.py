@@ -77,6 +77,45 @@ def test_cluster_run_equals_the_local_run(folder, tmp_path, threads_cluster):
     assert computed_on == f"Dask cluster at {threads_cluster}"
 
 
+@pytest.mark.parametrize("cell_file", [True, False], ids=["cell file", "no cell file"])
+def test_density_pass_reads_the_cells_the_workers_kept(
+    folder, tmp_path, threads_cluster, monkeypatch, cell_file
+):
+    # With its cell file a worker computes each window once (the density pass reads the
+    # cells back); without one (no temporary file could be made) the density pass computes
+    # the windows again. The density raster is the local run's either way, and the workers'
+    # files are gone after the run.
+    from nutricap.landscape.grid import cluster
+
+    local = tmp_path / "local"
+    run_estimate(_project(folder, _text(), "local.toml"), local)
+    computed, caches = [], []
+    window_sums, new_cache = cluster.window_sums, cluster._new_cache
+
+    def counted(setup, data, keep=None):
+        computed.append((data.window.row_off, data.window.col_off))
+        return window_sums(setup, data, keep)
+
+    def recorded(job):
+        cache = new_cache(job) if cell_file else None
+        caches.append(cache)
+        return cache
+
+    monkeypatch.setattr(cluster, "window_sums", counted)
+    monkeypatch.setattr(cluster, "_new_cache", recorded)
+    remote = tmp_path / "cluster"
+    run_estimate(_project(folder, _text(threads_cluster), "cluster.toml"), remote)
+    windows = len(set(computed))
+    assert windows > 1 and len(computed) == (1 if cell_file else 2) * windows
+    with (
+        rasterio.open(local / "capacity_density.tif") as a,
+        rasterio.open(remote / "capacity_density.tif") as b,
+    ):
+        np.testing.assert_array_equal(b.read(1), a.read(1))
+    assert caches and all(cache is None or not cache.path.exists() for cache in caches)
+    assert cell_file == any(cache is not None for cache in caches)
+
+
 def test_worker_processes_get_everything_pickled(folder):
     local = estimate(_project(folder, _text(), "local.toml"))
     with distributed.LocalCluster(

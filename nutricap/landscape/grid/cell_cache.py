@@ -77,6 +77,8 @@ class CellCache:
             os.close(self._fd)
             self._fd, self.direct = _open_cells(self.path, os.O_WRONLY, direct=False)
         self._local = threading.local()
+        self._read_lock = threading.Lock()
+        self._read_fd = -1
 
     def record_bytes(self, cells: int) -> int:
         """Bytes of the record of a chunk of ``cells`` cells, padding included."""
@@ -106,7 +108,23 @@ class CellCache:
         return buffer[:size]
 
     def finish(self) -> None:
-        os.close(self._fd)
+        """Close the file for writing (every record is written)."""
+        if self._fd >= 0:
+            os.close(self._fd)
+            self._fd = -1
+
+    def window_cells(self, number: int) -> list[Chunk]:
+        """The chunks of window ``number`` (see :data:`Chunk`), read into the calling thread's
+        reused buffer: valid until the same thread reads another window (for a reader that
+        needs windows one at a time, in any order; :meth:`records` reads them all in order)."""
+        span = self._span(number)
+        buffer = getattr(self._local, "read_buffer", None)
+        if buffer is None or buffer.size < span[1]:
+            buffer = self._local.read_buffer = aligned_bytes(span[1])
+        with self._read_lock:
+            if self._read_fd < 0:
+                self._read_fd, _ = _open_cells(self.path, os.O_RDONLY, direct=self.direct)
+        return self._window_chunks(number, self._read(self._read_fd, span, buffer))
 
     def records(self) -> Iterator[tuple[Window, list[Chunk]]]:
         """Yield each window with its chunks' cells (see :data:`Chunk`), windows in order.
@@ -163,6 +181,11 @@ class CellCache:
         return out
 
     def remove(self) -> None:
+        """Close the file and delete it."""
+        self.finish()
+        if self._read_fd >= 0:
+            os.close(self._read_fd)
+            self._read_fd = -1
         self._finalizer()
 
 

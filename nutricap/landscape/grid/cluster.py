@@ -7,11 +7,16 @@ worker (a shared file system) and from this machine (which checks the layers fir
 
 - **First pass**: one task per window computes the window's run sums
   (:func:`~nutricap.landscape.grid.window_pass.window_sums`, kilobytes); this machine adds them in
-  window order, so the totals are those of a local run to the last bit.
-- **Density pass**: there is no per-cell file shared with the workers, so each task reads
-  and computes its window again and returns the window's density (4 bytes per cell); this
-  machine writes ``capacity_density.tif``. A few windows per worker are in flight at once,
-  so memory stays flat here as on the workers.
+  window order, so the totals are those of a local run to the last bit. The worker keeps the
+  window's cells (key and forage left per class) in a :class:`CellCache` of its own, a
+  temporary file on its local disk (``TMPDIR``: 4 + 4 × classes bytes per cell of the windows
+  it computed), and tells this machine its address.
+- **Density pass**: each window's task is sent to the worker that computed it (a preference,
+  not a rule), which reads the window's cells from its file and returns the window's density
+  (4 bytes per cell); a worker without the window's cells (it was not there, its file could
+  not be written, it restarted) reads and computes the window again, with the same result.
+  This machine writes ``capacity_density.tif``. A few windows per worker are in flight at
+  once, so memory stays flat here as on the workers.
 
 Needs the optional package ``distributed`` (``pip install 'nutricap[dask]'``).
 """
@@ -24,18 +29,19 @@ import uuid
 import weakref
 from collections import deque
 from collections.abc import Callable, Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from rasterio.windows import Window
 from tqdm import tqdm
 
 from nutricap.errors import ProjectFileError
+from nutricap.landscape.grid.cell_cache import CellCache, KeepCells
 from nutricap.landscape.grid.layers import LayerStack
-from nutricap.landscape.grid.outputs import window_density
+from nutricap.landscape.grid.outputs import chunks_density, window_density
 from nutricap.landscape.grid.rasters import Grid, LayerSpec, Scratch, ShapeBurner, streaming_env
 from nutricap.landscape.grid.sums import GridSetup, Totals, WindowSums
-from nutricap.landscape.grid.window_pass import WindowReader, window_sums
+from nutricap.landscape.grid.window_pass import WindowReader, chunk_rows, window_sums
 
 IN_FLIGHT_PER_WORKER = 2
 """Density windows computed ahead per worker (bounds memory while results stream back)."""
@@ -57,40 +63,94 @@ class WindowJob:
 
 # --- on the workers -------------------------------------------------------------------------
 
-_OPEN_READERS: dict[str, tuple[WindowReader, LayerStack]] = {}
-_READERS_LOCK = threading.Lock()
+
+@dataclass
+class _WorkerRun:
+    """What a worker process holds for one job: its open rasters and its cell file."""
+
+    reader: WindowReader
+    stack: LayerStack
+    cache: CellCache | None  # None: no temporary file could be made on this worker
+    kept: set[int] = field(default_factory=set)  # windows whose cells are in the file
+
+    def keeper(self, number: int) -> tuple[KeepCells | None, list[bool]]:
+        """What keeps window ``number``'s cells in the file, and a flag list that is
+        ``[True]`` once writing failed (the window is then not counted as kept)."""
+        if self.cache is None:
+            return None, [True]
+        write, failed = self.cache.writer(number), [False]
+
+        def keep(first: int, keys: np.ndarray, kg_per_ha: np.ndarray) -> None:
+            if failed[0]:
+                return
+            try:
+                write(first, keys, kg_per_ha)
+            except OSError:  # a full or failing disk: this window is computed again later
+                failed[0] = True
+
+        return keep, failed
+
+    def close(self) -> None:
+        self.stack.close()
+        if self.cache is not None:
+            self.cache.remove()
 
 
-def _reader(job: WindowJob) -> WindowReader:
-    """The worker process's reader of ``job`` (its rasters opened once per process)."""
-    with _READERS_LOCK:
-        found = _OPEN_READERS.get(job.token)
+_WORKER_RUNS: dict[str, _WorkerRun] = {}
+_RUNS_LOCK = threading.Lock()
+
+
+def _worker_run(job: WindowJob) -> _WorkerRun:
+    """The worker process's state for ``job`` (its rasters opened once per process)."""
+    with _RUNS_LOCK:
+        found = _WORKER_RUNS.get(job.token)
         if found is None:
             stack = LayerStack(job.specs, job.grid, job.resample)
             reader = WindowReader(stack, job.grid, job.burners, job.strata_lookup)
-            found = _OPEN_READERS[job.token] = (reader, stack)
-    return found[0]
+            found = _WORKER_RUNS[job.token] = _WorkerRun(reader, stack, _new_cache(job))
+    return found
+
+
+def _new_cache(job: WindowJob) -> CellCache | None:
+    try:
+        return CellCache(job.windows, job.setup.n_classes, chunk_rows)
+    except OSError:
+        return None
 
 
 def _release(token: str) -> None:
-    """Close the rasters a worker opened for the job ``token`` (run on every worker)."""
-    with _READERS_LOCK:
-        found = _OPEN_READERS.pop(token, None)
+    """Close the rasters and remove the cell file of the job ``token`` (run on every worker)."""
+    with _RUNS_LOCK:
+        found = _WORKER_RUNS.pop(token, None)
     if found is not None:
-        found[1].close()
+        found.close()
 
 
-def sums_task(number: int, job: WindowJob) -> WindowSums:
-    """First pass on a worker: the run sums of window ``number``."""
+def sums_task(number: int, job: WindowJob) -> tuple[WindowSums, str]:
+    """First pass on a worker: the run sums of window ``number`` (its cells kept in the
+    worker's file), and the worker's address."""
+    run = _worker_run(job)
+    keep, failed = run.keeper(number)
     with streaming_env():
-        return window_sums(job.setup, _reader(job)(job.windows[number]))
+        sums = window_sums(job.setup, run.reader(job.windows[number]), keep)
+    if not failed[0]:
+        run.kept.add(number)
+    from distributed import get_worker  # present wherever the task runs: on a Dask worker
+
+    return sums, get_worker().address
 
 
 def density_task(number: int, job: WindowJob, per_class: np.ndarray, dump: int) -> np.ndarray:
-    """Density pass on a worker: window ``number`` read and computed again, then its NCC
-    animal-days per hectare (see :func:`~nutricap.landscape.grid.outputs.window_density`)."""
+    """Density pass on a worker: window ``number``'s NCC animal-days per hectare (see
+    :func:`~nutricap.landscape.grid.outputs.window_density`), from the cells this worker kept
+    of it, or else with the window read and computed again."""
+    run = _worker_run(job)
     window = job.windows[number]
     height, width = int(window.height), int(window.width)
+    density = np.empty(height * width, dtype=np.float32)
+    if number in run.kept:
+        chunks_density(run.cache.window_cells(number), per_class, dump, density, Scratch())
+        return density.reshape(height, width)
     keys = np.empty(height * width, dtype=np.int32)
     kg_per_ha = np.empty((job.setup.n_classes, height * width), dtype=np.float32)
 
@@ -99,8 +159,7 @@ def density_task(number: int, job: WindowJob, per_class: np.ndarray, dump: int) 
         kg_per_ha[:, first : first + chunk_keys.size] = chunk_kg
 
     with streaming_env():
-        window_sums(job.setup, _reader(job)(window), keep)
-    density = np.empty(height * width, dtype=np.float32)
+        window_sums(job.setup, run.reader(window), keep)
     window_density(keys, kg_per_ha, per_class, dump, density, Scratch())
     return density.reshape(height, width)
 
@@ -137,6 +196,7 @@ class ClusterRun:
         self.address = address
         self.job = job
         self._job = self.client.scatter(job, broadcast=True)
+        self._computed_on: dict[int, str] = {}  # window → address of the worker that has it
         self._closer = weakref.finalize(self, self.client.close)
 
     @property
@@ -149,8 +209,9 @@ class ClusterRun:
             sums_task, range(len(self.job.windows)), job=self._job, pure=False
         )
         with _bar(len(futures), "raster windows (cluster)", show_progress) as bar:
-            for future in futures:
-                totals.add(future.result())
+            for number, future in enumerate(futures):
+                sums, self._computed_on[number] = future.result()
+                totals.add(sums)
                 future.release()
                 bar.update()
 
@@ -162,8 +223,16 @@ class ClusterRun:
         numbers = iter(range(len(self.job.windows)))
 
         def submit(number: int):
+            worker = self._computed_on.get(number)
             future = self.client.submit(
-                density_task, number, self._job, coefficients, dump, pure=False
+                density_task,
+                number,
+                self._job,
+                coefficients,
+                dump,
+                pure=False,
+                workers=None if worker is None else [worker],
+                allow_other_workers=True,
             )
             return number, future
 
@@ -179,7 +248,7 @@ class ClusterRun:
             yield self.job.windows[number], density
 
     def close(self) -> None:
-        """Close the workers' rasters of this run and the connection."""
+        """Close the workers' rasters and cell files of this run, and the connection."""
         if self._closer.alive:
             self.client.run(_release, self.job.token)
             self._closer()

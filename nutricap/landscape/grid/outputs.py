@@ -22,6 +22,7 @@ import rasterio
 from rasterio.windows import Window
 from tqdm import tqdm
 
+from nutricap.landscape.grid.cell_cache import Chunk
 from nutricap.landscape.grid.overview import OverviewMap, block_map
 from nutricap.landscape.grid.rasters import Scratch, streaming_env
 
@@ -212,9 +213,17 @@ def _cached_density(
         shape = (int(window.height), int(window.width))
         density = scratch.take(f"density {number % 2}", shape, np.float32)
         cells = density.reshape(-1)
-        for first, keys, kg in chunks:
-            window_density(keys, kg, per_class, dump, cells[first : first + keys.size], scratch)
+        chunks_density(chunks, per_class, dump, cells, scratch)
         yield window, density
+
+
+def chunks_density(
+    chunks: list[Chunk], per_class: np.ndarray, dump: int, cells: np.ndarray, scratch: Scratch
+) -> None:
+    """:func:`window_density` of each of a window's chunks (from a cell cache) into ``cells``
+    (the window's cells, row-major)."""
+    for first, keys, kg in chunks:
+        window_density(keys, kg, per_class, dump, cells[first : first + keys.size], scratch)
 
 
 @contextmanager
