@@ -9,6 +9,7 @@ what they are handed; nothing here computes capacity.
 from __future__ import annotations
 
 import math
+import textwrap
 from collections.abc import Sequence
 
 import geopandas as gpd
@@ -36,6 +37,8 @@ MAP_WIDTH_IN = 7.0
 MAX_UNITS_LABELLED = 30
 #: Margin around the layers' extent [share of the extent].
 MAP_MARGIN = 0.02
+#: Longest line of the CRS's name under a map's x axis [characters].
+CRS_NAME_CHARS = 64
 #: Polygons are drawn simplified to this share of a print pixel (:func:`drawn_shapes`).
 SIMPLIFY_PIXELS = 0.25
 
@@ -181,7 +184,9 @@ def _panel(ax, x: float, y: float, width: float, height: float) -> None:
 
 
 def map_axes(ax, crs) -> None:
-    """Axis labels with the CRS's axis names and units; metres shown as km."""
+    """Axis labels with the CRS's axis names and units (metres shown as km), and the CRS's
+    name once, under the x axis's label (wrapped at :data:`CRS_NAME_CHARS`: a long name
+    beside the y axis of a wide, short map would stand out above and below it)."""
     if crs is None:
         ax.set_xlabel("x [map units; layer has no CRS]")
         ax.set_ylabel("y [map units; layer has no CRS]")
@@ -198,7 +203,9 @@ def map_axes(ax, crs) -> None:
         if unit in _METRES:
             axis.set_major_formatter(FuncFormatter(kilometres))
             unit = "km"
-        axis.set_label_text(f"{axis_name} [{unit}] ({name})")
+        axis.set_label_text(f"{axis_name} [{unit}]")
+    crs_lines = "\n".join(textwrap.wrap(f"CRS: {name}", CRS_NAME_CHARS))
+    ax.xaxis.set_label_text(f"{ax.xaxis.get_label_text()}\n{crs_lines}")
 
 
 def value_norm(values: np.ndarray, *, from_zero: bool = False) -> Normalize:
