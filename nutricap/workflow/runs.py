@@ -97,8 +97,10 @@ def _run_and_write(
                 project, scenario_names, progress, streaming_started=started
             )
     say(f"writing outputs to {out}")
-    figure_process = _figure_process_ahead(report and figure_files)
-    with figure_process as second, staged_folder(out, overwrite=overwrite) as staging:
+    with (
+        _figure_process_ahead(report and figure_files) as figure_process,
+        staged_folder(out, overwrite=overwrite) as staging,
+    ):
         write_estimate(
             result,
             project,
@@ -109,7 +111,7 @@ def _run_and_write(
             checksums=checksums,
             pdf_browser=pdf_browser,
             figure_files=figure_files,
-            figure_process=second,
+            figure_process=figure_process,
         )
         if table is not None:
             _write_scenario_outputs(table, scenarios, staging)
