@@ -117,8 +117,17 @@ def write_estimate(
         )
         write_json(manifest, folder / "run.json")
         if report:
-            extras = report_extras(result, project, scenario_table, scenarios)
-            _write_report(result, project, manifest, extras, folder, figure_files, figure_process)
+            from nutricap.report.html import write_report
+
+            write_report(
+                folder / "report.html",
+                result,
+                project=project,
+                manifest=manifest,
+                extras=report_extras(result, project, scenario_table, scenarios),
+                figure_files=figure_files,
+                figure_process=figure_process,
+            )
             if pdf_browser is not None:
                 from nutricap.report.pdf import write_pdf
 
@@ -135,30 +144,6 @@ def _write_markdown(result: Estimate, project: Project, totals: pd.DataFrame, fo
     ]
     markdown = markdown_table(result.by_unit, title="Capacity by unit", context_lines=context)
     (folder / "capacity_by_unit.md").write_text(markdown, encoding="utf-8")
-
-
-def _write_report(
-    result: Estimate,
-    project: Project,
-    manifest: dict,
-    extras: ReportExtras,
-    folder: Path,
-    figure_files: bool,
-    figure_process: FigureProcess | None,
-) -> None:
-    """report.html and (``figure_files``) its figure files, some drawn by ``figure_process``
-    (started ahead; None: started by the report if there are enough figures)."""
-    from nutricap.report.html import write_report
-
-    write_report(
-        folder / "report.html",
-        result,
-        project=project,
-        manifest=manifest,
-        extras=extras,
-        figure_files=figure_files,
-        figure_process=figure_process,
-    )
 
 
 def _write_tables(result: Estimate, folder: Path) -> pd.DataFrame:
