@@ -242,6 +242,9 @@ def test_one_drawing_gives_the_print_and_the_report_images():
     # matplotlib's own PNG of the same figure at the same resolution (decoded by Pillow) is
     # the reference: the raw buffer kept must be exactly those pixels.
     reference = np.asarray(Image.open(io.BytesIO(figures.figure_png(figure, dpi=PRINT_DPI))))
+    # The map is opaque (white background): kept as RGB, the same colours.
+    assert (reference[..., 3] == 255).all()
+    reference = reference[..., :3]
     assert pixels.shape == reference.shape and np.array_equal(pixels, reference)
     part = embedded_figure(figure, "alt", "units")
     printed = render_embedded([part], print_files=True)
@@ -250,24 +253,42 @@ def test_one_drawing_gives_the_print_and_the_report_images():
     assert np.array_equal(print_file, reference)
     # Pillow's reduce keeps a last, partial block: ceil(side / 3) pixels a side.
     rows, columns = (-(-side // SCREEN_REDUCTION) for side in reference.shape[:2])
-    assert screen.shape == (rows, columns, 4) and PRINT_DPI // PNG_DPI == SCREEN_REDUCTION
+    assert screen.shape == (rows, columns, 3) and PRINT_DPI // PNG_DPI == SCREEN_REDUCTION
     # Each report pixel of a whole block is the mean of its 3 × 3 print pixels (numpy, to ±1
     # for rounding).
     whole_rows, whole_columns = (side // 3 for side in reference.shape[:2])
     blocks = reference[: whole_rows * 3, : whole_columns * 3].astype(float)
-    means = blocks.reshape(whole_rows, 3, whole_columns, 3, 4).mean(axis=(1, 3))
+    means = blocks.reshape(whole_rows, 3, whole_columns, 3, 3).mean(axis=(1, 3))
     assert np.abs(screen[:whole_rows, :whole_columns] - means).max() <= 1.0
 
 
-def test_figures_drawn_in_the_second_process_are_the_files_drawn_here():
+def test_a_figure_with_transparent_pixels_keeps_its_alpha():
+    import io
+
+    from PIL import Image
+
+    from nutricap.report.figure_style import PRINT_DPI
+
+    figure = MAPS["raster overview"]()
+    figure.patch.set_alpha(0.0)  # a transparent background: the alpha channel carries it
+    image = figures.figure_pixels(figure)
+    reference = np.asarray(Image.open(io.BytesIO(figures.figure_png(figure, dpi=PRINT_DPI))))
+    assert image.mode == "RGBA" and (reference[..., 3] < 255).any()
+    assert np.array_equal(np.asarray(image), reference)
+
+
+@pytest.mark.parametrize("first_ahead", [False, True], ids=["at the end", "first handed ahead"])
+def test_figures_drawn_in_the_second_process_are_the_files_drawn_here(first_ahead):
     # The second process draws pickled figures with the same functions (figure_process): its
     # files must be byte for byte those of drawing the same figures here, and it must have
-    # drawn some of them (it takes figures from the end of the list). A process the caller
-    # started ahead is used and left open (the caller closes it).
+    # drawn some of them (it takes figures from the end of the list, and the first one when
+    # it was handed ahead, while the report was built). A process the caller started ahead is
+    # used and left open (the caller closes it).
     from nutricap.report.figure_process import FigureProcess, draw_files
     from nutricap.report.formatting import (
         MIN_FIGURES_FOR_PROCESS,
         embedded_figure,
+        hand_ahead,
         render_embedded,
     )
 
@@ -277,7 +298,9 @@ def test_figures_drawn_in_the_second_process_are_the_files_drawn_here():
     parts = [embedded_figure(make(), "alt", name) for name, make in zip(names, makers)]
     here = [draw_files(make()) for make in makers]
     with FigureProcess() as process:
-        files = render_embedded(parts, print_files=True, process=process)
+        ahead = hand_ahead(parts, process) if first_ahead else []
+        assert [part for part, _ in ahead] == parts[:1] if first_ahead else not ahead
+        files = render_embedded(parts, print_files=True, process=process, ahead=ahead)
         assert 0 < process.handed < len(names)  # both processes drew figures
         again = process.draw(makers[0]())
         assert again is not None and again.result().svg == here[0].svg

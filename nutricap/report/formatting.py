@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import base64
 from collections import deque
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from concurrent.futures import Future, ThreadPoolExecutor
 from contextlib import nullcontext
 from dataclasses import dataclass
@@ -173,7 +173,11 @@ class FigureFiles:
 
 
 def render_embedded(
-    parts: list[dict], *, print_files: bool, process: FigureProcess | None = None
+    parts: list[dict],
+    *,
+    print_files: bool,
+    process: FigureProcess | None = None,
+    ahead: Sequence[tuple[dict, Future]] = (),
 ) -> dict[str, FigureFiles]:
     """Fill each :func:`embedded_figure` part's ``"src"``; return the figure files by name.
 
@@ -186,16 +190,15 @@ def render_embedded(
     (``process``, started by the caller ahead of the report; None: started here), which takes
     figures from the end of the list while this one takes them from the start. The SVGs of
     the figures drawn here are drawn once this one's share is done, while the second process
-    finishes its own.
+    finishes its own. ``ahead``: parts handed to ``process`` already, while the report was
+    being built (:func:`hand_ahead`), with their drawings to come.
     """
     if not print_files:
         for part in parts:
             part["src"] = _data_uri(figures.figure_png(part["figure"]))
         return {}
-    for part in parts:
-        plain_collections(part["figure"])
-    queue = deque(parts)
-    handed: list[tuple[dict, Future]] = []
+    handed = list(ahead)
+    queue = deque(part for part in parts if all(part is not early for early, _ in ahead))
     here: dict[str, tuple[Future, Future]] = {}
     svgs: dict[str, bytes] = {}
     if len(parts) < MIN_FIGURES_FOR_PROCESS:
@@ -213,6 +216,7 @@ def render_embedded(
                         continue
                     other = None  # it cannot take figures: draw the rest here
                 part = queue.popleft()
+                plain_collections(part["figure"])
                 image = figures.figure_pixels(part["figure"])
                 if pending is not None:
                     pending.result()  # the previous drawing is let go before this one is queued
@@ -235,6 +239,16 @@ def render_embedded(
             part["src"] = _data_uri(screen.result())
             files[name] = FigureFiles(printed, svgs[name])
     return files
+
+
+def hand_ahead(parts: list[dict], process: FigureProcess | None) -> list[tuple[dict, Future]]:
+    """Hand the first of ``parts`` (:func:`embedded_figure`) to the second process now, while
+    the rest of the report is built, so that it does not wait for the last figure to be built
+    before it starts (for :func:`render_embedded`'s ``ahead``); nothing without a process."""
+    if process is None or not parts:
+        return []
+    future = process.draw(parts[0]["figure"])
+    return [] if future is None else [(parts[0], future)]
 
 
 def _drawn_elsewhere(part: dict, future: Future) -> DrawnFigure:

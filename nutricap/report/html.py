@@ -42,7 +42,12 @@ from nutricap.report import (
     sections,
     use_section,
 )
-from nutricap.report.formatting import FigureFiles, embedded_figure, render_embedded
+from nutricap.report.formatting import (
+    FigureFiles,
+    embedded_figure,
+    hand_ahead,
+    render_embedded,
+)
 from nutricap.report.methods_text import methods
 from nutricap.report.sections import INTERVAL_COLUMNS, has_interval, unit_table
 from nutricap.report.use_section import is_flag
@@ -152,6 +157,8 @@ def report_parts(
         grid=estimate.grid is not None,
     ) + raster_section.raster_methods(estimate, intervals=intervals)
     raster = raster_section.raster_landscape(estimate, project.config.project.species)
+    # the second process starts on the raster maps while the other sections are built
+    ahead = hand_ahead(_figure_parts(raster), figure_process if print_figures else None)
     context = {
         "caution": CAUTION,
         "header": sections.header(estimate, project, manifest),
@@ -185,7 +192,7 @@ def report_parts(
         "manifest": provenance.manifest_summary(manifest),
     }
     parts = _figure_parts(context)
-    drawn = render_embedded(parts, print_files=print_figures, process=figure_process)
+    drawn = render_embedded(parts, print_files=print_figures, process=figure_process, ahead=ahead)
     shown = {part["name"]: part["figure"] for part in parts}
     return _template().render(**context), shown, drawn
 
