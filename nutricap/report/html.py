@@ -157,7 +157,7 @@ def report_parts(
         grid=estimate.grid is not None,
     ) + raster_section.raster_methods(estimate, intervals=intervals)
     raster = raster_section.raster_landscape(estimate, project.config.project.species)
-    # the second process starts on the raster maps while the other sections are built
+    # the second process starts on the first raster map while the other sections are built
     ahead = hand_ahead(_figure_parts(raster), figure_process if print_figures else None)
     context = {
         "caution": CAUTION,
