@@ -89,32 +89,35 @@ def _run_and_write(
     out = check_output_folder(out, project.files(), overwrite=overwrite)
     checksums = checksums or BackgroundChecksums(project.files())
     table, scenarios = None, None
-    with _report_preload(project, report) as started:
-        if scenario_names is None:
-            result = estimate(project, progress, streaming_started=started)
-        else:
-            result, table, scenarios = compare_scenarios(
-                project, scenario_names, progress, streaming_started=started
+    figures = report and figure_files
+    before = figures and not on_grid(project)  # off the grid the estimate keeps one core busy
+    with _figure_process_ahead(before) as early_process:
+        with _report_preload(project, report) as started:
+            if scenario_names is None:
+                result = estimate(project, progress, streaming_started=started)
+            else:
+                result, table, scenarios = compare_scenarios(
+                    project, scenario_names, progress, streaming_started=started
+                )
+        say(f"writing outputs to {out}")
+        with (
+            _figure_process_ahead(figures and not before) as late_process,
+            staged_folder(out, overwrite=overwrite) as staging,
+        ):
+            write_estimate(
+                result,
+                project,
+                staging,
+                report=report,
+                scenario_table=table,
+                scenarios=scenarios,
+                checksums=checksums,
+                pdf_browser=pdf_browser,
+                figure_files=figure_files,
+                figure_process=early_process or late_process,
             )
-    say(f"writing outputs to {out}")
-    with (
-        _figure_process_ahead(report and figure_files) as figure_process,
-        staged_folder(out, overwrite=overwrite) as staging,
-    ):
-        write_estimate(
-            result,
-            project,
-            staging,
-            report=report,
-            scenario_table=table,
-            scenarios=scenarios,
-            checksums=checksums,
-            pdf_browser=pdf_browser,
-            figure_files=figure_files,
-            figure_process=figure_process,
-        )
-        if table is not None:
-            _write_scenario_outputs(table, scenarios, staging)
+            if table is not None:
+                _write_scenario_outputs(table, scenarios, staging)
     return result, table
 
 
@@ -122,8 +125,9 @@ def _run_and_write(
 def _figure_process_ahead(wanted: bool) -> Iterator[FigureProcess | None]:
     """The report's second process for figures (:mod:`nutricap.report.figure_process`),
     started now (None when not ``wanted``): it starts and imports matplotlib while this one
-    writes the tables and builds the figures. (Started before the estimate, it slowed the
-    grid's first pass by as much as it saved: benchmarks/README.md, seventh session.)"""
+    works on. Off the grid it starts before the estimate, which keeps one core busy; on the
+    grid after it (started before, it slowed the first pass by as much as it saved:
+    benchmarks/README.md, seventh session)."""
     if not wanted:
         yield None
         return
