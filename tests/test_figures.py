@@ -310,6 +310,23 @@ def test_figures_drawn_in_the_second_process_are_the_files_drawn_here(first_ahea
         assert files[name].svg == expected.svg, name
 
 
+def test_a_run_that_fails_stops_the_figure_process_at_once():
+    # Off the grid the figure process starts before the estimate (workflow.runs): when the
+    # run fails, its process is stopped, not awaited (it may still be importing), and the
+    # run's own error is what comes out.
+    from nutricap.report.figure_process import FigureProcess
+
+    with pytest.raises(ValueError, match="the run's own error"):
+        with FigureProcess() as process:
+            workers = list(process._pool._processes.values())
+            assert workers  # the process was started
+            raise ValueError("the run's own error")
+    for worker in workers:
+        worker.join(timeout=10)
+        assert not worker.is_alive()
+        assert worker.exitcode is not None and worker.exitcode < 0  # terminated (SIGTERM)
+
+
 def base64_png(uri: str) -> bytes:
     import base64
 

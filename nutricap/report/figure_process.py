@@ -80,9 +80,12 @@ class FigureProcess:
             self._pool = None
         return self
 
-    def __exit__(self, *_exc) -> None:
-        if self._pool is not None:
-            self._pool.shutdown(wait=True, cancel_futures=True)
+    def __exit__(self, exc_type, *_exc) -> None:
+        if self._pool is None:
+            return
+        if exc_type is not None:  # the run failed: no figures to wait for
+            _stop_workers(self._pool)
+        self._pool.shutdown(wait=True, cancel_futures=True)
 
     def draw(self, figure: Figure) -> Future[DrawnFigure] | None:
         """Hand ``figure`` over (pickled now: it must not be changed afterwards)."""
@@ -97,6 +100,17 @@ class FigureProcess:
             return None
         self.handed += 1
         return future
+
+
+def _stop_workers(pool: ProcessPoolExecutor) -> None:
+    """Terminate the pool's process at once (it may still be importing matplotlib), so that a
+    run that fails does not wait for it; the pool's own method where Python has one (3.14)."""
+    terminate = getattr(pool, "terminate_workers", None)
+    if terminate is not None:
+        terminate()
+        return
+    for process in list((getattr(pool, "_processes", None) or {}).values()):
+        process.terminate()
 
 
 def plain_collections(figure: Figure) -> None:
