@@ -250,6 +250,60 @@ def test_a_herd_taking_all_allowable_use_leaves_exactly_zero_ncc():
         np.testing.assert_array_equal(ncc_days(shared.problem), 0.0)
 
 
+def use_with_cattle(cattle_demand_kg, cattle_weights, deer):
+    """assess_use on one unit (browse 1000 kg, the key class, and grass 2000 kg, allowable
+    use 0.5 each) after cattle, for ``deer`` deer eating 2 kg/day for one day."""
+    from dataclasses import replace
+
+    from nutricap.model.use import assess_use
+
+    base = problem_of([[1000.0, 2000.0]], [2.8, 2.0], [0.5, 0.5])
+    base = replace(base, items=replace(base.items, key=np.array([True, False])))
+    shared = share_range(base, (herd(cattle_demand_kg, cattle_weights),))
+    by_unit = pd.DataFrame({"unit_id": base.unit_ids, "ncc_animals": [0.0]})
+    table, by_class = assess_use(
+        base,
+        by_unit,
+        np.array([float(deer)]),
+        intake_kg_per_day=2.0,
+        season_days=1.0,
+        others_taken_kg=shared.taken_kg["cattle"],
+    )
+    return table.iloc[0], by_class
+
+
+def test_use_after_cattle_is_measured_against_each_class_own_allowable_use():
+    # Hand computed (allocation rule of docs/methods.md): cattle ask 1200 kg of grass and take
+    # its 1000 kg allowable use; 100 deer (200 kg) then eat from the browse headroom (500 kg):
+    # browse use 200/1000 = 0.2 within 0.5, grass use 1000/2000 = 0.5 by the cattle alone.
+    # The deer at the browse limit: 500 kg / 2 kg = 250, so no reduction.
+    row, by_class = use_with_cattle(1200.0, {"browse": 0.0, "grass": 1.0}, 100)
+    assert row["key_class"] == "browse"
+    assert row["key_use_fraction"] == pytest.approx(0.2)
+    assert row["key_allowable_use"] == 0.5 and not row["overuse"]
+    assert row["reduction_for_key_use_animals"] == 0.0
+    grass = by_class.set_index("forage_class").loc["grass"]
+    assert grass["use_fraction"] == pytest.approx(0.5) and grass["allowable_use"] == 0.5
+    # 400 deer (800 kg) go beyond it: browse use 0.8; 250 deer keep it at 0.5, so 150 fewer.
+    row, _ = use_with_cattle(1200.0, {"browse": 0.0, "grass": 1.0}, 400)
+    assert row["key_use_fraction"] == pytest.approx(0.8) and row["overuse"]
+    assert row["reduction_for_key_use_animals"] == pytest.approx(150.0)
+
+
+def test_deer_beyond_cattle_that_took_all_allowable_use_are_overuse():
+    # Cattle eating both classes ask 2000 kg and take all 1500 kg within allowable use. 100
+    # deer (200 kg) then find no allowable forage left: their demand falls on the forage
+    # left in proportion to allowable use × forage left (browse 500 × 0.5 = 250, grass
+    # 1000 × 0.5 = 500): browse gets 200 × 250/750 = 66.67 kg, so browse use is
+    # (500 + 66.67)/1000 = 0.5667 > 0.5: overuse, which no number of deer above 0 clears
+    # (hand computed). The use was once measured against the allowable use the cattle left
+    # (0), which showed 0 use and no flag.
+    row, _ = use_with_cattle(2000.0, {"browse": 1.0, "grass": 1.0}, 100)
+    assert row["key_use_fraction"] == pytest.approx(0.5 + 200.0 / 3000.0)
+    assert row["key_allowable_use"] == 0.5 and row["overuse"]
+    assert row["reduction_for_key_use_animals"] == 100.0
+
+
 forage = st.lists(st.floats(0, 5000), min_size=3, max_size=3)
 
 

@@ -110,6 +110,35 @@ def unreachable_notes(by_unit: pd.DataFrame) -> list[str]:
     )
 
 
+def shared_range_notes(by_unit: pd.DataFrame) -> list[str]:
+    """Units where the other herbivores ([[other_herbivores]]) leave the herd no forage within
+    allowable use, and units whose key forage no number of the herd keeps within it."""
+    if "other_herbivores_taken_aum" not in by_unit.columns:
+        return []
+    taken_all = (by_unit["limiting_factor"] == "no_forage") & (
+        by_unit["other_herbivores_taken_aum"] > 0
+    )
+    notes = _units_note(
+        by_unit,
+        taken_all,
+        "the other herbivores take all the forage within allowable use in unit(s) {units}, "
+        "so NCC there is 0 (limiting factor 'no_forage'); other_herbivores_unmet_aum is "
+        "their demand that found no forage within allowable use",
+    )
+    if "reduction_for_key_use_animals" not in by_unit.columns:
+        return notes
+    current = by_unit["current_animals"]
+    all_of_them = by_unit["reduction_for_key_use_animals"] >= current
+    beyond = by_unit["overuse"] & (current > 0) & all_of_them
+    return notes + _units_note(
+        by_unit,
+        beyond,
+        "the other herbivores alone use a key forage class to its allowable use or beyond in "
+        "unit(s) {units}: the overuse flag stays with any number of the herd, and "
+        "reduction_for_key_use_animals is all of its animals there",
+    )
+
+
 def ordering_notes(by_unit: pd.DataFrame) -> list[str]:
     """Units where NCC exceeds ECC: the requirements or thresholds given ask too little.
 

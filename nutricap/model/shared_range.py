@@ -266,6 +266,7 @@ class SharedRangeResult:
     by_unit: pd.DataFrame
     by_herd: pd.DataFrame
     by_unit_class: pd.DataFrame
+    taken_kg: np.ndarray  # forage all the other herds take, shape (rows, items) [kg DM]
 
 
 def shared_range_outputs(
@@ -311,6 +312,7 @@ def shared_range_outputs(
         by_unit,
         pd.concat(frames, ignore_index=True),
         pd.concat(class_frames, ignore_index=True),
+        sum(shared.taken_kg.values(), np.zeros_like(problem.available_kg)),
     )
 
 

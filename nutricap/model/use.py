@@ -66,13 +66,21 @@ def assess_use(
     intake_kg_per_day: float,
     season_days: float,
     preference: np.ndarray | None = None,
+    others_taken_kg: np.ndarray | None = None,
 ) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Add current use and overuse columns to ``by_unit``; return it and the per-class use.
 
     Parameters
     ----------
+    problem : CapacityProblem
+        The forage before any herbivore eats (available forage, allowable use).
     preference : array, shape (items,), optional
         Relative preference of each item's class (default equal).
+    others_taken_kg : array, shape (rows, items), optional
+        Forage the other herbivores take [kg DM] (``[[other_herbivores]]``). The herd's
+        demand then falls on the allowable forage they leave (on the forage left, in
+        proportion to allowable use, where they leave none), and use is that of all the
+        herbivores together, against each class's own allowable use.
 
     Returns
     -------
@@ -84,30 +92,51 @@ def assess_use(
         ``unit_id, forage_class, key, use_fraction, allowable_use``.
     """
     items = problem.items
-    row_current = current_animals[problem.row_unit] * _row_share(problem)
+    taken = np.zeros_like(problem.available_kg)  # the memory layout of the forage's: the same
+    if others_taken_kg is not None:  # order of summation, whether other herbivores take any
+        taken[...] = others_taken_kg
+    room = _room_left(problem, taken)
+    row_current = current_animals[problem.row_unit] * _row_share(problem, room)
     demand = seasonal_demand_kg(row_current, intake_kg_per_day, season_days)
-    eaten = allocate_demand_kg(demand, problem.available_kg, problem.allowable_fraction, preference)
+    eaten = allocate_demand_kg(demand, room, 1.0, preference)
     classes, available = class_matrix(problem, problem.available_kg)
     _, eaten_by_class = class_matrix(problem, eaten)
+    _, taken_by_class = class_matrix(problem, taken)
     _, usable = class_matrix(problem, problem.available_kg * problem.allowable_fraction)
-    use = utilization_fraction(eaten_by_class, available)
+    herd_use = utilization_fraction(eaten_by_class, available)
+    others_use = utilization_fraction(taken_by_class, available)
     allowable = utilization_fraction(usable, available)
     key = _class_flags(items.forage_class, items.key, classes)
     watched = key if key.any() else np.ones_like(key)
     table = by_unit.copy()
     table["current_animals"] = current_animals
     table["demand_kg"] = seasonal_demand_kg(current_animals, intake_kg_per_day, season_days)
-    _add_key_columns(table, classes, use, allowable, watched, current_animals)
+    use = herd_use + others_use
+    _add_key_columns(table, classes, use, allowable, watched)
+    watched_use = np.where(watched[None, :], herd_use, 0.0)
+    limit = animals_at_use_limit(current_animals, watched_use, allowable - others_use)
+    table["reduction_for_key_use_animals"] = np.maximum(current_animals - limit, 0.0)
     table["above_ncc"] = current_animals > table["ncc_animals"].to_numpy()
     table["reduction_for_ncc_animals"] = np.maximum(current_animals - table["ncc_animals"], 0.0)
     return table, _use_table(problem.unit_ids, classes, key, use, allowable)
 
 
-def _row_share(problem: CapacityProblem) -> np.ndarray:
-    """Share of its unit's animals each row holds: its share of the unit's usable forage."""
-    usable = (problem.available_kg * problem.allowable_fraction).sum(axis=1)
-    unit_total = problem.sum_by_unit(usable)[problem.row_unit]
-    return np.divide(usable, unit_total, out=np.zeros_like(usable), where=unit_total > 0)
+def _room_left(problem: CapacityProblem, taken_kg: np.ndarray) -> np.ndarray:
+    """The forage the herd's demand falls on, by row and item [kg DM]: the allowable forage
+    the other herbivores leave; in a unit where they leave none, the forage they leave in
+    proportion to allowable use (the demand is then all beyond allowable use)."""
+    usable = problem.available_kg * problem.allowable_fraction
+    headroom = np.maximum(usable - taken_kg, 0.0)
+    left = np.maximum(problem.available_kg - taken_kg, 0.0) * problem.allowable_fraction
+    has_room = problem.sum_by_unit(headroom.sum(axis=1)) > 0.0
+    return np.where(has_room[problem.row_unit, None], headroom, left)
+
+
+def _row_share(problem: CapacityProblem, room: np.ndarray) -> np.ndarray:
+    """Share of its unit's animals each row holds: its share of the unit's ``room``."""
+    row_room = room.sum(axis=1)
+    unit_total = problem.sum_by_unit(row_room)[problem.row_unit]
+    return np.divide(row_room, unit_total, out=np.zeros_like(row_room), where=unit_total > 0)
 
 
 def _class_flags(item_class: np.ndarray, item_key: np.ndarray, classes: np.ndarray) -> np.ndarray:
@@ -121,7 +150,6 @@ def _add_key_columns(
     use: np.ndarray,
     allowable: np.ndarray,
     watched: np.ndarray,
-    current_animals: np.ndarray,
 ) -> None:
     pressure = np.divide(use, allowable, out=np.zeros_like(use), where=allowable > 0)
     pressure[:, ~watched] = -1.0
@@ -134,9 +162,6 @@ def _add_key_columns(
     table["key_use_fraction"] = use[rows, worst]
     table["key_allowable_use"] = allowable[rows, worst]
     table["overuse"] = table["key_use_fraction"] > table["key_allowable_use"] + USE_TOLERANCE
-    watched_use = np.where(watched[None, :], use, 0.0)
-    limit = animals_at_use_limit(current_animals, watched_use, allowable)
-    table["reduction_for_key_use_animals"] = np.maximum(current_animals - limit, 0.0)
 
 
 def _use_table(

@@ -311,6 +311,9 @@ def limiting_label(value: Any) -> str:
     return " + ".join(COMPOSITION_WORDS.get(part, part) for part in parts)
 
 
+#: The diet at NCC, per unit.
+DIET_COLUMNS = ("diet_de_kcal_per_g", "diet_dp_pct")
+
 #: Columns summed in the total row (additive over units; intervals and rates are not).
 ADDITIVE_COLUMNS = (
     "area_ha",
@@ -325,8 +328,13 @@ ADDITIVE_COLUMNS = (
 
 
 def unit_table(by_unit: pd.DataFrame, level: float | None = None) -> dict:
-    """The per-unit table: main columns, interval columns when present, a total row."""
+    """The per-unit table: main columns, interval columns when present, a total row. A unit
+    whose NCC is 0 has no diet at NCC: its diet DE and DP show "–" (the CSV keeps 0)."""
     frame = by_unit.copy()
+    no_diet = frame["ncc_animals"] <= 0.0
+    for name in DIET_COLUMNS:
+        if name in frame.columns:
+            frame[name] = frame[name].mask(no_diet)
     columns = list(UNIT_COLUMNS)
     for name, header in INTERVAL_COLUMNS.items():
         if has_interval(frame, name):

@@ -88,6 +88,8 @@ def animals_at_use_limit(current_animals, use_fraction, allowable_use):
         Use of each class by the current animals [-]; classes that must not be
         considered (e.g. not key) should be given as 0.
     allowable_use : array, shape (classes,) or (units, classes) [-]
+        The use the herd may make of each class: its allowable use, less what other
+        herbivores use already; 0 where they use it all (or more).
 
     Returns
     -------
@@ -96,7 +98,7 @@ def animals_at_use_limit(current_animals, use_fraction, allowable_use):
         unit without animals: no use, so no limit is reached).
     """
     use = np.asarray(use_fraction, dtype=float)
-    allowed = np.broadcast_to(np.asarray(allowable_use, dtype=float), use.shape)
+    allowed = np.broadcast_to(np.maximum(np.asarray(allowable_use, dtype=float), 0.0), use.shape)
     ratio = np.divide(allowed, use, out=np.full_like(use, np.inf), where=use > 0).min(axis=-1)
     current = np.broadcast_to(np.asarray(current_animals, dtype=float), ratio.shape)
     return np.multiply(current, ratio, out=np.full_like(ratio, np.inf), where=np.isfinite(ratio))

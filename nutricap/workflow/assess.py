@@ -131,8 +131,12 @@ def assess_current_use(
     by_unit: pd.DataFrame,
     herd: energetics.HerdRequirement,
     say: Progress,
+    others_taken_kg: np.ndarray | None = None,
 ) -> tuple[pd.DataFrame, pd.DataFrame | None]:
-    """Overuse columns when current numbers are known; the table unchanged otherwise."""
+    """Overuse columns when current numbers are known; the table unchanged otherwise.
+
+    ``problem`` is the forage before any herbivore eats; ``others_taken_kg`` what the other
+    herbivores take of it (rows × items, kg DM; None: there are none)."""
     current = current_animals(project, counts, areas)
     if current is None:
         return by_unit, None
@@ -144,6 +148,7 @@ def assess_current_use(
         intake_kg_per_day=herd.intake_kg_per_day,
         season_days=project.config.project.days,
         preference=problem.items.preference,
+        others_taken_kg=others_taken_kg,
     )
 
 

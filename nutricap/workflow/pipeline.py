@@ -29,6 +29,7 @@ from nutricap.model.requirements import (
 from nutricap.model.results import (
     declared_bare_notes,
     ordering_notes,
+    shared_range_notes,
     supply_notes,
     unit_class_table,
     unit_table,
@@ -102,8 +103,9 @@ def estimate(
     uncertainty = assess_uncertainty(project, inputs, supply, problem, herd, target, say, grid)
     if uncertainty.bootstrap is not None:
         by_unit = add_intervals(by_unit, uncertainty.bootstrap, days)
+    taken = None if shared is None else shared.taken_kg
     by_unit, use_by_class = assess_current_use(
-        project, inputs.counts, areas, left, by_unit, herd, say
+        project, inputs.counts, areas, problem, by_unit, herd, say, taken
     )
     trend = counts_trend(project, inputs.counts, say, by_unit)
     return Estimate(
@@ -130,6 +132,7 @@ def estimate(
         + declared_bare_notes(supply, project.config.supply.strata_without_forage)
         + unmatched_counts_notes(inputs.counts, areas.units["unit_id"].to_numpy())
         + unreachable_notes(by_unit)
+        + shared_range_notes(by_unit)
         + ordering_notes(by_unit)
         + (grid.notes if grid is not None else []),
         grid=grid,
