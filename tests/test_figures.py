@@ -68,11 +68,28 @@ def invented_treatments() -> list[tuple[str, gpd.GeoDataFrame]]:
 # --- map furniture on every map ------------------------------------------------------------
 
 
+def panel_texts(ax) -> list[list[str]]:
+    """The texts of each furniture panel (offset box anchored to the map) of ``ax``."""
+    from matplotlib.offsetbox import AnchoredOffsetbox
+    from matplotlib.text import Text
+
+    panels = [artist for artist in ax.artists if isinstance(artist, AnchoredOffsetbox)]
+    return [[t.get_text() for t in panel.findobj(Text) if t.get_text()] for panel in panels]
+
+
 def furniture(figure) -> dict:
     """What a reader uses to read a map: scale-bar text, north arrow, axis labels, legend."""
+    from matplotlib.patches import Polygon
+
     ax = figure.axes[0]
-    arrows = [t for t in ax.texts if t.get_text() == "N" and getattr(t, "arrow_patch", None)]
-    lengths = [t.get_text() for t in ax.texts if t.get_text().endswith((" m", " km"))]
+    panels = panel_texts(ax)
+    arrows = [
+        panel
+        for panel in ax.artists
+        if any(t.get_text() == "N" for t in panel.findobj(lambda a: hasattr(a, "get_text")))
+        and panel.findobj(Polygon)  # the arrow's head
+    ]
+    lengths = [text for texts in panels for text in texts if text.endswith((" m", " km"))]
     colour_bars = [inset.get_ylabel() for inset in ax.child_axes]  # drawn as map-high insets
     legend = ax.get_legend()
     return {
@@ -106,6 +123,32 @@ def test_every_map_carries_its_furniture(name):
     check_png(figure)
 
 
+def test_map_furniture_fits_its_panels_on_a_short_wide_map():
+    # Sized by the map's height, the scale bar's text and the north arrow spilled out of
+    # their panels on a map ten times as wide as tall: each piece must lie inside its panel.
+    from matplotlib.offsetbox import AnchoredOffsetbox
+
+    wide = gpd.GeoDataFrame(
+        {"unit_id": ["West", "East"]},
+        geometry=[box(0, 0, 5000, 1000), box(5000, 0, 10000, 1000)],
+        crs=UTM,
+    )
+    figure = figures.ncc_density_map(
+        wide, pd.DataFrame({"unit_id": ["West", "East"], "ncc_per_km2": [1.0, 2.0]})
+    )
+    figure.canvas.draw()  # lays the figure out and draws it (not trimmed: one frame)
+    renderer = figure.canvas.get_renderer()
+    panels = [a for a in figure.axes[0].artists if isinstance(a, AnchoredOffsetbox)]
+    assert len(panels) == 2
+    map_box = figure.axes[0].get_window_extent(renderer)
+    for panel in panels:
+        frame = panel.patch.get_window_extent(renderer)
+        child = panel.get_child().get_window_extent(renderer)
+        assert frame.x0 <= child.x0 and child.x1 <= frame.x1
+        assert frame.y0 <= child.y0 and child.y1 <= frame.y1
+        assert map_box.y0 <= frame.y0 and frame.y1 <= map_box.y1  # inside the map
+
+
 def test_map_has_little_margin():
     figure = MAPS["ncc density"]()
     ax = figure.axes[0]
@@ -136,7 +179,8 @@ def test_map_without_a_projected_crs_has_no_scale_bar():
 
 def test_ncc_density_map_names_the_units_and_the_legend_unit():
     figure = MAPS["ncc density"]()
-    names = sorted(t.get_text() for t in figure.axes[0].texts)
+    ax = figure.axes[0]
+    names = sorted([t.get_text() for t in ax.texts] + sum(panel_texts(ax), []))
     assert names == ["200 m", "N", "North", "South"]
     assert furniture(figure)["legend"] == ["NCC density [animals/km²]"]
 

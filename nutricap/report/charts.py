@@ -95,7 +95,8 @@ def capacity_figure(
     ax.xaxis.set_major_formatter(THOUSANDS)
     ax.set_xlim(left=0.0)
     ax.grid(axis="x", color="#dddddd")
-    ax.legend(loc="lower right", fontsize=8, framealpha=0.9)
+    # beside the plot, not over it: a unit's dots or whiskers may lie anywhere
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8, frameon=False)
     title = "NCC, allowable-use capacity and ECC by unit"
     if len(shown) < len(by_unit):
         title += f" ({len(shown)} of {len(by_unit)} units, largest ECC)"

@@ -19,7 +19,10 @@ from matplotlib import patheffects
 from matplotlib.cm import ScalarMappable
 from matplotlib.colors import Normalize
 from matplotlib.figure import Figure
-from matplotlib.patches import Patch, Rectangle
+from matplotlib.lines import Line2D
+from matplotlib.offsetbox import AnchoredOffsetbox, AuxTransformBox, DrawingArea, TextArea, VPacker
+from matplotlib.patches import Patch, Polygon, Rectangle
+from matplotlib.text import Text
 from matplotlib.ticker import FuncFormatter
 
 from nutricap.report.figure_style import (
@@ -116,71 +119,79 @@ def in_metres(crs) -> bool:
 
 
 def map_furniture(ax, crs) -> None:
-    """A scale bar (projected CRS in metres) and a grid-north arrow, each on a white panel."""
+    """A scale bar (projected CRS in metres) and a grid-north arrow, each on a white panel.
+
+    Both are offset boxes anchored to the map's corners, sized in points: they keep their
+    size and fit their panels on a map of any shape (sized by the map's height, they spilled
+    out of their panels on a short, wide map); on a very short map the arrow is smaller, with
+    the "N" beside it."""
     x0, x1 = ax.get_xlim()
     y0, y1 = ax.get_ylim()
-    width, height = x1 - x0, y1 - y0
     if in_metres(crs):
-        _scale_bar(
-            ax, (x0 + 0.04 * width, y0 + 0.05 * height), scale_bar_length(width), (width, height)
-        )
-    tip = (x1 - 0.05 * width, y1 - 0.04 * height)
-    _panel(ax, tip[0] - 0.03 * width, tip[1] - 0.19 * height, 0.06 * width, 0.205 * height)
-    ax.annotate(
-        "N",
-        xy=tip,
-        xytext=(tip[0], tip[1] - 0.12 * height),
-        ha="center",
-        va="top",
-        fontsize=10,
-        fontweight="bold",
-        arrowprops={"arrowstyle": "-|>", "color": "black", "linewidth": 1.5},
-        zorder=6,
-    )
+        ax.add_artist(_furniture_panel(_scale_bar(ax, scale_bar_length(x1 - x0), x1 - x0), 3))
+    map_height_pt = MAP_AXES_WIDTH_PT * (y1 - y0) / (x1 - x0) if x1 > x0 else np.inf
+    ax.add_artist(_furniture_panel(_north_arrow(NORTH_ARROW_SHARE * map_height_pt), 1))
 
 
-def _scale_bar(ax, corner: tuple, length: float, extent: tuple) -> None:
-    """A two-tone bar of ``length`` [m] from ``corner`` (left, base) with its length written
-    above it; ``extent``: the axes' (width, height) [m]."""
-    (left, base), (width, height) = corner, extent
-    _panel(ax, left - 0.015 * width, base - 0.025 * height, length + 0.03 * width, 0.1 * height)
+#: Thickness of the scale bar [share of the map's width: about 3 points on a map
+#: MAP_WIDTH_IN wide; a length on the map, as the bar's own length is].
+SCALE_BAR_THICKNESS = 0.008
+#: Width of a map's axes, about (the figure less its colour bar and labels) [points].
+MAP_AXES_WIDTH_PT = 0.75 * MAP_WIDTH_IN * 72.0
+#: The north arrow is at most this share of the map's height [-] ...
+NORTH_ARROW_SHARE = 0.5
+#: ... and 16 to 28 points tall; below 24 points the "N" stands beside it.
+NORTH_ARROW_PT = (16.0, 28.0, 24.0)
+
+
+def _scale_bar(ax, length: float, width: float) -> VPacker:
+    """A two-tone bar of ``length`` [m] (the map's scale) with its length written above it;
+    ``width``: the map's width [m]."""
+    bar = AuxTransformBox(ax.transData)
+    thickness = SCALE_BAR_THICKNESS * width
     for index in range(2):  # two halves, black and white, as on a printed map
-        ax.add_patch(
+        bar.add_artist(
             Rectangle(
-                (left + index * length / 2.0, base),
+                (index * length / 2.0, 0.0),
                 length / 2.0,
-                0.012 * height,
+                thickness,
                 facecolor=("black", "white")[index],
                 edgecolor="black",
                 linewidth=0.8,
-                zorder=6,
             )
         )
     words = f"{length / 1000:g} km" if length >= 1000 else f"{length:g} m"
-    ax.annotate(
-        words,
-        (left + length / 2.0, base + 0.02 * height),
-        ha="center",
-        va="bottom",
-        fontsize=8,
-        zorder=6,
-    )
+    text = TextArea(words, textprops={"fontsize": 8})
+    return VPacker(children=[text, bar], align="center", pad=0, sep=2)
 
 
-def _panel(ax, x: float, y: float, width: float, height: float) -> None:
-    """A white, slightly transparent panel behind a piece of map furniture."""
-    ax.add_patch(
-        Rectangle(
-            (x, y),
-            width,
-            height,
-            facecolor="white",
-            edgecolor="#888888",
-            linewidth=0.5,
-            alpha=0.92,
-            zorder=5,
-        )
+def _north_arrow(largest_pt: float) -> DrawingArea:
+    """A filled arrow pointing up (grid north) with a bold "N" under it, or beside it when
+    the arrow is short; at most ``largest_pt`` tall (within :data:`NORTH_ARROW_PT`)."""
+    shortest, tallest, stacked = NORTH_ARROW_PT
+    height = float(np.clip(largest_pt, shortest, tallest))
+    beside = height < stacked
+    width = 22.0 if beside else 12.0
+    middle = 5.0 if beside else width / 2.0
+    foot = 0.0 if beside else 11.0  # the shaft starts above the "N" when it stands under it
+    drawing = DrawingArea(width, height)
+    drawing.add_artist(Line2D([middle, middle], [foot, height - 5.0], color="black", lw=1.5))
+    head = [(middle - 4.0, height - 8.0), (middle, height), (middle + 4.0, height - 8.0)]
+    drawing.add_artist(Polygon(head, closed=True, facecolor="black", edgecolor="black"))
+    letter = (16.0, height / 2.0, "center") if beside else (middle, 0.0, "baseline")
+    drawing.add_artist(
+        Text(letter[0], letter[1], "N", ha="center", va=letter[2], fontsize=10, fontweight="bold")
     )
+    return drawing
+
+
+def _furniture_panel(child, corner: int) -> AnchoredOffsetbox:
+    """``child`` on a white, slightly transparent panel in the map's ``corner`` (a legend
+    location code: 1 upper right, 3 lower left)."""
+    panel = AnchoredOffsetbox(loc=corner, child=child, pad=0.35, borderpad=0.6, frameon=True)
+    panel.patch.set(facecolor="white", edgecolor="#888888", linewidth=0.5, alpha=0.92)
+    panel.set_zorder(6)
+    return panel
 
 
 def map_axes(ax, crs) -> None:
@@ -396,9 +407,8 @@ def treatment_map(units: gpd.GeoDataFrame, treatments: Sequence[tuple[str, gpd.G
     ax.legend(
         handles=handles,
         title="Scenario: treatment, year",
-        loc="upper center",
-        bbox_to_anchor=(0.5, -0.12),
-        ncols=min(2, len(handles)),
+        loc="upper left",  # beside the map: below it, it covered the axis label and CRS
+        bbox_to_anchor=(1.02, 1.0),
         fontsize=8,
         title_fontsize=8,
         framealpha=0.95,
