@@ -364,6 +364,28 @@ def test_methods_cite_every_source(base_page):
         assert source in text, source
 
 
+def test_methods_list_the_steps_the_run_used(base_page, full_page, example_estimate):
+    # The methods section names a source for every step the run took: the example has
+    # diet-composition limits, a cattle permit and counts (current use); the full report a
+    # scenario. A run without them has no such entries.
+    from nutricap.report.methods_text import methods
+
+    assert example_estimate.target.composition is not None and example_estimate.other_herds
+    assert example_estimate.use_by_class is not None
+    text = full_page.plain_text
+    for title in (
+        "Diet-composition limits",
+        "Other herbivores on the shared range",
+        "Current use and overuse",
+        "Treatment responses",
+    ):
+        assert title in text, title
+    assert "marginal forage class" in text
+    assert "Treatment responses" not in base_page.plain_text
+    plain = {m.title for m in methods(intervals=False, sensitivity=False, trend=False)}
+    assert not plain & {"Diet-composition limits", "Current use and overuse"}
+
+
 def test_parameter_table_shows_state_sources_and_inputs(base_page):
     # Each row's research note is shown as its short citations, the full citations once in
     # the reference list (the notes themselves stay in nutritional_states.csv).

@@ -155,6 +155,10 @@ def report_parts(
         sensitivity=extras.sensitivity_table is not None,
         trend=extras.trend is not None,
         grid=estimate.grid is not None,
+        diet_limits=estimate.target.composition is not None,
+        other_herbivores=bool(estimate.other_herds),
+        current_use=estimate.use_by_class is not None,
+        scenarios=extras.scenario_table is not None,
     ) + raster_section.raster_methods(estimate, intervals=intervals)
     raster = raster_section.raster_landscape(estimate, project.config.project.species)
     # the second process starts on the first raster map while the other sections are built

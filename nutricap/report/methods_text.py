@@ -88,7 +88,9 @@ METHODS = (
         "NCC [animal-days] = Σ x_i / I;  NCC [animals] = animal-days / D",
         "A linear programme solved exactly by sorting forage by quality and accumulating "
         "until the diet's DE falls to the threshold T. c_i is the allowable use when NCC is "
-        "capped at allowable use, else 1; D is the season length.",
+        "capped at allowable use, else 1; D is the season length. The marginal forage class "
+        "is the one eaten in part, x_k = Σ_(j before k) (q_j − T) c_j a_j / (T − q_k), so "
+        "that the diet's DE equals T.",
         "Hobbs, N.T. & Swift, D.M. 1985. Estimates of habitat carrying capacity incorporating "
         "explicit nutritional constraints. J. Wildl. Manage. 49:814–822.",
     ),
@@ -161,6 +163,52 @@ TREND_METHOD = Method(
 )
 
 
+DIET_LIMITS_METHOD = Method(
+    "Diet-composition limits",
+    "x_i ≤ s_i · X;    m_g · X ≤ Σ_(i in g) x_i ≤ M_g · X,    X = Σ_j x_j",
+    "Added to the linear programme: no forage class above its largest diet share s_i, each "
+    "group (e.g. a growth form) between its smallest and largest share of the diet. A unit "
+    "whose optimum without the limits already meets them keeps it; the others are solved "
+    "again with them, each answer certified by LP duality or found by "
+    "scipy.optimize.linprog (HiGHS).",
+    "Diet-composition constraints of diet linear programmes (common practice).",
+)
+USE_METHOD = Method(
+    "Current use and overuse",
+    "demand = N · I · D;    eaten_c = demand · p_c u_c a_c / Σ_k p_k u_k a_k;\n"
+    "use_c = eaten_c / a_c;    animals at the limit = N · min_(key c) (u_c / use_c)",
+    "N current animals, p_c the class's preference, u_c its allowable use, a_c its available "
+    "forage. Overuse: a key class used beyond its allowable use; the advisory reduction is N "
+    "less the animals at the limit. With other herbivores, use is theirs and the herd's "
+    "together, against each class's own allowable use.",
+    "Allocation in proportion to usable forage: our stated rule (docs/methods.md); "
+    "allowable use as the share that may be removed: Holechek, J.L. 1988. Rangelands "
+    "10:10–14.",
+)
+OTHER_HERBIVORES_METHOD = Method(
+    "Other herbivores on the shared range",
+    "taken_i = h_i · min(1, λ p_i),  Σ_i taken_i = min(D_h, Σ h_i),  h_i = u_i a_i − T_i;\n"
+    "forage left a'_i = a_i − T_i,  use cap c'_i = (u_i a_i − T_i) / (a_i − T_i)",
+    "Each herd's demand D_h (animals × intake × days, or AUMs × 353.8 kg) falls on the forage "
+    "classes in proportion to preference × headroom h_i, none beyond its allowable use; "
+    "herds grazing before the season go first. The target species' capacities are solved "
+    "on what they leave, so all herbivores together stay within allowable use. The "
+    "exchange rate is the NCC lost per AUM a herd takes (leave one herd out).",
+    "Our stated allocation rule (docs/methods.md); AUM of 780 lb: Society for Range "
+    "Management 1998 glossary.",
+)
+TREATMENT_METHOD = Method(
+    "Treatment responses",
+    "a_c(t) = a_c · m_c(t − t0);    q_c(t) = q_c + Δq_c(t − t0);    CP_c(t) = CP_c + ΔCP_c(t − t0)",
+    "m, Δq and ΔCP are the response table's biomass multiplier and quality shifts for the "
+    "treatment, interpolated linearly between its listed years since treatment (the first "
+    "value before the first year; no effect after the last). Each year of the scenario is "
+    "solved again and set beside the baseline.",
+    "Response tables: the user's (their sources in the table); linear interpolation "
+    "(common practice).",
+)
+
+
 SNOW_METHOD = Method(
     "Snow burial of forage (raster path)",
     "f_c = clip(1 − d / h_c, 0, 1)    or, all-or-none,    f_c = 1 if d < h_c else 0",
@@ -228,15 +276,27 @@ GRID_AVAILABLE_METHOD = Method(
 
 
 def methods(
-    *, intervals: bool, sensitivity: bool, trend: bool, grid: bool = False
+    *,
+    intervals: bool,
+    sensitivity: bool,
+    trend: bool,
+    grid: bool = False,
+    diet_limits: bool = False,
+    other_herbivores: bool = False,
+    current_use: bool = False,
+    scenarios: bool = False,
 ) -> tuple[Method, ...]:
     """The method entries of this run: the core (with the raster path's available forage
-    when ``grid``), then those of the optional analyses."""
+    when ``grid``), then those of the optional steps and analyses that were run."""
     core = tuple(
         GRID_AVAILABLE_METHOD if grid and method.title == "Available forage" else method
         for method in METHODS
     )
     optional = (
+        (diet_limits, DIET_LIMITS_METHOD),
+        (other_herbivores, OTHER_HERBIVORES_METHOD),
+        (current_use, USE_METHOD),
+        (scenarios, TREATMENT_METHOD),
         (intervals, BOOTSTRAP_METHOD),
         (sensitivity, SENSITIVITY_METHOD),
         (trend, TREND_METHOD),
