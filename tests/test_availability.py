@@ -158,6 +158,17 @@ def test_exclusions_and_minimum_forage():
     assert outcome.access.tolist() == [1.0, 0.0, 0.0, 0.0]
 
 
+def test_a_rule_counts_no_area_where_it_removed_nothing():
+    # A cell with no forage is below any minimum density, yet the rule removes nothing there:
+    # it must not count its area (the report once showed 172 ha "acted on" with 0 kg removed).
+    gross = np.array([[0.0, 5.0, 50.0]], dtype=np.float32)
+    rules = CellRules(min_forage_kg_per_ha=10.0)
+    valid = np.ones(3, dtype=bool)
+    outcome = apply_rules(gross, rules, valid)
+    assert outcome.affected["min_forage"].tolist() == [0.0, 1.0, 0.0]
+    np.testing.assert_allclose(outcome.removed_kg_per_ha["min_forage"], [0.0, 5.0, 0.0])
+
+
 @settings(max_examples=60, deadline=None)
 @given(
     st.lists(st.floats(0, 5000), min_size=6, max_size=6),

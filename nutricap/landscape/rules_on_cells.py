@@ -153,7 +153,7 @@ class RuleOutcome:
     removed_kg_per_ha : dict rule → ndarray (cells,)
         Forage (all classes) each rule removed [kg/ha of cell].
     affected : dict rule → ndarray (cells,)
-        1.0 in cells with data where the rule removed something (or took area), else 0.0.
+        1.0 in cells with data where the rule removed forage, else 0.0.
     """
 
     available_kg_per_ha: np.ndarray
@@ -256,7 +256,7 @@ class _RuleState:
         removed, affected = self.rows[name]
         np.subtract(np.float32(1.0), keep, out=removed)
         removed *= self.total
-        np.copyto(affected, (keep < 1) & self.valid)
+        np.copyto(affected, (removed > 0) & self.valid)  # as snow: where it removed forage
         self.access *= keep
         self.total *= keep
         self.area_rules += 1
