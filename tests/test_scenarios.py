@@ -132,6 +132,19 @@ def test_unknown_scenario_is_one_clear_message(project, tmp_path, capsys):
     assert not (tmp_path / "x").exists()
 
 
+def test_an_unknown_scenario_is_refused_before_the_estimate(project, tmp_path, monkeypatch):
+    # Even after a known one: the estimate (bootstrap included) must not run first.
+    import nutricap.workflow.comparison as comparison
+
+    def no_estimate(*_args, **_kwargs):
+        raise AssertionError("the estimate ran before the scenario names were checked")
+
+    monkeypatch.setattr(comparison, "estimate", no_estimate)
+    arguments = ["compare", str(project), "--scenario", "juniper_thinning"]
+    arguments += ["--scenario", "clearcut", "--out", str(tmp_path / "x"), "--quiet"]
+    assert main(arguments) == 2
+
+
 @pytest.mark.parametrize("year", [1e20, float("inf"), 1750, 2027.5])
 def test_treatment_year_outside_the_calendar_is_refused(project, year):
     # A year of 1e20 was once cast to a negative integer and the treatment silently dropped.

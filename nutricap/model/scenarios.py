@@ -99,7 +99,7 @@ def read_scenario(
 ) -> tuple[ScenarioSection, gpd.GeoDataFrame, pd.DataFrame]:
     """A scenario's section, treatment polygons and response table, read and checked
     (every treatment type has responses; ``new_stratum`` is empty or one of ``strata``)."""
-    section = _section(project, name)
+    section = scenario_section(project, name)
     treatments_path = (project.folder / section.treatments).resolve()
     responses_path = (project.folder / section.responses).resolve()
     responses = read_responses(project.source("treatment_responses", responses_path))
@@ -118,7 +118,8 @@ def read_scenario(
     return section, treatments, responses
 
 
-def _section(project: Project, name: str) -> ScenarioSection:
+def scenario_section(project: Project, name: str) -> ScenarioSection:
+    """The ``[scenarios.NAME]`` section of ``name``; one message when there is none."""
     scenarios = project.config.scenarios
     if name not in scenarios:
         known = ", ".join(map(repr, sorted(scenarios))) or "none"

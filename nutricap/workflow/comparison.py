@@ -17,6 +17,7 @@ from nutricap.model.scenarios import (
     load_scenario,
     read_scenario,
     scenario_problem,
+    scenario_section,
     years_since_latest_treatment,
 )
 from nutricap.workflow.pipeline import estimate
@@ -52,6 +53,8 @@ def compare_scenarios(
     """:func:`compare` for each named scenario, with the scenarios read (for the report)."""
     say = progress or (lambda message: None)
     names = [names] if isinstance(names, str) else list(dict.fromkeys(names))
+    for name in names:  # an unknown name is refused before any work
+        scenario_section(project, name)
     if on_grid(project):
         return _compare_on_grid(project, names, say, progress, streaming_started)
     result = estimate(project, progress)
