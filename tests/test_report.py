@@ -426,6 +426,25 @@ def test_use_section_flags(plain_estimate, project, manifest):
     assert "0.60 ×" in use and "Most-used" not in use
 
 
+def test_numbers_above_ncc_within_its_interval_are_said_to_be(plain_estimate):
+    # Numbers and intervals invented for the test: unit 0 above NCC but within its interval,
+    # unit 1 above the interval's upper end, unit 2 below NCC.
+    from nutricap.report.use_section import WITHIN_INTERVAL, use
+
+    table = plain_estimate.by_unit.iloc[:3].copy()
+    table["ncc_animals"] = 100.0
+    table["ncc_animals_lo"], table["ncc_animals_hi"] = 80.0, 120.0
+    table["current_animals"] = [110.0, 130.0, 90.0]
+    table["above_ncc"] = table["current_animals"] > table["ncc_animals"]
+    table["key_use_fraction"], table["key_allowable_use"] = 0.3, 0.5
+    table["overuse"] = False
+    section = use(table)
+    column = section["table"]["headers"].index("Numbers above NCC")
+    cells = [row["cells"][column] for row in section["table"]["rows"]]
+    assert cells[0] == WITHIN_INTERVAL and cells[1] != WITHIN_INTERVAL and cells[2] != cells[1]
+    assert section["flagged"] == 2  # within the interval is still above NCC
+
+
 def test_use_section_with_current_numbers_only(plain_estimate, project, manifest):
     table = plain_estimate.by_unit.assign(current_animals=100.0)  # invented for the test
     html = render_report(

@@ -45,6 +45,9 @@ NO_USE_LEFT = 1e-9
 herbivores took it, or rounding left a trace): no ratio is worth writing."""
 NONE_LEFT = "none left within allowable use"
 
+WITHIN_INTERVAL = "yes, within the NCC interval"
+"""A unit's numbers above NCC but not above the upper end of its bootstrap interval."""
+
 SAME_PRESSURE = 1e-6
 """Relative difference below which key classes' use ÷ allowable use are reported as one."""
 
@@ -58,6 +61,11 @@ def use(by_unit: pd.DataFrame, use_by_class: pd.DataFrame | None = None) -> dict
     if "above_ncc" in by_unit.columns:
         flags = flags | by_unit["above_ncc"].map(is_flag)
     frame = by_unit.copy()
+    if "above_ncc" in frame.columns and "ncc_animals_hi" in frame.columns:
+        within = frame["above_ncc"].map(is_flag) & (
+            frame["current_animals"] <= frame["ncc_animals_hi"]
+        )
+        frame["above_ncc"] = frame["above_ncc"].astype(object).mask(within, WITHIN_INTERVAL)
     pressure, key_classes = key_pressure(frame, use_by_class)
     frame["key_pressure"] = pressure
     return {
