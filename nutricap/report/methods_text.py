@@ -124,7 +124,9 @@ METHODS = (
         "An AUM is a quantity of forage: one animal unit (a 1000-lb, 453.6 kg cow) eats 26 lb "
         "(11.8 kg) oven-dry forage a day, 780 lb (353.8 kg) in a 30-day month. ncc_aum is the "
         "forage eaten at NCC, allowable_use_aum the forage usable at allowable use, each over "
-        "353.8 kg.",
+        "353.8 kg. AUE rates an animal by metabolic weight, the AUM columns count forage: NCC "
+        "× AUE × months equals ncc_aum only when the herd eats as much per unit of metabolic "
+        "weight as the animal unit does (wild ungulates on a winter diet usually eat less).",
         "USDA NRCS National Range and Pasture Handbook (attribution from memory; values read "
         "in secondary sources); Society for Range Management 1998 glossary (30-day AUM).",
     ),
