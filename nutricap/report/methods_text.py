@@ -126,7 +126,7 @@ METHODS = (
         "forage eaten at NCC, allowable_use_aum the forage usable at allowable use, each over "
         "353.8 kg. AUE rates an animal by metabolic weight, the AUM columns count forage: NCC "
         "× AUE × months equals ncc_aum only when the herd eats as much per unit of metabolic "
-        "weight as the animal unit does (wild ungulates on a winter diet usually eat less).",
+        "weight as the animal unit does (11.8 kg a day per 453.6^0.75).",
         "USDA NRCS National Range and Pasture Handbook (attribution from memory; values read "
         "in secondary sources); Society for Range Management 1998 glossary (30-day AUM).",
     ),
