@@ -44,7 +44,7 @@ FORAGE_CLASSES = (
     ("mountain_mahogany", "browse", 2.35, np.nan, 8.5, 0.50, True, 150.0, 0.08),
     ("rabbitbrush", "browse", 2.30, np.nan, 7.0, 0.40, False, 60.0, 0.02),
     ("serviceberry", "browse", np.nan, 48.0, 6.5, 0.50, False, 180.0, 0.04),
-    ("juniper", "browse", 2.50, np.nan, 6.0, 0.30, False, 300.0, 0.03),
+    ("juniper", "browse", 2.10, np.nan, 6.0, 0.30, False, 300.0, 0.03),
     ("aspen_twigs", "browse", 2.20, np.nan, 6.5, 0.50, False, 200.0, 0.06),
     ("cheatgrass", "grass", 1.90, np.nan, 4.0, 0.60, False, 15.0, 0.0),
     ("bluebunch_wheatgrass", "grass", np.nan, 45.0, 4.5, 0.40, False, 40.0, 0.0),
