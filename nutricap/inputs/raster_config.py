@@ -7,12 +7,18 @@ is read, so names of classes are checked later (:mod:`nutricap.landscape.grid.se
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 from typing import Annotated, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, model_validator
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 RESAMPLING_METHODS = ("nearest", "bilinear", "average")
+
+#: A Dask scheduler's address: an optional protocol, a host and a port ("tcp://10.0.0.5:8786").
+SCHEDULER_ADDRESS = re.compile(
+    r"(?:[a-z][a-z0-9+.-]*://)?(?:\[[0-9a-fA-F:.]+\]|[^\s:/\[\]]+):\d{1,5}"
+)
 
 #: A path written in the project file (a TOML string), relative to the file.
 InputPath = Annotated[Path, Field(strict=False)]
@@ -43,6 +49,22 @@ class CalibratedSection(StrictSection):
     plots_crs: str | None = None
     extrapolation_margin: float = Field(default=0.1, ge=0.0, le=1.0)
     beyond_margin: Literal["clamp", "extrapolate"] = "clamp"
+
+    @field_validator("plots_crs")
+    @classmethod
+    def _known_crs(cls, value: str | None) -> str | None:
+        if value is None:
+            return value
+        from pyproj import CRS
+        from pyproj.exceptions import CRSError
+
+        try:
+            CRS.from_user_input(value)
+        except CRSError:
+            raise ValueError(
+                "unknown CRS (expected a CRS pyproj knows, e.g. 'EPSG:32612')"
+            ) from None
+        return value
 
     @model_validator(mode="after")
     def _classes_once(self) -> CalibratedSection:
@@ -86,6 +108,15 @@ class RasterSection(StrictSection):
     density_compression: Literal["zstd", "deflate"] = "zstd"
     dask_scheduler: str | None = Field(default=None, min_length=1)
     dask_connect_timeout_s: float = Field(default=10.0, gt=0.0, le=600.0)
+
+    @field_validator("dask_scheduler")
+    @classmethod
+    def _scheduler_address(cls, value: str | None) -> str | None:
+        if value is not None and not SCHEDULER_ADDRESS.fullmatch(value):
+            raise ValueError(
+                "not a scheduler address (expected a host and port, e.g. 'tcp://10.0.0.5:8786')"
+            )
+        return value
 
     @model_validator(mode="after")
     def _one_source_per_class(self) -> RasterSection:

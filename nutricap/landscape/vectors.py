@@ -302,6 +302,33 @@ def _check_geometries(frame: gpd.GeoDataFrame, path: Source, what: str) -> None:
             expected="a valid polygon",
             found="an invalid polygon; repair it in a GIS (e.g. make valid)",
         )
+    off_earth = ~_on_the_earth(frame)
+    if off_earth.any():
+        west, south, east, north = frame.geometry[off_earth].iloc[0].bounds
+        raise feature_error(
+            f"{what} has coordinates that lie nowhere on the Earth in its CRS",
+            path,
+            frame,
+            off_earth,
+            expected=f"coordinates within the area of {CRS.from_user_input(frame.crs).name}",
+            found=f"bounds {west:.6g}, {south:.6g} to {east:.6g}, {north:.6g}",
+        )
+
+
+def _on_the_earth(frame: gpd.GeoDataFrame) -> np.ndarray:
+    """Whether each feature's bounding box maps to longitudes and latitudes (a polygon at
+    1e200 m, say, does not; without a CRS nothing can be said, and every feature passes)."""
+    if frame.crs is None:
+        return np.ones(len(frame), dtype=bool)
+    bounds = frame.geometry.bounds.to_numpy(dtype=float)
+    to_degrees = Transformer.from_crs(frame.crs, "EPSG:4326", always_xy=True)
+    with np.errstate(all="ignore"):
+        lon, lat = to_degrees.transform(
+            np.r_[bounds[:, 0], bounds[:, 2]], np.r_[bounds[:, 1], bounds[:, 3]], errcheck=False
+        )
+    lon, lat = np.asarray(lon, dtype=float), np.asarray(lat, dtype=float)
+    ok = np.isfinite(lon) & np.isfinite(lat) & (np.abs(lat) <= 90.0) & (np.abs(lon) <= 540.0)
+    return ok[: len(frame)] & ok[len(frame) :]
 
 
 def choose_area_crs(units: gpd.GeoDataFrame) -> tuple[CRS, str]:

@@ -288,6 +288,27 @@ def bow_tie(geometry) -> Polygon:
     return Polygon([(west, south), (east, north), (east, south), (west, north)])
 
 
+def scaled_raster(name: str, scale: float) -> Recipe:
+    """Give raster ``name`` GDAL scale metadata (values to be read as value × ``scale``)."""
+
+    def recipe(folder: Path) -> None:
+        with rasterio.open(folder / name, "r+") as dst:
+            dst.scales = (scale,)
+
+    return recipe
+
+
+def slope_raster(value: float, units: str) -> Recipe:
+    """Add ``[availability]`` with a constant slope raster of ``value`` in ``units``."""
+
+    def recipe(folder: Path) -> None:
+        write_raster(folder / "slope.tif", value=value)
+        with (folder / "project.toml").open("a", encoding="utf-8") as file:
+            file.write(f'\n[availability]\nslope = "slope.tif"\nslope_units = "{units}"\n')
+
+    return recipe
+
+
 # --- checks of valid results -----------------------------------------------------------------
 
 
@@ -1716,5 +1737,47 @@ CASES = [
         "other herbivores: the numbers table is missing",
         lambda folder: (folder / "cattle_permit.csv").unlink(),
         r"project\.toml: input file for key 'other_herbivores\.0\.numbers_table' does not exist",
+    ),
+    # third probe (2026-12-04): tracebacks and inputs read wrongly without a word
+    Case(
+        "rasters: a Dask scheduler address without a port",
+        steps(
+            biomass_rasters(juniper={}),
+            append_text("project.toml", 'dask_scheduler = "not a url at all"\n'),
+        ),
+        r"project\.toml: 1 problem: key 'rasters\.dask_scheduler': not a scheduler address",
+    ),
+    Case(
+        "rasters: calibration plots in an unknown CRS",
+        steps(
+            biomass_rasters(juniper={}),
+            append_text(
+                "project.toml",
+                '[rasters.calibrated]\nindex = "juniper.tif"\nplots = "plots.csv"\n'
+                'groups = { shrubs = ["big_sagebrush"] }\nplots_crs = "EPSG:99999"\n',
+            ),
+        ),
+        r"project\.toml: 1 problem: key 'rasters\.calibrated\.plots_crs': unknown CRS",
+    ),
+    Case(
+        "rasters: biomass stored scaled (GDAL scale 0.1)",
+        steps(biomass_rasters(juniper={}), scaled_raster("juniper.tif", 0.1)),
+        r"juniper\.tif: key 'rasters\.biomass\.juniper': raster stores its values scaled .*"
+        r"found scale 0\.1, offset 0",
+    ),
+    Case(
+        "availability: slope of 120 degrees",
+        steps(biomass_rasters(juniper={}), slope_raster(120.0, "degrees")),
+        r"slope\.tif: key 'availability\.slope', cell row \d+, column \d+: raster value out of "
+        r"range \(expected slope in degrees between 0 and 90; found 120",
+    ),
+    Case(
+        "units: a polygon at 1e200 m",
+        edit_layer(
+            "units.gpkg",
+            set_geometry(2, lambda _: Polygon([(1e200, 1e200), (2e200, 1e200), (2e200, 2e200)])),
+        ),
+        r"units\.gpkg: feature 2 \(of 6\): units layer has coordinates that lie nowhere on the "
+        r"Earth in its CRS",
     ),
 ]

@@ -114,6 +114,17 @@ class GridLayer:
                 expected="an integer or floating-point raster",
                 found=f"data type {self.src.dtypes[0]}",
             )
+        scale, offset = float(self.src.scales[0]), float(self.src.offsets[0])
+        if (scale, offset) != (1.0, 0.0) and not self.spec.categorical:
+            self.close()
+            raise SpatialError(
+                "raster stores its values scaled (GDAL scale/offset metadata), which is not read",
+                source=path,
+                location=f"key {key!r}",
+                expected=f"the values themselves ({self.spec.meaning or 'unscaled'}), e.g. "
+                "written out with gdal_translate -unscale -ot Float32",
+                found=f"scale {scale:g}, offset {offset:g}",
+            )
 
     def read(self, window: Window, scratch: Scratch | None = None) -> tuple[np.ndarray, np.ndarray]:
         """Values (float32) and validity (bool) of the grid cells in ``window``.

@@ -6,7 +6,7 @@ Used by :func:`nutricap.landscape.grid.supply.grid_problem` to set up the first 
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import geopandas as gpd
@@ -40,7 +40,16 @@ def layer_specs(project) -> list[LayerSpec]:
         for key in keys
         if not key.endswith((".plots", "_table", ".codes")) and ".exclusions." not in key
     ]
-    return [LayerSpec.for_key(key, paths[key]) for key in rasters]
+    specs = [LayerSpec.for_key(key, paths[key]) for key in rasters]
+    availability = project.config.availability
+    if availability is not None and availability.slope_units == "degrees":
+        specs = [
+            replace(spec, maximum=90.0, meaning="slope in degrees")
+            if spec.key == "availability.slope"
+            else spec
+            for spec in specs
+        ]
+    return specs
 
 
 def _general_classes(forage_classes: pd.DataFrame) -> pd.DataFrame:
