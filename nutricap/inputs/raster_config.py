@@ -15,9 +15,10 @@ from pydantic import BaseModel, ConfigDict, Field, field_validator, model_valida
 
 RESAMPLING_METHODS = ("nearest", "bilinear", "average")
 
-#: A Dask scheduler's address: an optional protocol, a host and a port ("tcp://10.0.0.5:8786").
+#: A Dask scheduler's address: an optional protocol, a host and a port ("tcp://10.0.0.5:8786"),
+#: or a scheduler in this process ("inproc://…").
 SCHEDULER_ADDRESS = re.compile(
-    r"(?:[a-z][a-z0-9+.-]*://)?(?:\[[0-9a-fA-F:.]+\]|[^\s:/\[\]]+):\d{1,5}"
+    r"inproc://\S+|(?:[a-z][a-z0-9+.-]*://)?(?:\[[0-9a-fA-F:.]+\]|[^\s:/\[\]]+):\d{1,5}"
 )
 
 #: A path written in the project file (a TOML string), relative to the file.
