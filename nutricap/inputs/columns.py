@@ -324,6 +324,14 @@ def plain_value(value: object) -> object:
     return value.item() if isinstance(value, np.generic) else value
 
 
+def shown_value(value: object) -> str:
+    """A cell's value as a message shows it: ``repr`` of the plain value, or "an empty (NULL)
+    value" where there is none (a NULL attribute reads as NaN or None)."""
+    if value is None or (isinstance(value, float | np.floating) and np.isnan(value)):
+        return "an empty (NULL) value"
+    return repr(plain_value(value))
+
+
 def check_known(
     frame: pd.DataFrame, column: str, known: set[str], path: Source, *, known_from: str
 ) -> None:

@@ -23,7 +23,7 @@ from pyproj.crs.coordinate_operation import LambertAzimuthalEqualAreaConversion
 from shapely.validation import explain_validity
 
 from nutricap.errors import SpatialError
-from nutricap.inputs.columns import plain_value
+from nutricap.inputs.columns import shown_value
 from nutricap.inputs.table_source import Source, as_source, closest_name
 from nutricap.landscape.layer_files import (
     feature_error,
@@ -263,7 +263,7 @@ def _require_numbers(
             bad,
             column,
             expected=f"a number {bounds}",
-            found=repr(plain_value(frame[column][bad].iloc[0])),
+            found=shown_value(frame[column][bad].iloc[0]),
         )
     frame[column] = values
 

@@ -1740,6 +1740,12 @@ CASES = [
     ),
     # third probe (2026-12-04): tracebacks and inputs read wrongly without a word
     Case(
+        "units: a NULL current_animals",
+        edit_layer("units.gpkg", lambda units: units.assign(current_animals=np.nan)),
+        r"units\.gpkg: feature 1 \(of 6\), attribute 'current_animals': .*found an empty "
+        r"\(NULL\) value\)",
+    ),
+    Case(
         "rasters: a Dask scheduler address without a port",
         steps(
             biomass_rasters(juniper={}),
