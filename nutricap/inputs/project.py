@@ -170,7 +170,7 @@ def _check_names_for_given_inputs(project: Project) -> None:
 def _read_toml(path: Path) -> dict:
     data = path.read_bytes()
     try:
-        return tomllib.loads(data.decode("utf-8"))
+        return tomllib.loads(data.decode("utf-8-sig"))  # a byte-order mark, as some editors write
     except UnicodeDecodeError as exc:
         line = data[: exc.start].count(b"\n") + 1
         raise ProjectFileError(

@@ -104,8 +104,34 @@ def _is_shapefile(path: Path, layer: str | None) -> bool:
         return False
 
 
+#: Files a shapefile cannot be read without, besides the .shp (geometries): the index of
+#: the geometries and the attributes.
+SHAPEFILE_PARTS = (".shx", ".dbf")
+
+
+def _require_shapefile_parts(path: Path, what: str) -> None:
+    """Refuse a ``.shp`` whose ``.shx`` or ``.dbf`` is missing (GDAL would read it without
+    attributes, or ask for an option, instead of naming the file)."""
+    if path.suffix.lower() != ".shp":
+        return
+    for suffix in SHAPEFILE_PARTS:
+        part = next(
+            (p for p in (path.with_suffix(suffix), path.with_suffix(suffix.upper())) if p.exists()),
+            None,
+        )
+        if part is None:
+            raise SpatialError(
+                f"{what}: the shapefile's {suffix} file is missing",
+                source=path,
+                expected=f"{path.with_suffix(suffix).name} beside {path.name} (a shapefile is "
+                "several files: .shp, .shx, .dbf and .prj)",
+                found="no such file",
+            )
+
+
 def open_layer(source: TableSource, layer: str | None, what: str) -> gpd.GeoDataFrame:
     path = source.path
+    _require_shapefile_parts(path, what)
     if layer is None:
         layer = _only_spatial_layer(path, what)
     try:

@@ -1740,6 +1740,23 @@ CASES = [
     ),
     # third probe (2026-12-04): tracebacks and inputs read wrongly without a word
     Case(
+        "project: saved with a UTF-8 byte-order mark (valid)",
+        rewrite_bytes("project.toml", lambda data: b"\xef\xbb\xbf" + data),
+        r"",
+        exit_code=0,
+        verify=same_as_reference,
+    ),
+    Case(
+        "units: a shapefile without its .dbf",
+        steps(as_shapefile("units.gpkg"), lambda folder: (folder / "units.dbf").unlink()),
+        r"units\.shp: units layer: the shapefile's \.dbf file is missing \(expected units\.dbf",
+    ),
+    Case(
+        "units: a shapefile without its .shx",
+        steps(as_shapefile("units.gpkg"), lambda folder: (folder / "units.shx").unlink()),
+        r"units\.shp: units layer: the shapefile's \.shx file is missing",
+    ),
+    Case(
         "units: a NULL current_animals",
         edit_layer("units.gpkg", lambda units: units.assign(current_animals=np.nan)),
         r"units\.gpkg: feature 1 \(of 6\), attribute 'current_animals': .*found an empty "
