@@ -48,6 +48,18 @@ layers.py)."""
 SHIFTED_GRID = from_origin(452_050.0, 4_291_000.0, 100.0, 100.0)
 """:data:`GRID` moved by half a cell."""
 Recipe = Callable[[Path], None]
+VRT_OF_A_MISSING_TILE = """<VRTDataset rasterXSize="150" rasterYSize="100">
+  <SRS>EPSG:32612</SRS>
+  <GeoTransform>452000, 100, 0, 4291000, 0, -100</GeoTransform>
+  <VRTRasterBand dataType="Float32" band="1">
+    <SimpleSource>
+      <SourceFilename relativeToVRT="1">missing.tif</SourceFilename>
+      <SourceBand>1</SourceBand>
+    </SimpleSource>
+  </VRTRasterBand>
+</VRTDataset>
+"""
+"""A GDAL VRT over :data:`GRID` whose one source file does not exist."""
 
 
 @dataclass(frozen=True)
@@ -1739,6 +1751,16 @@ CASES = [
         r"project\.toml: input file for key 'other_herbivores\.0\.numbers_table' does not exist",
     ),
     # third probe (2026-12-04): tracebacks and inputs read wrongly without a word
+    Case(
+        "rasters: a VRT whose source tile is missing",
+        steps(
+            biomass_rasters(juniper={}, big_sagebrush={}),
+            write_text("sagebrush.vrt", VRT_OF_A_MISSING_TILE),
+            replace_text("project.toml", '"big_sagebrush.tif"', '"sagebrush.vrt"'),
+        ),
+        r"sagebrush\.vrt: key 'rasters\.biomass\.big_sagebrush', cells from row 0, column 0: "
+        r"cannot read the raster's cells: a source file of the VRT is missing.*missing\.tif",
+    ),
     Case(
         "project: saved with a UTF-8 byte-order mark (valid)",
         rewrite_bytes("project.toml", lambda data: b"\xef\xbb\xbf" + data),

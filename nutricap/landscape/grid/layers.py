@@ -156,14 +156,21 @@ class GridLayer:
         return values, valid
 
     def _unreadable(self, inner: Window, exc: RasterioIOError) -> SpatialError:
-        """The error of a window GDAL cannot read: a truncated or corrupt file."""
+        """The error of a window GDAL cannot read: a truncated or corrupt file, or a VRT
+        whose source file is missing or unreadable (GDAL's words name the file)."""
         detail = str(exc.__cause__ or exc)
+        if self.spec.path.suffix.lower() == ".vrt":
+            problem = "a source file of the VRT is missing, unreadable or corrupt"
+            expected = "every source file the VRT names, complete and readable"
+        else:
+            problem = "the file is truncated or corrupt"
+            expected = "a complete GeoTIFF (copy or export it again)"
         return SpatialError(
-            "cannot read the raster's cells: the file is truncated or corrupt",
+            f"cannot read the raster's cells: {problem}",
             source=self.spec.path,
             location=f"key {self.spec.key!r}, cells from row {int(inner.row_off)}, "
             f"column {int(inner.col_off)}",
-            expected="a complete GeoTIFF (copy or export it again)",
+            expected=expected,
             found=f"GDAL: {detail.removeprefix(self.spec.path.name + ', ')}",
         )
 
