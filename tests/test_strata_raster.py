@@ -97,10 +97,14 @@ def test_mapped_area_is_the_count_of_listed_cells(folder):
             assert area_ha.get((unit_id, name), 0.0) == pytest.approx(count * CELL_HA)
     unlisted = np.count_nonzero((units >= 0) & (codes == UNLISTED))
     assert unlisted > 0  # the unlisted code lies in units and is left unmapped, with a note
-    assert any(
-        note.startswith(f"{unlisted * CELL_HA:,.1f} ha of unit area on the grid lies in no stratum")
+    note = next(
+        note
         for note in result.notes
+        if note.startswith(f"{unlisted * CELL_HA:,.1f} ha of unit area on the grid lies in no")
     )
+    for number, unit_id in enumerate(_units()["unit_id"]):  # each unit named with its share
+        count = np.count_nonzero((units == number) & (codes == UNLISTED))
+        assert (f"{unit_id} {count * CELL_HA:,.1f} ha" in note) == (count > 0)
 
 
 def test_several_codes_may_name_one_stratum(folder):

@@ -195,6 +195,10 @@ def grid_notes(grid: Grid) -> list[str]:
     ]
 
 
+UNITS_NAMED = 10
+"""Units named at most in a note (the largest first; the rest are counted)."""
+
+
 def run_notes(units_table, cells, without_data, cell_ha, resampled, calibration) -> list[str]:
     """Resampled layers, mapped area without data or without stratum, units partly off the
     grid, calibrated groups used beyond their margin (areas [ha])."""
@@ -209,10 +213,18 @@ def run_notes(units_table, cells, without_data, cell_ha, resampled, calibration)
             f"{lost:,.1f} ha of mapped unit area has no data in at least one raster layer; no "
             "forage is counted there (availability_rules.csv, rule 'nodata')"
         )
-    unmapped_ha = cells[:, -1].sum() * cell_ha
-    if unmapped_ha > 0:
+    unmapped_by_unit = cells[:, -1] * cell_ha
+    if unmapped_by_unit.sum() > 0:
+        order = np.argsort(-unmapped_by_unit, kind="stable")
+        named = [
+            f"{units_table['unit_id'].iloc[i]} {unmapped_by_unit[i]:,.1f} ha"
+            for i in order[:UNITS_NAMED]
+            if unmapped_by_unit[i] > 0
+        ]
+        more = int((unmapped_by_unit > 0).sum()) - len(named)
         notes.append(
-            f"{unmapped_ha:,.1f} ha of unit area on the grid lies in no stratum (outside the "
+            f"{unmapped_by_unit.sum():,.1f} ha of unit area on the grid lies in no stratum "
+            f"({', '.join(named)}{f' and {more} more units' if more > 0 else ''}: outside the "
             "strata polygons, or a raster code the codes table does not list, or no data in "
             "the strata raster); no forage is counted there"
         )
