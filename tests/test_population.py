@@ -8,6 +8,7 @@ that an estimator must recover, they are not check values taken from anywhere.
 from __future__ import annotations
 
 import math
+from types import SimpleNamespace
 
 import numpy as np
 import pytest
@@ -307,3 +308,39 @@ def test_constant_series_reports_no_ceiling_without_warnings(recwarn):
     assert fit.K is None and not fit.ceiling_evidence
     assert fit.r_max == pytest.approx(0.0, abs=1e-9)
     assert len(recwarn) == 0
+
+
+def test_logistic_fit_exact_across_a_gap_of_centuries(recwarn):
+    # Exact logistic (truth invented: r_max 0.3, K 1000, simulated independently above), counted
+    # for 8 years and once more 142 years later. Trial parameters with 1/K < 0 overflow across
+    # the gap; the fit must still find the truth, with no floating-point warning.
+    years, counts = simulate_logistic(0.3, 1000.0, 50.0, 151)
+    keep = np.r_[np.arange(8), 150]
+    fit = pop.fit_logistic(years[keep], counts[keep])
+    assert fit.K == pytest.approx(1000.0, rel=1e-6)
+    assert fit.r_max == pytest.approx(0.3, abs=1e-6)
+    assert len(recwarn) == 0
+
+
+def test_logistic_not_fitted_when_the_fit_does_not_converge(recwarn):
+    # Counts (invented) swinging 5 ↔ 5000 every 10 years: no (r_max, 1/K) in the bounds comes
+    # near them and the optimiser stops at its evaluation limit. No K and no r_max, the reason
+    # stated, no overflow warning.
+    fit = pop.fit_logistic(np.arange(2000, 2051, 10), [5, 5000, 5, 5000, 5, 5000])
+    assert fit.K is None and fit.r_max is None and fit.r_max_ci is None
+    assert fit.residual_sd_log is None and not fit.ceiling_evidence
+    assert fit.reason.startswith("logistic not fitted: the least-squares fit stopped")
+    assert len(recwarn) == 0
+
+
+def test_logistic_not_fitted_when_the_best_fit_overflows():
+    # r_max = 3, 1/K = −5/largest count: from 200 animals the map soon squares its size yearly
+    # (N + 3N(1 + N/1e4)), past the float range long before 397 years (by hand: 200 → 812 →
+    # 3446 → 1.7e4 → 1.6e5 → 8.3e6 → 2.1e10 → … > 1.8e308 after 12 years).
+    years = np.array([1800.0, 1801.0, 1802.0, 1803.0, 2200.0])
+    counts = np.array([100.0, 130.0, 160.0, 200.0, 50000.0])
+    steps = pop._whole_year_steps(years)
+    harvest = pop._harvest_by_step(years, steps, np.zeros(5))
+    fit = SimpleNamespace(status=2, nfev=10, x=np.array([3.0, -5.0]))
+    reason = pop._fit_problem(fit, years, counts, steps, harvest, counts.max())
+    assert reason.startswith("logistic not fitted") and "397-year interval 1803–2200" in reason

@@ -56,6 +56,9 @@ _FIT_TOLERANCE = 1e-13
 """ftol, xtol and gtol of the fit: far below scipy's default 1e-8, so that the optimum found
 does not depend on the path (the machine's BLAS kernels) beyond about 12 digits."""
 _PREDICTION_FLOOR_FRACTION = 1e-6
+_PREDICTION_CEILING = float(np.finfo(float).max)
+"""Largest prediction the fit's residuals see [animals]: a prediction that overflowed (+inf,
+or NaN from inf − inf) is taken as this, so that the residuals stay finite."""
 
 
 @dataclass(frozen=True)
@@ -86,8 +89,9 @@ class LogisticFit:
     """Ceiling [animals]; None when the series shows no evidence of one."""
     K_ci: tuple[float, float] | None
     """Confidence interval of K [animals]; None with K."""
-    r_max: float
-    """Per-capita growth per year at low density, discrete scale (1 + r_max = λ at N → 0)."""
+    r_max: float | None
+    """Per-capita growth per year at low density, discrete scale (1 + r_max = λ at N → 0);
+    None when the model could not be fitted (``reason`` says why)."""
     r_max_ci: tuple[float, float] | None
     """Confidence interval of r_max; None when the parameters cannot be separated."""
     ceiling_evidence: bool
@@ -96,12 +100,14 @@ class LogisticFit:
     """Why the ceiling is or is not supported, in plain words."""
     method: str
     """How the fit and the intervals were computed."""
-    crowding_per_animal: float
-    """Fitted 1/K [1/animals]; ≤ 0 means growth did not slow as numbers rose."""
+    crowding_per_animal: float | None
+    """Fitted 1/K [1/animals]; ≤ 0 means growth did not slow as numbers rose; None when the
+    model could not be fitted."""
     crowding_ci: tuple[float, float] | None
     """Confidence interval of 1/K [1/animals]."""
-    residual_sd_log: float
-    """Residual standard deviation on the ln scale, per year."""
+    residual_sd_log: float | None
+    """Residual standard deviation on the ln scale, per year; None when the model could not be
+    fitted."""
     n_counts: int
     level: float
 
@@ -329,6 +335,13 @@ def fit_logistic(years, counts, removals=None, level: float = 0.95) -> LogisticF
     1/K lies wholly above 0, and K ≤ :data:`FAR_ABOVE_LARGEST_COUNT` × the largest count.
     Otherwise ``K`` is None and ``reason`` says which test failed.
 
+    The model is not fitted at all (``K``, ``r_max`` and their intervals None, ``reason``
+    beginning "logistic not fitted") when the least-squares fit stops without converging
+    (its evaluation limit reached) or when, at the best parameters found, the map iterated
+    over an interval grows beyond the floating-point range (e.g. over a gap of centuries).
+    While the fit searches, a prediction beyond that range counts as the largest float, so
+    such trial parameters are merely far off: no overflow reaches the optimiser or the user.
+
     Count error makes ln-ratio methods find density dependence too often
     (Freckleton et al. 2006), so a supported ceiling is weak evidence on a short or
     unmanipulated series.
@@ -351,6 +364,9 @@ def fit_logistic(years, counts, removals=None, level: float = 0.95) -> LogisticF
     scale = float(counts.max())
     residuals = _logistic_residuals(counts, steps, harvest, scale)
     best = _least_squares_best_start(residuals, counts, steps, harvest, scale)
+    problem = _fit_problem(best, years, counts, steps, harvest, scale)
+    if problem is not None:
+        return _not_fitted(problem, counts, level)
     return _judge_fit(best, counts, scale, level)
 
 
@@ -582,11 +598,16 @@ def _harvest_by_step(years, steps, removals) -> np.ndarray:
 
 
 def _predict(r_max, crowding, start, steps, harvest) -> np.ndarray:
-    """Iterate the logistic from each observed count over its interval."""
+    """Iterate the logistic from each observed count over its interval [animals].
+
+    Over a long interval the map may overflow (±inf, or NaN from inf − inf): such values are
+    returned as they are, without a floating-point warning.
+    """
     n_animals = start.copy()
-    for year in range(harvest.shape[1]):
-        stepped = _step(n_animals, r_max, crowding, harvest[:, year])
-        n_animals = np.where(steps > year, stepped, n_animals)
+    with np.errstate(over="ignore", invalid="ignore"):
+        for year in range(harvest.shape[1]):
+            stepped = _step(n_animals, r_max, crowding, harvest[:, year])
+            n_animals = np.where(steps > year, stepped, n_animals)
     return n_animals
 
 
@@ -597,7 +618,8 @@ def _logistic_residuals(counts, steps, harvest, scale):
 
     def residuals(theta):
         predicted = _predict(theta[0], theta[1] / scale, counts[:-1], steps, harvest)
-        return (observed - np.log(np.maximum(predicted, floor))) * weights
+        finite = np.nan_to_num(predicted, nan=_PREDICTION_CEILING)  # ±inf → ±largest float
+        return (observed - np.log(np.maximum(finite, floor))) * weights
 
     return residuals
 
@@ -676,6 +698,43 @@ def _judge_fit(fit, counts, scale, level) -> LogisticFit:
         ceiling_evidence=supported,
         reason=reason or _supported_reason(level, c_ci[0]),
         **common,
+    )
+
+
+def _fit_problem(fit, years, counts, steps, harvest, scale) -> str | None:
+    """Why the best fit found is no fit of the model, or None when it is one."""
+    if fit.status == 0:
+        return (
+            f"logistic not fitted: the least-squares fit stopped after {fit.nfev} evaluations "
+            f"of the model without converging, so r_max and K are not estimated"
+        )
+    predicted = _predict(fit.x[0], fit.x[1] / scale, counts[:-1], steps, harvest)
+    overflowed = np.flatnonzero(~np.isfinite(predicted))
+    if overflowed.size:
+        first = int(overflowed[0])
+        return (
+            f"logistic not fitted: at the best parameters found, the model iterated over the "
+            f"{steps[first]}-year interval {years[first]:g}–{years[first + 1]:g} grows beyond "
+            f"the range of floating-point numbers, so r_max and K are not estimated"
+        )
+    return None
+
+
+def _not_fitted(reason: str, counts, level) -> LogisticFit:
+    """The result when the model could not be fitted: no K, no r_max, the reason."""
+    return LogisticFit(
+        K=None,
+        K_ci=None,
+        r_max=None,
+        r_max_ci=None,
+        ceiling_evidence=False,
+        reason=reason,
+        method=LOGISTIC_METHOD,
+        crowding_per_animal=None,
+        crowding_ci=None,
+        residual_sd_log=None,
+        n_counts=int(counts.size),
+        level=float(level),
     )
 
 
