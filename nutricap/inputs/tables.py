@@ -192,7 +192,13 @@ def header_problem(message: str, path: Path, table: pd.DataFrame, expected: str)
 
 
 def read_plots(path: Source) -> pd.DataFrame:
-    """Read the clip-plot table; return it with a ``biomass_kg_per_ha`` column."""
+    """Read the clip-plot table; return it with a ``biomass_kg_per_ha`` column.
+
+    Each row gives its biomass one way: ``dry_mass_g`` with ``frame_area_m2``, or
+    ``biomass_kg_per_ha``. A row that fills both is refused, even when the two agree: which one
+    is meant cannot be told, and a tolerance for agreement would be a guess at how the values
+    were rounded (:func:`refuse_two_biomasses`). Rows may differ in the way they use.
+    """
     table = read_csv_table(path, PLOT_COLUMNS, what="plots table")
     has_frame = {"dry_mass_g", "frame_area_m2"} <= set(table.columns)
     has_direct = "biomass_kg_per_ha" in table.columns
@@ -206,6 +212,7 @@ def read_plots(path: Source) -> pd.DataFrame:
         framed = biomass_kg_per_ha(
             table["dry_mass_g"].to_numpy(), table["frame_area_m2"].to_numpy()
         )
+        refuse_two_biomasses(direct, framed, path)
         _require_plausible_framed_biomass(table, framed, path)
         direct = direct.fillna(pd.Series(framed, index=table.index))
     require_biomass(direct, path)
@@ -226,6 +233,41 @@ def require_biomass(biomass_kg_per_ha: pd.Series, path: Source) -> None:
             index,
             expected="dry_mass_g with frame_area_m2, or biomass_kg_per_ha",
             found="empty cells",
+        )
+
+
+def refuse_two_biomasses(
+    direct_kg_per_ha: pd.Series, framed_kg_per_ha: np.ndarray, path: Source
+) -> None:
+    """Refuse a row with a biomass both given directly and from mass and frame area.
+
+    Parameters
+    ----------
+    direct_kg_per_ha : pandas.Series
+        ``biomass_kg_per_ha`` of each row [kg/ha]; NaN where blank.
+    framed_kg_per_ha : numpy.ndarray
+        ``10 × dry_mass_g / frame_area_m2`` of each row [kg/ha]; NaN where blank.
+    path : Source
+        The table, named in the message.
+
+    Notes
+    -----
+    Any row with both is refused, whether or not the two values agree (the simplest rule a
+    user can predict; leaving one of the two cells blank fixes it).
+    """
+    both = direct_kg_per_ha.notna().to_numpy() & ~np.isnan(framed_kg_per_ha)
+    index = first_index(both)
+    if index is not None:
+        raise row_error(
+            "biomass given twice",
+            path,
+            index,
+            ("dry_mass_g", "frame_area_m2", "biomass_kg_per_ha"),
+            expected="dry_mass_g with frame_area_m2, or biomass_kg_per_ha, not both",
+            found=(
+                f"{framed_kg_per_ha[index]:g} kg/ha from mass and frame area and "
+                f"{direct_kg_per_ha.iloc[index]:g} kg/ha given directly"
+            ),
         )
 
 
