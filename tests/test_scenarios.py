@@ -188,3 +188,43 @@ def test_compare_report_of_several_scenarios(project, tmp_path, capsys):
     for path in ("treatments_thinning.gpkg", "treatments_burn.gpkg"):
         for year in gpd.read_file(project.parent / path)["year"]:
             assert f"<td>{int(year)}</td>" in section
+
+
+def _misspell_response(project, column, good, bad):
+    """Replace the first response row's ``good`` in ``column`` by ``bad``; its spreadsheet row."""
+    path = project.parent / "treatment_responses.csv"
+    table = pd.read_csv(path, dtype=str, keep_default_na=False)
+    index = int(np.flatnonzero(table[column] == good)[0])
+    table.loc[index, column] = bad
+    table.to_csv(path, index=False)
+    return index + 2  # the header is row 1
+
+
+@pytest.mark.parametrize(
+    ("column", "good", "bad"),
+    [("forage_class", "juniper", "junipr"), ("growth_form", "browse", "brouse")],
+)
+def test_response_naming_an_unknown_class_or_growth_form_is_refused(project, column, good, bad):
+    # A misspelt name matched no forage: the response silently did not apply.
+    from nutricap.errors import TableError
+    from nutricap.model.scenarios import read_scenario
+
+    row = _misspell_response(project, column, good, bad)
+    words = column.replace("_", " ")
+    pattern = (
+        rf"treatment_responses\.csv: row {row}, column '{column}': unknown {words} '{bad}'; "
+        rf"did you mean '{good}'\? \(expected a {words} of the forage-class table "
+        rf"\(.*'{good}'.*\); found '{bad}'\)"
+    )
+    with pytest.raises(TableError, match=pattern):
+        read_scenario(load_project(project), "juniper_thinning", [])
+
+
+def test_compare_with_an_unknown_response_class_exits_2(project, tmp_path, capsys):
+    row = _misspell_response(project, "forage_class", "juniper", "junipr")
+    out = tmp_path / "x"
+    argv = ["compare", str(project), "--scenario", "juniper_thinning", "--out", str(out)]
+    assert main([*argv, "--quiet", "--no-figures"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and f"row {row}, column 'forage_class'" in err[0]
+    assert "Traceback" not in err[0] and not out.exists()

@@ -12,6 +12,7 @@ set beside the baseline.
 
 from __future__ import annotations
 
+import difflib
 from dataclasses import dataclass, replace
 
 import geopandas as gpd
@@ -31,6 +32,7 @@ from nutricap.inputs.columns import (
 from nutricap.inputs.project import Project
 from nutricap.inputs.project_schema import ScenarioSection
 from nutricap.inputs.table_source import first_index, row_error
+from nutricap.inputs.tables import read_forage_classes
 from nutricap.landscape.layer_files import feature_error
 from nutricap.landscape.vectors import (
     M2_PER_HA,
@@ -98,11 +100,19 @@ def read_scenario(
     project: Project, name: str, strata: list[str]
 ) -> tuple[ScenarioSection, gpd.GeoDataFrame, pd.DataFrame]:
     """A scenario's section, treatment polygons and response table, read and checked
-    (every treatment type has responses; ``new_stratum`` is empty or one of ``strata``)."""
+    (every treatment type has responses; every response's forage class or growth form is in
+    the project's forage-class table; ``new_stratum`` is empty or one of ``strata``)."""
     section = scenario_section(project, name)
     treatments_path = (project.folder / section.treatments).resolve()
     responses_path = (project.folder / section.responses).resolve()
-    responses = read_responses(project.source("treatment_responses", responses_path))
+    forage_classes = read_forage_classes(project.source("forage_classes"))
+    responses = read_responses(
+        project.source("treatment_responses", responses_path),
+        known={
+            "forage_class": set(forage_classes["forage_class"]),
+            "growth_form": set(forage_classes["growth_form"]) - {""},
+        },
+    )
     treatments_path = project.source("treatments", treatments_path)
     treatments = read_treatments(treatments_path, section.treatments_layer, strata)
     known = set(responses["treatment"])
@@ -133,8 +143,13 @@ def scenario_section(project: Project, name: str) -> ScenarioSection:
     return scenarios[name]
 
 
-def read_responses(path: Source) -> pd.DataFrame:
-    """Read the response table; each row names a forage class or a growth form, not both."""
+def read_responses(path: Source, known: dict[str, set[str]] | None = None) -> pd.DataFrame:
+    """Read the response table; each row names a forage class or a growth form, not both.
+
+    ``known``: the names each of ``forage_class`` and ``growth_form`` may take (those of the
+    forage-class table); a row naming another is refused, since it would match no forage and
+    its response would silently not apply. Not checked when None.
+    """
     table = read_csv_table(path, RESPONSE_COLUMNS, what="treatment-response table")
     for name in ("forage_class", "growth_form"):
         if name not in table.columns:
@@ -151,9 +166,32 @@ def read_responses(path: Source) -> pd.DataFrame:
             expected="exactly one of the two filled",
             found="both" if table["forage_class"].iloc[index] else "neither",
         )
+    for column, names in (known or {}).items():
+        _require_known_names(table, column, names, path)
     keys = ["treatment", "forage_class", "growth_form", "years_since"]
     check_unique(table, keys, path)
     return table.sort_values(keys, kind="stable").reset_index(drop=True)
+
+
+def _require_known_names(table: pd.DataFrame, column: str, names: set[str], path: Source) -> None:
+    """Refuse the first non-blank ``column`` value of a response row that is not in ``names``."""
+    values = table[column]
+    index = first_index((values != "") & ~values.isin(names))
+    if index is None:
+        return
+    value = values.iloc[index]
+    close = difflib.get_close_matches(str(value), sorted(names), n=1)
+    hint = f"; did you mean {close[0]!r}?" if close else ""
+    what = column.replace("_", " ")
+    listed = ", ".join(map(repr, sorted(names))) or "none given"
+    raise row_error(
+        f"unknown {what} {value!r}{hint}",
+        path,
+        index,
+        column,
+        expected=f"a {what} of the forage-class table ({listed})",
+        found=repr(value),
+    )
 
 
 def read_treatments(path: Source, layer: str | None, strata: list[str]) -> gpd.GeoDataFrame:
