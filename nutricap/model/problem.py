@@ -10,11 +10,14 @@ again with :func:`solve_problem`.
 
 from __future__ import annotations
 
+import difflib
 from dataclasses import dataclass, replace
 
 import numpy as np
 import pandas as pd
 
+from nutricap.inputs.columns import Source
+from nutricap.inputs.table_source import first_index, row_error
 from nutricap.landscape.plots import StratumSupply
 from nutricap.landscape.vectors import StratumAreas
 from nutricap.science.capacity import (
@@ -96,8 +99,16 @@ def patch_type_labels(stratum: np.ndarray, variant: np.ndarray) -> np.ndarray:
     return np.where(variant == "", stratum, joined).astype(object)
 
 
-def build_forage_items(supply: StratumSupply, forage_classes: pd.DataFrame) -> ForageItems:
-    """One item per stratum × forage class, with stratum-specific quality where given."""
+def build_forage_items(
+    supply: StratumSupply, forage_classes: pd.DataFrame, source: Source | None = None
+) -> ForageItems:
+    """One item per stratum × forage class, with stratum-specific quality where given.
+
+    A row of ``forage_classes`` whose ``stratum`` override names no stratum of
+    ``supply.strata`` (the strata map) is refused (:func:`require_override_strata`); it would
+    apply nowhere. ``source``: the forage-class table, named in that message.
+    """
+    require_override_strata(forage_classes, supply.strata, source)
     strata = np.repeat(supply.strata, len(supply.classes)).astype(object)
     classes = np.tile(supply.classes, len(supply.strata)).astype(object)
     general = forage_classes[forage_classes["stratum"] == ""].set_index("forage_class")
@@ -126,6 +137,42 @@ def build_forage_items(supply: StratumSupply, forage_classes: pd.DataFrame) -> F
         tannin=attributes["tannin"].fillna(0.0).to_numpy(dtype=float),
         variant=np.full(classes.size, "", dtype=object),
         max_diet_share=attributes["max_diet_share"].fillna(1.0).to_numpy(dtype=float),
+    )
+
+
+FORAGE_CLASS_TABLE = "the forage-class table"
+"""How a message names the forage-class table when its file is not given."""
+
+
+def require_override_strata(
+    forage_classes: pd.DataFrame, strata: list[str], source: Source | None = None
+) -> None:
+    """Refuse the first row whose ``stratum`` override is not a stratum of the map.
+
+    Parameters
+    ----------
+    forage_classes : DataFrame
+        The forage-class table as read (rows in file order); ``stratum`` empty on the rows
+        of a class's own values.
+    strata : list of str
+        The strata of the strata map.
+    source : Source, optional
+        The table's file, named in the message (:data:`FORAGE_CLASS_TABLE` when None).
+    """
+    overrides = forage_classes["stratum"].astype(str)
+    index = first_index((overrides != "") & ~overrides.isin(strata))
+    if index is None:
+        return
+    value = overrides.iloc[index]
+    close = difflib.get_close_matches(value, sorted(strata), n=1)
+    hint = f"; did you mean {close[0]!r}?" if close else ""
+    raise row_error(
+        f"stratum override {value!r} is not a stratum of the strata map{hint}",
+        FORAGE_CLASS_TABLE if source is None else source,
+        index,
+        "stratum",
+        expected="a stratum of the strata map (" + ", ".join(map(repr, sorted(strata))) + ")",
+        found=repr(value),
     )
 
 

@@ -163,7 +163,7 @@ def build_supply(
         strata_path=project.source("strata"),
         strata_without_forage=config.supply.strata_without_forage,
     )
-    items = build_forage_items(supply, inputs.forage_classes)
+    items = build_forage_items(supply, inputs.forage_classes, project.source("forage_classes"))
     return areas, supply, build_problem(areas, supply, items, config.pooling.mode)
 
 

@@ -355,7 +355,7 @@ def _assemble(
     check_units(project, units_table, cells, without_data, specs, grid)
     mapped_ha = cells[:, :n_strata] * cell_ha
     full_supply = _full_supply(supply, setup.classes, gross_kg, mapped_ha - without_data * cell_ha)
-    items = build_forage_items(full_supply, forage_classes)
+    items = build_forage_items(full_supply, forage_classes, project.source("forage_classes"))
     problem, row_of_key = key_problem(units_table, available_kg, mapped_ha, items, mode)
     areas = _areas(units_table, full_supply.strata, mapped_ha, accessible_ha, crs_reason)
     report = rules_report_by_unit(units_table, setup.rules, sums[:, :n_strata], layout, cell_ha)
