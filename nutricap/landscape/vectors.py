@@ -316,9 +316,10 @@ def _check_geometries(frame: gpd.GeoDataFrame, path: Source, what: str) -> None:
 
 
 def _on_the_earth(frame: gpd.GeoDataFrame) -> np.ndarray:
-    """Whether each feature's bounding box maps to longitudes and latitudes (a polygon at
-    1e200 m, say, does not; without a CRS nothing can be said, and every feature passes)."""
-    if frame.crs is None:
+    """Whether each feature's bounding box in a projected CRS maps to longitudes and
+    latitudes (a polygon at 1e200 m, say, does not). Without a CRS nothing can be said, and a
+    geographic layer's coordinates are checked as degrees elsewhere: every feature passes."""
+    if frame.crs is None or CRS.from_user_input(frame.crs).is_geographic:
         return np.ones(len(frame), dtype=bool)
     bounds = frame.geometry.bounds.to_numpy(dtype=float)
     to_degrees = Transformer.from_crs(frame.crs, "EPSG:4326", always_xy=True)
