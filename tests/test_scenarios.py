@@ -160,6 +160,21 @@ def test_treatment_year_outside_the_calendar_is_refused(project, year):
         read_treatments(path, None, [])
 
 
+@pytest.mark.parametrize("column", ["treatment", "year"])
+def test_a_null_treatment_attribute_is_named_as_empty(project, column):
+    # A NULL attribute read as NaN: the message once said "treatment nan has no rows".
+    from nutricap.errors import SpatialError
+    from nutricap.model.scenarios import read_treatments
+
+    path = project.parent / "treatments_thinning.gpkg"
+    layer = gpd.read_file(path)
+    layer[column] = layer[column].astype(object)
+    layer.loc[0, column] = None
+    layer.to_file(path, layer="treatments_thinning", driver="GPKG")
+    with pytest.raises(SpatialError, match=rf"feature 1 .*'{column}'.*found an empty \(NULL\)"):
+        read_treatments(path, None, [])
+
+
 def test_compare_report_of_several_scenarios(project, tmp_path, capsys):
     import json
     import re

@@ -26,8 +26,8 @@ from nutricap.inputs.columns import (
     Column,
     Source,
     check_unique,
-    plain_value,
     read_csv_table,
+    shown_value,
 )
 from nutricap.inputs.project import Project
 from nutricap.inputs.project_schema import ScenarioSection
@@ -206,6 +206,17 @@ def read_treatments(path: Source, layer: str | None, strata: list[str]) -> gpd.G
         optional=("new_stratum",),
         what="treatments layer",
     )
+    empty = frame["treatment"].isna().to_numpy()
+    if empty.any():
+        raise feature_error(
+            "treatment polygon without a treatment type",
+            path,
+            frame,
+            empty,
+            "treatment",
+            expected="the treatment's type, as named in the response table",
+            found="an empty (NULL) value",
+        )
     frame["treatment"] = frame["treatment"].astype(str).str.strip()
     years = pd.to_numeric(frame["year"], errors="coerce").to_numpy(dtype=float)
     with np.errstate(invalid="ignore"):
@@ -219,7 +230,7 @@ def read_treatments(path: Source, layer: str | None, strata: list[str]) -> gpd.G
             bad,
             "year",
             expected=f"a whole year from {FIRST_YEAR} to {LAST_YEAR}, such as 2027",
-            found=repr(plain_value(frame["year"][bad].iloc[0])),
+            found=shown_value(frame["year"][bad].iloc[0]),
         )
     frame["year"] = years.astype(int)
     if "new_stratum" not in frame.columns:
