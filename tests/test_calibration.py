@@ -199,6 +199,17 @@ def test_a_plot_at_two_locations_is_refused(tmp_path):
         read_calibration_plots(path, {"forb", "grass"})
 
 
+def test_a_calibration_plot_with_its_biomass_twice_is_refused(tmp_path):
+    # As in plots.csv: mass and frame (12.5 g on 0.25 m² = 500 kg/ha) and kg/ha on one row.
+    path = _plots_csv(
+        tmp_path,
+        "plot_id,x,y,forage_class,dry_mass_g,frame_area_m2,biomass_kg_per_ha\n"
+        "P1,1,1,forb,12.5,0.25,\nP2,2,2,forb,12.5,0.25,999\n",
+    )
+    with pytest.raises(TableError, match=r"row 3.*biomass given twice.*500.*999"):
+        read_calibration_plots(path, {"forb"})
+
+
 def _index_raster(path, nodata_corner=False):
     values = np.linspace(0.1, 0.9, 100 * 80, dtype=np.float32).reshape(80, 100)
     if nodata_corner:

@@ -28,7 +28,7 @@ from nutricap.inputs.columns import (
     read_csv_table,
 )
 from nutricap.inputs.table_source import first_index, row_error
-from nutricap.inputs.tables import PLOT_COLUMNS, require_biomass
+from nutricap.inputs.tables import PLOT_COLUMNS, refuse_two_biomasses, require_biomass
 from nutricap.landscape.biomass_models import (
     INDEX_BINS,
     MIN_PLOTS,
@@ -85,6 +85,7 @@ def read_calibration_plots(path: Source, known_classes: set[str]) -> pd.DataFram
     direct = table.get("biomass_kg_per_ha", pd.Series(np.nan, index=table.index))
     if {"dry_mass_g", "frame_area_m2"} <= set(table.columns):
         framed = biomass_kg_per_ha(table["dry_mass_g"].to_numpy(), table["frame_area_m2"])
+        refuse_two_biomasses(direct, np.asarray(framed, dtype=float), path)
         direct = direct.fillna(pd.Series(np.asarray(framed), index=table.index))
     require_biomass(direct, path)
     table["biomass_kg_per_ha"] = direct
