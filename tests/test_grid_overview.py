@@ -122,7 +122,7 @@ def test_removed_kg_by_block_adds_up_to_the_rules_report(rules_folder, request, 
     unit_ha = _block_sum((_membership(_units()) >= 0).astype(float), block) * CELL_HA
     for rule, kg in totals.drop("nodata").items():
         layer = maps[f"removed_{rule}"]
-        assert layer.units == "kg per ha" and layer.values.shape == unit_ha.shape
+        assert layer.units == "kg DM per ha" and layer.values.shape == unit_ha.shape
         np.testing.assert_array_equal(np.isnan(layer.values), unit_ha == 0)
         assert np.nansum(layer.values * unit_ha) == pytest.approx(kg, rel=1e-9)
         assert kg > 0

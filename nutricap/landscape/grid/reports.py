@@ -159,7 +159,7 @@ def rule_maps(blocks: BlockSums, grid: Grid, setup: GridSetup) -> list[OverviewM
     ]
     coarse, transform, crs = blocks.coarse, grid.transform, grid.crs
     return [
-        block_map(key, title, "kg per ha", kg.reshape(shape) / area_ha, coarse, transform, crs)
+        block_map(key, title, "kg DM per ha", kg.reshape(shape) / area_ha, coarse, transform, crs)
         for key, title, kg in layers
     ]
 
