@@ -56,7 +56,7 @@ def use(by_unit: pd.DataFrame, use_by_class: pd.DataFrame | None = None) -> dict
     """The use section: demand against the key classes' allowable use, when assessed."""
     if not set(USE_COLUMNS) <= set(by_unit.columns):
         state = "current_only" if "current_animals" in by_unit.columns else "none"
-        return {"state": state, "table": None, "flagged": 0, "key_classes": ""}
+        return {"state": state, "table": None, "flagged": 0, "key_classes": "", "others": False}
     flags = by_unit["overuse"].map(is_flag)
     if "above_ncc" in by_unit.columns:
         flags = flags | by_unit["above_ncc"].map(is_flag)
@@ -73,6 +73,7 @@ def use(by_unit: pd.DataFrame, use_by_class: pd.DataFrame | None = None) -> dict
         "table": table(frame, USE_TABLE_COLUMNS, flag=flags),
         "flagged": int(flags.sum()),
         "key_classes": key_classes,
+        "others": "other_herbivores_taken_aum" in by_unit.columns,
     }
 
 
