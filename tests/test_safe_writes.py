@@ -96,6 +96,33 @@ def test_out_is_a_file(project, tmp_path, capsys):
     assert target.read_text() == "field notes\n"
 
 
+def test_out_under_a_file_is_refused_before_the_run(project, tmp_path, capsys, monkeypatch):
+    # A file where a folder of --out's path should be: refused up front, naming the file (it
+    # once came after the whole estimate as "File exists").
+    import nutricap.workflow.runs as runs
+
+    monkeypatch.setattr(runs, "estimate", lambda *a, **k: pytest.fail("the estimate ran"))
+    blocker = tmp_path / "notes.txt"
+    blocker.write_text("field notes\n")
+    out = blocker / "results" / "winter"
+    line = _refused(capsys, ("estimate", project, "--out", out, "--quiet"), "part of its path")
+    assert f"found {blocker} is a file" in line
+    assert blocker.read_text() == "field notes\n"
+
+
+def test_out_where_nothing_can_be_written_is_refused(project, tmp_path, capsys, monkeypatch):
+    # The write check makes and removes a folder; a disk that refuses it (read-only, or no
+    # permission) is named before any work. The refusal is simulated: root may write anywhere.
+    def refuse(*_args, **_kwargs):
+        raise OSError(errno.EROFS, os.strerror(errno.EROFS))
+
+    monkeypatch.setattr(outputs.tempfile, "mkdtemp", refuse)
+    line = _refused(
+        capsys, ("estimate", project, "--out", tmp_path / "out", "--quiet"), "cannot be written"
+    )
+    assert "Read-only file system" in line and not (tmp_path / "out").exists()
+
+
 def test_out_is_a_symbolic_link_loop(project, tmp_path, capsys):
     out = tmp_path / "results"
     out.symlink_to(out)

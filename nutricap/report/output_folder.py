@@ -33,6 +33,7 @@ import os
 import re
 import shutil
 import socket
+import tempfile
 from collections.abc import Iterable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
@@ -85,6 +86,7 @@ def check_output_folder(
             )
     if out.exists() and not out.is_dir():
         raise OutputError("the output path is a file", source=out, expected="a folder")
+    _require_writable_place(out)
     recover_interrupted(out)
     for part in parts:
         recover_interrupted(out / part)
@@ -100,6 +102,31 @@ def check_output_folder(
         elif whole:
             _require_replaceable(out)
     return out
+
+
+def _require_writable_place(out: Path) -> None:
+    """Refuse, before any work, an ``out`` that cannot be made: a file where a folder of its
+    path should be, or a folder this user cannot write into (read-only disk, permissions).
+    Tested by making and removing an empty folder there: nothing is left behind."""
+    place = out if out.is_dir() else out.parent
+    while not place.exists() and place != place.parent:
+        place = place.parent
+    if not place.is_dir():
+        raise OutputError(
+            "the output folder cannot be made: a part of its path is a file",
+            source=out,
+            expected="a path of folders",
+            found=f"{place} is a file",
+        )
+    try:
+        os.rmdir(tempfile.mkdtemp(prefix=".nutricap-write-check-", dir=place))
+    except OSError as exc:
+        raise OutputError(
+            "the output folder cannot be written",
+            source=out,
+            expected=f"a folder you may write into ({place})",
+            found=exc.strerror or type(exc).__name__,
+        ) from None
 
 
 def _require_parts(out: Path, parts: tuple[str, ...]) -> None:
