@@ -90,7 +90,18 @@ class Scenario:
 
 def load_scenario(project: Project, name: str, areas: StratumAreas, strata: list[str]) -> Scenario:
     """Read a scenario's layer and table, check them, and overlay the treatments."""
-    section, treatments, responses = read_scenario(project, name, strata)
+    return treated_scenario(name, *read_scenario(project, name, strata), areas)
+
+
+def treated_scenario(
+    name: str,
+    section: ScenarioSection,
+    treatments: gpd.GeoDataFrame,
+    responses: pd.DataFrame,
+    areas: StratumAreas,
+) -> Scenario:
+    """The scenario ``name`` (read by :func:`read_scenario`) with its treatments overlaid on
+    the units × strata of ``areas``."""
     treatments = to_area_crs(treatments, areas.area_crs)
     treated = overlay_treatments(areas, treatments)
     return Scenario(name, section, treated, responses, treatments)

@@ -14,10 +14,10 @@ from nutricap.model.grid_scenarios import GridScenario, grid_scenario_year, trea
 from nutricap.model.problem import CapacityProblem
 from nutricap.model.scenarios import (
     Scenario,
-    load_scenario,
     read_scenario,
     scenario_problem,
     scenario_section,
+    treated_scenario,
     years_since_latest_treatment,
 )
 from nutricap.workflow.pipeline import estimate
@@ -57,8 +57,11 @@ def compare_scenarios(
         scenario_section(project, name)
     if on_grid(project):
         return _compare_on_grid(project, names, say, progress, streaming_started)
-    result = estimate(project, progress)
-    scenarios = [load_scenario(project, name, result.areas, result.supply.strata) for name in names]
+    inputs = read_inputs(project, say)
+    strata = sorted(inputs.strata["stratum"].unique())
+    read = [read_scenario(project, name, strata) for name in names]  # checked before the estimate
+    result = estimate(project, progress, inputs=inputs)
+    scenarios = [treated_scenario(name, *parts, result.areas) for name, parts in zip(names, read)]
     mode = project.config.pooling.mode
     base_items = result.problem.items.subset(result.problem.items.variant == "")
     frames = []
