@@ -18,6 +18,7 @@ from pydantic import BaseModel, ValidationError
 
 from nutricap.errors import FILE_MISSING, ProjectFileError, file_problem
 from nutricap.inputs.project_schema import (
+    AT_KEY,
     SOURCE_PATH_KEYS,
     OtherHerbivoreSection,
     ProjectConfig,
@@ -236,6 +237,9 @@ def _describe_one(error: dict, raw: dict) -> str:
     if error["type"] == "missing":
         return f"missing key {key!r}"
     message = error["msg"].removeprefix("Value error, ")
+    if message.startswith(AT_KEY):  # a whole-file check naming its key
+        key, message = message[1:].split(" " + AT_KEY, 1)
+        location = key.split(".")
     if error["type"].startswith("date"):
         message += " (a TOML date in ISO form without quotes, e.g. 2026-12-01)"
     found = _lookup(raw, location)
@@ -280,9 +284,12 @@ def _without_none(annotation: object) -> object:
 def _lookup(raw: dict, location: list[str]) -> object:
     value: object = raw
     for part in location:
-        if not isinstance(value, dict) or part not in value:
+        if isinstance(value, list) and part.isdigit() and int(part) < len(value):
+            value = value[int(part)]  # an array of tables ([[other_herbivores]]) by index
+        elif isinstance(value, dict) and part in value:
+            value = value[part]
+        else:
             return None
-        value = value[part]
     return value
 
 

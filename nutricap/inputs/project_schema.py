@@ -29,6 +29,11 @@ MAX_SEASON_DAYS = 366
 SeasonName = Literal["any", "winter", "spring", "summer", "autumn", "fall"]
 
 
+AT_KEY = "\x1f"
+"""Marks, in a whole-file check's message, the key the problem lies at: ``AT_KEY + key +
+" " + AT_KEY + message`` (a model validator cannot give pydantic a location of its own)."""
+
+
 class ProjectSection(StrictSection):
     """``[project]``: what is being estimated and for how long."""
 
@@ -283,8 +288,8 @@ class ProjectConfig(StrictSection):
     def _one_strata_map(self) -> ProjectConfig:
         if self.strata_as_raster and self.inputs.strata is not None:
             raise ValueError(
-                "the strata are given twice: as polygons ([inputs] strata) and as a raster "
-                "([rasters.strata]); keep one"
+                f"{AT_KEY}inputs.strata {AT_KEY}the strata are given twice: as polygons ([inputs] "
+                "strata) and as a raster ([rasters.strata]); keep one"
             )
         return self
 
@@ -305,7 +310,11 @@ class ProjectConfig(StrictSection):
         names = [herd.name for herd in self.other_herbivores]
         repeated = sorted({name for name in names if names.count(name) > 1})
         if repeated:
-            raise ValueError(f"other_herbivores: the name {repeated[0]!r} is used twice")
+            second = [i for i, name in enumerate(names) if name == repeated[0]][1]
+            raise ValueError(
+                f"{AT_KEY}other_herbivores.{second}.name {AT_KEY}the name {repeated[0]!r} is "
+                "used by an earlier herd as well (expected a name of its own)"
+            )
         return self
 
     @property

@@ -1752,6 +1752,16 @@ CASES = [
     ),
     # third probe (2026-12-04): tracebacks and inputs read wrongly without a word
     Case(
+        "other herbivores: two herds of one name",
+        append_text(
+            "project.toml",
+            '\n[[other_herbivores]]\nname = "cattle permit"\ntiming = "before"\n'
+            'numbers_table = "cattle_permit.csv"\npreference = { grass = 1.0 }\n',
+        ),
+        r"project\.toml: 1 problem: key 'other_herbivores\.1\.name': the name 'cattle permit' "
+        r"is used by an earlier herd as well .*found 'cattle permit'\)",
+    ),
+    Case(
         "rasters: a VRT whose source tile is missing",
         steps(
             biomass_rasters(juniper={}, big_sagebrush={}),
