@@ -65,7 +65,7 @@ from nutricap.landscape.grid.window_pass import (
 )
 from nutricap.landscape.plots import StratumSupply
 from nutricap.landscape.vectors import StratumAreas, choose_area_crs
-from nutricap.model.problem import CapacityProblem, build_forage_items
+from nutricap.model.problem import CapacityProblem, build_forage_items, require_override_strata
 
 Progress = Callable[[str], None]
 
@@ -239,6 +239,8 @@ def grid_problem(
     groups, calibration_report = calibrated_groups(project, calibrated, classes)
     strata_source = strata_map(project, strata)
     supply = strata_supply(plots, strata_source, strata_classes, classes, project)
+    # before the pass, not after it (build_forage_items checks again, for the polygon path)
+    require_override_strata(forage_classes, list(supply.strata), project.source("forage_classes"))
     polygon_stratum, polygon_biomass, access = strata_polygons(strata_source, supply, classes)
     rules = cell_rules(project, forage_classes, classes, access is not None)
     units_table, area_crs, reason, overlap_notes = unit_areas(units, strata_source, project)
