@@ -146,3 +146,24 @@ def test_check_refuses_an_override_of_a_stratum_not_on_the_map(project, capsys):
     line = _one_error_line(capsys)
     assert f"row {row}, column 'stratum': stratum override 'alpine_tundra'" in line
     assert "'sagebrush_steppe'" in line  # the map's strata are listed
+
+
+def test_quiet_run_with_a_home_folder_it_cannot_write_prints_nothing(example_project, tmp_path):
+    # matplotlib warned on stderr that it made a temporary cache folder; --quiet prints nothing
+    # but errors. Figures are drawn (figure files on) in this process and the second one.
+    import os
+    import subprocess
+    import sys
+
+    environment = {**os.environ, "HOME": str(tmp_path / "missing"), "XDG_CACHE_HOME": "/proc/x"}
+    environment["MPLCONFIGDIR"] = "/proc/x"
+    done = subprocess.run(
+        [sys.executable, "-m", "nutricap", "estimate", str(example_project)]
+        + ["--out", str(tmp_path / "out"), "--quiet"],
+        capture_output=True,
+        text=True,
+        env=environment,
+        check=False,
+    )
+    assert done.returncode == 0, done.stderr
+    assert done.stdout == "" and done.stderr == ""
