@@ -177,14 +177,27 @@ def _read_text(source: TableSource, what: str) -> str:
     try:
         return data.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
+        if data.startswith(BINARY_SIGNATURES):
+            raise TableError(
+                f"{what} is not a table but a binary file",
+                source=path,
+                expected="a CSV file saved as UTF-8 (is the project file naming the right file?)",
+                found="a GeoPackage, database, archive or image",
+            ) from None
         row = data[: exc.start].count(NEWLINE) + 1
         raise TableError(
-            f"{what} is not UTF-8 text (byte {exc.start})",
+            f"{what} is not UTF-8 text",
             source=path,
             location=f"row {row}",
             expected="a CSV file saved as UTF-8",
-            found="another encoding; re-save the file as UTF-8 CSV",
+            found=f"byte {data[exc.start]:#04x} at offset {exc.start}, another encoding; "
+            "re-save the file as UTF-8 CSV",
         ) from None
+
+
+BINARY_SIGNATURES = (b"SQLite format 3\x00", b"PK\x03\x04", b"\x1f\x8b", b"II*\x00", b"MM\x00*")
+"""Starts of binary files a table is sometimes confused with: GeoPackage (SQLite), zip
+(including .xlsx), gzip, TIFF."""
 
 
 def _refuse_other_separators(header: str, path: Source, what: str) -> None:

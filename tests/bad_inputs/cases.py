@@ -1752,6 +1752,11 @@ CASES = [
     ),
     # third probe (2026-12-04): tracebacks and inputs read wrongly without a word
     Case(
+        "project: the plots table is a GeoPackage",
+        replace_text("project.toml", '"plots.csv"', '"units.gpkg"'),
+        r"units\.gpkg: plots table is not a table but a binary file",
+    ),
+    Case(
         "other herbivores: two herds of one name",
         append_text(
             "project.toml",
