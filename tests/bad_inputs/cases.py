@@ -1752,6 +1752,12 @@ CASES = [
     ),
     # third probe (2026-12-04): tracebacks and inputs read wrongly without a word
     Case(
+        "rasters: an empty (0-byte) file",
+        steps(biomass_rasters(juniper={}), write_text("juniper.tif", "")),
+        r"juniper\.tif: key 'rasters\.biomass\.juniper': cannot read raster \(expected a "
+        r"raster GDAL reads .*found an empty file \(0 bytes\)\)",
+    ),
+    Case(
         "project: the plots table is a GeoPackage",
         replace_text("project.toml", '"plots.csv"', '"units.gpkg"'),
         r"units\.gpkg: plots table is not a table but a binary file",

@@ -191,8 +191,23 @@ def open_raster(path: Path, key: str):
         return rasterio.open(path)
     except RasterioIOError as exc:
         raise SpatialError(
-            f"cannot read raster: {exc}", source=path, location=f"key {key!r}"
+            "cannot read raster",
+            source=path,
+            location=f"key {key!r}",
+            expected="a raster GDAL reads (GeoTIFF preferred), complete"
+            + (", its XML well formed" if path.suffix.lower() == ".vrt" else ""),
+            found=_gdal_words(exc, path),
         ) from None
+
+
+def _gdal_words(exc: Exception, path: Path) -> str:
+    """GDAL's reason for not opening ``path``, in fewer words (its own path left out)."""
+    if path.exists() and path.is_file() and path.stat().st_size == 0:
+        return "an empty file (0 bytes)"
+    text = str(exc).replace(f"'{path}' ", "").replace(f"{path.name}: ", "")
+    if "not recognized as being in a supported file format" in text:
+        return "a file in no raster format GDAL knows (a vector layer, or another kind of file?)"
+    return f"GDAL: {text}"
 
 
 def raster_crs(src, path: Path, key: str):
