@@ -4,9 +4,10 @@ Usage (from anywhere)::
 
     python example_landscape/generate.py
 
-Every file here except this script and README.md is written by
-:func:`nutricap.example.write_example_landscape` with its fixed seed, so the
-output is the same on every run. All content is invented for the example.
+Every file here except this script is written by
+:func:`nutricap.example.write_example_landscape` with its fixed seed (README.md
+from nutricap/example/README.md), so the output is the same on every run. All
+content is invented for the example.
 """
 
 from __future__ import annotations

@@ -37,7 +37,7 @@ LAYERS = {
     "treatments_burn.gpkg": "treatments_burn",
 }
 RASTERS = ("snow_depth_cm.tif", "slope_pct.tif")
-ALL_FILES = {*CSV_FILES, *LAYERS, *RASTERS, "project.toml", "project_rasters.toml"}
+ALL_FILES = {*CSV_FILES, *LAYERS, *RASTERS, "project.toml", "project_rasters.toml", "README.md"}
 # Column contract of SPEC.md ("Inputs"); the energy pair de_kcal_per_g | dmd_pct is
 # checked separately.
 CONTRACT_COLUMNS = {
@@ -72,8 +72,8 @@ def read_layer(folder: Path, file: str) -> gpd.GeoDataFrame:
 
 
 def assert_same_landscape(a: Path, b: Path) -> None:
-    """Identical CSV and TOML bytes, identical attributes and geometries."""
-    for name in (*CSV_FILES, "project.toml", "project_rasters.toml"):
+    """Identical CSV, TOML and README bytes, identical attributes and geometries."""
+    for name in (*CSV_FILES, "project.toml", "project_rasters.toml", "README.md"):
         assert (a / name).read_bytes() == (b / name).read_bytes(), name
     for name in RASTERS:
         with rasterio.open(a / name) as left, rasterio.open(b / name) as right:
@@ -110,6 +110,17 @@ def test_two_runs_are_identical(first: Path, second: Path) -> None:
 def test_committed_files_match_the_generator(first: Path) -> None:
     """example_landscape/ holds exactly what generate.py writes (regenerate when this fails)."""
     assert_same_landscape(first, COMMITTED)
+
+
+def test_readme_names_every_file_and_scenario(first: Path) -> None:
+    # The README written beside the files (also in the demo's folder) lists each of them and
+    # the scenarios of the project files.
+    text = (first / "README.md").read_text(encoding="utf-8")
+    for name in ALL_FILES - {"README.md"}:
+        assert f"`{name}`" in text, name
+    for scenario in ("juniper_thinning", "prescribed_burn"):
+        assert f"[scenarios.{scenario}]" in (first / "project.toml").read_text()
+        assert f"`{scenario}`" in text, scenario
 
 
 def test_total_size_under_two_mebibytes(first: Path) -> None:
@@ -165,7 +176,7 @@ def test_project_file_follows_the_schema(first: Path) -> None:
     raster_variant = {"project_rasters.toml", *RASTERS}
     assert (
         set(raw["inputs"].values()) | scenario_files
-        == ALL_FILES - {"project.toml"} - raster_variant
+        == ALL_FILES - {"project.toml", "README.md"} - raster_variant
     )
 
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from importlib import resources
 from pathlib import Path
 
 import numpy as np
@@ -78,4 +79,6 @@ def write_example_landscape(folder: Path, seed: int = SEED) -> Path:
     )
     project = folder / "project.toml"
     project.write_text(PROJECT_TOML + SCENARIOS_TOML, encoding="utf-8")
+    readme = resources.files("nutricap.example").joinpath("README.md")
+    (folder / "README.md").write_text(readme.read_text(encoding="utf-8"), encoding="utf-8")
     return project
