@@ -448,11 +448,23 @@ def test_population_trend_figure_with_ceiling():
         "K (fitted ceiling): 400",
         "K/2 (maximum sustained yield level): 200",
         "NCC from forage: 300",
-        "ECC from forage: 900",
+        "ECC from forage: 900 (above the chart)",  # 900 > 3 × the largest count, 190
         "Fitted logistic",
     ):
         assert label in texts
     assert figure.axes[0].get_ylabel().endswith("]")
+    drawn = [line.get_label() for line in figure.axes[0].lines]
+    assert not any(label.startswith("ECC") for label in drawn)  # named, not drawn
+    assert figure.axes[0].get_ylim()[1] < 900.0
+
+
+def test_population_trend_figure_draws_a_line_near_the_counts():
+    # ECC 500 is within 3 × the largest count (190 × 3 = 570): drawn as a line.
+    figure = figures.population_trend_figure(
+        [2020, 2021, 2022], [100, 150, 190], None, None, None, 300.0, 500.0
+    )
+    drawn = [line.get_label() for line in figure.axes[0].lines]
+    assert "ECC from forage: 500" in drawn and "NCC from forage: 300" in drawn
 
 
 def test_population_trend_figure_without_ceiling():

@@ -141,6 +141,11 @@ def _capacity_series(
 # --- population trend ---------------------------------------------------------------------
 
 
+FAR_ABOVE = 3.0
+"""A reference line above this many times the largest count (or fitted count) is named in the
+trend chart's legend instead of drawn, so that the counts keep the chart's height."""
+
+
 def population_trend_figure(
     years: Sequence[float],
     counts: Sequence[float],
@@ -188,18 +193,30 @@ def population_trend_figure(
         (ncc_animals, "NCC from forage", OKABE_ITO["blue"], "--"),
         (ecc_animals, "ECC from forage", OKABE_ITO["bluish_green"], "-."),
     ]
+    top = float(np.nanmax(np.asarray([*counts, *(fitted_counts or [])], dtype=float)))
+    above = []  # lines far above the counts: named, not drawn (they would flatten them)
     for value, words, colour, style in lines:
-        if value is not None and math.isfinite(value):
-            ax.axhline(
-                value, color=colour, linestyle=style, linewidth=1.5, label=f"{words}: {value:,.0f}"
-            )
+        if value is None or not math.isfinite(value):
+            continue
+        if value > FAR_ABOVE * top:
+            above.append(f"{words}: {value:,.0f} (above the chart)")
+            continue
+        ax.axhline(
+            value, color=colour, linestyle=style, linewidth=1.5, label=f"{words}: {value:,.0f}"
+        )
     handles, labels = ax.get_legend_handles_labels()
+    for words in above:
+        handles.append(Line2D([], [], linestyle="none"))
+        labels.append(words)
     title = "Counts over time beside forage capacity"
     if K is None:
         handles.append(Line2D([], [], linestyle="none"))
         labels.append("no evidence of a ceiling: K not drawn")
         title += " (no evidence of a ceiling)"
-    ax.legend(handles, labels, fontsize=8, loc="best", framealpha=0.9)
+    # beside the plot: the reference lines run across all of it
+    ax.legend(
+        handles, labels, fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False
+    )
     ax.set_xlabel("Year")
     ax.set_ylabel("Animals [count index]")
     ax.yaxis.set_major_formatter(THOUSANDS)
