@@ -47,7 +47,7 @@ FORAGE_CLASS_COLUMNS = [
         meaning="fraction of current growth that may be used, 0 to 1",
     ),
     Column.optional("key", "flag"),
-    Column.optional("height_cm", minimum=0, maximum=3000, meaning="forage height, cm"),
+    Column.optional("height_cm", above=0, maximum=3000, meaning="forage height, cm, above 0"),
     Column.optional(
         "tannin", minimum=0, maximum=1, meaning="tannin protein precipitation, mg BSA per mg forage"
     ),
@@ -84,7 +84,7 @@ PLOT_COLUMNS = [
 
 ANIMAL_CLASS_COLUMNS = [
     Column("animal_class", "text", meaning="name of the animal class"),
-    Column("body_mass_kg", above=0, maximum=2000, meaning="live body mass, kg"),
+    Column("body_mass_kg", minimum=1, maximum=2000, meaning="live body mass, kg"),
     Column("share", minimum=0, maximum=1, meaning="share of the herd, 0 to 1"),
     Column("state", "text", meaning="reproductive state, e.g. maintenance, gestation, lactation"),
     Column.optional(

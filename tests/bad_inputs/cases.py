@@ -664,7 +664,18 @@ CASES = [
         "animal classes: body mass of 0",
         set_cell(A, 3, "body_mass_kg", "0"),
         r"animal_classes\.csv: row 3, column 'body_mass_kg': value out of range "
-        r"\(expected a number > 0",
+        r"\(expected a number >= 1 and <= 2000",
+    ),
+    Case(
+        "animal classes: body mass of 10 g",
+        set_cell(A, 3, "body_mass_kg", "0.01"),
+        r"animal_classes\.csv: row 3, column 'body_mass_kg': value out of range .*found 0\.01",
+    ),
+    Case(
+        "forage classes: a forage height of 0 cm",
+        set_cell("forage_classes.csv", 2, "height_cm", "0"),
+        r"forage_classes\.csv: row 2, column 'height_cm': value out of range \(expected a number "
+        r"> 0",
     ),
     Case(
         "animal classes: shares in percent",
