@@ -175,6 +175,26 @@ def test_a_null_treatment_attribute_is_named_as_empty(project, column):
         read_treatments(path, None, [])
 
 
+def test_a_treatment_polygon_on_no_unit_is_noted(project):
+    # One thinning polygon moved 100 km east (off the invented basin): it changes nothing, and
+    # the run says so instead of comparing a scenario that silently lost a treatment.
+    from shapely.affinity import translate
+
+    from nutricap.inputs.project import load_project
+    from nutricap.workflow.comparison import compare_scenarios
+
+    path = project.parent / "treatments_thinning.gpkg"
+    layer = gpd.read_file(path)
+    layer.loc[1, "geometry"] = translate(layer.geometry.iloc[1], xoff=100_000.0)
+    layer.to_file(path, layer="treatments_thinning", driver="GPKG")
+    result, _table, _ = compare_scenarios(load_project(project), "juniper_thinning")
+    notes = [note for note in result.notes if "lie on no management unit" in note]
+    assert notes == [
+        "scenario 'juniper_thinning': 1 of 3 treatment polygon(s) lie on no management unit "
+        "(feature(s) 2) and change nothing (a mix-up of CRS or of files?)"
+    ]
+
+
 def test_compare_report_of_several_scenarios(project, tmp_path, capsys):
     import json
     import re

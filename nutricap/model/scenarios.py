@@ -13,6 +13,7 @@ set beside the baseline.
 from __future__ import annotations
 
 import difflib
+from collections.abc import Sequence
 from dataclasses import dataclass, replace
 
 import geopandas as gpd
@@ -105,6 +106,28 @@ def treated_scenario(
     treatments = to_area_crs(treatments, areas.area_crs)
     treated = overlay_treatments(areas, treatments)
     return Scenario(name, section, treated, responses, treatments)
+
+
+def off_unit_notes(scenarios: Sequence[Scenario], units: gpd.GeoDataFrame) -> list[str]:
+    """Notes on treatment polygons that touch no management unit: they change nothing, which
+    usually means a mix-up of CRS or of files."""
+    notes = []
+    for scenario in scenarios:
+        layer = scenario.treatments
+        if layer is None or layer.empty:
+            continue
+        if units.crs is not None and layer.crs is not None and layer.crs != units.crs:
+            layer = layer.to_crs(units.crs)
+        touched = set(units.sindex.query(layer.geometry, predicate="intersects")[0].tolist())
+        off = [number + 1 for number in range(len(layer)) if number not in touched]
+        if off:
+            shown = ", ".join(map(str, off[:10])) + (" …" if len(off) > 10 else "")
+            notes.append(
+                f"scenario {scenario.name!r}: {len(off)} of {len(layer)} treatment polygon(s) "
+                f"lie on no management unit (feature(s) {shown}) and change nothing (a mix-up "
+                "of CRS or of files?)"
+            )
+    return notes
 
 
 def read_scenario(

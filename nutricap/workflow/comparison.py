@@ -14,6 +14,7 @@ from nutricap.model.grid_scenarios import GridScenario, grid_scenario_year, trea
 from nutricap.model.problem import CapacityProblem
 from nutricap.model.scenarios import (
     Scenario,
+    off_unit_notes,
     read_scenario,
     scenario_problem,
     scenario_section,
@@ -56,7 +57,11 @@ def compare_scenarios(
     for name in names:  # an unknown name is refused before any work
         scenario_section(project, name)
     if on_grid(project):
-        return _compare_on_grid(project, names, say, progress, streaming_started)
+        result, table, scenarios = _compare_on_grid(
+            project, names, say, progress, streaming_started
+        )
+        result.notes.extend(off_unit_notes(scenarios, result.units))
+        return result, table, scenarios
     inputs = read_inputs(project, say)
     strata = sorted(inputs.strata["stratum"].unique())
     read = [read_scenario(project, name, strata) for name in names]  # checked before the estimate
@@ -72,6 +77,7 @@ def compare_scenarios(
             problem, pieces = scenario_problem(scenario, result.areas, base_items, year, mode)
             since = years_since_latest_treatment(pieces, problem.unit_ids)
             frames.append(_scenario_year(project, result, scenario.name, year, problem, since))
+    result.notes.extend(off_unit_notes(scenarios, result.units))
     return result, pd.concat(frames, ignore_index=True), scenarios
 
 
