@@ -229,6 +229,15 @@ def _refuse_repeated_columns(names: list[str], path: Path | TableSource) -> None
 
 
 def _parser_error(exc: Exception, path: Source, what: str) -> TableError:
+    unclosed = re.search(r"EOF inside string starting at row (\d+)", str(exc))
+    if unclosed is not None:  # pandas counts the file's lines from 0
+        return TableError(
+            "a quoted value is never closed",
+            source=path,
+            location=f"row {int(unclosed.group(1)) + 1}",
+            expected='a closing " for each opening " (or no quotes at all)',
+            found='a " that opens a value running to the end of the file',
+        )
     match = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", str(exc))
     if match is None:
         return TableError(f"{what} cannot be read as CSV: {exc}", source=path)

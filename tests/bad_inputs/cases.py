@@ -1763,6 +1763,11 @@ CASES = [
     ),
     # third probe (2026-12-04): tracebacks and inputs read wrongly without a word
     Case(
+        "forage classes: a quote never closed",
+        replace_text("forage_classes.csv", "\nbitterbrush,", '\n"bitterbrush,'),
+        r"forage_classes\.csv: row 3: a quoted value is never closed",
+    ),
+    Case(
         "rasters: an empty (0-byte) file",
         steps(biomass_rasters(juniper={}), write_text("juniper.tif", "")),
         r"juniper\.tif: key 'rasters\.biomass\.juniper': cannot read raster \(expected a "
