@@ -300,3 +300,21 @@ def test_report_figures_are_written_as_png_and_svg_unless_asked_not_to(project, 
         capsys, "estimate", project, "--out", tmp_path / "b", "--pdf", "--no-report"
     )
     assert code == 2 and "--no-report" in err and not (tmp_path / "b").exists()
+
+
+@pytest.mark.parametrize(
+    "argv, words",
+    [
+        (["estimate"], "the following arguments are required: project, --out"),
+        (["trend", "counts.csv", "--level", "abc"], "argument --level: invalid float value"),
+        (["frobnicate"], "invalid choice: 'frobnicate'"),
+    ],
+)
+def test_a_command_line_mistake_is_one_line(argv, words, capsys):
+    # As every other error: one line on stderr, exit 2 (argparse printed its usage first).
+    with pytest.raises(SystemExit) as stop:
+        main(argv)
+    assert stop.value.code == 2
+    lines = capsys.readouterr().err.splitlines()
+    assert len(lines) == 1 and words in lines[0], lines
+    assert lines[0].startswith("nutricap") and lines[0].endswith("--help)")

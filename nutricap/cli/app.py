@@ -11,6 +11,7 @@ import gc
 import sys
 import warnings
 from collections.abc import Sequence
+from typing import NoReturn
 
 from nutricap import __version__
 from nutricap.cli.commands import add_check, add_compare, add_estimate
@@ -28,9 +29,17 @@ DESCRIPTION = (
 )
 
 
+class OneLineParser(argparse.ArgumentParser):
+    """An argument parser whose mistakes are one line, as every other error of the command
+    (argparse prints its usage lines first); the subcommands' parsers are of this class."""
+
+    def error(self, message: str) -> NoReturn:
+        self.exit(EXIT_BAD_INPUT, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every subcommand."""
-    parser = argparse.ArgumentParser(
+    parser = OneLineParser(
         prog="nutricap",
         description=DESCRIPTION,
         epilog=EPILOG,
