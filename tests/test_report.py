@@ -676,7 +676,9 @@ def test_values_to_verify_box_and_replaceable_tables(example_html):
         ("diet_share", "<td>one class&#39;s diet-share cap</td>"),
         ("protein+diet_group", "<td>protein + a diet group&#39;s share</td>"),
         ("energy+diet_share+diet_group", "energy + one class&#39;s diet-share cap + a diet group"),
-        ("energy+protein", "<td>energy+protein</td>"),
+        ("energy+protein", "<td>energy + protein</td>"),
+        ("no_forage", "<td>no forage left (after use caps and other herbivores)</td>"),
+        ("quantity", "<td>forage quantity (all the forage allowed is eaten)</td>"),
     ],
 )
 def test_limiting_factors_are_labelled_in_words(plain_estimate, project, manifest, factor, label):

@@ -291,24 +291,27 @@ LIMITING_LABELS = {
     "intake": "target diet unreachable (no forage mix meets it within intake)",
     "diet_mix": "diet limits unreachable (no forage mix meets the target diet within the "
     "diet-composition limits)",
+    "no_forage": "no forage left (after use caps and other herbivores)",
+    "quantity": "forage quantity (all the forage allowed is eaten)",
 }
 """Report labels of ``limiting_factor`` values whose CSV word alone would mislead."""
-COMPOSITION_WORDS = {
+PART_WORDS = {
     "diet_share": "one class's diet-share cap",
     "diet_group": "a diet group's share",
 }
-"""Words for the diet-composition parts of a binding ``limiting_factor`` ("protein+diet_group")."""
+"""Words for the parts of a binding ``limiting_factor`` ("protein+diet_group"); "energy" and
+"protein" are words already."""
 
 
 def limiting_label(value: Any) -> str:
-    """The report's label of a ``limiting_factor`` value (the CSV keeps the value itself)."""
+    """The report's label of a ``limiting_factor`` value (the CSV keeps the value itself):
+    its words, its parts joined by " + " ("energy+protein" → "energy + protein")."""
     if is_missing(value):
         return "–"
     text = str(value)
-    parts = text.split("+")
-    if text in LIMITING_LABELS or not COMPOSITION_WORDS.keys() & set(parts):
-        return LIMITING_LABELS.get(text, text)
-    return " + ".join(COMPOSITION_WORDS.get(part, part) for part in parts)
+    if text in LIMITING_LABELS:
+        return LIMITING_LABELS[text]
+    return " + ".join(PART_WORDS.get(part, part) for part in text.split("+"))
 
 
 #: The diet at NCC, per unit.
