@@ -592,3 +592,14 @@ def test_tornado_limits_inputs():
     )
     figure = figures.tornado_figure(table, max_inputs=3)
     assert sorted(t.get_text() for t in figure.axes[0].get_yticklabels()) == ["d", "e", "f"]
+    # "a" moves nothing (0 both ways): counted apart, as not drawn.
+    assert figure.axes[0].get_title().endswith("(3 widest of 5; 1 with no effect not drawn)")
+
+
+def test_tornado_leaves_out_inputs_without_effect():
+    table = invented_sensitivity()
+    table.loc[len(table)] = ["tannin", 0.0, 0.0]  # an input that changes nothing
+    figure = figures.tornado_figure(table)
+    names = [t.get_text() for t in figure.axes[0].get_yticklabels()]
+    assert "tannin" not in names and len(names) == 3
+    assert "1 with no effect not drawn" in figure.axes[0].get_title()

@@ -400,10 +400,13 @@ def tornado_figure(
     Returns
     -------
     matplotlib.figure.Figure
-        Inputs sorted by range |high − low|, the widest at the top.
+        Inputs sorted by range |high − low|, the widest at the top; inputs that change
+        nothing either way are left out (the title counts them).
     """
     require_columns(sensitivity_table, TORNADO_COLUMNS, "sensitivity table")
-    table = sort_by_range(sensitivity_table).iloc[:max_inputs].iloc[::-1]
+    changes = sensitivity_table[["low_change_animals", "high_change_animals"]]
+    moving = sensitivity_table[(changes != 0.0).any(axis=1)]  # no bar to draw for the others
+    table = sort_by_range(moving).iloc[:max_inputs].iloc[::-1]
     figure = new_figure(8.0, max(2.8, 0.42 * len(table) + 1.5))
     ax = figure.add_subplot()
     rows = np.arange(len(table))
@@ -431,8 +434,11 @@ def tornado_figure(
     ax.grid(axis="x", color="#eeeeee")
     ax.legend(fontsize=8, framealpha=0.9)
     title = "Sensitivity of total NCC to each input"
-    if len(table) < len(sensitivity_table):
-        title += f" ({len(table)} widest of {len(sensitivity_table)})"
+    left_out = [f"{len(table)} widest of {len(moving)}"] if len(table) < len(moving) else []
+    if len(moving) < len(sensitivity_table):
+        left_out.append(f"{len(sensitivity_table) - len(moving)} with no effect not drawn")
+    if left_out:
+        title += f" ({'; '.join(left_out)})"
     ax.set_title(title)
     return figure
 
