@@ -131,15 +131,20 @@ def off_unit_notes(scenarios: Sequence[Scenario], units: gpd.GeoDataFrame) -> li
 
 
 def read_scenario(
-    project: Project, name: str, strata: list[str]
+    project: Project,
+    name: str,
+    strata: list[str],
+    forage_classes: pd.DataFrame | None = None,
 ) -> tuple[ScenarioSection, gpd.GeoDataFrame, pd.DataFrame]:
     """A scenario's section, treatment polygons and response table, read and checked
     (every treatment type has responses; every response's forage class or growth form is in
-    the project's forage-class table; ``new_stratum`` is empty or one of ``strata``)."""
+    the project's forage-class table, ``forage_classes`` as read already, or read here when
+    None; ``new_stratum`` is empty or one of ``strata``)."""
     section = scenario_section(project, name)
     treatments_path = (project.folder / section.treatments).resolve()
     responses_path = (project.folder / section.responses).resolve()
-    forage_classes = read_forage_classes(project.source("forage_classes"))
+    if forage_classes is None:
+        forage_classes = read_forage_classes(project.source("forage_classes"))
     responses = read_responses(
         project.source("treatment_responses", responses_path),
         known={

@@ -64,7 +64,8 @@ def compare_scenarios(
         return result, table, scenarios
     inputs = read_inputs(project, say)
     strata = sorted(inputs.strata["stratum"].unique())
-    read = [read_scenario(project, name, strata) for name in names]  # checked before the estimate
+    classes = inputs.forage_classes
+    read = [read_scenario(project, name, strata, classes) for name in names]  # before the estimate
     result = estimate(project, progress, inputs=inputs)
     scenarios = [treated_scenario(name, *parts, result.areas) for name, parts in zip(names, read)]
     mode = project.config.pooling.mode
@@ -93,7 +94,7 @@ def _compare_on_grid(project: Project, names: list[str], say: Progress, progress
     mode = project.config.pooling.mode
     frames, scenarios, result = [], [], None
     for name in names:
-        section, treatments, responses = read_scenario(project, name, strata)
+        section, treatments, responses = read_scenario(project, name, strata, inputs.forage_classes)
         first = result is None
         run = estimate(
             project,
