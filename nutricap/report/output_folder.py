@@ -107,8 +107,9 @@ def check_output_folder(
 def _require_writable_place(out: Path) -> None:
     """Refuse, before any work, an ``out`` that cannot be made: a file where a folder of its
     path should be, or a folder this user cannot write into (read-only disk, permissions).
-    Tested by making and removing an empty folder there: nothing is left behind."""
-    place = out if out.is_dir() else out.parent
+    Tested by making and removing an empty folder where the staging folder goes, beside
+    ``out`` (never inside it): nothing is left behind."""
+    place = out.parent
     while not place.exists() and place != place.parent:
         place = place.parent
     if not place.is_dir():
